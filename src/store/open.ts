@@ -1,0 +1,14 @@
+import { join } from 'node:path';
+import type { Db } from './db.ts';
+import { openEmbedded } from './embedded-driver.ts';
+import { openPostgres } from './postgres-driver.ts';
+
+/** A PostgreSQL server when a connection string is given, else the embedded store under dataDir. */
+export async function openDb(options: { databaseUrl?: string; dataDir: string }): Promise<Db> {
+  if (options.databaseUrl) {
+    const db = openPostgres(options.databaseUrl);
+    await db.query('select 1');
+    return db;
+  }
+  return openEmbedded(join(options.dataDir, 'embedded'));
+}

@@ -1,0 +1,71 @@
+import pg from 'pg';
+import type { Db, Queryable } from './db.ts';
+
+// timestamptz and int8 come back as ISO strings / numbers we control, not driver-specific objects.
+pg.types.setTypeParser(pg.types.builtins.INT8, (v) => Number(v));
+
+export function openPostgres(connectionString: string, max = 10): Db {
+  const pool = new pg.Pool({ connectionString, max });
+  let listener: pg.Client | null = null;
+  const handlers = new Map<string, Set<(payload: string) => void>>();
+
+  async function listenerClient(): Promise<pg.Client> {
+    if (listener) return listener;
+    const client = new pg.Client({ connectionString });
+    await client.connect();
+    client.on('notification', (msg) => {
+      for (const fn of handlers.get(msg.channel) ?? []) fn(msg.payload ?? '');
+    });
+    listener = client;
+    return client;
+  }
+
+  return {
+    kind: 'postgres',
+    async query(sql, params) {
+      const result = await pool.query(sql, params as unknown[]);
+      return { rows: result.rows };
+    },
+    async transaction(fn) {
+      const client = await pool.connect();
+      try {
+        await client.query('begin');
+        const tx: Queryable = {
+          async query(sql, params) {
+            const result = await client.query(sql, params as unknown[]);
+            return { rows: result.rows };
+          },
+        };
+        const out = await fn(tx);
+        await client.query('commit');
+        return out;
+      } catch (err) {
+        await client.query('rollback').catch(() => undefined);
+        throw err;
+      } finally {
+        client.release();
+      }
+    },
+    async listen(channel, onPayload) {
+      const client = await listenerClient();
+      let set = handlers.get(channel);
+      if (!set) {
+        set = new Set();
+        handlers.set(channel, set);
+        await client.query(`listen ${quoteIdent(channel)}`);
+      }
+      set.add(onPayload);
+      return async () => {
+        set.delete(onPayload);
+      };
+    },
+    async close() {
+      if (listener) await listener.end().catch(() => undefined);
+      await pool.end();
+    },
+  };
+}
+
+function quoteIdent(name: string): string {
+  return `"${name.replace(/"/g, '""')}"`;
+}
