@@ -10,6 +10,7 @@ create table gauges (
   flow_unit text not null,
   latitude double precision,
   longitude double precision,
+  elevation_m double precision,
   thresholds jsonb not null default '[]',
   created_at timestamptz not null default now(),
   updated_at timestamptz not null default now()

@@ -1,0 +1,86 @@
+import Fastify, { type FastifyBaseLogger, type FastifyInstance } from 'fastify';
+import type { Config } from '../config.ts';
+import type { Db } from '../store/db.ts';
+import { authHook } from './auth.ts';
+import type { Services } from './context.ts';
+import { forcingRoutes } from './forcings.ts';
+import { gaugeRoutes } from './gauges.ts';
+import { healthRoutes } from './health.ts';
+import { observationRoutes } from './observations.ts';
+import { ApiDocs } from './openapi.ts';
+import { docsRoutes } from './docs.ts';
+import { Problem } from './problem.ts';
+import { reforecastRoutes } from './reforecasts.ts';
+import { simulationRoutes } from './simulations.ts';
+import { tokenRoutes } from './token-routes.ts';
+
+export interface AppOptions {
+  db: Db;
+  config: Config;
+  /** A pino logger; none keeps tests quiet. */
+  logger?: FastifyBaseLogger;
+}
+
+export async function buildApp(options: AppOptions): Promise<FastifyInstance> {
+  const { db, config } = options;
+  const app = Fastify({
+    ...(options.logger ? { loggerInstance: options.logger } : { logger: false }),
+    bodyLimit: Math.round(config.BODY_LIMIT_MB * 1024 * 1024),
+    return503OnClosing: true,
+    routerOptions: { ignoreTrailingSlash: true },
+  });
+  const services: Services = { db, config, docs: new ApiDocs() };
+
+  for (const type of ['text/csv', 'text/plain']) {
+    app.addContentTypeParser(type, { parseAs: 'string' }, (_req, body, done) => done(null, body));
+  }
+
+  app.setErrorHandler((error, request, reply) => {
+    const problem = toProblem(error);
+    if (problem.status >= 500) request.log.error({ err: error }, 'request failed');
+    reply
+      .code(problem.status)
+      .headers(problem.headers)
+      .type('application/problem+json')
+      .send(problem.body(request.url));
+  });
+  app.setNotFoundHandler((request, reply) => {
+    reply
+      .code(404)
+      .type('application/problem+json')
+      .send(new Problem(404, 'not-found', 'Not found', `no route ${request.method} ${request.url.split('?')[0]}`).body());
+  });
+
+  app.addHook('onRequest', authHook(services));
+
+  await app.register(healthRoutes, { services });
+  await app.register(docsRoutes, { services });
+  await app.register(tokenRoutes, { services });
+  await app.register(gaugeRoutes, { services });
+  await app.register(observationRoutes, { services });
+  await app.register(forcingRoutes, { services });
+  await app.register(simulationRoutes, { services });
+  await app.register(reforecastRoutes, { services });
+  return app;
+}
+
+/** Maps anything thrown to RFC 9457 problem details; fastify's own errors keep their status. */
+function toProblem(error: unknown): Problem {
+  if (error instanceof Problem) return error;
+  const e = error as { statusCode?: number; code?: string; message?: string };
+  switch (e.code) {
+    case 'FST_ERR_CTP_BODY_TOO_LARGE':
+      return new Problem(413, 'payload-too-large', 'Payload too large', `${e.message}; split the batch into smaller ones`);
+    case 'FST_ERR_CTP_INVALID_MEDIA_TYPE':
+      return new Problem(415, 'unsupported-media-type', 'Unsupported media type', `${e.message}; send application/json or text/csv`);
+    case 'FST_ERR_CTP_EMPTY_JSON_BODY':
+      return new Problem(400, 'bad-request', 'Bad request', 'the JSON body is empty', [{ path: 'body', message: 'empty' }]);
+  }
+  if (e.statusCode === 400 && e.message) {
+    return new Problem(400, 'malformed-body', 'Malformed body', e.message, [{ path: 'body', message: e.message }]);
+  }
+  if (e.statusCode && e.statusCode >= 400 && e.statusCode < 500) {
+    return new Problem(e.statusCode, 'bad-request', 'Bad request', e.message);
+  }
+  return new Problem(500, 'internal-error', 'Internal error', 'the service failed to handle this request; it has been logged');
+}

@@ -1,0 +1,48 @@
+import type { FastifyReply, FastifyRequest } from 'fastify';
+import { z } from 'zod';
+import type { Queryable } from '../store/db.ts';
+import { getGauge, type Gauge } from '../store/gauges-repo.ts';
+import type { Window } from '../store/archive-repo.ts';
+import { badRequest, notFound } from './problem.ts';
+import { GaugeId, TimeWindowQuery } from './schemas.ts';
+import { parseWith } from './validate.ts';
+
+export const GaugeParams = z.object({ id: GaugeId });
+
+export async function requireGauge(db: Queryable, params: unknown, forUpdate = false): Promise<Gauge> {
+  const { id } = parseWith(GaugeParams, params, 'params');
+  const gauge = await getGauge(db, id, forUpdate);
+  if (!gauge) throw notFound(`no gauge ${id}`);
+  return gauge;
+}
+
+/** JSON or CSV, decided by the request's content type. */
+export function bodyFormat(req: FastifyRequest): 'json' | 'csv' {
+  const type = (req.headers['content-type'] ?? '').split(';')[0].trim().toLowerCase();
+  if (type === 'text/csv' || type === 'text/plain') {
+    if (typeof req.body !== 'string') throw badRequest('the CSV body is empty');
+    return 'csv';
+  }
+  return 'json';
+}
+
+/** CSV when asked by ?format=csv or an Accept header preferring text/csv. */
+export function wantsCsv(req: FastifyRequest, format?: string): boolean {
+  if (format) return format === 'csv';
+  const accept = req.headers.accept ?? '';
+  return accept.includes('text/csv') && !accept.includes('application/json');
+}
+
+export function readWindow(query: unknown): { window: Window; format?: 'json' | 'csv' } {
+  const q = parseWith(TimeWindowQuery, query, 'query');
+  const window: Window = {
+    fromMs: q.from ? Date.parse(q.from) : undefined,
+    toMs: q.to ? Date.parse(q.to) : undefined,
+  };
+  return { window, format: q.format };
+}
+
+export function sendCsv(reply: FastifyReply, filename: string, lines: string[]): string {
+  reply.type('text/csv; charset=utf-8').header('content-disposition', `inline; filename="${filename}"`);
+  return lines.join('\n') + '\n';
+}

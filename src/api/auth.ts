@@ -1,0 +1,49 @@
+import type { FastifyRequest } from 'fastify';
+import { findTokenByHash, touchToken, type Role } from '../store/tokens-repo.ts';
+import type { Services } from './context.ts';
+import { Problem } from './problem.ts';
+import { hashToken, roleRank } from './tokens.ts';
+
+const CACHE_MS = 30_000;
+
+/**
+ * Bearer-token check. Each route declares the least role it needs; GET routes need `read`.
+ * Lookups are cached briefly so polling dashboards do not cost a query each (a revoked token
+ * stops working within CACHE_MS).
+ */
+export function authHook(services: Services) {
+  const cache = new Map<string, { principal: { tokenId: string; role: Role }; until: number }>();
+
+  return async function checkToken(request: FastifyRequest): Promise<void> {
+    const required = request.routeOptions.config?.role ?? (request.routeOptions.url ? 'admin' : 'open');
+    if (required === 'open' || services.config.AUTH === 'off') return;
+
+    const header = request.headers.authorization ?? '';
+    const match = /^Bearer\s+(\S+)$/i.exec(header);
+    if (!match) {
+      throw new Problem(401, 'unauthorized', 'Unauthorized', 'send a bearer token: Authorization: Bearer <token>', [], {
+        'www-authenticate': 'Bearer',
+      });
+    }
+    const hash = hashToken(match[1]);
+    const now = Date.now();
+    let entry = cache.get(hash);
+    if (!entry || entry.until < now) {
+      const row = await findTokenByHash(services.db, hash);
+      if (!row) {
+        cache.delete(hash);
+        throw new Problem(401, 'unauthorized', 'Unauthorized', 'the token is unknown or revoked', [], {
+          'www-authenticate': 'Bearer error="invalid_token"',
+        });
+      }
+      entry = { principal: { tokenId: row.id, role: row.role }, until: now + CACHE_MS };
+      if (cache.size > 10_000) cache.clear();
+      cache.set(hash, entry);
+      touchToken(services.db, row.id).catch(() => undefined);
+    }
+    if (roleRank[entry.principal.role] < roleRank[required]) {
+      throw new Problem(403, 'forbidden', 'Forbidden', `this route needs the ${required} role; the token has ${entry.principal.role}`);
+    }
+    request.principal = entry.principal;
+  };
+}

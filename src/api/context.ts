@@ -1,0 +1,28 @@
+import type { FastifyInstance, FastifyReply, FastifyRequest } from 'fastify';
+import type { Config } from '../config.ts';
+import type { Db } from '../store/db.ts';
+import type { ApiDocs, RouteDoc } from './openapi.ts';
+
+/** What every resource plugin is given. */
+export interface Services {
+  db: Db;
+  config: Config;
+  docs: ApiDocs;
+}
+
+export type Handler = (request: FastifyRequest, reply: FastifyReply) => Promise<unknown>;
+
+/** Registers a route and its documentation together, so the OpenAPI document cannot drift. */
+export function addRoute(app: FastifyInstance, services: Services, doc: RouteDoc, handler: Handler): void {
+  services.docs.add({ ...doc, url: `${app.prefix}${doc.url}` });
+  app.route({ method: doc.method, url: doc.url, config: { role: doc.role }, handler });
+}
+
+declare module 'fastify' {
+  interface FastifyContextConfig {
+    role?: RouteDoc['role'];
+  }
+  interface FastifyRequest {
+    principal?: { tokenId: string; role: 'admin' | 'ingest' | 'read' } | null;
+  }
+}

@@ -1,0 +1,87 @@
+import type { FastifyInstance } from 'fastify';
+import { z } from 'zod';
+import { parseDurationSeconds } from '../core/iso-duration.ts';
+import { archiveCounts, deleteGauge, getGauge, insertGauge, listGauges, updateGauge, type GaugeInput } from '../store/gauges-repo.ts';
+import { addRoute, type Services } from './context.ts';
+import { conflict, notFound } from './problem.ts';
+import { FlowUnit, GaugeId, IsoDuration, Location, Thresholds, TimeZone } from './schemas.ts';
+import { parseWith } from './validate.ts';
+
+const GaugeFields = {
+  name: z.string().trim().min(1).max(200),
+  catchmentAreaKm2: z.number().finite().positive(),
+  timeStep: IsoDuration,
+  timeZone: TimeZone,
+  flowUnit: FlowUnit,
+  location: Location.nullable().optional(),
+  thresholds: Thresholds,
+};
+
+const GaugeCreate = z.strictObject({ id: GaugeId, ...GaugeFields, thresholds: Thresholds.default([]), timeZone: TimeZone.default('UTC') });
+const GaugePatch = z.strictObject(GaugeFields).partial();
+const Params = z.object({ id: GaugeId });
+const DeleteQuery = z.strictObject({ force: z.enum(['true', 'false']).optional() });
+
+export async function gaugeRoutes(app: FastifyInstance, { services }: { services: Services }) {
+  const { db } = services;
+
+  addRoute(app, services, { method: 'POST', url: '/gauges', summary: 'Create a gauge', tag: 'gauges', role: 'admin', body: GaugeCreate }, async (req, reply) => {
+    const body = parseWith(GaugeCreate, req.body, 'body');
+    const input: GaugeInput = {
+      ...body,
+      location: body.location ?? null,
+      stepSeconds: parseDurationSeconds(body.timeStep)!,
+    };
+    return db.transaction(async (tx) => {
+      if (await getGauge(tx, body.id, true)) throw conflict(`gauge ${body.id} exists; change it with PATCH /gauges/${body.id}`, [{ path: 'body.id', message: 'already exists' }]);
+      const gauge = await insertGauge(tx, input);
+      reply.code(201).header('location', `/gauges/${gauge.id}`);
+      return gauge;
+    });
+  });
+
+  addRoute(app, services, { method: 'GET', url: '/gauges', summary: 'List gauges', tag: 'gauges', role: 'read' }, async () => ({
+    gauges: await listGauges(db),
+  }));
+
+  addRoute(app, services, { method: 'GET', url: '/gauges/:id', summary: 'One gauge with the size of its archive', tag: 'gauges', role: 'read', params: Params }, async (req) => {
+    const { id } = parseWith(Params, req.params, 'params');
+    const gauge = await getGauge(db, id);
+    if (!gauge) throw notFound(`no gauge ${id}`);
+    return { ...gauge, archive: await archiveCounts(db, id) };
+  });
+
+  addRoute(app, services, { method: 'PATCH', url: '/gauges/:id', summary: 'Change a gauge', tag: 'gauges', role: 'admin', params: Params, body: GaugePatch }, async (req) => {
+    const { id } = parseWith(Params, req.params, 'params');
+    const patch = parseWith(GaugePatch, req.body, 'body');
+    return db.transaction(async (tx) => {
+      const gauge = await getGauge(tx, id, true);
+      if (!gauge) throw notFound(`no gauge ${id}`);
+      const next: GaugeInput = { ...gauge, ...patch, location: patch.location === undefined ? gauge.location : patch.location };
+      next.stepSeconds = parseDurationSeconds(next.timeStep)!;
+      if (next.stepSeconds !== gauge.stepSeconds) {
+        const counts = await archiveCounts(tx, id);
+        if (Object.values(counts).some((n) => n > 0)) {
+          throw conflict('the time step cannot change while the gauge holds archive data', [{ path: 'body.timeStep', message: `archive holds ${JSON.stringify(counts)}` }]);
+        }
+      }
+      return updateGauge(tx, next);
+    });
+  });
+
+  addRoute(app, services, { method: 'DELETE', url: '/gauges/:id', summary: 'Delete a gauge (refused while it holds data unless force=true)', tag: 'gauges', role: 'admin', params: Params, query: DeleteQuery }, async (req, reply) => {
+    const { id } = parseWith(Params, req.params, 'params');
+    const { force } = parseWith(DeleteQuery, req.query, 'query');
+    await db.transaction(async (tx) => {
+      if (!(await getGauge(tx, id, true))) throw notFound(`no gauge ${id}`);
+      const counts = await archiveCounts(tx, id);
+      if (force !== 'true' && Object.values(counts).some((n) => n > 0)) {
+        throw conflict(`gauge ${id} holds data; repeat with ?force=true to delete it and all its data`, [
+          { path: 'query.force', message: `archive holds ${JSON.stringify(counts)}` },
+        ]);
+      }
+      await deleteGauge(tx, id);
+    });
+    reply.code(204);
+  });
+}

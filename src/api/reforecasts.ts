@@ -1,0 +1,169 @@
+import type { FastifyInstance } from 'fastify';
+import { z } from 'zod';
+import { formatDurationSeconds, parseDurationSeconds } from '../core/iso-duration.ts';
+import { listMembers, readReforecasts, upsertReforecast } from '../store/archive-repo.ts';
+import { bodyFormat, GaugeParams, readWindow, requireGauge, sendCsv, wantsCsv } from './archive-common.ts';
+import { addRoute, type Services } from './context.ts';
+import { parseCsv, splitHeader } from './csv.ts';
+import { ErrorList } from './problem.ts';
+import { MemberId, TimeWindowQuery } from './schemas.ts';
+import { checkFlowUnit, checkTimes, checkValues, csvNumber, isoUtc } from './series-input.ts';
+import { parseWith } from './validate.ts';
+
+const ReforecastsBody = z.strictObject({
+  unit: z.string(),
+  runs: z
+    .array(
+      z.strictObject({
+        issueTime: z.string(),
+        members: z.array(z.strictObject({ id: MemberId, values: z.array(z.unknown()).min(1) })).min(1),
+      }),
+    )
+    .min(1),
+});
+
+interface Run {
+  issueTime: unknown;
+  issueWhere: string;
+  members: { id: string; idWhere: string; values: unknown[]; valueWhere: (lead: number) => string }[];
+}
+
+function fromJson(body: unknown, errors: ErrorList): Run[] {
+  const b = parseWith(ReforecastsBody, body, 'body');
+  checkFlowUnit(b.unit, 'body.unit', errors);
+  const runs = b.runs.map((run, r) => {
+    const n = run.members[0].values.length;
+    run.members.forEach((m, k) => {
+      if (m.values.length !== n) errors.add(`body.runs[${r}].members[${k}].values`, `has ${m.values.length} lead times but members[0] has ${n}`);
+      if (run.members.findIndex((o) => o.id === m.id) !== k) errors.add(`body.runs[${r}].members[${k}].id`, `member ${m.id} appears twice`);
+    });
+    return {
+      issueTime: run.issueTime,
+      issueWhere: `body.runs[${r}].issueTime`,
+      members: run.members.map((m, k) => ({ id: m.id, idWhere: `body.runs[${r}].members[${k}].id`, values: m.values, valueWhere: (l: number) => `body.runs[${r}].members[${k}].values[${l}]` })),
+    };
+  });
+  errors.throwIfAny();
+  return runs;
+}
+
+/** CSV, one value a line: `issue_time,member,lead_time,flow (m3/s)`; lead times run P1D, P2D, ... on the gauge's step. */
+function fromCsv(text: string, stepSeconds: number, errors: ErrorList): Run[] {
+  const table = parseCsv(text, errors);
+  errors.throwIfAny();
+  const [a, b, c, d, ...rest] = table.header;
+  const flow = splitHeader(d ?? '');
+  if (a !== 'issue_time' || b !== 'member' || c !== 'lead_time' || flow.name !== 'flow' || rest.length) {
+    errors.add('line 1', 'the header must be: issue_time,member,lead_time,flow (m3/s)');
+  } else checkFlowUnit(flow.unit, 'line 1, column flow', errors);
+  errors.throwIfAny();
+  const runs = new Map<string, Run>();
+  const leadsSeen = new Map<string, { values: unknown[]; lines: number[] }>();
+  for (const row of table.rows) {
+    const [issue, member, leadText, value] = row.cells.map((s) => s.trim());
+    if (!MemberId.safeParse(member).success) errors.add(`line ${row.line}, column member`, `bad member id ${JSON.stringify(member)}`);
+    const leadSeconds = parseDurationSeconds(leadText);
+    if (leadSeconds === null || leadSeconds % stepSeconds !== 0) {
+      errors.add(`line ${row.line}, column lead_time`, `${JSON.stringify(leadText)} is not an ISO 8601 duration that is a whole number of gauge steps`);
+      continue;
+    }
+    const lead = leadSeconds / stepSeconds;
+    let run = runs.get(issue);
+    if (!run) runs.set(issue, (run = { issueTime: issue, issueWhere: `line ${row.line}, column issue_time`, members: [] }));
+    const key = `${issue}\u0000${member}`;
+    let seen = leadsSeen.get(key);
+    if (!seen) {
+      seen = { values: [], lines: [] };
+      leadsSeen.set(key, seen);
+      const s = seen;
+      run.members.push({ id: member, idWhere: `line ${row.line}, column member`, values: s.values, valueWhere: (l) => `line ${s.lines[l]}, column flow` });
+    }
+    if (lead !== seen.values.length + 1) {
+      errors.add(`line ${row.line}, column lead_time`, `expected lead time ${formatDurationSeconds((seen.values.length + 1) * stepSeconds)} next for member ${member}; lead times must run in order without gaps or repeats`);
+    }
+    seen.values.push(csvNumber(value));
+    seen.lines.push(row.line);
+    if (errors.full) break;
+  }
+  for (const run of runs.values()) {
+    const n = run.members[0].values.length;
+    for (const m of run.members) {
+      if (m.values.length !== n) errors.add(m.idWhere, `member ${m.id} has ${m.values.length} lead times at ${String(run.issueTime)}, the first member has ${n}`);
+    }
+  }
+  if (!runs.size) errors.add('line 2', 'no data rows');
+  errors.throwIfAny();
+  return [...runs.values()];
+}
+
+export async function reforecastRoutes(app: FastifyInstance, { services }: { services: Services }) {
+  const { db } = services;
+
+  addRoute(
+    app,
+    services,
+    { method: 'POST', url: '/gauges/:id/reforecasts', summary: 'Add past forecast runs (upsert by issue time, member and lead time); members must be known from simulations', tag: 'archive', role: 'ingest', params: GaugeParams, body: ReforecastsBody, bodyTypes: ['application/json', 'text/csv'] },
+    async (req) => {
+      const errors = new ErrorList();
+      const csv = bodyFormat(req) === 'csv';
+      return db.transaction(async (tx) => {
+        const gauge = await requireGauge(tx, req.params, true);
+        const runs = csv ? fromCsv(req.body as string, gauge.stepSeconds, errors) : fromJson(req.body, errors);
+        const known = new Set(await listMembers(tx, gauge.id));
+        const issueMs = checkTimes(runs.map((r) => r.issueTime), gauge.stepSeconds, (i) => runs[i].issueWhere, errors);
+        const checked = runs.map((run) =>
+          run.members.map((m) => {
+            if (!known.has(m.id)) errors.add(m.idWhere, `unknown member ${m.id}; members are declared by posting their simulations first`);
+            return { id: m.id, values: checkValues(m.values, { nonNegative: true, quantity: 'flow' }, m.valueWhere, errors) };
+          }),
+        );
+        errors.throwIfAny();
+        let written = 0;
+        let received = 0;
+        for (let r = 0; r < runs.length; r++) {
+          for (const m of checked[r]) {
+            received += m.values.length;
+            written += await upsertReforecast(tx, gauge.id, issueMs[r], m.id, m.values);
+          }
+        }
+        return { gaugeId: gauge.id, received, written };
+      });
+    },
+  );
+
+  addRoute(
+    app,
+    services,
+    { method: 'GET', url: '/gauges/:id/reforecasts', summary: 'Past forecast runs issued in a time window (JSON or CSV)', tag: 'archive', role: 'read', params: GaugeParams, query: TimeWindowQuery, responseTypes: ['application/json', 'text/csv'] },
+    async (req, reply) => {
+      const gauge = await requireGauge(db, req.params);
+      const { window, format } = readWindow(req.query);
+      const rows = await readReforecasts(db, gauge.id, window);
+      if (wantsCsv(req, format)) {
+        return sendCsv(reply, `${gauge.id}-reforecasts.csv`, [
+          'issue_time,member,lead_time,flow (m3/s)',
+          ...rows.map((r) => `${isoUtc(r.t)},${r.member_id},${formatDurationSeconds(r.lead * gauge.stepSeconds)},${r.value ?? ''}`),
+        ]);
+      }
+      const runs: { issueTime: string; members: { id: string; values: (number | null)[] }[] }[] = [];
+      let lastT = NaN;
+      let lastMember = '';
+      for (const r of rows) {
+        if (r.t !== lastT) {
+          runs.push({ issueTime: isoUtc(r.t), members: [] });
+          lastT = r.t;
+          lastMember = '';
+        }
+        const run = runs[runs.length - 1];
+        if (r.member_id !== lastMember) {
+          run.members.push({ id: r.member_id, values: [] });
+          lastMember = r.member_id;
+        }
+        const values = run.members[run.members.length - 1].values;
+        while (values.length < r.lead - 1) values.push(null);
+        values.push(r.value);
+      }
+      return { gaugeId: gauge.id, unit: 'm3/s', timeStep: gauge.timeStep, runs };
+    },
+  );
+}

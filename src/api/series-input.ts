@@ -1,0 +1,84 @@
+import type { ErrorList } from './problem.ts';
+
+const RFC3339 = /^\d{4}-\d{2}-\d{2}T\d{2}:\d{2}(:\d{2}(\.\d+)?)?(Z|[+-]\d{2}:\d{2})$/;
+
+/** Parses one RFC 3339 time; NaN when it is not one. */
+export function parseTime(text: unknown): number {
+  if (typeof text !== 'string' || !RFC3339.test(text)) return NaN;
+  return Date.parse(text);
+}
+
+/**
+ * Checks a batch's times: RFC 3339 with offset, on the gauge's step (multiples of the step from
+ * 1970-01-01T00:00Z, so daily values are stamped at 00:00 UTC), strictly increasing.
+ * Returns epoch milliseconds. `where(i)` names the field or CSV line of the i-th time.
+ */
+export function checkTimes(times: readonly unknown[], stepSeconds: number, where: (i: number) => string, errors: ErrorList): Float64Array {
+  const out = new Float64Array(times.length);
+  const stepMs = stepSeconds * 1000;
+  for (let i = 0; i < times.length; i++) {
+    const t = parseTime(times[i]);
+    out[i] = t;
+    if (Number.isNaN(t)) {
+      errors.add(where(i), `not an RFC 3339 time with offset: ${JSON.stringify(times[i])}`);
+    } else if (t % stepMs !== 0) {
+      errors.add(where(i), `${times[i]} is not on the gauge's time step of ${stepSeconds} s (times are multiples of the step from 1970-01-01T00:00:00Z)`);
+    } else if (i > 0 && !Number.isNaN(out[i - 1])) {
+      if (t === out[i - 1]) errors.add(where(i), `duplicate time ${times[i]}`);
+      else if (t < out[i - 1]) errors.add(where(i), `times must be increasing: ${times[i]} comes after ${String(times[i - 1])}`);
+    }
+    if (errors.full) break;
+  }
+  return out;
+}
+
+/**
+ * Checks values: finite numbers or null (missing); negative values are refused where the quantity
+ * cannot be negative. Returns a Float64Array with NaN for missing.
+ */
+export function checkValues(
+  values: readonly unknown[],
+  opts: { nonNegative: boolean; quantity: string },
+  where: (i: number) => string,
+  errors: ErrorList,
+): Float64Array {
+  const out = new Float64Array(values.length);
+  for (let i = 0; i < values.length; i++) {
+    const v = values[i];
+    if (v === null) {
+      out[i] = NaN;
+    } else if (typeof v !== 'number' || !Number.isFinite(v)) {
+      errors.add(where(i), `${opts.quantity} must be a finite number or null, got ${JSON.stringify(v) ?? String(v)}`);
+      if (errors.full) break;
+    } else if (opts.nonNegative && v < 0) {
+      errors.add(where(i), `${opts.quantity} cannot be negative (${v})`);
+      if (errors.full) break;
+    } else {
+      out[i] = v;
+    }
+  }
+  return out;
+}
+
+/** A CSV cell as a number: empty = missing (null); anything else must be a finite number. */
+export function csvNumber(cell: string): number | null | string {
+  const s = cell.trim();
+  if (s === '' || s.toLowerCase() === 'null') return null;
+  const n = Number(s);
+  return Number.isFinite(n) ? n : s;
+}
+
+export function isoUtc(ms: number): string {
+  return new Date(ms).toISOString().replace('.000Z', 'Z');
+}
+
+/** Known forcing variables and their units; other names are allowed with any declared unit. */
+export const knownForcingUnits: Record<string, { unit: string; aliases: string[]; nonNegative: boolean }> = {
+  precipitation: { unit: 'mm', aliases: ['mm'], nonNegative: true },
+  air_temperature: { unit: 'degC', aliases: ['degC', '°C', 'C'], nonNegative: false },
+  potential_evaporation: { unit: 'mm', aliases: ['mm'], nonNegative: true },
+};
+
+export function checkFlowUnit(unit: unknown, where: string, errors: ErrorList): void {
+  if (unit !== 'm3/s' && unit !== 'm³/s') errors.add(where, `flow unit must be m3/s, got ${JSON.stringify(unit)}`);
+}

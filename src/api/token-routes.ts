@@ -1,0 +1,42 @@
+import type { FastifyInstance } from 'fastify';
+import { z } from 'zod';
+import { listTokens, revokeToken } from '../store/tokens-repo.ts';
+import { addRoute, type Services } from './context.ts';
+import { notFound } from './problem.ts';
+import { createToken } from './tokens.ts';
+import { parseWith } from './validate.ts';
+
+const TokenBody = z.strictObject({
+  role: z.enum(['admin', 'ingest', 'read']),
+  name: z.string().min(1).max(100),
+});
+
+/** Tokens can also be managed over HTTP by an admin, so the embedded store need not be stopped. */
+export async function tokenRoutes(app: FastifyInstance, { services }: { services: Services }) {
+  const { db } = services;
+  addRoute(app, services, { method: 'POST', url: '/tokens', summary: 'Create an access token (shown once)', tag: 'access', role: 'admin', body: TokenBody }, async (req, reply) => {
+    const body = parseWith(TokenBody, req.body, 'body');
+    const { id, token } = await createToken(db, body.role, body.name);
+    reply.code(201);
+    return { id, role: body.role, name: body.name, token };
+  });
+  addRoute(app, services, { method: 'GET', url: '/tokens', summary: 'List access tokens (never the secrets)', tag: 'access', role: 'admin' }, async () => {
+    const rows = await listTokens(db);
+    return {
+      tokens: rows.map((t) => ({
+        id: t.id,
+        name: t.name,
+        role: t.role,
+        createdAt: t.created_at.toISOString(),
+        lastUsedAt: t.last_used_at?.toISOString() ?? null,
+        revokedAt: t.revoked_at?.toISOString() ?? null,
+      })),
+    };
+  });
+  const Params = z.object({ id: z.string() });
+  addRoute(app, services, { method: 'DELETE', url: '/tokens/:id', summary: 'Revoke an access token', tag: 'access', role: 'admin', params: Params }, async (req, reply) => {
+    const { id } = parseWith(Params, req.params, 'params');
+    if (!(await revokeToken(db, id))) throw notFound(`no active token ${id}`);
+    reply.code(204);
+  });
+}

@@ -1,0 +1,180 @@
+import type { Queryable } from './db.ts';
+
+/** Rows per statement: large enough to be fast, small enough to keep each parameter modest. */
+const CHUNK = 20_000;
+
+const seconds = (ms: Float64Array, from: number, to: number) => Array.from(ms.subarray(from, to), (t) => t / 1000);
+const nullable = (v: Float64Array, from: number, to: number) =>
+  Array.from(v.subarray(from, to), (x) => (Number.isNaN(x) ? null : x));
+
+/** Each upsert returns how many rows it inserted or changed; re-sending the same batch changes none. */
+export async function upsertObservations(
+  tx: Queryable,
+  gaugeId: string,
+  times: Float64Array,
+  values: Float64Array,
+  quality: (string | null)[] | null,
+): Promise<number> {
+  let written = 0;
+  for (let from = 0; from < times.length; from += CHUNK) {
+    const to = Math.min(from + CHUNK, times.length);
+    const { rows } = await tx.query<{ n: number }>(
+      `with w as (
+         insert into observed_flow (gauge_id, time, value, quality)
+         select $1, to_timestamp(t), v, q from unnest($2::float8[], $3::float8[], $4::text[]) as u(t, v, q)
+         on conflict (gauge_id, time) do update set value = excluded.value, quality = excluded.quality
+         where observed_flow.value is distinct from excluded.value or observed_flow.quality is distinct from excluded.quality
+         returning 1)
+       select count(*)::int as n from w`,
+      [gaugeId, seconds(times, from, to), nullable(values, from, to), quality ? quality.slice(from, to) : new Array(to - from).fill(null)],
+    );
+    written += Number(rows[0].n);
+  }
+  return written;
+}
+
+export async function upsertForcing(tx: Queryable, gaugeId: string, variable: string, times: Float64Array, values: Float64Array): Promise<number> {
+  let written = 0;
+  for (let from = 0; from < times.length; from += CHUNK) {
+    const to = Math.min(from + CHUNK, times.length);
+    const { rows } = await tx.query<{ n: number }>(
+      `with w as (
+         insert into forcing_values (gauge_id, variable, time, value)
+         select $1, $2, to_timestamp(t), v from unnest($3::float8[], $4::float8[]) as u(t, v)
+         on conflict (gauge_id, variable, time) do update set value = excluded.value
+         where forcing_values.value is distinct from excluded.value
+         returning 1)
+       select count(*)::int as n from w`,
+      [gaugeId, variable, seconds(times, from, to), nullable(values, from, to)],
+    );
+    written += Number(rows[0].n);
+  }
+  return written;
+}
+
+export async function upsertSimulation(tx: Queryable, gaugeId: string, memberId: string, times: Float64Array, values: Float64Array): Promise<number> {
+  let written = 0;
+  for (let from = 0; from < times.length; from += CHUNK) {
+    const to = Math.min(from + CHUNK, times.length);
+    const { rows } = await tx.query<{ n: number }>(
+      `with w as (
+         insert into member_simulations (gauge_id, member_id, time, value)
+         select $1, $2, to_timestamp(t), v from unnest($3::float8[], $4::float8[]) as u(t, v)
+         on conflict (gauge_id, member_id, time) do update set value = excluded.value
+         where member_simulations.value is distinct from excluded.value
+         returning 1)
+       select count(*)::int as n from w`,
+      [gaugeId, memberId, seconds(times, from, to), nullable(values, from, to)],
+    );
+    written += Number(rows[0].n);
+  }
+  return written;
+}
+
+/** One member of one past run: values[0] is lead 1 (one step after issue time). */
+export async function upsertReforecast(tx: Queryable, gaugeId: string, issueMs: number, memberId: string, values: Float64Array): Promise<number> {
+  let written = 0;
+  for (let from = 0; from < values.length; from += CHUNK) {
+    const to = Math.min(from + CHUNK, values.length);
+    const leads = Array.from({ length: to - from }, (_, i) => from + i + 1);
+    const { rows } = await tx.query<{ n: number }>(
+      `with w as (
+         insert into reforecasts (gauge_id, issue_time, member_id, lead, value)
+         select $1, to_timestamp($2), $3, l, v from unnest($4::int[], $5::float8[]) as u(l, v)
+         on conflict (gauge_id, issue_time, member_id, lead) do update set value = excluded.value
+         where reforecasts.value is distinct from excluded.value
+         returning 1)
+       select count(*)::int as n from w`,
+      [gaugeId, issueMs / 1000, memberId, leads, nullable(values, from, to)],
+    );
+    written += Number(rows[0].n);
+  }
+  return written;
+}
+
+export async function ensureMembers(tx: Queryable, gaugeId: string, ids: string[]): Promise<void> {
+  await tx.query('insert into members (gauge_id, id) select $1, unnest($2::text[]) on conflict do nothing', [gaugeId, ids]);
+}
+
+export async function listMembers(db: Queryable, gaugeId: string): Promise<string[]> {
+  const { rows } = await db.query<{ id: string }>('select id from members where gauge_id = $1 order by id', [gaugeId]);
+  return rows.map((r) => r.id);
+}
+
+export async function forcingUnits(db: Queryable, gaugeId: string): Promise<Map<string, string>> {
+  const { rows } = await db.query<{ name: string; unit: string }>('select name, unit from forcing_variables where gauge_id = $1', [gaugeId]);
+  return new Map(rows.map((r) => [r.name, r.unit]));
+}
+
+export async function ensureForcingVariable(tx: Queryable, gaugeId: string, name: string, unit: string): Promise<void> {
+  await tx.query('insert into forcing_variables (gauge_id, name, unit) values ($1, $2, $3) on conflict do nothing', [gaugeId, name, unit]);
+}
+
+export interface Window {
+  fromMs?: number;
+  toMs?: number;
+}
+
+function windowSql(column: string, w: Window, params: unknown[]): string {
+  let sql = '';
+  if (w.fromMs !== undefined) {
+    params.push(w.fromMs / 1000);
+    sql += ` and ${column} >= to_timestamp($${params.length})`;
+  }
+  if (w.toMs !== undefined) {
+    params.push(w.toMs / 1000);
+    sql += ` and ${column} < to_timestamp($${params.length})`;
+  }
+  return sql;
+}
+
+const epochMs = (column: string) => `(extract(epoch from ${column}) * 1000)::float8`;
+
+export async function readObservations(db: Queryable, gaugeId: string, w: Window) {
+  const params: unknown[] = [gaugeId];
+  const where = windowSql('time', w, params);
+  const { rows } = await db.query<{ t: number; value: number | null; quality: string | null }>(
+    `select ${epochMs('time')} as t, value, quality from observed_flow where gauge_id = $1${where} order by time`,
+    params,
+  );
+  return rows;
+}
+
+export async function readForcings(db: Queryable, gaugeId: string, w: Window, variables?: string[]) {
+  const params: unknown[] = [gaugeId];
+  let where = windowSql('time', w, params);
+  if (variables) {
+    params.push(variables);
+    where += ` and variable = any($${params.length}::text[])`;
+  }
+  const { rows } = await db.query<{ variable: string; t: number; value: number | null }>(
+    `select variable, ${epochMs('time')} as t, value from forcing_values where gauge_id = $1${where} order by variable, time`,
+    params,
+  );
+  return rows;
+}
+
+export async function readSimulations(db: Queryable, gaugeId: string, w: Window, members?: string[]) {
+  const params: unknown[] = [gaugeId];
+  let where = windowSql('time', w, params);
+  if (members) {
+    params.push(members);
+    where += ` and member_id = any($${params.length}::text[])`;
+  }
+  const { rows } = await db.query<{ member_id: string; t: number; value: number | null }>(
+    `select member_id, ${epochMs('time')} as t, value from member_simulations where gauge_id = $1${where} order by member_id, time`,
+    params,
+  );
+  return rows;
+}
+
+export async function readReforecasts(db: Queryable, gaugeId: string, w: Window) {
+  const params: unknown[] = [gaugeId];
+  const where = windowSql('issue_time', w, params);
+  const { rows } = await db.query<{ t: number; member_id: string; lead: number; value: number | null }>(
+    `select ${epochMs('issue_time')} as t, member_id, lead, value from reforecasts where gauge_id = $1${where}
+     order by issue_time, member_id, lead`,
+    params,
+  );
+  return rows;
+}

@@ -1,0 +1,113 @@
+import type { Queryable } from './db.ts';
+
+export interface Gauge {
+  id: string;
+  name: string;
+  catchmentAreaKm2: number;
+  timeStep: string;
+  stepSeconds: number;
+  timeZone: string;
+  flowUnit: string;
+  location: { latitude: number; longitude: number; elevationM?: number } | null;
+  thresholds: { label: string; value: number }[];
+  createdAt: string;
+  updatedAt: string;
+}
+
+interface GaugeRow {
+  id: string;
+  name: string;
+  catchment_area_km2: number;
+  time_step: string;
+  step_seconds: number;
+  time_zone: string;
+  flow_unit: string;
+  latitude: number | null;
+  longitude: number | null;
+  elevation_m: number | null;
+  thresholds: { label: string; value: number }[] | string;
+  created_at: Date;
+  updated_at: Date;
+}
+
+function fromRow(r: GaugeRow): Gauge {
+  return {
+    id: r.id,
+    name: r.name,
+    catchmentAreaKm2: r.catchment_area_km2,
+    timeStep: r.time_step,
+    stepSeconds: r.step_seconds,
+    timeZone: r.time_zone,
+    flowUnit: r.flow_unit,
+    location:
+      r.latitude === null || r.longitude === null
+        ? null
+        : { latitude: r.latitude, longitude: r.longitude, ...(r.elevation_m === null ? {} : { elevationM: r.elevation_m }) },
+    thresholds: typeof r.thresholds === 'string' ? JSON.parse(r.thresholds) : r.thresholds,
+    createdAt: r.created_at.toISOString(),
+    updatedAt: r.updated_at.toISOString(),
+  };
+}
+
+export type GaugeInput = Omit<Gauge, 'createdAt' | 'updatedAt'>;
+
+export async function insertGauge(db: Queryable, g: GaugeInput): Promise<Gauge> {
+  const { rows } = await db.query<GaugeRow>(
+    `insert into gauges (id, name, catchment_area_km2, time_step, step_seconds, time_zone, flow_unit,
+                         latitude, longitude, elevation_m, thresholds)
+     values ($1,$2,$3,$4,$5,$6,$7,$8,$9,$10,$11::jsonb) returning *`,
+    params(g),
+  );
+  return fromRow(rows[0]);
+}
+
+export async function updateGauge(db: Queryable, g: GaugeInput): Promise<Gauge> {
+  const { rows } = await db.query<GaugeRow>(
+    `update gauges set name=$2, catchment_area_km2=$3, time_step=$4, step_seconds=$5, time_zone=$6, flow_unit=$7,
+            latitude=$8, longitude=$9, elevation_m=$10, thresholds=$11::jsonb, updated_at=now()
+     where id=$1 returning *`,
+    params(g),
+  );
+  return fromRow(rows[0]);
+}
+
+function params(g: GaugeInput): unknown[] {
+  return [
+    g.id,
+    g.name,
+    g.catchmentAreaKm2,
+    g.timeStep,
+    g.stepSeconds,
+    g.timeZone,
+    g.flowUnit,
+    g.location?.latitude ?? null,
+    g.location?.longitude ?? null,
+    g.location?.elevationM ?? null,
+    JSON.stringify(g.thresholds),
+  ];
+}
+
+export async function getGauge(db: Queryable, id: string, forUpdate = false): Promise<Gauge | null> {
+  const { rows } = await db.query<GaugeRow>(`select * from gauges where id = $1${forUpdate ? ' for update' : ''}`, [id]);
+  return rows[0] ? fromRow(rows[0]) : null;
+}
+
+export async function listGauges(db: Queryable): Promise<Gauge[]> {
+  return (await db.query<GaugeRow>('select * from gauges order by id')).rows.map(fromRow);
+}
+
+/** How much archive a gauge holds, per kind; delete and step changes look at it. */
+export async function archiveCounts(db: Queryable, id: string): Promise<Record<string, number>> {
+  const { rows } = await db.query<Record<string, number>>(
+    `select (select count(*) from observed_flow where gauge_id = $1)::int as observations,
+            (select count(*) from forcing_values where gauge_id = $1)::int as forcings,
+            (select count(*) from member_simulations where gauge_id = $1)::int as simulations,
+            (select count(*) from reforecasts where gauge_id = $1)::int as reforecasts`,
+    [id],
+  );
+  return Object.fromEntries(Object.entries(rows[0]).map(([k, v]) => [k, Number(v)]));
+}
+
+export async function deleteGauge(db: Queryable, id: string): Promise<void> {
+  await db.query('delete from gauges where id = $1', [id]);
+}
