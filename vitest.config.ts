@@ -1,10 +1,28 @@
 import { defineConfig } from 'vitest/config';
 
+// Computation tests run once; everything that touches the store runs twice: on a real PostgreSQL
+// server (TEST_DATABASE_URL, else a testcontainers PostgreSQL, else it falls back to the embedded
+// store and says so) and on the embedded store, so the default for newcomers stays honest.
+const storeTests = ['test/api/**/*.test.ts', 'test/store/**/*.test.ts', 'test/jobs/**/*.test.ts'];
+
 export default defineConfig({
   test: {
-    include: ['test/**/*.test.ts'],
     testTimeout: 60_000,
     hookTimeout: 120_000,
     pool: 'forks',
+    projects: [
+      {
+        extends: true,
+        test: { name: 'compute', include: ['test/*.test.ts', 'test/core/**/*.test.ts', 'test/models/**/*.test.ts', 'test/scenario/**/*.test.ts'] },
+      },
+      {
+        extends: true,
+        test: { name: 'postgres', include: storeTests, env: { TEST_STORE: 'postgres' }, globalSetup: ['test/helpers/postgres-setup.ts'] },
+      },
+      {
+        extends: true,
+        test: { name: 'embedded', include: storeTests, env: { TEST_STORE: 'embedded' } },
+      },
+    ],
   },
 });
