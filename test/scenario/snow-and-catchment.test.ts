@@ -6,7 +6,11 @@ import { createVariates } from '../../src/scenario/random-variates.ts';
 import { CLIMATE } from '../../src/scenario/scenario-setup.ts';
 import { generateWeather } from '../../src/scenario/weather-generator.ts';
 
-const total = (a: ArrayLike<number>) => Array.prototype.reduce.call(a, (x: number, y: number) => x + y, 0) as number;
+const total = (a: ArrayLike<number>): number => {
+  let s = 0;
+  for (let i = 0; i < a.length; i++) s += a[i];
+  return s;
+};
 
 // Ten invented years of weather from the scenario's generator (day 1 = 1 January).
 function weather(years: number, seed: number) {
