@@ -1,5 +1,5 @@
 // CemaNeige snow routine, one elevation layer, without the later SWE–SCA hysteresis variant
-// (Valéry, Andréassian & Perrin 2014, J. Hydrol. 517, "As simple as possible but not simpler",
+// (Valéry, Andréassian & Perrin 2014, J. Hydrol. 517 (volume from memory), "As simple as possible but not simpler",
 // Part 2, section 2 — equations from memory; order of operations cross-read, not copied, from
 // the public airGR CemaNeige routine):
 //   snow fraction  f(T): 1 at T ≤ −1 °C, 0 at T ≥ 3 °C, linear between — the single-temperature
