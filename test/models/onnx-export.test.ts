@@ -89,16 +89,18 @@ describe('treeModelToOnnx + onnxruntime', () => {
     expect(m.producerName).toBe('test');
     const opsets = Object.fromEntries(m.opsetImport.map((o) => [o.domain, Number(o.version)]));
     expect(opsets).toEqual({ '': 17, 'ai.onnx.ml': 3 });
-    const node = m.graph!.node[0];
+    const graph = m.graph!;
+    const node = graph.node![0];
+    const attribute = node.attribute!;
     expect(node.opType).toBe('TreeEnsembleRegressor');
     expect(node.domain).toBe('ai.onnx.ml');
-    const modes = node.attribute.find((a) => a.name === 'nodes_modes')!.strings.map((s) => new TextDecoder().decode(s));
+    const modes = attribute.find((a) => a.name === 'nodes_modes')!.strings!.map((s) => new TextDecoder().decode(s));
     expect(new Set(modes)).toEqual(new Set(['BRANCH_LEQ', 'LEAF']));
-    const base = node.attribute.find((a) => a.name === 'base_values')!.floats;
+    const base = attribute.find((a) => a.name === 'base_values')!.floats;
     expect(base).toEqual([model.baseScore]);
-    expect(m.graph!.input[0].name).toBe('features');
-    expect(m.graph!.input[0].type!.tensorType!.shape!.dim!.map((d) => d.dimParam || Number(d.dimValue))).toEqual(['N', 4]);
-    expect(m.graph!.output[0].name).toBe('residual');
+    expect(graph.input![0].name).toBe('features');
+    expect(graph.input![0].type!.tensorType!.shape!.dim!.map((d) => d.dimParam || Number(d.dimValue))).toEqual(['N', 4]);
+    expect(graph.output![0].name).toBe('residual');
     expect(m.metadataProps.find((p) => p.key === 'version')!.value).toBe('7');
   });
 
