@@ -17,3 +17,9 @@ export function yearFraction(ms: number): number {
   }
   return (ms - start) / (end - start);
 }
+
+/** Day of year 1 … 366 of an epoch-millisecond time (UTC). */
+export function dayOfYearUtc(ms: number): number {
+  const d = new Date(ms);
+  return Math.floor((Date.UTC(d.getUTCFullYear(), d.getUTCMonth(), d.getUTCDate()) - Date.UTC(d.getUTCFullYear(), 0, 1)) / 86_400_000) + 1;
+}

@@ -1,0 +1,194 @@
+import { archiveToBytes } from '../core/archive-codec.ts';
+import { dayOfYearUtc } from '../core/day-of-year.ts';
+import { deterministicScores } from '../core/deterministic-scores.ts';
+import { buildArchiveFromSeries, type ErrorArchive } from '../core/error-archive.ts';
+import type { ErrorTransformSpec } from '../core/error-transform.ts';
+import { continuousRows, type FeatureSpec } from '../core/features.ts';
+
+/** A gauge's archive on one regular time axis (missing = NaN), as the fitting code needs it. */
+export interface ArchiveSeries {
+  stepSeconds: number;
+  /** Epoch ms, regular step. */
+  times: Float64Array;
+  observed: Float64Array;
+  forcings: Record<string, Float64Array>;
+  members: { id: string; values: Float64Array }[];
+}
+
+export interface Period {
+  fromMs: number;
+  /** Exclusive. */
+  toMs: number;
+}
+
+/** Predicts residuals for row-major float32 feature rows (one function per bundled model). */
+export type ResidualPredictor = (rows: Float32Array, nRows: number, nFeatures: number) => Promise<Float32Array>;
+
+export interface ArchiveOptions {
+  transform: ErrorTransformSpec;
+  /** Longest horizon (in steps) the archive's Schaake templates can cover. */
+  templateLength: number;
+}
+
+export interface ValidationScores {
+  period: { from: string; to: string };
+  members: number;
+  cases: number;
+  residualRmse: { before: number; after: number };
+  /** Mean over members of each member's score, before and after correction. */
+  memberMean: { nseBefore: number; nseAfter: number; kgeBefore: number; kgeAfter: number };
+  /** Scores of the ensemble mean, before and after correction. */
+  ensembleMean: { nseBefore: number; nseAfter: number; kgeBefore: number; kgeAfter: number };
+}
+
+export interface Evaluation {
+  scores: ValidationScores;
+  correctedArchive: ErrorArchive;
+  rawArchive: ErrorArchive;
+}
+
+const iso = (ms: number) => new Date(ms).toISOString().replace('.000Z', 'Z');
+
+/**
+ * Applies the residual model(s) to every member over the validation period, scores the members
+ * before and after correction, and builds the two error archives of the stochastic stage: the
+ * corrected members' errors (the normal case) and the raw members' errors (degraded mode).
+ * A bundle's corrected value is the mean of its models' corrections. Corrected flow is never
+ * negative.
+ */
+export async function evaluateResidualModel(
+  series: ArchiveSeries,
+  spec: FeatureSpec,
+  validation: Period,
+  predictors: ResidualPredictor[],
+  options: ArchiveOptions,
+): Promise<Evaluation> {
+  const { times, observed } = series;
+  const inPeriod: number[] = [];
+  for (let i = 0; i < times.length; i++) if (times[i] >= validation.fromMs && times[i] < validation.toMs) inPeriod.push(i);
+  if (inPeriod.length < options.templateLength + 1) {
+    throw new Error(`the validation period holds ${inPeriod.length} steps; at least ${options.templateLength + 1} are needed`);
+  }
+  const first = inPeriod[0];
+  const len = inPeriod.length;
+  const nM = series.members.length;
+  // Member series laid end to end, each followed by one gap so no template window crosses members.
+  const stride = len + 1;
+  const rawCat = new Float64Array(nM * stride).fill(NaN);
+  const corCat = new Float64Array(nM * stride).fill(NaN);
+  const obsCat = new Float64Array(nM * stride).fill(NaN);
+  const doyCat = new Uint16Array(nM * stride).fill(1);
+  const residualSq = { before: 0, after: 0, n: 0 };
+  const ensRaw = new Float64Array(len);
+  const ensCor = new Float64Array(len);
+  const ensCount = new Float64Array(len);
+  const memberScores = { nseBefore: 0, nseAfter: 0, kgeBefore: 0, kgeAfter: 0 };
+
+  for (let m = 0; m < nM; m++) {
+    const sim = series.members[m].values;
+    // Rows at every time with complete inputs: the member itself stands in for the target,
+    // which is not used here (an all-missing target would drop every row).
+    const all = continuousRows(spec, { times, sim, forcings: series.forcings, obs: sim });
+    const correction = new Float64Array(times.length).fill(NaN);
+    const pick: number[] = [];
+    for (let r = 0; r < all.nRows; r++) {
+      const t = all.index[r];
+      if (times[t] >= validation.fromMs && times[t] < validation.toMs) pick.push(r);
+    }
+    if (pick.length) {
+      const nF = all.nFeatures;
+      const x = new Float32Array(pick.length * nF);
+      pick.forEach((r, j) => x.set(all.rows.subarray(r * nF, (r + 1) * nF), j * nF));
+      const sum = new Float64Array(pick.length);
+      for (const predict of predictors) {
+        const out = await predict(x, pick.length, nF);
+        for (let j = 0; j < pick.length; j++) sum[j] += out[j];
+      }
+      pick.forEach((r, j) => {
+        correction[all.index[r]] = sum[j] / predictors.length;
+      });
+    }
+    const raw = new Float64Array(len);
+    const cor = new Float64Array(len);
+    const obs = new Float64Array(len);
+    for (let j = 0; j < len; j++) {
+      const i = first + j;
+      const s = sim[i];
+      const c = Number.isNaN(correction[i]) ? NaN : Math.max(0, s + correction[i]);
+      raw[j] = s;
+      cor[j] = c;
+      obs[j] = observed[i];
+      const k = m * stride + j;
+      rawCat[k] = s;
+      corCat[k] = c;
+      obsCat[k] = Number.isNaN(c) ? NaN : observed[i];
+      doyCat[k] = dayOfYearUtc(times[i]);
+      if (Number.isFinite(c) && Number.isFinite(observed[i]) && Number.isFinite(s)) {
+        residualSq.before += (observed[i] - s) ** 2;
+        residualSq.after += (observed[i] - c) ** 2;
+        residualSq.n++;
+        ensRaw[j] += s;
+        ensCor[j] += c;
+        ensCount[j]++;
+      }
+    }
+    const before = deterministicScores(maskWhere(raw, cor), obs);
+    const after = deterministicScores(cor, obs);
+    memberScores.nseBefore += before.nse / nM;
+    memberScores.nseAfter += after.nse / nM;
+    memberScores.kgeBefore += before.kge / nM;
+    memberScores.kgeAfter += after.kge / nM;
+  }
+  const obsWindow = Float64Array.from({ length: len }, (_, j) => (ensCount[j] ? observed[first + j] : NaN));
+  for (let j = 0; j < len; j++) {
+    ensRaw[j] = ensCount[j] ? ensRaw[j] / ensCount[j] : NaN;
+    ensCor[j] = ensCount[j] ? ensCor[j] / ensCount[j] : NaN;
+  }
+  const ensBefore = deterministicScores(ensRaw, obsWindow);
+  const ensAfter = deterministicScores(ensCor, obsWindow);
+  if (residualSq.n === 0) throw new Error('no validation case has both a corrected value and an observation');
+
+  const archiveInput = { observed: obsCat, dayOfYear: doyCat, transform: options.transform, templateLength: options.templateLength };
+  return {
+    scores: {
+      period: { from: iso(validation.fromMs), to: iso(validation.toMs) },
+      members: nM,
+      cases: residualSq.n,
+      residualRmse: { before: Math.sqrt(residualSq.before / residualSq.n), after: Math.sqrt(residualSq.after / residualSq.n) },
+      memberMean: memberScores,
+      ensembleMean: { nseBefore: ensBefore.nse, nseAfter: ensAfter.nse, kgeBefore: ensBefore.kge, kgeAfter: ensAfter.kge },
+    },
+    correctedArchive: buildArchiveFromSeries({ ...archiveInput, corrected: corCat }),
+    rawArchive: buildArchiveFromSeries({ ...archiveInput, corrected: maskWhere(rawCat, corCat) }),
+  };
+}
+
+/** The raw-member archive alone (degraded mode without any model): all steps with an observation. */
+export function rawArchiveFromSeries(series: ArchiveSeries, period: Period, options: ArchiveOptions): ErrorArchive {
+  const idx: number[] = [];
+  for (let i = 0; i < series.times.length; i++) if (series.times[i] >= period.fromMs && series.times[i] < period.toMs) idx.push(i);
+  const stride = idx.length + 1;
+  const n = series.members.length * stride;
+  const raw = new Float64Array(n).fill(NaN);
+  const obs = new Float64Array(n).fill(NaN);
+  const doy = new Uint16Array(n).fill(1);
+  series.members.forEach((m, k) => {
+    idx.forEach((i, j) => {
+      raw[k * stride + j] = m.values[i];
+      obs[k * stride + j] = series.observed[i];
+      doy[k * stride + j] = dayOfYearUtc(series.times[i]);
+    });
+  });
+  return buildArchiveFromSeries({ corrected: raw, observed: obs, dayOfYear: doy, transform: options.transform, templateLength: options.templateLength });
+}
+
+export function archiveSummary(a: ErrorArchive): { cases: number; templates: number; templateLength: number; transform: unknown } {
+  return { cases: a.predictor.length, templates: a.templateStart.length, templateLength: a.templateLength, transform: a.transform };
+}
+
+export { archiveToBytes };
+
+/** a where b is finite, else NaN: compares raw and corrected on the same cases. */
+function maskWhere(a: Float64Array, b: Float64Array): Float64Array {
+  return a.map((v, i) => (Number.isFinite(b[i]) ? v : NaN));
+}

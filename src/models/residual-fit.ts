@@ -1,0 +1,223 @@
+import type { ErrorTransformSpec } from '../core/error-transform.ts';
+import { continuousRows, makeFeatureSpec, type FeatureSpec } from '../core/features.ts';
+import { createPrng } from '../core/prng.ts';
+import { treeModelToOnnx } from './onnx-export.ts';
+import { createResidualSession, predictResiduals } from './onnx-session.ts';
+import { evaluateResidualModel, type ArchiveSeries, type Evaluation, type Period } from './residual-evaluation.ts';
+import { predictTrees, trainGradientBoosting, trainRandomForest, type TreeModel } from './trees/index.ts';
+import { tune, type SearchParam } from './tuning/index.ts';
+
+export interface FitOptions {
+  calibration: Period;
+  validation: Period;
+  trainer: 'gradient-boosting' | 'random-forest';
+  /** Trainer parameters (fixed, or the starting point when tuning). */
+  params: Record<string, number>;
+  /** Bayesian-optimisation tuning; null = train once with params. */
+  tuning: null | { evaluations: number; initial: number; space: SearchParam[] };
+  /** Keep the best few tuned models together as a bundle (1 = the best alone). */
+  bundle: number;
+  seed: number;
+  simLags: number;
+  forcings: { name: string; lags: number }[];
+  seasonal: boolean;
+  transform: ErrorTransformSpec;
+  templateLength: number;
+  /** Calibration rows are subsampled to at most this many (seeded), to bound fitting time. */
+  maxTrainRows: number;
+}
+
+export interface FitProgress {
+  stage: string;
+  /** 0 … 100 over the whole fit. */
+  percent: number;
+}
+
+export interface FittedPart {
+  model: TreeModel;
+  onnx: Uint8Array;
+  params: Record<string, number>;
+  validationRmse: number;
+}
+
+export interface FitResult {
+  spec: FeatureSpec;
+  parts: FittedPart[];
+  trials: { params: Record<string, number>; validationRmse: number }[];
+  evaluation: Evaluation;
+  rows: { calibration: number; validation: number };
+  onnxCheck: { rows: number; mismatches: number };
+}
+
+/** Default search space for gradient boosting (ranges are common practice). */
+export const defaultBoostingSpace: SearchParam[] = [
+  { name: 'learningRate', kind: 'logfloat', low: 0.02, high: 0.3 },
+  { name: 'maxDepth', kind: 'int', low: 2, high: 8 },
+  { name: 'minChildWeight', kind: 'logfloat', low: 1, high: 200 },
+  { name: 'lambda', kind: 'logfloat', low: 0.1, high: 20 },
+  { name: 'colSample', kind: 'float', low: 0.5, high: 1 },
+];
+
+export const defaultForestSpace: SearchParam[] = [
+  { name: 'maxDepth', kind: 'int', low: 4, high: 14 },
+  { name: 'minLeafRows', kind: 'int', low: 1, high: 100 },
+  { name: 'sampleFraction', kind: 'float', low: 0.3, high: 1 },
+];
+
+/**
+ * Fits the residual stage from a gauge's continuous member simulations: target = observed −
+ * simulated, pooled over members; calibration and validation are contiguous date blocks (nothing
+ * shuffled across time); early stopping and tuning look at the validation block. Exports each
+ * kept model to ONNX and checks that onnxruntime reproduces the in-process predictions exactly on
+ * every validation row, then scores the correction and builds the error archives.
+ */
+export async function fitResidualModel(
+  series: ArchiveSeries,
+  options: FitOptions,
+  onProgress: (p: FitProgress) => void = () => {},
+  shouldStop: () => boolean = () => false,
+): Promise<FitResult> {
+  const spec = makeFeatureSpec({ stepSeconds: series.stepSeconds, simLags: options.simLags, forcings: options.forcings, seasonal: options.seasonal });
+  onProgress({ stage: 'building feature rows', percent: 1 });
+  const cal = collectRows(series, spec, options.calibration);
+  const val = collectRows(series, spec, options.validation);
+  if (cal.nRows < 50) throw new Error(`the calibration period gives ${cal.nRows} complete rows; at least 50 are needed`);
+  if (val.nRows < 20) throw new Error(`the validation period gives ${val.nRows} complete rows; at least 20 are needed`);
+  const train = subsample(cal, options.maxTrainRows, options.seed);
+  const data = { x: train.rows, nRows: train.nRows, nFeatures: train.nFeatures, y: train.target, valid: { x: val.rows, nRows: val.nRows, y: val.target } };
+
+  const trainOnce = (params: Record<string, number>, seed: number, from: number, to: number): TreeModel => {
+    const progress = (done: number, total: number) => onProgress({ stage: 'training', percent: from + ((to - from) * done) / total });
+    return options.trainer === 'gradient-boosting'
+      ? trainGradientBoosting(data, params, seed, progress, shouldStop)
+      : trainRandomForest(data, params, seed, progress, shouldStop);
+  };
+  const score = (model: TreeModel) => rmse(predictTrees(model, val.rows, val.nRows), val.target);
+
+  let kept: { model: TreeModel; params: Record<string, number>; rmse: number }[];
+  const trials: FitResult['trials'] = [];
+  if (options.tuning) {
+    const models = new Map<number, TreeModel>();
+    const total = options.tuning.evaluations;
+    const result = await tune(
+      options.tuning.space,
+      (p) => {
+        const params = { ...options.params, ...p };
+        const i = trials.length;
+        const model = trainOnce(params, options.seed + i, 5 + (80 * i) / total, 5 + (80 * (i + 1)) / total);
+        const value = score(model);
+        models.set(i, model);
+        trials.push({ params, validationRmse: value });
+        return value;
+      },
+      {
+        evaluations: total,
+        initial: Math.min(options.tuning.initial, total),
+        seed: options.seed,
+        keepBest: options.bundle,
+        shouldStop,
+        onProgress: (p) => onProgress({ stage: `tuning: trial ${p.done} of ${p.total}`, percent: 5 + (80 * p.done) / p.total }),
+      },
+    );
+    kept = result.trials
+      .filter((t) => Number.isFinite(t.value))
+      .slice(0, Math.max(1, options.bundle))
+      .map((t) => ({ model: models.get(t.index)!, params: { ...options.params, ...t.params }, rmse: t.value }));
+  } else {
+    const model = trainOnce(options.params, options.seed, 5, 85);
+    const value = score(model);
+    trials.push({ params: options.params, validationRmse: value });
+    kept = [{ model, params: options.params, rmse: value }];
+  }
+  if (shouldStop()) throw new CancelledError();
+
+  onProgress({ stage: 'exporting to ONNX and checking it', percent: 86 });
+  const parts: FittedPart[] = [];
+  const sessions = [];
+  let mismatches = 0;
+  for (const k of kept) {
+    const onnx = treeModelToOnnx(k.model, { nFeatures: val.nFeatures, producer: 'streamflow-trust', metadata: { spec: JSON.stringify(spec) } });
+    const session = await createResidualSession(onnx);
+    const fromRuntime = await predictResiduals(session, val.rows, val.nRows, val.nFeatures);
+    const inProcess = predictTrees(k.model, val.rows, val.nRows);
+    for (let i = 0; i < val.nRows; i++) if (!Object.is(fromRuntime[i], inProcess[i])) mismatches++;
+    sessions.push(session);
+    parts.push({ model: k.model, onnx, params: k.params, validationRmse: k.rmse });
+  }
+  if (mismatches > 0) {
+    throw new Error(`onnxruntime disagrees with the in-process trees on ${mismatches} validation rows; the export is refused`);
+  }
+
+  onProgress({ stage: 'scoring the validation period and building error archives', percent: 90 });
+  const evaluation = await evaluateResidualModel(
+    series,
+    spec,
+    options.validation,
+    sessions.map((s) => (rows: Float32Array, n: number, nF: number) => predictResiduals(s, rows, n, nF)),
+    { transform: options.transform, templateLength: options.templateLength },
+  );
+  await Promise.all(sessions.map((s) => s.release()));
+  onProgress({ stage: 'done', percent: 100 });
+  return { spec, parts, trials, evaluation, rows: { calibration: cal.nRows, validation: val.nRows }, onnxCheck: { rows: val.nRows * parts.length, mismatches } };
+}
+
+export class CancelledError extends Error {
+  constructor() {
+    super('cancelled');
+  }
+}
+
+interface Rows {
+  rows: Float32Array;
+  target: Float64Array;
+  nRows: number;
+  nFeatures: number;
+}
+
+/** Rows of every member whose time falls in the period, pooled. */
+function collectRows(series: ArchiveSeries, spec: FeatureSpec, period: Period): Rows {
+  const parts = series.members.map((m) => continuousRows(spec, { times: series.times, sim: m.values, forcings: series.forcings, obs: series.observed }));
+  const nF = parts[0]?.nFeatures ?? 0;
+  let n = 0;
+  for (const p of parts) for (let r = 0; r < p.nRows; r++) if (inside(series.times[p.index[r]], period)) n++;
+  const rows = new Float32Array(n * nF);
+  const target = new Float64Array(n);
+  let k = 0;
+  for (const p of parts) {
+    for (let r = 0; r < p.nRows; r++) {
+      if (!inside(series.times[p.index[r]], period)) continue;
+      rows.set(p.rows.subarray(r * nF, (r + 1) * nF), k * nF);
+      target[k++] = p.target[r];
+    }
+  }
+  return { rows, target, nRows: n, nFeatures: nF };
+}
+
+const inside = (t: number, p: Period) => t >= p.fromMs && t < p.toMs;
+
+function subsample(r: Rows, max: number, seed: number): Rows {
+  if (r.nRows <= max) return r;
+  // Partial Fisher–Yates: a seeded sample without replacement, then kept in original order.
+  const prng = createPrng(seed, 7);
+  const idx = Int32Array.from({ length: r.nRows }, (_, i) => i);
+  for (let i = 0; i < max; i++) {
+    const j = i + Math.floor(prng.nextFloat() * (r.nRows - i));
+    const t = idx[i];
+    idx[i] = idx[j];
+    idx[j] = t;
+  }
+  const chosen = idx.subarray(0, max).sort();
+  const rows = new Float32Array(max * r.nFeatures);
+  const target = new Float64Array(max);
+  chosen.forEach((src, k) => {
+    rows.set(r.rows.subarray(src * r.nFeatures, (src + 1) * r.nFeatures), k * r.nFeatures);
+    target[k] = r.target[src];
+  });
+  return { rows, target, nRows: max, nFeatures: r.nFeatures };
+}
+
+function rmse(pred: ArrayLike<number>, y: ArrayLike<number>): number {
+  let s = 0;
+  for (let i = 0; i < y.length; i++) s += (pred[i] - y[i]) ** 2;
+  return Math.sqrt(s / y.length);
+}
