@@ -1,6 +1,8 @@
 import pino from 'pino';
 import type { FastifyInstance } from 'fastify';
 import { buildApp } from './api/app.ts';
+import { jobHandlers } from './jobs/handlers.ts';
+import { JobRunner } from './jobs/runner.ts';
 import type { Config } from './config.ts';
 import type { Db } from './store/db.ts';
 import { migrate } from './store/migrate.ts';
@@ -9,6 +11,7 @@ import { countTokens } from './store/tokens-repo.ts';
 
 export interface RunningService {
   app: FastifyInstance;
+  runner: JobRunner;
   db: Db;
   url: string;
   stop(): Promise<void>;
@@ -28,16 +31,20 @@ export async function startService(config: Config, logger = pino({ level: config
     }
     const app = await buildApp({ db, config, logger });
     await app.listen({ port: config.PORT, host: config.HOST });
+    const runner = new JobRunner(db, jobHandlers, app.log);
+    await runner.start();
     const address = app.server.address();
     const port = typeof address === 'object' && address ? address.port : config.PORT;
     const host = config.HOST.includes(':') ? `[${config.HOST}]` : config.HOST;
     let stopping: Promise<void> | null = null;
     return {
       app,
+      runner,
       db,
       url: `http://${host}:${port}`,
       stop: () =>
         (stopping ??= (async () => {
+          await runner.stop();
           await app.close();
           await db.close();
         })()),

@@ -6,6 +6,8 @@ import type { Services } from './context.ts';
 import { forcingRoutes } from './forcings.ts';
 import { gaugeRoutes } from './gauges.ts';
 import { healthRoutes } from './health.ts';
+import { jobRoutes } from './jobs.ts';
+import { modelRoutes } from './models.ts';
 import { observationRoutes } from './observations.ts';
 import { ApiDocs } from './openapi.ts';
 import { docsRoutes } from './docs.ts';
@@ -61,6 +63,8 @@ export async function buildApp(options: AppOptions): Promise<FastifyInstance> {
   await app.register(forcingRoutes, { services });
   await app.register(simulationRoutes, { services });
   await app.register(reforecastRoutes, { services });
+  await app.register(modelRoutes, { services });
+  await app.register(jobRoutes, { services });
   return app;
 }
 

@@ -83,6 +83,7 @@ export function trainGradientBoosting(
   const binned = binFeatures(x, nRows, nFeatures, computeCuts(x, nRows, nFeatures, p.maxBins));
   const grower = new TreeGrower(binned);
   const { rows, g, h } = grower;
+  h.fill(1); // squared error: unit hessian for every row
 
   const pred = new Float64Array(nRows).fill(baseScore);
   const validPred = valid ? new Float64Array(valid.nRows).fill(baseScore) : null;
@@ -115,8 +116,7 @@ export function trainGradientBoosting(
     }
     for (let i = 0; i < nUsed; i++) {
       const r = rows[i];
-      g[i] = pred[r] - y[r];
-      h[i] = 1;
+      g[r] = pred[r] - y[r];
     }
     const treeFeatures = drawFeatures(nFeatures, nColumns, rng, featBuf);
     const work = grower.grow(nUsed, {

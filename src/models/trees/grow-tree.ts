@@ -49,11 +49,10 @@ export interface WorkTree {
 /** Reusable buffers sized for the training rows; one per training run. */
 export class TreeGrower {
   readonly rows: Int32Array;
+  /** Gradient and hessian per row id (filled by the caller before grow). */
   readonly g: Float64Array;
   readonly h: Float64Array;
   private readonly tmpRows: Int32Array;
-  private readonly tmpG: Float64Array;
-  private readonly tmpH: Float64Array;
   private readonly pool: Float64Array[] = [];
   private readonly nBins: Int32Array;
   private readonly featBuf: Int32Array;
@@ -65,8 +64,6 @@ export class TreeGrower {
     this.g = new Float64Array(n);
     this.h = new Float64Array(n);
     this.tmpRows = new Int32Array(n);
-    this.tmpG = new Float64Array(n);
-    this.tmpH = new Float64Array(n);
     this.nBins = new Int32Array(data.nFeatures);
     for (let f = 0; f < data.nFeatures; f++) this.nBins[f] = data.cuts[f].length + 1;
     this.featBuf = new Int32Array(data.nFeatures);
@@ -116,8 +113,8 @@ export class TreeGrower {
       hist.fill(0, b7, b7 + SLOTS);
       for (let i = b; i < e; i++) {
         const r = rows[i];
-        const gi = g[i];
-        const hi = h[i];
+        const gi = g[r];
+        const hi = h[r];
         let k = 0;
         k = b0 + (codes[o0 + r] << 1);
         hist[k] += gi;
@@ -160,8 +157,8 @@ export class TreeGrower {
       hist.fill(0, b3, b3 + SLOTS);
       for (let i = b; i < e; i++) {
         const r = rows[i];
-        const gi = g[i];
-        const hi = h[i];
+        const gi = g[r];
+        const hi = h[r];
         let k = b0 + (codes[o0 + r] << 1);
         hist[k] += gi;
         hist[k + 1] += hi;
@@ -181,9 +178,10 @@ export class TreeGrower {
       const o = feats[j] * nRows;
       hist.fill(0, base, base + SLOTS);
       for (let i = b; i < e; i++) {
-        const k = base + (codes[o + rows[i]] << 1);
-        hist[k] += g[i];
-        hist[k + 1] += h[i];
+        const r = rows[i];
+        const k = base + (codes[o + r] << 1);
+        hist[k] += g[r];
+        hist[k + 1] += h[r];
       }
     }
   }
@@ -204,7 +202,7 @@ export class TreeGrower {
   private partition(b: number, e: number, f: number, bin: number, missingLeft: boolean): number {
     const { codes, nRows } = this.data;
     const col = codes.subarray(f * nRows, (f + 1) * nRows);
-    const { rows, g, h, tmpRows, tmpG, tmpH } = this;
+    const { rows, tmpRows } = this;
     // Branch-free: every row is written to both sides and only the matching cursor advances,
     // because the left/right outcome is close to a coin flip and mispredicts badly.
     const goLeft = this.goLeft;
@@ -213,27 +211,19 @@ export class TreeGrower {
     let t = 0;
     for (let i = b; i < e; i++) {
       const r = rows[i];
-      const gi = g[i];
-      const hi = h[i];
       const m = goLeft[col[r]];
       rows[l] = r;
-      g[l] = gi;
-      h[l] = hi;
       tmpRows[t] = r;
-      tmpG[t] = gi;
-      tmpH[t] = hi;
       l += m;
       t += 1 - m;
     }
     rows.set(tmpRows.subarray(0, t), l);
-    g.set(tmpG.subarray(0, t), l);
-    h.set(tmpH.subarray(0, t), l);
     return l;
   }
 
   /**
-   * Grows a tree on positions [0, nUsed) of `rows`, whose gradients are already in g / h at the
-   * same positions. Rows at positions >= nUsed are left untouched.
+   * Grows a tree on the rows listed at positions [0, nUsed) of `rows`; g / h are indexed by row id.
+   * Rows at positions >= nUsed are left untouched.
    */
   grow(nUsed: number, opt: GrowOptions): WorkTree {
     const tree: WorkTree = {
@@ -245,8 +235,9 @@ export class TreeGrower {
     let G = 0;
     let H = 0;
     for (let i = 0; i < nUsed; i++) {
-      G += this.g[i];
-      H += this.h[i];
+      const r = this.rows[i];
+      G += this.g[r];
+      H += this.h[r];
     }
     const addNode = (b: number, e: number, sg: number, sh: number): number => {
       tree.feature.push(-1);

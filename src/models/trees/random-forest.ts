@@ -68,10 +68,9 @@ export function trainRandomForest(
     for (let r = 0; r < nRows; r++) {
       const w = counts[r];
       if (w === 0) continue;
-      rows[nUsed] = r;
-      g[nUsed] = -w * y[r];
-      h[nUsed] = w;
-      nUsed++;
+      rows[nUsed++] = r;
+      g[r] = -w * y[r];
+      h[r] = w;
     }
     const work = grower.grow(nUsed, {
       maxDepth: p.maxDepth,

@@ -1,0 +1,60 @@
+// Runs CPU-heavy work (fitting, evaluating uploaded models, building archives) off the event loop.
+// Receives one task in workerData, posts {type:'progress'} messages and one {type:'done'|'error'}.
+import { parentPort, workerData } from 'node:worker_threads';
+import { archiveToBytes } from '../core/archive-codec.ts';
+import { checkFeatureSpec } from '../core/features.ts';
+import { createResidualSession, predictResiduals } from '../models/onnx-session.ts';
+import { fitResidualModel, type FitOptions } from '../models/residual-fit.ts';
+import { archiveSummary, evaluateResidualModel, rawArchiveFromSeries, type ArchiveSeries, type ArchiveOptions, type Period } from '../models/residual-evaluation.ts';
+
+export type ComputeTask =
+  | { kind: 'fit'; series: ArchiveSeries; options: FitOptions }
+  | { kind: 'evaluate-upload'; series: ArchiveSeries; onnx: Uint8Array; spec: unknown; validation: Period; archive: ArchiveOptions }
+  | { kind: 'raw-archive'; series: ArchiveSeries; period: Period; archive: ArchiveOptions };
+
+const { task, cancelFlag } = workerData as { task: ComputeTask; cancelFlag: Int32Array; module: string };
+const shouldStop = () => Atomics.load(cancelFlag, 0) === 1;
+const progress = (p: { stage: string; percent: number }) => parentPort!.postMessage({ type: 'progress', ...p });
+
+async function run(): Promise<unknown> {
+  switch (task.kind) {
+    case 'fit': {
+      const r = await fitResidualModel(task.series, task.options, progress, shouldStop);
+      return {
+        spec: r.spec,
+        parts: r.parts.map((p) => ({ onnx: p.onnx, params: p.params, validationRmse: p.validationRmse, trees: p.model.trees.length, info: p.model.info })),
+        trials: r.trials,
+        scores: r.evaluation.scores,
+        rows: r.rows,
+        onnxCheck: r.onnxCheck,
+        correctedArchive: { bytes: archiveToBytes(r.evaluation.correctedArchive), summary: archiveSummary(r.evaluation.correctedArchive) },
+        rawArchive: { bytes: archiveToBytes(r.evaluation.rawArchive), summary: archiveSummary(r.evaluation.rawArchive) },
+      };
+    }
+    case 'evaluate-upload': {
+      const spec = checkFeatureSpec(task.spec);
+      progress({ stage: 'loading the model', percent: 10 });
+      const session = await createResidualSession(task.onnx);
+      progress({ stage: 'running it on the validation period', percent: 30 });
+      const evaluation = await evaluateResidualModel(task.series, spec, task.validation, [(rows, n, nF) => predictResiduals(session, rows, n, nF)], task.archive);
+      await session.release();
+      const check = evaluation.correctedArchive.error.every(Number.isFinite);
+      if (!check) throw new Error('the model produced non-finite residuals on archive rows');
+      return {
+        spec,
+        scores: evaluation.scores,
+        correctedArchive: { bytes: archiveToBytes(evaluation.correctedArchive), summary: archiveSummary(evaluation.correctedArchive) },
+        rawArchive: { bytes: archiveToBytes(evaluation.rawArchive), summary: archiveSummary(evaluation.rawArchive) },
+      };
+    }
+    case 'raw-archive': {
+      const a = rawArchiveFromSeries(task.series, task.period, task.archive);
+      return { bytes: archiveToBytes(a), summary: archiveSummary(a) };
+    }
+  }
+}
+
+run().then(
+  (result) => parentPort!.postMessage({ type: 'done', result }),
+  (err: Error) => parentPort!.postMessage({ type: 'error', message: err.message, cancelled: err.message === 'cancelled' || shouldStop() }),
+);

@@ -1,0 +1,121 @@
+import type { FitOptions } from '../models/residual-fit.ts';
+import { defaultBoostingSpace, defaultForestSpace } from '../models/residual-fit.ts';
+import type { ArchiveSeries, Period } from '../models/residual-evaluation.ts';
+import { loadArchiveSeries } from '../store/archive-series.ts';
+import { getGauge } from '../store/gauges-repo.ts';
+import { activateModelVersion, insertArchive, insertModelVersion } from '../store/models-repo.ts';
+import type { JobHandler } from './runner.ts';
+import { runCompute } from './run-compute.ts';
+
+/** Parameters of a fit job, as accepted by the API (already validated there). */
+export interface FitJobParams {
+  trainer: 'gradient-boosting' | 'random-forest';
+  params: Record<string, number>;
+  tuning: null | { evaluations: number; initial: number };
+  bundle: number;
+  seed: number;
+  calibration?: { from: string; to: string };
+  validation?: { from: string; to: string };
+  simLags: number;
+  forcingLags: number;
+  forcings?: string[];
+  seasonal: boolean;
+  transform: FitOptions['transform'];
+  templateLength: number;
+  maxTrainRows: number;
+  activate: boolean;
+  label?: string;
+}
+
+/**
+ * Default periods: of the steps with an observation, the first 70 % calibrate and the rest
+ * validate (contiguous blocks by date).
+ */
+export function defaultPeriods(series: ArchiveSeries): { calibration: Period; validation: Period } {
+  const observedTimes: number[] = [];
+  for (let i = 0; i < series.times.length; i++) if (Number.isFinite(series.observed[i])) observedTimes.push(series.times[i]);
+  if (observedTimes.length < 100) throw new Error(`only ${observedTimes.length} steps have both simulations and observations; at least 100 are needed`);
+  const split = observedTimes[Math.floor(observedTimes.length * 0.7)];
+  const end = observedTimes[observedTimes.length - 1] + series.stepSeconds * 1000;
+  return { calibration: { fromMs: observedTimes[0], toMs: split }, validation: { fromMs: split, toMs: end } };
+}
+
+const period = (p: { from: string; to: string }): Period => ({ fromMs: Date.parse(p.from), toMs: Date.parse(p.to) });
+const iso = (ms: number) => new Date(ms).toISOString().replace('.000Z', 'Z');
+
+interface FitOutput {
+  spec: unknown;
+  parts: { onnx: Uint8Array; params: Record<string, number>; validationRmse: number; trees: number; info: unknown }[];
+  trials: unknown[];
+  scores: Record<string, unknown>;
+  rows: unknown;
+  onnxCheck: unknown;
+  correctedArchive: { bytes: Uint8Array; summary: Record<string, unknown> };
+  rawArchive: { bytes: Uint8Array; summary: Record<string, unknown> };
+}
+
+export const fitJob: JobHandler = async (job, { db, progress, signal }) => {
+  const p = job.params as unknown as FitJobParams;
+  const gauge = await getGauge(db, job.gaugeId!);
+  if (!gauge) throw new Error(`gauge ${job.gaugeId} no longer exists`);
+  await progress('loading the archive', 0);
+  const series = await loadArchiveSeries(db, gauge.id, gauge.stepSeconds);
+  const defaults = defaultPeriods(series);
+  const calibration = p.calibration ? period(p.calibration) : defaults.calibration;
+  const validation = p.validation ? period(p.validation) : defaults.validation;
+  if (calibration.toMs > validation.fromMs && calibration.fromMs < validation.toMs) throw new Error('the calibration and validation periods overlap');
+  const forcingNames = (p.forcings ?? Object.keys(series.forcings)).filter((n) => n in series.forcings).sort();
+  const options: FitOptions = {
+    calibration,
+    validation,
+    trainer: p.trainer,
+    params: p.params,
+    tuning: p.tuning ? { ...p.tuning, space: p.trainer === 'gradient-boosting' ? defaultBoostingSpace : defaultForestSpace } : null,
+    bundle: p.bundle,
+    seed: p.seed,
+    simLags: p.simLags,
+    forcings: forcingNames.map((name) => ({ name, lags: p.forcingLags })),
+    seasonal: p.seasonal,
+    transform: p.transform,
+    templateLength: p.templateLength,
+    maxTrainRows: p.maxTrainRows,
+  };
+  const handle = runCompute<FitOutput>({ kind: 'fit', series, options }, (pr) => {
+    void progress(pr.stage, pr.percent * 0.97);
+  });
+  signal.addEventListener('abort', () => handle.cancel());
+  const out = await handle.result;
+  await progress('storing the model version', 98);
+  const versionId = await db.transaction(async (tx) => {
+    const id = await insertModelVersion(tx, {
+      gaugeId: gauge.id,
+      origin: 'fitted',
+      label: p.label ?? `${p.trainer}${p.tuning ? ' tuned' : ''} ${iso(Date.now()).slice(0, 16)}Z`,
+      featureSpec: out.spec,
+      trainer: { kind: p.trainer, bundle: out.parts.map((part) => ({ params: part.params, validationRmse: part.validationRmse, trees: part.trees })), trials: out.trials, seed: p.seed, rows: out.rows, onnxCheck: out.onnxCheck },
+      periods: { calibration: { from: iso(calibration.fromMs), to: iso(calibration.toMs) }, validation: { from: iso(validation.fromMs), to: iso(validation.toMs) } },
+      scores: out.scores,
+      createdBy: job.createdBy,
+      parts: out.parts.map((part) => part.onnx),
+      correctedArchive: out.correctedArchive,
+      rawArchive: out.rawArchive,
+    });
+    if (p.activate) await activateModelVersion(tx, gauge.id, id);
+    return id;
+  });
+  return { versionId, activated: p.activate, scores: out.scores, onnxCheck: out.onnxCheck };
+};
+
+/** Builds the raw members' error archive alone, so degraded mode works before any model is fitted. */
+export const rawArchiveJob: JobHandler = async (job, { db, progress }) => {
+  const p = job.params as { templateLength: number; transform: FitOptions['transform'] };
+  const gauge = await getGauge(db, job.gaugeId!);
+  if (!gauge) throw new Error(`gauge ${job.gaugeId} no longer exists`);
+  await progress('loading the archive', 5);
+  const series = await loadArchiveSeries(db, gauge.id, gauge.stepSeconds);
+  const all = { fromMs: series.times[0], toMs: series.times[series.times.length - 1] + 1 };
+  await progress('building the raw error archive', 30);
+  const out = await runCompute<{ bytes: Uint8Array; summary: Record<string, unknown> }>({ kind: 'raw-archive', series, period: all, archive: p }).result;
+  await insertArchive(db, gauge.id, null, 'raw', out);
+  return { summary: out.summary };
+};

@@ -1,0 +1,8 @@
+import { fitJob, rawArchiveJob } from './fit-job.ts';
+import type { JobHandler } from './runner.ts';
+
+/** Every kind of background job the service runs. */
+export const jobHandlers: Record<string, JobHandler> = {
+  fit: fitJob,
+  'raw-archive': rawArchiveJob,
+};

@@ -1,0 +1,111 @@
+import { randomBytes } from 'node:crypto';
+import type { FastifyBaseLogger } from 'fastify';
+import type { Db } from '../store/db.ts';
+import { claimJob, failStaleJobs, finishJob, reportProgress, type Job } from '../store/jobs-repo.ts';
+import { ComputeCancelled } from './run-compute.ts';
+
+/** What a job kind does; `progress` records stage and percent and says whether to stop. */
+export type JobHandler = (job: Job, ctx: { db: Db; progress: (stage: string, percent: number) => Promise<boolean>; signal: AbortSignal }) => Promise<unknown>;
+
+const HEARTBEAT_MS = 3_000;
+const STALE_SECONDS = 30;
+
+/**
+ * Takes queued jobs from Postgres one at a time (SKIP LOCKED, so several instances share the
+ * queue), beats a heartbeat while a job runs, and stops cleanly. Jobs whose instance died are
+ * marked failed at start and on every poll.
+ */
+export class JobRunner {
+  readonly instance = `${process.pid}-${randomBytes(4).toString('hex')}`;
+  private timer: NodeJS.Timeout | null = null;
+  private busy: Promise<void> | null = null;
+  private stopped = false;
+  private current: AbortController | null = null;
+
+  constructor(
+    private readonly db: Db,
+    private readonly handlers: Record<string, JobHandler>,
+    private readonly log: FastifyBaseLogger,
+    private readonly pollMs = 500,
+  ) {}
+
+  async start(): Promise<void> {
+    const failed = await failStaleJobs(this.db, STALE_SECONDS);
+    if (failed.length) this.log.warn({ jobs: failed }, 'jobs interrupted by a stopped instance were marked failed');
+    this.schedule();
+  }
+
+  /** Runs queued jobs now (tests use this instead of waiting for the poll). */
+  async drain(): Promise<void> {
+    while (!this.stopped && (await this.runOne())) {
+      /* keep going */
+    }
+  }
+
+  async stop(): Promise<void> {
+    this.stopped = true;
+    if (this.timer) clearTimeout(this.timer);
+    this.current?.abort();
+    await this.busy;
+  }
+
+  private schedule(): void {
+    if (this.stopped) return;
+    this.timer = setTimeout(() => {
+      this.busy = this.tick().finally(() => {
+        this.busy = null;
+        this.schedule();
+      });
+    }, this.pollMs);
+    this.timer.unref();
+  }
+
+  private async tick(): Promise<void> {
+    try {
+      await failStaleJobs(this.db, STALE_SECONDS);
+      await this.drain();
+    } catch (err) {
+      this.log.error({ err }, 'job runner poll failed');
+    }
+  }
+
+  private async runOne(): Promise<boolean> {
+    const job = await claimJob(this.db, this.instance);
+    if (!job) return false;
+    const handler = this.handlers[job.kind];
+    const abort = new AbortController();
+    this.current = abort;
+    let cancelAsked = false;
+    let lastBeat = 0;
+    let latest = { stage: 'starting', percent: 0 };
+    const progress = async (stage: string, percent: number) => {
+      latest = { stage, percent };
+      if (Date.now() - lastBeat < 500 && percent < 100) return cancelAsked;
+      lastBeat = Date.now();
+      cancelAsked = (await reportProgress(this.db, job.id, stage, percent)) || cancelAsked;
+      if (cancelAsked) abort.abort();
+      return cancelAsked;
+    };
+    const beat = setInterval(() => {
+      reportProgress(this.db, job.id, latest.stage, latest.percent)
+        .then((c) => {
+          if (c) abort.abort();
+        })
+        .catch(() => undefined);
+    }, HEARTBEAT_MS);
+    try {
+      if (!handler) throw new Error(`unknown job kind ${job.kind}`);
+      const result = await handler(job, { db: this.db, progress, signal: abort.signal });
+      await finishJob(this.db, job.id, 'succeeded', result ?? null, null);
+      this.log.info({ job: job.id, kind: job.kind }, 'job succeeded');
+    } catch (err) {
+      const cancelled = err instanceof ComputeCancelled || abort.signal.aborted;
+      await finishJob(this.db, job.id, cancelled ? 'cancelled' : 'failed', null, cancelled ? 'cancelled on request' : (err as Error).message);
+      this.log[cancelled ? 'info' : 'warn']({ job: job.id, kind: job.kind, err: (err as Error).message }, cancelled ? 'job cancelled' : 'job failed');
+    } finally {
+      clearInterval(beat);
+      this.current = null;
+    }
+    return true;
+  }
+}

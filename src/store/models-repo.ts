@@ -1,0 +1,163 @@
+import type { Queryable } from './db.ts';
+
+export interface ModelVersion {
+  id: string;
+  gaugeId: string;
+  origin: 'fitted' | 'uploaded';
+  label: string;
+  featureSpec: unknown;
+  trainer: Record<string, unknown>;
+  periods: Record<string, unknown>;
+  scores: Record<string, unknown>;
+  createdBy: string | null;
+  createdAt: string;
+  active: boolean;
+  activatedAt: string | null;
+  parts: number;
+}
+
+interface Row {
+  id: string | number;
+  gauge_id: string;
+  origin: 'fitted' | 'uploaded';
+  label: string;
+  feature_spec: unknown;
+  trainer: Record<string, unknown>;
+  periods: Record<string, unknown>;
+  scores: Record<string, unknown>;
+  created_by: string | null;
+  created_at: Date;
+  active: boolean;
+  activated_at: Date | null;
+  parts: number;
+}
+
+const fromRow = (r: Row): ModelVersion => ({
+  id: String(r.id),
+  gaugeId: r.gauge_id,
+  origin: r.origin,
+  label: r.label,
+  featureSpec: r.feature_spec,
+  trainer: r.trainer,
+  periods: r.periods,
+  scores: r.scores,
+  createdBy: r.created_by,
+  createdAt: r.created_at.toISOString(),
+  active: r.active,
+  activatedAt: r.activated_at?.toISOString() ?? null,
+  parts: Number(r.parts),
+});
+
+const SELECT = `select v.*, (select count(*)::int from model_parts p where p.version_id = v.id) as parts from model_versions v`;
+
+export interface NewModelVersion {
+  gaugeId: string;
+  origin: 'fitted' | 'uploaded';
+  label: string;
+  featureSpec: unknown;
+  trainer: Record<string, unknown>;
+  periods: Record<string, unknown>;
+  scores: Record<string, unknown>;
+  createdBy: string | null;
+  parts: Uint8Array[];
+  correctedArchive: { bytes: Uint8Array; summary: Record<string, unknown> };
+  rawArchive: { bytes: Uint8Array; summary: Record<string, unknown> } | null;
+}
+
+/** Stores a version with its ONNX parts and error archives; call inside a transaction. */
+export async function insertModelVersion(tx: Queryable, v: NewModelVersion): Promise<string> {
+  const { rows } = await tx.query<{ id: string }>(
+    `insert into model_versions (gauge_id, origin, label, feature_spec, trainer, periods, scores, created_by)
+     values ($1, $2, $3, $4::jsonb, $5::jsonb, $6::jsonb, $7::jsonb, $8) returning id::text as id`,
+    [v.gaugeId, v.origin, v.label, JSON.stringify(v.featureSpec), JSON.stringify(v.trainer), JSON.stringify(v.periods), JSON.stringify(v.scores), v.createdBy],
+  );
+  const id = rows[0].id;
+  for (let i = 0; i < v.parts.length; i++) {
+    await tx.query('insert into model_parts (version_id, part, onnx) values ($1, $2, $3)', [id, i, Buffer.from(v.parts[i])]);
+  }
+  await insertArchive(tx, v.gaugeId, id, 'corrected', v.correctedArchive);
+  if (v.rawArchive) await insertArchive(tx, v.gaugeId, id, 'raw', v.rawArchive);
+  return id;
+}
+
+export async function insertArchive(
+  tx: Queryable,
+  gaugeId: string,
+  versionId: string | null,
+  kind: 'corrected' | 'raw',
+  a: { bytes: Uint8Array; summary: Record<string, unknown> },
+): Promise<void> {
+  await tx.query(
+    `insert into error_archives (gauge_id, version_id, kind, lead_mode, cases, summary, bytes) values ($1, $2, $3, $4, $5, $6::jsonb, $7)`,
+    [gaugeId, versionId, kind, 'lead-free', Number(a.summary.cases ?? 0), JSON.stringify(a.summary), Buffer.from(a.bytes)],
+  );
+}
+
+export async function listModelVersions(db: Queryable, gaugeId: string): Promise<ModelVersion[]> {
+  return (await db.query<Row>(`${SELECT} where v.gauge_id = $1 order by v.id desc`, [gaugeId])).rows.map(fromRow);
+}
+
+export async function getModelVersion(db: Queryable, gaugeId: string, id: string): Promise<ModelVersion | null> {
+  if (!/^\d{1,18}$/.test(id)) return null;
+  const { rows } = await db.query<Row>(`${SELECT} where v.gauge_id = $1 and v.id = $2`, [gaugeId, id]);
+  return rows[0] ? fromRow(rows[0]) : null;
+}
+
+export async function getActiveModelVersion(db: Queryable, gaugeId: string): Promise<ModelVersion | null> {
+  const { rows } = await db.query<Row>(`${SELECT} where v.gauge_id = $1 and v.active`, [gaugeId]);
+  return rows[0] ? fromRow(rows[0]) : null;
+}
+
+/** Makes one version the gauge's active one (the unique index allows one at a time). */
+export async function activateModelVersion(tx: Queryable, gaugeId: string, id: string): Promise<void> {
+  await tx.query('update model_versions set active = false where gauge_id = $1 and active', [gaugeId]);
+  await tx.query('update model_versions set active = true, activated_at = now() where gauge_id = $1 and id = $2', [gaugeId, id]);
+}
+
+/** The version active before the current one (by activation time), for roll-back. */
+export async function previousActivatedVersion(db: Queryable, gaugeId: string): Promise<string | null> {
+  const { rows } = await db.query<{ id: string }>(
+    `select id::text as id from model_versions where gauge_id = $1 and not active and activated_at is not null
+     order by activated_at desc limit 1`,
+    [gaugeId],
+  );
+  return rows[0]?.id ?? null;
+}
+
+export async function deactivateModels(tx: Queryable, gaugeId: string): Promise<void> {
+  await tx.query('update model_versions set active = false where gauge_id = $1 and active', [gaugeId]);
+}
+
+export async function modelParts(db: Queryable, versionId: string): Promise<Uint8Array[]> {
+  const { rows } = await db.query<{ onnx: Uint8Array }>('select onnx from model_parts where version_id = $1 order by part', [versionId]);
+  return rows.map((r) => new Uint8Array(r.onnx));
+}
+
+export interface StoredArchive {
+  id: string;
+  versionId: string | null;
+  kind: 'corrected' | 'raw';
+  summary: Record<string, unknown>;
+  bytes: Uint8Array;
+}
+
+export async function versionArchive(db: Queryable, versionId: string, kind: 'corrected' | 'raw'): Promise<StoredArchive | null> {
+  const { rows } = await db.query<{ id: string; version_id: string | null; kind: 'corrected' | 'raw'; summary: Record<string, unknown>; bytes: Uint8Array }>(
+    `select id::text as id, version_id::text as version_id, kind, summary, bytes from error_archives
+     where version_id = $1 and kind = $2 order by id desc limit 1`,
+    [versionId, kind],
+  );
+  const r = rows[0];
+  return r ? { id: r.id, versionId: r.version_id, kind: r.kind, summary: r.summary, bytes: new Uint8Array(r.bytes) } : null;
+}
+
+/** The newest raw-member archive of a gauge (from any fit, upload or a raw-archive job). */
+export async function latestRawArchive(db: Queryable, gaugeId: string): Promise<StoredArchive | null> {
+  const { rows } = await db.query<{ id: string; version_id: string | null; summary: Record<string, unknown>; bytes: Uint8Array }>(
+    `select id::text as id, version_id::text as version_id, summary, bytes from error_archives
+     where gauge_id = $1 and kind = 'raw' order by id desc limit 1`,
+    [gaugeId],
+  );
+  const r = rows[0];
+  return r ? { id: r.id, versionId: r.version_id, kind: 'raw', summary: r.summary, bytes: new Uint8Array(r.bytes) } : null;
+}
