@@ -59,6 +59,11 @@ export class Prng {
     return (hi * 67108864 + lo) * 1.1102230246251565e-16; // / 2^53
   }
 
+  /** Uniform double in [0, 1) with 32-bit resolution (one draw): for choices among few items. */
+  nextUniform32(): number {
+    return this.nextUint32() * 2.3283064365386963e-10; // / 2^32
+  }
+
   /** Uniform integer in [0, n) for 1 ≤ n ≤ 2^32 (float scaling; bias below 2^-21 for n ≤ 2^32). */
   nextInt(n: number): number {
     return Math.floor(this.nextFloat() * n);

@@ -1,0 +1,291 @@
+import {
+  checkTransform,
+  forwardTransform,
+  resolveTransform,
+  type ErrorTransform,
+  type ErrorTransformSpec,
+} from './error-transform.ts';
+
+/**
+ * Error archive for the stochastic error stage: past cases of (predictor = corrected flow,
+ * lead index, day of year, error) for the kNN search, plus historical error trajectories used
+ * as Schaake shuffle templates. Structure of typed arrays: cheap to post to a worker thread
+ * (structured clone copies the buffers; see archiveBuffers to transfer them) and to store as
+ * bytes (archive-codec.ts).
+ *
+ * Cases are grouped by lead index; a lead-free archive (nLeads = 0, from a continuous
+ * simulation) has one group serving every lead. Within a group, cases are sorted ascending by
+ * predictor so the nearest neighbours of a value are found by binary search.
+ *
+ *   group g (0 … max(nLeads, 1) − 1) = cases groupStart[g] … groupStart[g + 1] − 1
+ *   predictor[i]  corrected flow of case i (m³/s)
+ *   error[i]      T(observed) − T(corrected) in the archive's transform space
+ *   dayOfYear[i]  day of year (1 … 366) of the case's valid time
+ *
+ * Templates: templateValues is one series of historical errors (transform space, NaN where the
+ * observation was missing). Template t at lead h is templateValues[templateStart[t] + h],
+ * h < templateLength. Lead-free archives store the error series itself and templates are
+ * windows starting on consecutive (or every `templateStride`-th) days with no gap; reforecast
+ * archives store the issue × lead error matrix row-major and each complete issue row is a
+ * template. templateDayOfYear[t] is the day of year of the template's first value (lead 0).
+ * templateRank is derived, not stored: the rank of each series value among all finite values
+ * (ties broken by position, missing = 0xffffffff). The shuffle only needs rank order, and one
+ * global ranking is consistent for every lead, so no sorting of template values per call.
+ */
+export interface ErrorArchive {
+  format: 1;
+  transform: ErrorTransform;
+  /** Lead times covered; 0 = lead-free archive. */
+  nLeads: number;
+  groupStart: Int32Array;
+  predictor: Float64Array;
+  error: Float64Array;
+  dayOfYear: Uint16Array;
+  templateLength: number;
+  templateValues: Float64Array;
+  templateStart: Int32Array;
+  templateDayOfYear: Uint16Array;
+  templateRank: Uint32Array;
+}
+
+export const MISSING_RANK = 0xffffffff;
+
+function finite(v: number | null | undefined): v is number {
+  return v !== null && v !== undefined && Number.isFinite(v);
+}
+
+function checkDayOfYear(d: number, where: string): void {
+  if (!(Number.isInteger(d) && d >= 1 && d <= 366)) throw new RangeError(`${where}: day of year must be an integer 1 … 366, got ${d}`);
+}
+
+/** Global ranks of the finite values (0 … count−1, ties by position); MISSING_RANK for NaN. */
+export function rankTemplateValues(values: Float64Array): Uint32Array {
+  const idx: number[] = [];
+  for (let i = 0; i < values.length; i++) if (Number.isFinite(values[i])) idx.push(i);
+  idx.sort((a, b) => values[a] - values[b] || a - b);
+  const rank = new Uint32Array(values.length).fill(MISSING_RANK);
+  for (let r = 0; r < idx.length; r++) rank[idx[r]] = r;
+  return rank;
+}
+
+/** Groups cases by lead and sorts each group by predictor (ties by original order). */
+function packCases(
+  nGroups: number,
+  group: Int32Array,
+  pred: Float64Array,
+  err: Float64Array,
+  doy: Uint16Array,
+): Pick<ErrorArchive, 'groupStart' | 'predictor' | 'error' | 'dayOfYear'> {
+  const n = group.length;
+  const order = Array.from({ length: n }, (_, i) => i);
+  order.sort((a, b) => group[a] - group[b] || pred[a] - pred[b] || a - b);
+  const groupStart = new Int32Array(nGroups + 1);
+  for (let i = 0; i < n; i++) groupStart[group[i] + 1]++;
+  for (let g = 0; g < nGroups; g++) groupStart[g + 1] += groupStart[g];
+  const predictor = new Float64Array(n);
+  const error = new Float64Array(n);
+  const dayOfYear = new Uint16Array(n);
+  for (let i = 0; i < n; i++) {
+    const k = order[i];
+    predictor[i] = pred[k];
+    error[i] = err[k];
+    dayOfYear[i] = doy[k];
+  }
+  return { groupStart, predictor, error, dayOfYear };
+}
+
+export interface SeriesArchiveInput {
+  /** Corrected (or raw) simulated flow per time step. */
+  corrected: ArrayLike<number | null>;
+  /** Observed flow per time step; null/NaN = missing (case skipped, breaks template windows). */
+  observed: ArrayLike<number | null>;
+  /** Day of year (1 … 366) of each time step. */
+  dayOfYear: ArrayLike<number>;
+  transform?: ErrorTransformSpec;
+  /** Length of each template window in steps: the longest horizon the archive can shuffle. */
+  templateLength: number;
+  /** Keep every n-th complete window as a template (default 1: every start). */
+  templateStride?: number;
+}
+
+/**
+ * Lead-free archive from a continuous series (e.g. a validation-period simulation after the
+ * residual model): every step with both values is a case; templates are windows of
+ * `templateLength` consecutive errors with no missing value.
+ */
+export function buildArchiveFromSeries(input: SeriesArchiveInput): ErrorArchive {
+  const { corrected, observed, dayOfYear } = input;
+  const S = corrected.length;
+  if (observed.length !== S || dayOfYear.length !== S) throw new RangeError('corrected, observed and dayOfYear must have the same length');
+  const L = input.templateLength;
+  if (!Number.isInteger(L) || L < 1) throw new RangeError('templateLength must be a positive integer');
+  const stride = input.templateStride ?? 1;
+  if (!Number.isInteger(stride) || stride < 1) throw new RangeError('templateStride must be a positive integer');
+  const transform = resolveTransform(input.transform ?? { kind: 'none' }, observed);
+
+  const series = new Float64Array(S).fill(NaN);
+  let n = 0;
+  for (let i = 0; i < S; i++) {
+    checkDayOfYear(dayOfYear[i], `dayOfYear[${i}]`);
+    const c = corrected[i];
+    const o = observed[i];
+    if (!finite(c) || !finite(o)) continue;
+    series[i] = forwardTransform(transform, o) - forwardTransform(transform, c);
+    n++;
+  }
+  const group = new Int32Array(n);
+  const pred = new Float64Array(n);
+  const err = new Float64Array(n);
+  const doy = new Uint16Array(n);
+  let k = 0;
+  for (let i = 0; i < S; i++) {
+    if (Number.isNaN(series[i])) continue;
+    pred[k] = corrected[i] as number;
+    err[k] = series[i];
+    doy[k] = dayOfYear[i];
+    k++;
+  }
+  // Window [s, s + L) is complete when it holds no missing value: track the last gap seen.
+  const starts: number[] = [];
+  let lastGap = -1;
+  let complete = 0;
+  for (let e = 0; e < S; e++) {
+    if (Number.isNaN(series[e])) lastGap = e;
+    const s = e - L + 1;
+    if (s >= 0 && lastGap < s) {
+      if (complete % stride === 0) starts.push(s);
+      complete++;
+    }
+  }
+  const templateStart = Int32Array.from(starts);
+  const templateDayOfYear = Uint16Array.from(starts, (s) => dayOfYear[s]);
+  return {
+    format: 1,
+    transform,
+    nLeads: 0,
+    ...packCases(1, group, pred, err, doy),
+    templateLength: L,
+    templateValues: series,
+    templateStart,
+    templateDayOfYear,
+    templateRank: rankTemplateValues(series),
+  };
+}
+
+export interface ReforecastArchiveInput {
+  nIssues: number;
+  nLeads: number;
+  /** Corrected flow, row-major nIssues × nLeads ([issue·nLeads + lead]). */
+  corrected: ArrayLike<number | null>;
+  /** Observed flow at each lead's valid time, same layout; null/NaN = missing. */
+  observed: ArrayLike<number | null>;
+  /** Day of year (1 … 366) of each lead's valid time, same layout. */
+  dayOfYear: ArrayLike<number>;
+  transform?: ErrorTransformSpec;
+}
+
+/**
+ * Archive from reforecasts: the case of (issue, lead) goes to the group of its lead; each issue
+ * whose errors are complete over all leads is a template (its historical error trajectory).
+ */
+export function buildArchiveFromReforecasts(input: ReforecastArchiveInput): ErrorArchive {
+  const { nIssues, nLeads, corrected, observed, dayOfYear } = input;
+  if (!Number.isInteger(nIssues) || nIssues < 1 || !Number.isInteger(nLeads) || nLeads < 1) {
+    throw new RangeError('nIssues and nLeads must be positive integers');
+  }
+  const size = nIssues * nLeads;
+  if (corrected.length !== size || observed.length !== size || dayOfYear.length !== size) {
+    throw new RangeError('corrected, observed and dayOfYear must each hold nIssues × nLeads values');
+  }
+  const transform = resolveTransform(input.transform ?? { kind: 'none' }, observed);
+  const matrix = new Float64Array(size).fill(NaN);
+  let n = 0;
+  for (let i = 0; i < size; i++) {
+    checkDayOfYear(dayOfYear[i], `dayOfYear[${i}]`);
+    const c = corrected[i];
+    const o = observed[i];
+    if (!finite(c) || !finite(o)) continue;
+    matrix[i] = forwardTransform(transform, o) - forwardTransform(transform, c);
+    n++;
+  }
+  const group = new Int32Array(n);
+  const pred = new Float64Array(n);
+  const err = new Float64Array(n);
+  const doy = new Uint16Array(n);
+  const starts: number[] = [];
+  let k = 0;
+  for (let is = 0; is < nIssues; is++) {
+    let completeRow = true;
+    for (let h = 0; h < nLeads; h++) {
+      const i = is * nLeads + h;
+      if (Number.isNaN(matrix[i])) {
+        completeRow = false;
+        continue;
+      }
+      group[k] = h;
+      pred[k] = corrected[i] as number;
+      err[k] = matrix[i];
+      doy[k] = dayOfYear[i];
+      k++;
+    }
+    if (completeRow) starts.push(is * nLeads);
+  }
+  return {
+    format: 1,
+    transform,
+    nLeads,
+    ...packCases(nLeads, group, pred, err, doy),
+    templateLength: nLeads,
+    templateValues: matrix,
+    templateStart: Int32Array.from(starts),
+    templateDayOfYear: Uint16Array.from(starts, (s) => dayOfYear[s]),
+    templateRank: rankTemplateValues(matrix),
+  };
+}
+
+/** Throws a RangeError naming the first inconsistency (used after decoding stored archives). */
+export function validateArchive(a: ErrorArchive): void {
+  if (a.format !== 1) throw new RangeError(`unsupported archive format ${String(a.format)}`);
+  checkTransform(a.transform);
+  const nGroups = Math.max(a.nLeads, 1);
+  if (!Number.isInteger(a.nLeads) || a.nLeads < 0) throw new RangeError('nLeads must be an integer ≥ 0');
+  if (a.groupStart.length !== nGroups + 1 || a.groupStart[0] !== 0 || a.groupStart[nGroups] !== a.predictor.length) {
+    throw new RangeError('groupStart does not match the cases');
+  }
+  if (a.error.length !== a.predictor.length || a.dayOfYear.length !== a.predictor.length) {
+    throw new RangeError('predictor, error and dayOfYear lengths differ');
+  }
+  for (let g = 0; g < nGroups; g++) {
+    if (a.groupStart[g + 1] < a.groupStart[g]) throw new RangeError('groupStart must not decrease');
+    for (let i = a.groupStart[g] + 1; i < a.groupStart[g + 1]; i++) {
+      if (!(a.predictor[i] >= a.predictor[i - 1])) throw new RangeError(`predictor not sorted in group ${g} at case ${i}`);
+    }
+  }
+  for (let i = 0; i < a.predictor.length; i++) {
+    if (!Number.isFinite(a.error[i]) || !Number.isFinite(a.predictor[i])) throw new RangeError(`case ${i} is not finite`);
+    checkDayOfYear(a.dayOfYear[i], `case ${i}`);
+  }
+  if (a.templateStart.length !== a.templateDayOfYear.length) throw new RangeError('templateStart and templateDayOfYear lengths differ');
+  if (a.templateRank.length !== a.templateValues.length) throw new RangeError('templateRank does not match templateValues');
+  for (let t = 0; t < a.templateStart.length; t++) {
+    const s = a.templateStart[t];
+    if (!(s >= 0 && s + a.templateLength <= a.templateValues.length)) throw new RangeError(`template ${t} runs past the series`);
+    for (let h = 0; h < a.templateLength; h++) {
+      if (!Number.isFinite(a.templateValues[s + h])) throw new RangeError(`template ${t} has a missing value at lead ${h}`);
+    }
+  }
+}
+
+/** The archive's buffers, for postMessage(archive, archiveBuffers(archive)) (detaches them here). */
+export function archiveBuffers(a: ErrorArchive): ArrayBuffer[] {
+  return [
+    a.groupStart,
+    a.predictor,
+    a.error,
+    a.dayOfYear,
+    a.templateValues,
+    a.templateStart,
+    a.templateDayOfYear,
+    a.templateRank,
+  ].map((x) => x.buffer as ArrayBuffer);
+}

@@ -1,0 +1,478 @@
+import type { ErrorArchive } from './error-archive.ts';
+import { countAboveSorted } from './exceedance.ts';
+import { circularDayDistance, defaultK, harmonicCumulative } from './knn.ts';
+import { createPrng, type Prng } from './prng.ts';
+import { quantileSorted } from './quantile.ts';
+import { radixOrder, sortNonNegative } from './radix-sort.ts';
+import { forwardTransform } from './error-transform.ts';
+
+/**
+ * Stochastic error stage: turns corrected members into N coherent trajectories carrying the
+ * total predictive uncertainty (kNN error resampling, Lall & Sharma 1996; Schaake shuffle,
+ * Clark et al. 2004). The same function serves raw members with an archive of raw errors.
+ *
+ * Per call:
+ *  1. For every (model, member, lead), the k archived cases nearest in predictor value (same
+ *     lead group; optionally within ±seasonalWindowDays of the lead's valid day of year,
+ *     circular) are looked up once; k = round(√n) of the candidates unless given.
+ *  2. Each draw j picks one (model, member) uniformly; at each lead it picks one of that
+ *     member's k neighbours with the 1/j kernel and adds its error in the archive's transform
+ *     space: value = max(0, T⁻¹(T(member) + error)).
+ *  3. Per lead the N values are sorted (quantiles and exceedance come from these marginals),
+ *     then reordered across draws so their ranks follow N historical error trajectories
+ *     (Schaake shuffle). Templates: those whose first day of year is within the seasonal window
+ *     of lead 0's day of year (all templates if the window is unset or holds none); N distinct
+ *     ones are drawn at random when there are at least N, otherwise all are used in a random
+ *     order and reused cyclically (draw j follows template j mod E; ties between copies are
+ *     broken by draw index). Template choice uses its own random stream, so switching the
+ *     shuffle off leaves the marginals unchanged.
+ *  Any-time exceedance comes from the maxima of the shuffled trajectories. Note the shuffle
+ *  imposes the templates' rank dependence on the final values; each lead's values are unchanged.
+ *
+ * Everything is determined by the seed. Large buffers live in a reusable workspace; nothing is
+ * allocated per sample.
+ */
+
+export const DEFAULT_QUANTILE_PROBS: readonly number[] = [0.05, 0.1, 0.25, 0.5, 0.75, 0.9, 0.95];
+
+export interface StochasticInput {
+  /** Corrected members, layout [(model·nMembers + member)·nLeads + lead], m³/s. */
+  members: ArrayLike<number>;
+  /** Residual models bundled (default 1). */
+  nModels?: number;
+  nMembers: number;
+  nLeads: number;
+  /** Valid-time day of year (1 … 366) per lead, or one value for all leads. Needed for seasonal windows. */
+  dayOfYear?: ArrayLike<number> | number;
+}
+
+export interface StochasticOptions {
+  seed: number;
+  /** Trajectories to draw (default 1000). */
+  nDraws?: number;
+  /** Fixed neighbour count; default round(√n) of the candidate cases at each lead. */
+  k?: number;
+  /** Use only archived cases (and templates) within ± this many days of year; unset = all. */
+  seasonalWindowDays?: number | null;
+  /** Quantile probabilities (default 0.05, 0.1, 0.25, 0.5, 0.75, 0.9, 0.95). */
+  probs?: ArrayLike<number>;
+  /** Flow thresholds for exceedance (event: value > threshold). */
+  thresholds?: ArrayLike<number>;
+  /** Apply the Schaake shuffle (default true). false = errors independent across leads. */
+  shuffle?: boolean;
+  /** Return the N × nLeads trajectories (default false). */
+  keepTrajectories?: boolean;
+}
+
+export interface StochasticResult {
+  nLeads: number;
+  nDraws: number;
+  probs: Float64Array;
+  /** [lead·probs.length + q]. */
+  quantiles: Float64Array;
+  thresholds: Float64Array;
+  /** P(value > threshold) per lead: [threshold·nLeads + lead]. */
+  exceedance: Float64Array;
+  /** P(threshold exceeded at any lead of the horizon), from the shuffled trajectories. */
+  exceedanceAnyTime: Float64Array;
+  /** Per threshold, the first lead index with exceedance > 0.5, or null. */
+  firstLikelyLead: (number | null)[];
+  /** Neighbour count used at each lead. */
+  kPerLead: Int32Array;
+  /** Trajectories [draw·nLeads + lead] when keepTrajectories, else null. */
+  trajectories: Float64Array | null;
+  /** Archive template index each trajectory followed (null without shuffle). */
+  templateIndex: Int32Array | null;
+}
+
+/** Reusable buffers for runStochasticStage; one per thread, not shared between concurrent calls. */
+export class StochasticWorkspace {
+  private f64s = new Map<string, Float64Array>();
+  private i32s = new Map<string, Int32Array>();
+  private u32s = new Map<string, Uint32Array>();
+
+  f64(name: string, size: number): Float64Array {
+    let a = this.f64s.get(name);
+    if (!a || a.length < size) {
+      a = new Float64Array(Math.max(size, Math.ceil((a?.length ?? 0) * 1.5)));
+      this.f64s.set(name, a);
+    }
+    return a;
+  }
+
+  u32(name: string, size: number): Uint32Array {
+    let a = this.u32s.get(name);
+    if (!a || a.length < size) {
+      a = new Uint32Array(Math.max(size, Math.ceil((a?.length ?? 0) * 1.5)));
+      this.u32s.set(name, a);
+    }
+    return a;
+  }
+
+  i32(name: string, size: number): Int32Array {
+    let a = this.i32s.get(name);
+    if (!a || a.length < size) {
+      a = new Int32Array(Math.max(size, Math.ceil((a?.length ?? 0) * 1.5)));
+      this.i32s.set(name, a);
+    }
+    return a;
+  }
+}
+
+export function createStochasticWorkspace(): StochasticWorkspace {
+  return new StochasticWorkspace();
+}
+
+function positiveInt(v: number, name: string): number {
+  if (!Number.isInteger(v) || v < 1) throw new RangeError(`${name} must be a positive integer, got ${v}`);
+  return v;
+}
+
+export function runStochasticStage(
+  archive: ErrorArchive,
+  input: StochasticInput,
+  options: StochasticOptions,
+  workspace: StochasticWorkspace = new StochasticWorkspace(),
+): StochasticResult {
+  // ---- validation ---------------------------------------------------------------------------
+  const nModels = positiveInt(input.nModels ?? 1, 'nModels');
+  const nMembers = positiveInt(input.nMembers, 'nMembers');
+  const H = positiveInt(input.nLeads, 'nLeads');
+  const N = positiveInt(options.nDraws ?? 1000, 'nDraws');
+  const nMM = nModels * nMembers;
+  const members = input.members;
+  if (members.length !== nMM * H) throw new RangeError(`members must hold nModels × nMembers × nLeads = ${nMM * H} values, got ${members.length}`);
+  for (let i = 0; i < members.length; i++) {
+    if (!Number.isFinite(members[i])) throw new RangeError(`members[${i}] is not a finite number`);
+  }
+  const leadFree = archive.nLeads === 0;
+  if (!leadFree && H > archive.nLeads) {
+    throw new RangeError(`forecast has ${H} lead times but the archive covers ${archive.nLeads}`);
+  }
+  const window = options.seasonalWindowDays ?? null;
+  if (window !== null && !(window >= 0)) throw new RangeError('seasonalWindowDays must be ≥ 0');
+  const doy = workspace.f64('doy', H);
+  const hasDoy = input.dayOfYear !== undefined;
+  for (let h = 0; h < H; h++) {
+    const d = typeof input.dayOfYear === 'number' ? input.dayOfYear : input.dayOfYear ? input.dayOfYear[h] : 0;
+    if (hasDoy && !(Number.isInteger(d) && d >= 1 && d <= 366)) throw new RangeError(`dayOfYear for lead ${h} must be an integer 1 … 366`);
+    doy[h] = d;
+  }
+  if (typeof input.dayOfYear === 'object' && input.dayOfYear.length !== H) throw new RangeError('dayOfYear must have one value per lead');
+  if (window !== null && !hasDoy) throw new RangeError('a seasonal window needs dayOfYear');
+  const shuffle = options.shuffle ?? true;
+  const nTemplates = archive.templateStart.length;
+  if (shuffle && (nTemplates === 0 || archive.templateLength < H)) {
+    throw new RangeError(
+      `Schaake shuffle needs templates of at least ${H} lead times; the archive has ${nTemplates} of length ${archive.templateLength} (use shuffle: false to skip)`,
+    );
+  }
+  const probs = Float64Array.from(options.probs ?? DEFAULT_QUANTILE_PROBS);
+  for (const p of probs) if (!(p >= 0 && p <= 1)) throw new RangeError(`quantile probability out of [0, 1]: ${p}`);
+  const thresholds = Float64Array.from(options.thresholds ?? []);
+  for (const t of thresholds) if (!Number.isFinite(t)) throw new RangeError('thresholds must be finite');
+  if (options.k !== undefined) positiveInt(options.k, 'k');
+
+  const { predictor, error, dayOfYear: caseDoy, groupStart } = archive;
+  let maxGroup = 0;
+  const nGroups = leadFree ? 1 : archive.nLeads;
+  for (let g = 0; g < nGroups; g++) maxGroup = Math.max(maxGroup, groupStart[g + 1] - groupStart[g]);
+  const kStride = Math.max(1, options.k !== undefined ? Math.min(options.k, maxGroup) : defaultK(maxGroup));
+
+  // ---- transform of the members ------------------------------------------------------------
+  const t = archive.transform;
+  const kind = t.kind === 'none' ? 0 : t.kind === 'log' || t.lambda === 0 ? 1 : 2;
+  const offset = t.kind === 'none' ? 0 : t.offset;
+  const lambda = t.kind === 'boxcox' ? t.lambda : 1;
+  const tx = workspace.f64('tx', H * nMM); // [lead·nMM + mm]
+  for (let mm = 0; mm < nMM; mm++) {
+    for (let h = 0; h < H; h++) tx[h * nMM + mm] = forwardTransform(t, members[mm * H + h]);
+  }
+
+  // ---- neighbours: once per (lead, model·member) ---------------------------------------------
+  // Candidates of the current (group, day) are copied between sentinels (−∞ first, +∞ last) so
+  // the nearest-first walk needs no bounds checks.
+  const nbErr = workspace.f64('nbErr', H * nMM * kStride); // [(lead·nMM + mm)·kStride + rank]
+  const kPerLead = new Int32Array(H);
+  const cP = workspace.f64('candPred', maxGroup + 2);
+  const cE = workspace.f64('candErr', maxGroup + 2);
+  let lastGroup = -1;
+  let lastDoy = -1;
+  let nCand = 0;
+  for (let h = 0; h < H; h++) {
+    const g = leadFree ? 0 : h;
+    const gs = groupStart[g];
+    const ge = groupStart[g + 1];
+    if (ge === gs) throw new RangeError(`the archive has no cases for lead ${h}`);
+    if (g !== lastGroup || (window !== null && doy[h] !== lastDoy)) {
+      nCand = 0;
+      if (window !== null) {
+        for (let i = gs; i < ge; i++) {
+          if (circularDayDistance(caseDoy[i], doy[h]) <= window) {
+            nCand++;
+            cP[nCand] = predictor[i];
+            cE[nCand] = error[i];
+          }
+        }
+      }
+      // No window, or an empty one: the whole lead group.
+      if (nCand === 0) {
+        for (let i = gs; i < ge; i++) {
+          nCand++;
+          cP[nCand] = predictor[i];
+          cE[nCand] = error[i];
+        }
+      }
+      cP[0] = -Infinity;
+      cP[nCand + 1] = Infinity;
+      lastGroup = g;
+      lastDoy = doy[h];
+    }
+    const k = Math.min(options.k ?? defaultK(nCand), nCand, kStride);
+    kPerLead[h] = k;
+    nearestPerMember(members, H, h, nMM, cP, cE, nCand, k, nbErr, h * nMM * kStride, kStride);
+  }
+  const cum: Float64Array = harmonicCumulative(kStride, workspace.f64('cum', kStride));
+  // Guide table (Chen & Asau 1974) for the kernel draw: guide[b] = first index whose cumulative
+  // weight exceeds b/G of the total, G = 16k, so a draw rarely needs more than one comparison.
+  const guide = workspace.i32('guide', 16 * kStride);
+  let guideK = -1;
+
+  // ---- random streams, member per draw, templates ------------------------------------------------
+  const rng = createPrng(options.seed, 0);
+  const slot = workspace.i32('slot', N);
+  for (let j = 0; j < N; j++) slot[j] = Math.floor(rng.nextUniform32() * nMM);
+
+  const tBase = workspace.i32('tBase', N);
+  let templateIndex: Int32Array | null = null;
+  if (shuffle) {
+    const rngT = createPrng(options.seed, 1);
+    const elig = workspace.i32('elig', nTemplates);
+    let E = 0;
+    if (window !== null) {
+      for (let i = 0; i < nTemplates; i++) {
+        if (circularDayDistance(archive.templateDayOfYear[i], doy[0]) <= window) elig[E++] = i;
+      }
+    }
+    if (E === 0) {
+      for (let i = 0; i < nTemplates; i++) elig[i] = i;
+      E = nTemplates;
+    }
+    const M = Math.min(N, E);
+    for (let i = 0; i < M; i++) {
+      // Partial Fisher–Yates: the first M entries become a uniform random selection.
+      const r = i + rngT.nextInt(E - i);
+      const tmp = elig[i];
+      elig[i] = elig[r];
+      elig[r] = tmp;
+    }
+    templateIndex = new Int32Array(N);
+    for (let j = 0; j < N; j++) {
+      templateIndex[j] = elig[j % M];
+      tBase[j] = archive.templateStart[templateIndex[j]];
+    }
+  }
+
+  // ---- draws, marginals, shuffle --------------------------------------------------------------------
+  const nP = probs.length;
+  const nT = thresholds.length;
+  const quantiles = new Float64Array(H * nP);
+  const exceedance = new Float64Array(nT * H);
+  const trajectories = options.keepTrajectories ? new Float64Array(N * H) : null;
+  const trajMax = workspace.f64('trajMax', N).fill(-Infinity, 0, N);
+  const vals = workspace.f64('vals', N);
+  const valsTmp = workspace.f64('valsTmp', N);
+  const valsWords = new Uint32Array(vals.buffer, vals.byteOffset, 2 * vals.length);
+  const tmpWords = new Uint32Array(valsTmp.buffer, valsTmp.byteOffset, 2 * valsTmp.length);
+  const counts = workspace.i32('counts', 1024);
+  const keys = workspace.u32('keys', N);
+  const keysTmp = workspace.u32('keysTmp', N);
+  const order = workspace.i32('order', N);
+  const orderTmp = workspace.i32('orderTmp', N);
+  const rank = archive.templateRank;
+  const rankBits = 32 - Math.clz32(Math.max(1, archive.templateValues.length));
+  for (let h = 0; h < H; h++) {
+    const k = kPerLead[h];
+    const cTop = cum[k - 1];
+    const G = 16 * k;
+    if (k !== guideK) {
+      let j = 0;
+      for (let bIdx = 0; bIdx < G; bIdx++) {
+        while (cum[j] <= (bIdx / G) * cTop) j++;
+        guide[bIdx] = j;
+      }
+      guideK = k;
+    }
+    const txBase = h * nMM;
+    const nbBase = h * nMM * kStride;
+    if (kind === 0) sampleLeadAdditive(rng, N, slot, G, cTop, cum, guide, tx, txBase, nbErr, nbBase, kStride, vals);
+    else sampleLeadTransformed(rng, N, slot, G, cTop, cum, guide, tx, txBase, nbErr, nbBase, kStride, vals, kind, offset, lambda);
+    if (!shuffle) {
+      for (let j = 0; j < N; j++) {
+        const v = vals[j];
+        if (v > trajMax[j]) trajMax[j] = v;
+        if (trajectories) trajectories[j * H + h] = v;
+      }
+    }
+    sortNonNegative(vals, N, valsTmp, valsWords, tmpWords, counts);
+    const sorted = vals;
+    for (let q = 0; q < nP; q++) quantiles[h * nP + q] = quantileSorted(sorted, probs[q], 0, N);
+    for (let ti = 0; ti < nT; ti++) exceedance[ti * H + h] = countAboveSorted(sorted, thresholds[ti], 0, N) / N;
+    if (shuffle) {
+      // Rank order of this lead's template values (global ranks; stable, so ties by draw index).
+      for (let j = 0; j < N; j++) keys[j] = rank[tBase[j] + h];
+      radixOrder(keys, N, rankBits, order, keysTmp, orderTmp, counts);
+      assignByRank(N, order, vals, trajMax, trajectories, H, h);
+    }
+  }
+
+  const exceedanceAnyTime = new Float64Array(nT);
+  const firstLikelyLead: (number | null)[] = [];
+  for (let ti = 0; ti < nT; ti++) {
+    let c = 0;
+    for (let j = 0; j < N; j++) if (trajMax[j] > thresholds[ti]) c++;
+    exceedanceAnyTime[ti] = c / N;
+    let first: number | null = null;
+    for (let h = 0; h < H; h++) {
+      if (exceedance[ti * H + h] > 0.5) {
+        first = h;
+        break;
+      }
+    }
+    firstLikelyLead.push(first);
+  }
+
+  return {
+    nLeads: H,
+    nDraws: N,
+    probs,
+    quantiles,
+    thresholds,
+    exceedance,
+    exceedanceAnyTime,
+    firstLikelyLead,
+    kPerLead,
+    trajectories,
+    templateIndex,
+  };
+}
+
+/** Nearest-first neighbour errors of every member at lead h (candidates between sentinels). */
+function nearestPerMember(
+  members: ArrayLike<number>,
+  H: number,
+  h: number,
+  nMM: number,
+  cP: Float64Array,
+  cE: Float64Array,
+  nCand: number,
+  k: number,
+  out: Float64Array,
+  outBase: number,
+  kStride: number,
+): void {
+  for (let mm = 0; mm < nMM; mm++) {
+    const x = members[mm * H + h];
+    let a = 1;
+    let b = nCand + 1;
+    while (a < b) {
+      const mid = (a + b) >>> 1;
+      if (cP[mid] < x) a = mid + 1;
+      else b = mid;
+    }
+    // Walk outwards from the insertion point; equal distances take the lower predictor.
+    // Written without branches: the left/right choice is unpredictable and mispredicts cost more.
+    let l = a - 1;
+    let r = a;
+    const off = outBase + mm * kStride;
+    for (let j = 0; j < k; j++) {
+      const t = +(x - cP[l] <= cP[r] - x);
+      out[off + j] = cE[r + t * (l - r)];
+      l -= t;
+      r += 1 - t;
+    }
+  }
+}
+
+/** One lead's draws with additive errors: vals[j] = max(0, member + kernel-chosen error). */
+function sampleLeadAdditive(
+  rng: Prng,
+  N: number,
+  slot: Int32Array,
+  G: number,
+  cTop: number,
+  cum: Float64Array,
+  guide: Int32Array,
+  tx: Float64Array,
+  txBase: number,
+  nbErr: Float64Array,
+  nbBase: number,
+  kStride: number,
+  vals: Float64Array,
+): void {
+  for (let j = 0; j < N; j++) {
+    const mm = slot[j];
+    // Kernel draw (Lall & Sharma): first index whose cumulative 1/j sum exceeds u·H_k.
+    const u = rng.nextUniform32();
+    const target = u * cTop;
+    let idx = guide[Math.floor(u * G)];
+    while (cum[idx] <= target) idx++;
+    const v = tx[txBase + mm] + nbErr[nbBase + mm * kStride + idx];
+    vals[j] = v > 0 ? v : 0;
+  }
+}
+
+/** As sampleLeadAdditive, in log (kind 1) or Box–Cox (kind 2) space, back-transformed and clipped at 0. */
+function sampleLeadTransformed(
+  rng: Prng,
+  N: number,
+  slot: Int32Array,
+  G: number,
+  cTop: number,
+  cum: Float64Array,
+  guide: Int32Array,
+  tx: Float64Array,
+  txBase: number,
+  nbErr: Float64Array,
+  nbBase: number,
+  kStride: number,
+  vals: Float64Array,
+  kind: number,
+  offset: number,
+  lambda: number,
+): void {
+  const invLambda = 1 / lambda;
+  for (let j = 0; j < N; j++) {
+    const mm = slot[j];
+    const u = rng.nextUniform32();
+    const target = u * cTop;
+    let idx = guide[Math.floor(u * G)];
+    while (cum[idx] <= target) idx++;
+    const z = tx[txBase + mm] + nbErr[nbBase + mm * kStride + idx];
+    let v: number;
+    if (kind === 1) v = Math.exp(z) - offset;
+    else {
+      const b = lambda * z + 1;
+      v = b > 0 ? Math.pow(b, invLambda) - offset : 0;
+    }
+    vals[j] = v > 0 ? v : 0;
+  }
+}
+
+/** Schaake assignment: the draw whose template ranks p-th receives the p-th smallest value. */
+function assignByRank(
+  N: number,
+  order: Int32Array,
+  sorted: Float64Array,
+  trajMax: Float64Array,
+  trajectories: Float64Array | null,
+  H: number,
+  h: number,
+): void {
+  for (let p = 0; p < N; p++) {
+    const j = order[p];
+    const v = sorted[p];
+    if (v > trajMax[j]) trajMax[j] = v;
+    if (trajectories !== null) trajectories[j * H + h] = v;
+  }
+}
