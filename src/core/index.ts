@@ -19,3 +19,4 @@ export * from './knn.ts';
 export * from './schaake.ts';
 export * from './stochastic-stage.ts';
 export * from './radix-sort.ts';
+export * from './verification/index.ts';

@@ -1,0 +1,147 @@
+import { crpsSorted } from '../crps.ts';
+import { createPrng } from '../prng.ts';
+import { binomialLowerTail } from './binomial.ts';
+import { sourceValues, type SourceName, type VerificationCase } from './case.ts';
+import { pitFromSorted } from './randomised-pit.ts';
+import type { ComparisonReport } from './compare-forecasts.ts';
+
+/** Validation-period level a gauge is held to. */
+export interface DriftReference {
+  /** Share of observations inside the 90 % central interval (PIT coverage) in validation. */
+  coverage90: number;
+  /** Mean CRPS in validation (m³/s). */
+  crps: number;
+}
+
+export interface DriftOptions {
+  /** Forecast watched (default 'stochastic', what the gauge publishes). */
+  source?: SourceName;
+  /** Keep only the last n usable cases (in the order given). */
+  lastCases?: number;
+  /** Keep only cases whose validTime (RFC 3339) is at or after this time. */
+  since?: string;
+  leadRange?: { min?: number; max?: number } | null;
+  /** Fewest cases for a status (default 30, common practice). */
+  minCases?: number;
+  /** One-sided binomial test level for low coverage (default 0.01). */
+  pValue?: number;
+  /** Coverage shortfall below the expected level that counts (default 0.05, common practice). */
+  coverageMargin?: number;
+  /** CRPS above this multiple of the validation CRPS counts (default 1.5, common practice). */
+  crpsFactor?: number;
+  /** Seed of the PIT randomisation (default 1). */
+  seed?: number;
+}
+
+export interface DriftStatus {
+  status: 'ok' | 'drifting' | 'insufficient-data';
+  reasons: string[];
+  evidence: {
+    source: SourceName;
+    cases: number;
+    coverage90: number | null;
+    /** min(0.9, validation coverage): a gauge already below nominal is held to its own level. */
+    expectedCoverage90: number;
+    /** P(covered ≤ observed count) under the expected coverage (one-sided binomial). */
+    coveragePValue: number | null;
+    crps: number | null;
+    referenceCrps: number;
+    crpsRatio: number | null;
+    firstValidTime: string | null;
+    lastValidTime: string | null;
+  };
+}
+
+/** Reference levels from a validation-period comparison. */
+export function driftReferenceFrom(report: ComparisonReport, source: SourceName = 'stochastic'): DriftReference {
+  const r = report[source];
+  if (!r || r.spread.coverage90 === null || r.crps.crps === null) throw new RangeError(`the report has no scores for ${source}`);
+  return { coverage90: r.spread.coverage90, crps: r.crps.crps };
+}
+
+/**
+ * Drift watch over a rolling window of recently verified forecasts.
+ * Coverage: k of n observations have PIT in [0.05, 0.95]; drifting when the one-sided
+ * binomial P(X ≤ k | n, p0) < pValue AND k/n < p0 − coverageMargin, with p0 =
+ * min(0.9, validation coverage) — statistically and practically below. Cases of one issue are
+ * not independent, so the p-value is optimistic; the margin guards against that.
+ * CRPS: drifting when mean CRPS > crpsFactor × validation CRPS. CRPS grows with flow, so a
+ * window in a wet season can exceed a whole-year reference without drift; pick the factor,
+ * or a seasonal reference, with that in mind.
+ */
+export function watchDrift(cases: Iterable<VerificationCase>, reference: DriftReference, options: DriftOptions = {}): DriftStatus {
+  const source = options.source ?? 'stochastic';
+  const minCases = options.minCases ?? 30;
+  const alpha = options.pValue ?? 0.01;
+  const margin = options.coverageMargin ?? 0.05;
+  const factor = options.crpsFactor ?? 1.5;
+  if (!(reference.coverage90 >= 0 && reference.coverage90 <= 1) || !(reference.crps > 0)) {
+    throw new RangeError('reference needs coverage90 in [0, 1] and crps > 0');
+  }
+  const since = options.since !== undefined ? Date.parse(options.since) : null;
+  if (since !== null && Number.isNaN(since)) throw new RangeError(`since is not an RFC 3339 time: ${options.since}`);
+  const minLead = options.leadRange?.min ?? -Infinity;
+  const maxLead = options.leadRange?.max ?? Infinity;
+
+  const kept: VerificationCase[] = [];
+  for (const c of cases) {
+    if (c.observation === null || !Number.isFinite(c.observation) || !(c.lead >= minLead && c.lead <= maxLead)) continue;
+    if (since !== null && !(c.validTime !== undefined && Date.parse(c.validTime) >= since)) continue;
+    if (!sourceValues(c, source)) continue;
+    kept.push(c);
+  }
+  const window = options.lastCases !== undefined ? kept.slice(Math.max(0, kept.length - options.lastCases)) : kept;
+
+  const rng = createPrng(options.seed ?? 1);
+  let row = new Float64Array(64);
+  let n = 0;
+  let covered = 0;
+  let crpsSum = 0;
+  for (const c of window) {
+    const v = sourceValues(c, source)!;
+    if (row.length < v.length) row = new Float64Array(v.length);
+    let m = 0;
+    for (let i = 0; i < v.length; i++) {
+      const x = v[i];
+      if (x !== null && Number.isFinite(x)) row[m++] = x;
+    }
+    if (m === 0) continue;
+    const sorted = row.subarray(0, m).sort();
+    const y = c.observation as number;
+    const pit = pitFromSorted(sorted, m, y, rng.nextFloat());
+    n++;
+    if (pit >= 0.05 && pit <= 0.95) covered++;
+    crpsSum += crpsSorted(sorted, y);
+  }
+  const p0 = Math.min(0.9, reference.coverage90);
+  const evidence: DriftStatus['evidence'] = {
+    source,
+    cases: n,
+    coverage90: n ? covered / n : null,
+    expectedCoverage90: p0,
+    coveragePValue: n ? binomialLowerTail(covered, n, p0) : null,
+    crps: n ? crpsSum / n : null,
+    referenceCrps: reference.crps,
+    crpsRatio: n ? crpsSum / n / reference.crps : null,
+    firstValidTime: window[0]?.validTime ?? null,
+    lastValidTime: window[window.length - 1]?.validTime ?? null,
+  };
+  const reasons: string[] = [];
+  if (n < minCases) {
+    reasons.push(`Only ${n} verified cases in the window; at least ${minCases} are needed.`);
+    return { status: 'insufficient-data', reasons, evidence };
+  }
+  const cov = evidence.coverage90!;
+  const pv = evidence.coveragePValue!;
+  const ratio = evidence.crpsRatio!;
+  const lowCoverage = pv < alpha && cov < p0 - margin;
+  const highCrps = ratio > factor;
+  if (lowCoverage) {
+    reasons.push(`90 % coverage ${(100 * cov).toFixed(1)} % is well below the expected ${(100 * p0).toFixed(1)} % (binomial p = ${pv.toExponential(2)} < ${alpha}, shortfall over ${margin}).`);
+  }
+  if (highCrps) reasons.push(`CRPS ${evidence.crps!.toPrecision(4)} is ${ratio.toFixed(2)} × the validation level (limit ${factor} ×).`);
+  if (!lowCoverage && !highCrps) {
+    reasons.push(`90 % coverage ${(100 * cov).toFixed(1)} % (expected ${(100 * p0).toFixed(1)} %) and CRPS ${ratio.toFixed(2)} × the validation level are within limits.`);
+  }
+  return { status: lowCoverage || highCrps ? 'drifting' : 'ok', reasons, evidence };
+}

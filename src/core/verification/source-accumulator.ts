@@ -1,0 +1,87 @@
+import { crpsSorted } from '../crps.ts';
+import { countAboveSorted } from '../exceedance.ts';
+import type { Prng } from '../prng.ts';
+import { quantileSorted } from '../quantile.ts';
+import { GrowableF64 } from './growable.ts';
+import { HersbachAccumulator } from './hersbach-accumulator.ts';
+import { pitFromSorted } from './randomised-pit.ts';
+
+/**
+ * Per-forecast (raw, corrected or stochastic) running state of a comparison. Each case is
+ * loaded (finite values copied into a reusable row), then committed with its observation:
+ * the row is sorted once and every score is taken from the sorted row. Per case only a few
+ * numbers are kept (CRPS, fair CRPS, PIT, median, mean, exceedance probabilities); interval
+ * sums and the Hersbach bins are summed on the fly.
+ */
+export class SourceAccumulator {
+  private row = new Float64Array(64);
+  private m = 0;
+  readonly crps = new GrowableF64();
+  readonly fairCrps = new GrowableF64();
+  readonly pit = new GrowableF64();
+  readonly median = new GrowableF64();
+  readonly mean = new GrowableF64();
+  /** Per threshold: fraction of values above it, one per case. */
+  readonly probAbove: GrowableF64[];
+  readonly coveredCount: Float64Array;
+  readonly widthSum: Float64Array;
+  hersbach: HersbachAccumulator | null = null;
+  /** Cases left out of the Hersbach sums because their member count differed from the first. */
+  hersbachSkipped = 0;
+  minMembers = Infinity;
+  maxMembers = 0;
+
+  constructor(
+    readonly levels: readonly number[],
+    readonly thresholds: readonly number[],
+    private readonly rng: Prng,
+  ) {
+    this.probAbove = thresholds.map(() => new GrowableF64());
+    this.coveredCount = new Float64Array(levels.length);
+    this.widthSum = new Float64Array(levels.length);
+  }
+
+  /** Copies the finite values of one case; returns how many there are. */
+  load(values: ArrayLike<number | null>): number {
+    if (this.row.length < values.length) this.row = new Float64Array(values.length);
+    const row = this.row;
+    let m = 0;
+    for (let i = 0; i < values.length; i++) {
+      const v = values[i];
+      if (v !== null && Number.isFinite(v)) row[m++] = v;
+    }
+    this.m = m;
+    return m;
+  }
+
+  /** Scores the loaded case against observation y; returns the sorted row (valid until the next load). */
+  commit(y: number): Float64Array {
+    const m = this.m;
+    const sorted = this.row.subarray(0, m).sort();
+    if (m < this.minMembers) this.minMembers = m;
+    if (m > this.maxMembers) this.maxMembers = m;
+    this.crps.push(crpsSorted(sorted, y));
+    this.fairCrps.push(m >= 2 ? crpsSorted(sorted, y, true) : NaN);
+    // One uniform per case, always drawn, so results do not depend on where ties occur.
+    this.pit.push(pitFromSorted(sorted, m, y, this.rng.nextFloat()));
+    this.median.push(quantileSorted(sorted, 0.5));
+    let s = 0;
+    for (let i = 0; i < m; i++) s += sorted[i];
+    this.mean.push(s / m);
+    for (let t = 0; t < this.thresholds.length; t++) this.probAbove[t].push(countAboveSorted(sorted, this.thresholds[t]) / m);
+    for (let l = 0; l < this.levels.length; l++) {
+      const lo = quantileSorted(sorted, (1 - this.levels[l]) / 2);
+      const hi = quantileSorted(sorted, (1 + this.levels[l]) / 2);
+      if (y >= lo && y <= hi) this.coveredCount[l]++;
+      this.widthSum[l] += hi - lo;
+    }
+    if (this.hersbach === null) this.hersbach = new HersbachAccumulator(m);
+    if (m === this.hersbach.nMembers) this.hersbach.add(sorted, y);
+    else this.hersbachSkipped++;
+    return sorted;
+  }
+
+  get n(): number {
+    return this.crps.length;
+  }
+}
