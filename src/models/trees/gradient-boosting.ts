@@ -127,6 +127,7 @@ export function trainGradientBoosting(
       leafScale: p.learningRate,
       treeFeatures,
       mtry: 0,
+      unitHessian: true,
       rng,
     });
     addLeafValuesByRange(work, rows, pred);

@@ -28,6 +28,8 @@ export interface GrowOptions {
   treeFeatures: Int32Array;
   /** > 0: draw this many of treeFeatures afresh for every split (forest); 0: use all of them. */
   mtry: number;
+  /** Every row's h is 1 (squared error without weights): histograms skip loading h. */
+  unitHessian: boolean;
   rng: Prng;
 }
 
@@ -57,6 +59,7 @@ export class TreeGrower {
   private readonly nBins: Int32Array;
   private readonly featBuf: Int32Array;
   private readonly goLeft = new Uint8Array(256);
+  private unitHessian = false;
 
   constructor(readonly data: BinnedFeatures) {
     const n = data.nRows;
@@ -83,6 +86,7 @@ export class TreeGrower {
     const rows = this.rows;
     const g = this.g;
     const h = this.h;
+    const unit = this.unitHessian;
     let j = 0;
     // Four features per pass over the rows: the row id and its (g, h) are loaded once for four
     // histogram updates; each feature's 4 KB of histogram stays in L1.
@@ -114,7 +118,7 @@ export class TreeGrower {
       for (let i = b; i < e; i++) {
         const r = rows[i];
         const gi = g[r];
-        const hi = h[r];
+        const hi = unit ? 1 : h[r];
         let k = 0;
         k = b0 + (codes[o0 + r] << 1);
         hist[k] += gi;
@@ -158,7 +162,7 @@ export class TreeGrower {
       for (let i = b; i < e; i++) {
         const r = rows[i];
         const gi = g[r];
-        const hi = h[r];
+        const hi = unit ? 1 : h[r];
         let k = b0 + (codes[o0 + r] << 1);
         hist[k] += gi;
         hist[k + 1] += hi;
@@ -181,7 +185,7 @@ export class TreeGrower {
         const r = rows[i];
         const k = base + (codes[o + r] << 1);
         hist[k] += g[r];
-        hist[k + 1] += h[r];
+        hist[k + 1] += unit ? 1 : h[r];
       }
     }
   }
@@ -232,6 +236,7 @@ export class TreeGrower {
     };
     const { lambda, minChildWeight: mcw, maxDepth, gamma } = opt;
     const forest = opt.mtry > 0;
+    this.unitHessian = opt.unitHessian;
     let G = 0;
     let H = 0;
     for (let i = 0; i < nUsed; i++) {
@@ -375,8 +380,10 @@ export class TreeGrower {
       let gl = 0;
       let hl = 0;
       for (let bin = 0, k = base; bin < nb - 1; bin++, k += 2) {
+        const hb = hist[k + 1];
+        if (hb === 0) continue; // empty bin: same partition as the previous candidate
         gl += hist[k];
-        hl += hist[k + 1];
+        hl += hb;
         // Missing values to the right.
         let hr = H - hl;
         if (hl >= mcw && hr >= mcw && hl > 0 && hr > 0) {

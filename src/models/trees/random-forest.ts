@@ -80,6 +80,7 @@ export function trainRandomForest(
       leafScale: 1 / p.nTrees,
       treeFeatures: allFeatures,
       mtry,
+      unitHessian: false,
       rng,
     });
     trees.push(toStoredTree(work, binned.cuts));
