@@ -2,6 +2,9 @@
 // (second-order boosting, xgboost-style: leaf = −G/(H+λ), split gain
 // GL²/(HL+λ) + GR²/(HR+λ) − G²/(H+λ)). The random forest uses the same code with g = −y·w,
 // h = w, λ = 0, where the gain is the drop in squared error and the leaf is the weighted mean.
+// A split is made when its gain is >= gamma and both children have summed h >= minChildWeight
+// (as xgboost's hist method decides it, so small cases can be checked against xgboost exactly).
+// Missing values: each split also tries sending the node's missing rows left, and keeps the better.
 //
 // Histograms: one (g, h) pair per bin per feature, Float64Array laid out as
 // [feature][256 bins][g, h] (bin 255 = missing). With all of the tree's features at every split

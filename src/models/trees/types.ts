@@ -47,7 +47,10 @@ export interface TreeModel {
     seed: number;
     params: Record<string, number>;
     roundsTrained: number;
-    /** Index of the best round on the validation rows (trees beyond it are dropped); -1 without validation. */
+    /**
+     * Round with the lowest validation RMSE (-1 without validation rows). With patience > 0 the
+     * model keeps trees 0 … bestIteration only; with patience 0 it keeps every round.
+     */
     bestIteration: number;
     stopReason: StopReason;
     /** Validation RMSE after each trained round (empty without validation rows). */
@@ -64,7 +67,7 @@ export interface GradientBoostingParams {
   maxDepth: number;
   /** L2 penalty on leaf values (xgboost's lambda). */
   lambda: number;
-  /** Minimum loss reduction to keep a split (xgboost's gamma; post-pruning, un-halved gain). */
+  /** Minimum gain for a split to be made (xgboost's gamma, compared like its hist method: un-halved gain). */
   gamma: number;
   /** Minimum summed hessian in each child (rows for squared error). */
   minChildWeight: number;
