@@ -67,6 +67,10 @@ function expectProb(text: string, p: number) {
   expect(Math.abs(Number(m![1]) - p * 100)).toBeLessThanOrEqual(0.5 + 1e-9);
 }
 
+async function tableTimes(p: Page): Promise<(string | null)[]> {
+  return p.$$eval('#forecast-table tbody tr td.when time', (ts) => ts.map((t) => t.getAttribute('datetime')));
+}
+
 async function tableRows(p: Page): Promise<string[][]> {
   return p.$$eval('#forecast-table tbody tr', (rows) => rows.map((r) => [...r.children].map((c) => c.textContent ?? '')));
 }
@@ -133,7 +137,7 @@ describe.skipIf(!hasChromium)('forecast page in chromium', () => {
 
     // the token left the address bar and never reached the server
     expect(page.url()).toBe(`${server.url}/view/${RIVER.id}`);
-    expect(await page.evaluate(() => sessionStorage.getItem('forecast-page.token'))).toBe(TOKEN);
+    expect(await page.evaluate("sessionStorage.getItem('forecast-page.token')")).toBe(TOKEN);
     expect(server.seen.some((u) => u.includes(TOKEN))).toBe(false);
     expect(await page.title()).toContain(RIVER.name);
 
@@ -155,8 +159,9 @@ describe.skipIf(!hasChromium)('forecast page in chromium', () => {
     expect(await svg.locator('.observed circle').count()).toBe(f.recent.observed.filter((v) => v !== null).length);
     const labels = await svg.locator('.threshold-label').allTextContents();
     for (const t of f.thresholds) expect(labels.some((l) => l.includes(t.label) && l.includes(String(t.value)))).toBe(true);
-    const axisText = await svg.locator('.axis.x text').allTextContents();
-    expect(axisText).toContain('1 Dec');
+    const axisText = (await svg.locator('.axis.x text').allTextContents()).filter((t) => t !== 'valid time (UTC)');
+    expect(axisText.length).toBeGreaterThanOrEqual(4);
+    for (const t of axisText) expect(t).toMatch(/^\d{1,2} (Nov|Dec)$/); // daily steps: day and month labels
     expect(await svg.locator('.axis.y text').allTextContents()).toContain('flow (m³/s)');
 
     // probability chart: one series per threshold
@@ -164,6 +169,7 @@ describe.skipIf(!hasChromium)('forecast page in chromium', () => {
 
     // the numbers table matches the JSON
     checkTable(await tableRows(page), f);
+    expect(await tableTimes(page)).toEqual(f.validTimes);
     for (const t of f.thresholds) {
       const item = page.locator(`.anytime li[data-threshold="${t.label}"]`);
       expectProb((await item.locator('.p').textContent()) ?? '', t.anyTime);
@@ -234,7 +240,7 @@ describe.skipIf(!hasChromium)('forecast page in chromium', () => {
     await other.locator('#token-form button').click();
     await other.locator('#forecast-table tbody tr').first().waitFor();
     expect(await other.locator('#token-form').isVisible()).toBe(false);
-    expect(await other.evaluate(() => sessionStorage.getItem('forecast-page.token'))).toBe(TOKEN);
+    expect(await other.evaluate("sessionStorage.getItem('forecast-page.token')")).toBe(TOKEN);
     await other.close();
   });
 
@@ -310,7 +316,7 @@ describe.skipIf(!hasChromium)('forecast page in chromium', () => {
     await page.setViewportSize({ width: 390, height: 844 });
     await page.goto(`${server.url}/view/${RIVER.id}`);
     await page.locator('#flow-svg path.median').waitFor();
-    const overflow = await page.evaluate(() => document.documentElement.scrollWidth - document.documentElement.clientWidth);
+    const overflow = await page.evaluate<number>('document.documentElement.scrollWidth - document.documentElement.clientWidth');
     expect(overflow).toBeLessThanOrEqual(0);
     await page.screenshot({ path: join(OUT, 'page-gauge-narrow.png'), fullPage: true });
     await page.goto(`${server.url}/`);

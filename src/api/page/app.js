@@ -103,6 +103,13 @@ function fmtTime(iso) {
   return `${d.getUTCDate()} ${MONTHS[d.getUTCMonth()]} ${d.getUTCFullYear()} ${pad2(d.getUTCHours())}:${pad2(d.getUTCMinutes())} UTC`;
 }
 
+/** Day, month and clock time without year and zone, for table rows under a "(UTC)" heading. */
+function fmtShort(iso) {
+  const d = new Date(iso);
+  if (Number.isNaN(d.getTime())) return iso ?? '–';
+  return `${d.getUTCDate()} ${MONTHS[d.getUTCMonth()]} ${pad2(d.getUTCHours())}:${pad2(d.getUTCMinutes())}`;
+}
+
 function fmtDay(ms) {
   const d = new Date(ms);
   return `${d.getUTCDate()} ${MONTHS[d.getUTCMonth()]}`;
@@ -312,6 +319,12 @@ function renderOverview(data) {
       `${gauges.length} gauge${gauges.length === 1 ? '' : 's'}`,
       attention ? ` · ${attention} with a threshold at the attention level` : ' · none at the attention level',
     ),
+    h(
+      'p',
+      { class: 'note explain' },
+      'Chance of exceeding each threshold in the latest run. Highest: the largest chance at a single lead time. ',
+      'Any time: the chance of exceeding it at least once within the forecast horizon.',
+    ),
     gauges.length ? h('div', { class: 'cards' }, gauges.map(gaugeCard)) : h('p', { class: 'note' }, 'No gauges yet.'),
   );
 }
@@ -340,45 +353,51 @@ function gaugeCard(g) {
         : h('span', { class: 'latest' }, 'no forecast stored yet'),
     ),
     thresholds.length
-      ? h(
-          'table',
-          { class: 'thr' },
-          h('caption', { class: 'visually-hidden' }, `Chance of exceeding each threshold at ${g.name ?? g.id}`),
-          h(
-            'thead',
-            {},
-            h(
-              'tr',
-              {},
-              h('th', { scope: 'col' }, 'Threshold'),
-              h('th', { scope: 'col', class: 'num' }, `Level (${UNIT})`),
-              h('th', { scope: 'col', class: 'num' }, 'Highest per lead time'),
-              h('th', { scope: 'col', class: 'num' }, 'Any time ahead'),
-            ),
-          ),
-          h(
-            'tbody',
-            {},
-            thresholds.map((t, i) =>
-              h(
-                'tr',
-                { class: t.attention ? 'attention' : null, 'data-threshold': t.label },
-                h(
-                  'th',
-                  { scope: 'row' },
-                  swatch(i),
-                  ' ',
-                  t.label,
-                  t.attention ? h('span', { class: 'flag' }, 'attention') : null,
-                ),
-                h('td', { class: 'num' }, fmtLevel(t.value)),
-                h('td', { class: 'num max' }, probBar(t.maxExceedance), fmtProb(t.maxExceedance)),
-                h('td', { class: 'num any' }, fmtProb(t.anyTime)),
-              ),
-            ),
-          ),
-        )
+      ? thresholdTable(g, thresholds)
       : h('p', { class: 'note' }, 'No thresholds set.'),
+  );
+}
+
+function thresholdTable(g, thresholds) {
+  return h(
+    'div',
+    { class: 'thr-wrap' },
+    h(
+      'table',
+      { class: 'thr' },
+      h('caption', { class: 'visually-hidden' }, `Chance of exceeding each threshold at ${g.name ?? g.id}`),
+      h(
+        'thead',
+        {},
+        h(
+          'tr',
+          {},
+          h('th', { scope: 'col' }, 'Threshold'),
+          h('th', { scope: 'col', class: 'num' }, UNIT),
+          h('th', { scope: 'col', class: 'num' }, 'Highest'),
+          h('th', { scope: 'col', class: 'num' }, 'Any time'),
+        ),
+      ),
+      h(
+        'tbody',
+        {},
+        thresholds.map((t, i) =>
+          h(
+            'tr',
+            { class: t.attention ? 'attention' : null, 'data-threshold': t.label },
+            h(
+              'th',
+              { scope: 'row' },
+              h('span', { class: 'tl' }, swatch(i), ' ', t.label),
+              t.attention ? h('span', { class: 'flag' }, 'attention') : null,
+            ),
+            h('td', { class: 'num' }, fmtLevel(t.value)),
+            h('td', { class: 'num max' }, finite(t.maxExceedance) ? probBar(t.maxExceedance) : null, fmtProb(t.maxExceedance)),
+            h('td', { class: 'num any' }, fmtProb(t.anyTime)),
+          ),
+        ),
+      ),
+    ),
   );
 }
 
@@ -533,7 +552,7 @@ function forecastTable(f) {
           'tr',
           {},
           h('th', { scope: 'col' }, 'Lead time'),
-          h('th', { scope: 'col' }, 'Valid time'),
+          h('th', { scope: 'col' }, 'Valid time (UTC)'),
           h('th', { scope: 'col', class: 'num' }, 'Median'),
           h('th', { scope: 'col', class: 'num' }, '5–95 % range'),
           thresholds.map((t) => h('th', { scope: 'col', class: 'num' }, `> ${t.label} (${fmtLevel(t.value)})`)),
@@ -547,7 +566,7 @@ function forecastTable(f) {
             'tr',
             {},
             h('th', { scope: 'row' }, fmtLead(lead)),
-            h('td', {}, h('time', { datetime: f.validTimes[j] }, fmtTime(f.validTimes[j]))),
+            h('td', { class: 'when' }, h('time', { datetime: f.validTimes[j] }, fmtShort(f.validTimes[j]))),
             h('td', { class: 'num' }, iMed >= 0 ? fmtFlow(q[iMed][j]) : '–'),
             h('td', { class: 'num' }, iLo >= 0 && iHi >= 0 ? `${fmtFlow(q[iLo][j])} – ${fmtFlow(q[iHi][j])}` : '–'),
             thresholds.map((t) => {
@@ -572,7 +591,8 @@ function drawCharts() {
   if (!f || state.view.kind !== 'gauge') return;
   const flowBox = $('flow-chart');
   if (!flowBox) return;
-  const width = Math.max(320, Math.floor(flowBox.clientWidth || 800));
+  const width = Math.max(300, Math.floor(flowBox.clientWidth || 800));
+  fitRightMargin(f, width);
   const scaleX = timeScale(f, width);
   flowBox.replaceChildren(flowChart(f, width, scaleX));
   const legend = flowBox.parentElement.querySelector('figcaption');
@@ -581,7 +601,26 @@ function drawCharts() {
   if (probBox) probBox.replaceChildren(probChart(f, width, scaleX));
 }
 
+// Shared by both charts; the right margin holds the threshold labels and is sized to them.
 const MARGIN = { top: 16, right: 150, bottom: 34, left: 56 };
+
+// On narrow screens the labels move inside the plot (right-aligned, above their line) so the
+// plot keeps most of the width.
+const LABELS = { inside: false };
+
+function fitRightMargin(f, width) {
+  const longest = Math.max(0, ...(f.thresholds ?? []).map((t) => `↑ ${t.label} ${fmtLevel(t.value)}`.length));
+  const wanted = Math.min(180, Math.max(60, Math.round(longest * 7.2) + 16));
+  LABELS.inside = wanted > width * 0.22;
+  MARGIN.right = LABELS.inside ? 12 : wanted;
+}
+
+/** A threshold label at height y: in the right margin, or inside the plot's right edge. */
+function thresholdLabel(x, y, colour, text) {
+  return LABELS.inside
+    ? s('text', { class: 'threshold-label', x: x.range[1] - 4, y, fill: colour, 'text-anchor': 'end' }, text)
+    : s('text', { class: 'threshold-label', x: x.range[1] + 10, y, fill: colour }, text);
+}
 
 function ms(iso) {
   return new Date(iso).getTime();
@@ -627,7 +666,9 @@ function timeTicks(t0, t1, widthPx) {
   const steps = [HOUR, 3 * HOUR, 6 * HOUR, 12 * HOUR, DAY, 2 * DAY, 7 * DAY, 14 * DAY, 28 * DAY];
   const step = steps.find((st) => (t1 - t0) / st <= max) ?? steps[steps.length - 1];
   const out = [];
-  for (let t = Math.ceil(t0 / step) * step; t <= t1; t += step) out.push(t);
+  // steps of a day or more start at the first midnight, shorter ones at multiples of the step
+  const first = step >= DAY ? Math.ceil(t0 / DAY) * DAY : Math.ceil(t0 / step) * step;
+  for (let t = first; t <= t1; t += step) out.push(t);
   const label = step >= DAY ? fmtDay : (t) => (t % DAY === 0 ? fmtDay(t) : fmtClock(t));
   return out.map((t) => ({ t, text: label(t) }));
 }
@@ -825,9 +866,9 @@ function flowChart(f, width, x) {
   const visible = thresholds.map((t, i) => ({ t, i })).filter(({ t }) => t.value <= yMax);
   const above = thresholds.map((t, i) => ({ t, i })).filter(({ t }) => t.value > yMax);
   const labelYs = spreadLabels(
-    visible.map(({ t }) => y(t.value) + 4),
-    14,
-    MARGIN.top + 8 + above.length * 14,
+    visible.map(({ t }) => y(t.value) + (LABELS.inside ? -5 : 4)),
+    15,
+    MARGIN.top + 10 + above.length * 15,
     y0,
   );
   const thrG = s('g', { class: 'thresholds' });
@@ -838,8 +879,8 @@ function flowChart(f, width, x) {
         'g',
         { class: 'threshold', 'data-threshold': t.label },
         s('line', { x1: MARGIN.left, x2: x.range[1], y1: y(t.value), y2: y(t.value), stroke: st.colour, 'stroke-width': 1.8, 'stroke-dasharray': st.dash || null }),
-        s('line', { x1: x.range[1], x2: x.range[1] + 8, y1: y(t.value), y2: labelYs[k] - 4, stroke: st.colour, 'stroke-width': 1 }),
-        s('text', { class: 'threshold-label', x: x.range[1] + 10, y: labelYs[k], fill: st.colour }, `${t.label} ${fmtLevel(t.value)}`),
+        LABELS.inside ? null : s('line', { x1: x.range[1], x2: x.range[1] + 8, y1: y(t.value), y2: labelYs[k] - 4, stroke: st.colour, 'stroke-width': 1 }),
+        thresholdLabel(x, labelYs[k], st.colour, `${t.label} ${fmtLevel(t.value)}`),
       ),
     );
   });
@@ -849,7 +890,7 @@ function flowChart(f, width, x) {
       s(
         'g',
         { class: 'threshold above', 'data-threshold': t.label },
-        s('text', { class: 'threshold-label', x: x.range[1] + 10, y: MARGIN.top + 8 + k * 14, fill: st.colour }, `↑ ${t.label} ${fmtLevel(t.value)}`),
+        thresholdLabel(x, MARGIN.top + 10 + k * 15, st.colour, `↑ ${t.label} ${fmtLevel(t.value)}`),
       ),
     );
   });
@@ -1015,14 +1056,14 @@ function probChart(f, width, x) {
     ends.push({ i, t, y: last >= 0 ? ys[last] : y0 });
   });
   const labelYs = spreadLabels(
-    ends.map((e) => e.y + 4),
+    ends.map((e) => e.y + (LABELS.inside ? -8 : 4)),
     14,
-    MARGIN.top + 4,
-    y0,
+    MARGIN.top + 10,
+    y0 - (LABELS.inside ? 8 : 0),
   );
   ends.forEach((e, k) => {
     const st = THRESHOLD_STYLES[e.i % THRESHOLD_STYLES.length];
-    svg.append(s('text', { class: 'threshold-label', x: x.range[1] + 10, y: labelYs[k], fill: st.colour }, `${e.t.label}`));
+    svg.append(thresholdLabel(x, labelYs[k], st.colour, e.t.label));
   });
   return svg;
 }
