@@ -76,11 +76,3 @@ create table api_tokens (
   last_used_at timestamptz,
   revoked_at timestamptz
 );
-
-create table idempotency_keys (
-  key text primary key,
-  request_hash text not null,
-  status integer not null,
-  response jsonb not null,
-  created_at timestamptz not null default now()
-);

@@ -1,7 +1,15 @@
 import Fastify, { type FastifyBaseLogger, type FastifyInstance } from 'fastify';
 import type { Config } from '../config.ts';
 import type { Db } from '../store/db.ts';
+import { CorrectionPool } from '../models/correction-pool.ts';
 import { authHook } from './auth.ts';
+import { eventRoutes } from './events.ts';
+import { ForecastEvents } from './forecast-events.ts';
+import { forecastRoutes } from './forecasts.ts';
+import { Metrics } from './metrics-registry.ts';
+import { metricsRoutes } from './metrics.ts';
+import { overviewRoutes } from './overview.ts';
+import { runRoutes } from './runs.ts';
 import type { Services } from './context.ts';
 import { forcingRoutes } from './forcings.ts';
 import { gaugeRoutes } from './gauges.ts';
@@ -31,7 +39,19 @@ export async function buildApp(options: AppOptions): Promise<FastifyInstance> {
     return503OnClosing: true,
     routerOptions: { ignoreTrailingSlash: true },
   });
-  const services: Services = { db, config, docs: new ApiDocs() };
+  const events = new ForecastEvents();
+  await events.start(db);
+  const pool = new CorrectionPool(config.WORKERS, config.CORRECTION_QUEUE);
+  const services: Services = { db, config, docs: new ApiDocs(), pool, metrics: new Metrics(), events };
+  app.addHook('onClose', async () => {
+    await events.close();
+    await pool.close();
+  });
+  app.addHook('onResponse', async (request, reply) => {
+    const route = request.routeOptions.url ?? 'unmatched';
+    services.metrics.requests.inc({ route, method: request.method, status: String(reply.statusCode) });
+    services.metrics.latency.observe({ route }, reply.elapsedTime / 1000);
+  });
 
   for (const type of ['text/csv', 'text/plain']) {
     app.addContentTypeParser(type, { parseAs: 'string' }, (_req, body, done) => done(null, body));
@@ -65,6 +85,11 @@ export async function buildApp(options: AppOptions): Promise<FastifyInstance> {
   await app.register(reforecastRoutes, { services });
   await app.register(modelRoutes, { services });
   await app.register(jobRoutes, { services });
+  await app.register(runRoutes, { services });
+  await app.register(forecastRoutes, { services });
+  await app.register(overviewRoutes, { services });
+  await app.register(eventRoutes, { services });
+  await app.register(metricsRoutes, { services });
   return app;
 }
 

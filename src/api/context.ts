@@ -1,6 +1,9 @@
 import type { FastifyInstance, FastifyReply, FastifyRequest } from 'fastify';
 import type { Config } from '../config.ts';
+import type { CorrectionPool } from '../models/correction-pool.ts';
 import type { Db } from '../store/db.ts';
+import type { ForecastEvents } from './forecast-events.ts';
+import type { Metrics } from './metrics-registry.ts';
 import type { ApiDocs, RouteDoc } from './openapi.ts';
 
 /** What every resource plugin is given. */
@@ -8,6 +11,9 @@ export interface Services {
   db: Db;
   config: Config;
   docs: ApiDocs;
+  pool: CorrectionPool;
+  metrics: Metrics;
+  events: ForecastEvents;
 }
 
 export type Handler = (request: FastifyRequest, reply: FastifyReply) => Promise<unknown>;

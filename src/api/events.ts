@@ -1,0 +1,25 @@
+import type { FastifyInstance } from 'fastify';
+import { addRoute, type Services } from './context.ts';
+
+/** Server-sent events: one `forecast` event per new run, from any service instance. */
+export async function eventRoutes(app: FastifyInstance, { services }: { services: Services }) {
+  addRoute(app, services, { method: 'GET', url: '/events', summary: 'Server-sent events announcing each new run (event: forecast)', tag: 'forecasts', role: 'read', responseTypes: ['text/event-stream'] }, async (req, reply) => {
+    reply.hijack();
+    const res = reply.raw;
+    res.writeHead(200, { 'content-type': 'text/event-stream', 'cache-control': 'no-cache', connection: 'keep-alive', 'x-accel-buffering': 'no' });
+    res.write(': connected\n\n');
+    const unsubscribe = services.events.subscribe((a) => {
+      res.write(`event: forecast\ndata: ${JSON.stringify(a)}\n\n`);
+    });
+    const keepAlive = setInterval(() => res.write(': keep-alive\n\n'), 15_000);
+    const close = () => {
+      clearInterval(keepAlive);
+      unsubscribe();
+    };
+    req.raw.on('close', close);
+    app.server.once('close', () => {
+      close();
+      res.end();
+    });
+  });
+}

@@ -1,0 +1,161 @@
+import { formatDurationSeconds } from '../core/iso-duration.ts';
+import { CAUTION } from './caution.ts';
+import { isoUtc } from './series-input.ts';
+
+/** The stored and served shape of one corrected run (see the OpenAPI document). */
+export interface ForecastView {
+  id: string;
+  gaugeId: string;
+  gaugeName: string;
+  issueTime: string;
+  createdAt: string;
+  source: string;
+  unit: 'm3/s';
+  timeStep: string;
+  caution: string;
+  status: 'corrected' | 'degraded';
+  degradedReason: string | null;
+  modelVersion: { id: string; label: string } | null;
+  seed: number;
+  trajectories: number;
+  attentionLevel: number;
+  leadTimes: string[];
+  validTimes: string[];
+  quantiles: { probabilities: number[]; values: number[][] };
+  thresholds: { label: string; value: number; exceedance: number[]; anyTime: number; firstLikelyLeadTime: string | null; attention: boolean }[];
+  ensemble: { raw: { id: string; values: number[] }[]; corrected: { id: string; values: number[] }[] | null };
+  recent: { times: string[]; observed: (number | null)[] };
+  timings: { featuresMs: number; inferenceMs: number; stochasticMs: number; totalMs: number };
+}
+
+const round = (x: number, digits = 4) => {
+  const f = 10 ** digits;
+  return Math.round(x * f) / f;
+};
+
+export interface ViewInput {
+  id: string;
+  gauge: { id: string; name: string; timeStep: string; stepSeconds: number; thresholds: { label: string; value: number }[] };
+  issueTimeMs: number;
+  createdAt: string;
+  source: string;
+  status: 'corrected' | 'degraded';
+  degradedReason: string | null;
+  modelVersion: { id: string; label: string } | null;
+  seed: number;
+  nDraws: number;
+  attentionLevel: number;
+  probs: number[];
+  nLeads: number;
+  memberIds: string[];
+  raw: Float64Array;
+  corrected: Float64Array | null;
+  /** [lead·probs.length + q] */
+  quantiles: ArrayLike<number>;
+  /** [threshold·nLeads + lead] */
+  exceedance: ArrayLike<number>;
+  anyTime: ArrayLike<number>;
+  firstLikelyLead: (number | null)[];
+  recent: { times: string[]; observed: (number | null)[] };
+  timings: ForecastView['timings'];
+}
+
+export function buildForecastView(v: ViewInput): ForecastView {
+  const H = v.nLeads;
+  const stepMs = v.gauge.stepSeconds * 1000;
+  const members = (values: Float64Array) => v.memberIds.map((id, m) => ({ id, values: Array.from(values.subarray(m * H, (m + 1) * H), (x) => round(x)) }));
+  return {
+    id: v.id,
+    gaugeId: v.gauge.id,
+    gaugeName: v.gauge.name,
+    issueTime: isoUtc(v.issueTimeMs),
+    createdAt: v.createdAt,
+    source: v.source,
+    unit: 'm3/s',
+    timeStep: v.gauge.timeStep,
+    caution: CAUTION,
+    status: v.status,
+    degradedReason: v.degradedReason,
+    modelVersion: v.modelVersion,
+    seed: v.seed,
+    trajectories: v.nDraws,
+    attentionLevel: v.attentionLevel,
+    leadTimes: Array.from({ length: H }, (_, k) => formatDurationSeconds((k + 1) * v.gauge.stepSeconds)),
+    validTimes: Array.from({ length: H }, (_, k) => isoUtc(v.issueTimeMs + (k + 1) * stepMs)),
+    quantiles: {
+      probabilities: v.probs,
+      values: v.probs.map((_, q) => Array.from({ length: H }, (_, k) => round(v.quantiles[k * v.probs.length + q]))),
+    },
+    thresholds: v.gauge.thresholds.map((t, j) => {
+      const anyTime = round(v.anyTime[j]);
+      const first = v.firstLikelyLead[j];
+      return {
+        label: t.label,
+        value: t.value,
+        exceedance: Array.from({ length: H }, (_, k) => round(v.exceedance[j * H + k])),
+        anyTime,
+        firstLikelyLeadTime: first === null || first === undefined ? null : formatDurationSeconds((first + 1) * v.gauge.stepSeconds),
+        attention: anyTime >= v.attentionLevel,
+      };
+    }),
+    ensemble: { raw: members(v.raw), corrected: v.corrected ? members(v.corrected) : null },
+    recent: v.recent,
+    timings: v.timings,
+  };
+}
+
+const pct = (p: number) => (p >= 0.995 ? '>99%' : p > 0 && p < 0.005 ? '<1%' : `${Math.round(p * 100)}%`);
+
+function quantileRow(f: ForecastView, p: number): number[] | null {
+  const i = f.quantiles.probabilities.findIndex((x) => Math.abs(x - p) < 1e-9);
+  return i >= 0 ? f.quantiles.values[i] : null;
+}
+
+/** The plain-text table for a terminal: lead time, median, 5–95 % range, probability per threshold. */
+export function forecastText(f: ForecastView): string {
+  const median = quantileRow(f, 0.5);
+  const lo = quantileRow(f, 0.05);
+  const hi = quantileRow(f, 0.95);
+  const num = (x: number | undefined) => (x === undefined ? '–' : x >= 100 ? x.toFixed(0) : x >= 10 ? x.toFixed(1) : x.toFixed(2));
+  const header = ['lead', 'valid time (UTC)', 'median', '5–95 % range', ...f.thresholds.map((t) => `P>${t.label} (${t.value})`)];
+  const rows = f.leadTimes.map((lead, k) => [
+    lead,
+    f.validTimes[k].replace('T', ' ').replace(/:00Z$/, 'Z'),
+    num(median?.[k]),
+    `${num(lo?.[k])} – ${num(hi?.[k])}`,
+    ...f.thresholds.map((t) => pct(t.exceedance[k])),
+  ]);
+  rows.push(['any time', 'in the horizon', '', '', ...f.thresholds.map((t) => `${pct(t.anyTime)}${t.attention ? ' !' : ''}`)]);
+  const widths = header.map((h, i) => Math.max(h.length, ...rows.map((r) => r[i].length)));
+  const line = (cells: string[]) => cells.map((c, i) => (i < 2 ? c.padEnd(widths[i]) : c.padStart(widths[i]))).join('  ').trimEnd();
+  const status = f.status === 'degraded' ? `DEGRADED: ${f.degradedReason}` : `corrected with model version ${f.modelVersion?.id} (${f.modelVersion?.label})`;
+  return [
+    `${f.gaugeName} (${f.gaugeId}) — issued ${f.issueTime} — flows in m3/s`,
+    `${status}; ${f.trajectories} trajectories, seed ${f.seed}`,
+    `CAUTION: ${f.caution}`,
+    '',
+    line(header),
+    line(widths.map((w) => '-'.repeat(w))),
+    ...rows.map(line),
+    '',
+    f.thresholds.some((t) => t.attention) ? `! = probability at or above the attention level (${pct(f.attentionLevel)})` : `no threshold reaches the attention level (${pct(f.attentionLevel)})`,
+    '',
+  ].join('\n');
+}
+
+/** CSV, one row per lead time: quantiles then exceedance probability per threshold. */
+export function forecastCsv(f: ForecastView): string {
+  const header = [
+    'lead_time',
+    'valid_time',
+    ...f.quantiles.probabilities.map((p) => `q${String(Math.round(p * 1000) / 10).replace('.', '_')} (m3/s)`),
+    ...f.thresholds.map((t) => `p_exceed ${t.label} (${t.value} m3/s)`),
+  ];
+  const lines = [`# ${f.caution}`, `# gauge ${f.gaugeId}, issued ${f.issueTime}, status ${f.status}, seed ${f.seed}`, header.map((h) => (h.includes(',') ? `"${h}"` : h)).join(',')];
+  f.leadTimes.forEach((lead, k) => {
+    lines.push([lead, f.validTimes[k], ...f.quantiles.values.map((row) => row[k]), ...f.thresholds.map((t) => t.exceedance[k])].join(','));
+  });
+  return `${lines.join('\n')}\n`;
+}
+
+export { isoUtc };

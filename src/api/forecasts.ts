@@ -1,0 +1,106 @@
+import type { FastifyInstance, FastifyReply, FastifyRequest } from 'fastify';
+import { z } from 'zod';
+import { getRun, latestRunTag, listRuns } from '../store/forecasts-repo.ts';
+import { GaugeParams, requireGauge } from './archive-common.ts';
+import { addRoute, type Services } from './context.ts';
+import { forecastCsv, forecastText, type ForecastView } from './forecast-view.ts';
+import { notFound } from './problem.ts';
+import { Rfc3339 } from './schemas.ts';
+import { parseWith } from './validate.ts';
+
+const FormatQuery = z.strictObject({ format: z.enum(['json', 'csv', 'text']).optional() });
+const CACHE_MS = 5_000;
+
+type Format = 'json' | 'csv' | 'text';
+
+function chooseFormat(req: FastifyRequest, format?: Format): Format {
+  if (format) return format;
+  const accept = req.headers.accept ?? '';
+  if (accept.includes('application/json')) return 'json';
+  if (accept.includes('text/csv')) return 'csv';
+  if (accept.includes('text/plain')) return 'text';
+  return 'json';
+}
+
+/** Sends a stored run in the chosen format with a strong ETag per representation; 304 when unchanged. */
+function sendRun(req: FastifyRequest, reply: FastifyReply, run: { etag: string; output: string }, format: Format, cacheControl: string) {
+  const etag = format === 'json' ? run.etag : `${run.etag.slice(0, -1)}-${format}"`;
+  reply.header('etag', etag).header('cache-control', cacheControl).header('vary', 'accept');
+  const match = req.headers['if-none-match'];
+  if (match && match.split(',').some((t) => t.trim() === etag || t.trim() === '*')) {
+    reply.code(304);
+    return '';
+  }
+  if (format === 'json') {
+    reply.type('application/json');
+    return run.output;
+  }
+  const view = JSON.parse(run.output) as ForecastView;
+  if (format === 'csv') {
+    reply.type('text/csv; charset=utf-8');
+    return forecastCsv(view);
+  }
+  reply.type('text/plain; charset=utf-8');
+  return forecastText(view);
+}
+
+export async function forecastRoutes(app: FastifyInstance, { services }: { services: Services }) {
+  const { db, events } = services;
+  // The newest run per gauge, cached briefly and dropped as soon as a new run is announced
+  // (LISTEN/NOTIFY reaches every instance); the database stays the only record.
+  const latest = new Map<string, { at: number; id: string; etag: string; output: string }>();
+  events.subscribe((a) => latest.delete(a.gaugeId));
+
+  addRoute(
+    app,
+    services,
+    { method: 'GET', url: '/gauges/:id/forecasts/latest', summary: "The gauge's newest corrected forecast (JSON, CSV or a plain-text table; ETag and 304)", tag: 'forecasts', role: 'read', params: GaugeParams, query: FormatQuery, responseTypes: ['application/json', 'text/csv', 'text/plain'] },
+    async (req, reply) => {
+      const { id } = parseWith(GaugeParams, req.params, 'params');
+      const { format } = parseWith(FormatQuery, req.query, 'query');
+      let hit = latest.get(id);
+      if (!hit || Date.now() - hit.at > CACHE_MS) {
+        const tag = await latestRunTag(db, id);
+        if (!tag) {
+          await requireGauge(db, req.params);
+          throw notFound(`gauge ${id} has no forecast yet`);
+        }
+        if (hit && hit.id === tag.id) hit.at = Date.now();
+        else {
+          const run = await getRun(db, tag.id);
+          if (!run) throw notFound(`gauge ${id} has no forecast yet`);
+          hit = { at: Date.now(), id: run.id, etag: run.etag, output: run.output };
+        }
+        latest.set(id, hit);
+      }
+      return sendRun(req, reply, hit, chooseFormat(req, format), 'private, max-age=10, must-revalidate');
+    },
+  );
+
+  const RunParams = z.object({ runId: z.string().uuid('must be a run id') });
+  addRoute(
+    app,
+    services,
+    { method: 'GET', url: '/forecasts/:runId', summary: 'One stored run by id (JSON, CSV or text)', tag: 'forecasts', role: 'read', params: RunParams, query: FormatQuery, responseTypes: ['application/json', 'text/csv', 'text/plain'] },
+    async (req, reply) => {
+      const { runId } = parseWith(RunParams, req.params, 'params');
+      const { format } = parseWith(FormatQuery, req.query, 'query');
+      const run = await getRun(db, runId);
+      if (!run) throw notFound(`no run ${runId}`);
+      return sendRun(req, reply, run, chooseFormat(req, format), 'private, max-age=86400, immutable');
+    },
+  );
+
+  const WindowQuery = z.strictObject({ from: Rfc3339.optional(), to: Rfc3339.optional(), limit: z.coerce.number().int().min(1).max(5000).default(500) });
+  addRoute(
+    app,
+    services,
+    { method: 'GET', url: '/gauges/:id/forecasts', summary: 'Runs issued in a time window, newest first, with their threshold summaries', tag: 'forecasts', role: 'read', params: GaugeParams, query: WindowQuery },
+    async (req) => {
+      const gauge = await requireGauge(db, req.params);
+      const q = parseWith(WindowQuery, req.query, 'query');
+      const runs = await listRuns(db, gauge.id, q.from ? Date.parse(q.from) : undefined, q.to ? Date.parse(q.to) : undefined, q.limit);
+      return { gaugeId: gauge.id, runs };
+    },
+  );
+}

@@ -1,0 +1,33 @@
+import type { FastifyInstance } from 'fastify';
+import { listGauges } from '../store/gauges-repo.ts';
+import { latestSummaries } from '../store/forecasts-repo.ts';
+import { CAUTION } from './caution.ts';
+import { addRoute, type Services } from './context.ts';
+import { isoUtc } from './series-input.ts';
+
+/** All gauges at a glance: each one's newest run and its highest probability per threshold. */
+export async function overviewRoutes(app: FastifyInstance, { services }: { services: Services }) {
+  const { db } = services;
+  addRoute(app, services, { method: 'GET', url: '/overview', summary: "Every gauge with its newest run's highest exceedance probability per threshold and its status", tag: 'forecasts', role: 'read' }, async () => {
+    const gauges = new Map((await listGauges(db)).map((g) => [g.id, g]));
+    const rows = await latestSummaries(db);
+    return {
+      caution: CAUTION,
+      attentionLevel: services.config.ATTENTION_LEVEL,
+      gauges: rows.map((r) => {
+        const g = gauges.get(r.gauge_id)!;
+        const summary = (r.summary ?? []) as { label: string; value: number; maxExceedance: number; anyTime: number; attention: boolean }[];
+        return {
+          id: g.id,
+          name: g.name,
+          status: r.id ? 'ok' : 'no-forecast',
+          latest: r.id ? { id: r.id, issueTime: isoUtc(r.issue_time!.getTime()), status: r.status } : null,
+          thresholds: g.thresholds.map((t) => {
+            const s = summary.find((x) => x.label === t.label);
+            return { label: t.label, value: t.value, maxExceedance: s?.maxExceedance ?? null, anyTime: s?.anyTime ?? null, attention: s?.attention ?? false };
+          }),
+        };
+      }),
+    };
+  });
+}

@@ -1,0 +1,82 @@
+import type { InferenceSession } from 'onnxruntime-node';
+import { dayOfYearUtc } from '../core/day-of-year.ts';
+import type { ErrorArchive } from '../core/error-archive.ts';
+import { servingRows, type FeatureSpec, type RunInput } from '../core/features.ts';
+import { runStochasticStage, type StochasticResult, type StochasticWorkspace } from '../core/stochastic-stage.ts';
+import { predictResiduals } from './onnx-session.ts';
+
+export interface CorrectionOptions {
+  stepSeconds: number;
+  seed: number;
+  nDraws: number;
+  probs: number[];
+  thresholds: number[];
+  seasonalWindowDays: number | null;
+}
+
+export interface CorrectionOutput {
+  /** Corrected members (mean over a bundle's models), [member·nLeads + lead]; null when degraded. */
+  corrected: Float64Array | null;
+  stage: StochasticResult;
+  timings: { featuresMs: number; inferenceMs: number; stochasticMs: number };
+}
+
+/** The run's raw values at the lead times: the last nLeads of each member's series. */
+export function rawAtLeads(run: RunInput): Float64Array {
+  const out = new Float64Array(run.members.length * run.nLeads);
+  run.members.forEach((m, i) => {
+    for (let k = 0; k < run.nLeads; k++) out[i * run.nLeads + k] = Number(m[m.length - run.nLeads + k]);
+  });
+  return out;
+}
+
+/**
+ * The correction pipeline for one run: feature rows for all members × lead times, one batched
+ * inference per bundled residual model, corrected = max(0, raw + residual), then the stochastic
+ * error stage over every (model, member) with the corrected-error archive. With no sessions the
+ * stage runs on the raw members (degraded mode; the archive must then be the raw-error one).
+ */
+export async function correctRun(
+  run: RunInput,
+  spec: FeatureSpec | null,
+  sessions: InferenceSession[],
+  archive: ErrorArchive,
+  options: CorrectionOptions,
+  workspace: StochasticWorkspace,
+): Promise<CorrectionOutput> {
+  const nM = run.members.length;
+  const H = run.nLeads;
+  const raw = rawAtLeads(run);
+  let t = performance.now();
+  let featuresMs = 0;
+  let inferenceMs = 0;
+  let stageInput = raw;
+  let corrected: Float64Array | null = null;
+  if (sessions.length) {
+    const rows = servingRows(spec!, run);
+    featuresMs = performance.now() - t;
+    t = performance.now();
+    stageInput = new Float64Array(sessions.length * nM * H);
+    corrected = new Float64Array(nM * H);
+    for (let s = 0; s < sessions.length; s++) {
+      const residual = await predictResiduals(sessions[s], rows.rows, rows.nRows, rows.nFeatures);
+      for (let i = 0; i < nM * H; i++) {
+        const v = Math.max(0, raw[i] + residual[i]);
+        if (!Number.isFinite(v)) throw new Error(`the residual model returned a non-finite value for member ${Math.floor(i / H)} at lead ${(i % H) + 1}`);
+        stageInput[s * nM * H + i] = v;
+        corrected[i] += v / sessions.length;
+      }
+    }
+    inferenceMs = performance.now() - t;
+  }
+  t = performance.now();
+  const stepMs = options.stepSeconds * 1000;
+  const doy = Int32Array.from({ length: H }, (_, k) => dayOfYearUtc(run.issueTime + (k + 1) * stepMs));
+  const stage = runStochasticStage(
+    archive,
+    { members: stageInput, nModels: sessions.length || 1, nMembers: nM, nLeads: H, dayOfYear: doy },
+    { seed: options.seed, nDraws: options.nDraws, probs: options.probs, thresholds: options.thresholds, seasonalWindowDays: options.seasonalWindowDays },
+    workspace,
+  );
+  return { corrected, stage, timings: { featuresMs, inferenceMs, stochasticMs: performance.now() - t } };
+}

@@ -1,0 +1,74 @@
+// A correction worker thread: keeps onnxruntime sessions and decoded error archives cached by id
+// (creating and dropping sessions repeatedly leaks memory in onnxruntime), and corrects runs.
+import { parentPort } from 'node:worker_threads';
+import type { InferenceSession } from 'onnxruntime-node';
+import { archiveFromBytes } from '../core/archive-codec.ts';
+import type { ErrorArchive } from '../core/error-archive.ts';
+import { checkFeatureSpec, featureCount, FeatureInputError, type FeatureSpec, type RunInput } from '../core/features.ts';
+import { createStochasticWorkspace } from '../core/stochastic-stage.ts';
+import { correctRun, type CorrectionOptions } from './correct-run.ts';
+import { createResidualSession, predictResiduals } from './onnx-session.ts';
+
+export type CorrectionRequest =
+  | { type: 'load-model'; id: number; versionId: string; parts: Uint8Array[]; spec: unknown }
+  | { type: 'load-archive'; id: number; archiveId: string; bytes: Uint8Array }
+  | { type: 'correct'; id: number; versionId: string | null; archiveId: string; run: RunInput; options: CorrectionOptions };
+
+const MAX_MODELS = 8;
+const MAX_ARCHIVES = 16;
+const models = new Map<string, { spec: FeatureSpec; sessions: InferenceSession[] }>();
+const archives = new Map<string, ErrorArchive>();
+const workspace = createStochasticWorkspace();
+
+async function loadModel(versionId: string, parts: Uint8Array[], spec: unknown): Promise<void> {
+  if (models.has(versionId)) return;
+  const checked = checkFeatureSpec(spec);
+  const sessions = [];
+  for (const bytes of parts) sessions.push(await createResidualSession(bytes));
+  // Warm: one inference so the first real run does not pay for lazy initialisation.
+  const width = featureCount(checked);
+  for (const s of sessions) await predictResiduals(s, new Float32Array(width), 1, width);
+  models.set(versionId, { spec: checked, sessions });
+  while (models.size > MAX_MODELS) {
+    const oldest = models.keys().next().value!;
+    const m = models.get(oldest)!;
+    models.delete(oldest);
+    await Promise.all(m.sessions.map((s) => s.release()));
+  }
+}
+
+parentPort!.on('message', async (msg: CorrectionRequest) => {
+  try {
+    if (msg.type === 'load-model') {
+      await loadModel(msg.versionId, msg.parts, msg.spec);
+      parentPort!.postMessage({ id: msg.id, ok: true });
+    } else if (msg.type === 'load-archive') {
+      if (!archives.has(msg.archiveId)) archives.set(msg.archiveId, archiveFromBytes(msg.bytes));
+      while (archives.size > MAX_ARCHIVES) archives.delete(archives.keys().next().value!);
+      parentPort!.postMessage({ id: msg.id, ok: true });
+    } else {
+      const model = msg.versionId ? models.get(msg.versionId) : null;
+      if (msg.versionId && !model) throw new Error(`model ${msg.versionId} is not loaded in this worker`);
+      const archive = archives.get(msg.archiveId);
+      if (!archive) throw new Error(`archive ${msg.archiveId} is not loaded in this worker`);
+      const out = await correctRun(msg.run, model?.spec ?? null, model?.sessions ?? [], archive, msg.options, workspace);
+      const s = out.stage;
+      parentPort!.postMessage({
+        id: msg.id,
+        ok: true,
+        result: {
+          corrected: out.corrected,
+          quantiles: s.quantiles,
+          exceedance: s.exceedance,
+          exceedanceAnyTime: s.exceedanceAnyTime,
+          firstLikelyLead: s.firstLikelyLead,
+          nDraws: s.nDraws,
+          timings: out.timings,
+        },
+      });
+    }
+  } catch (err) {
+    const e = err as Error;
+    parentPort!.postMessage({ id: msg.id, ok: false, message: e.message, path: e instanceof FeatureInputError ? e.path : null });
+  }
+});

@@ -1,0 +1,138 @@
+import type { Queryable } from './db.ts';
+
+export interface StoredRun {
+  id: string;
+  gaugeId: string;
+  issueTime: string;
+  source: string;
+  requestHash: string;
+  idempotencyKey: string | null;
+  status: 'corrected' | 'degraded';
+  etag: string;
+  output: string;
+  createdAt: string;
+}
+
+interface Row {
+  id: string;
+  gauge_id: string;
+  issue_time: Date;
+  source: string;
+  request_hash: string;
+  idempotency_key: string | null;
+  status: 'corrected' | 'degraded';
+  etag: string;
+  output: string;
+  created_at: Date;
+}
+
+const fromRow = (r: Row): StoredRun => ({
+  id: r.id,
+  gaugeId: r.gauge_id,
+  issueTime: r.issue_time.toISOString(),
+  source: r.source,
+  requestHash: r.request_hash,
+  idempotencyKey: r.idempotency_key,
+  status: r.status,
+  etag: r.etag,
+  output: r.output,
+  createdAt: r.created_at.toISOString(),
+});
+
+const COLUMNS = 'id, gauge_id, issue_time, source, request_hash, idempotency_key, status, etag, output, created_at';
+
+export interface NewRun {
+  id: string;
+  gaugeId: string;
+  issueTimeMs: number;
+  source: string;
+  requestHash: string;
+  idempotencyKey: string | null;
+  status: 'corrected' | 'degraded';
+  modelVersionId: string | null;
+  seed: number;
+  input: unknown;
+  output: string;
+  etag: string;
+  summary: unknown;
+  percentiles: unknown;
+}
+
+/** Stores a run and announces it (NOTIFY is delivered when the transaction commits). */
+export async function insertRun(tx: Queryable, r: NewRun): Promise<void> {
+  await tx.query(
+    `insert into forecast_runs (id, gauge_id, issue_time, source, request_hash, idempotency_key, status, model_version_id, seed,
+                                input, output, etag, summary, percentiles)
+     values ($1, $2, to_timestamp($3), $4, $5, $6, $7, $8, $9, $10::jsonb, $11, $12, $13::jsonb, $14::jsonb)`,
+    [r.id, r.gaugeId, r.issueTimeMs / 1000, r.source, r.requestHash, r.idempotencyKey, r.status, r.modelVersionId, r.seed,
+      JSON.stringify(r.input), r.output, r.etag, JSON.stringify(r.summary), JSON.stringify(r.percentiles)],
+  );
+  await tx.query(`select pg_notify('forecast_runs', $1)`, [
+    JSON.stringify({ gaugeId: r.gaugeId, runId: r.id, issueTime: new Date(r.issueTimeMs).toISOString().replace('.000Z', 'Z') }),
+  ]);
+}
+
+export async function findRunByKey(db: Queryable, gaugeId: string, issueTimeMs: number, source: string): Promise<StoredRun | null> {
+  const { rows } = await db.query<Row>(`select ${COLUMNS} from forecast_runs where gauge_id = $1 and issue_time = to_timestamp($2) and source = $3`, [gaugeId, issueTimeMs / 1000, source]);
+  return rows[0] ? fromRow(rows[0]) : null;
+}
+
+export async function findRunByIdempotencyKey(db: Queryable, key: string): Promise<StoredRun | null> {
+  const { rows } = await db.query<Row>(`select ${COLUMNS} from forecast_runs where idempotency_key = $1`, [key]);
+  return rows[0] ? fromRow(rows[0]) : null;
+}
+
+export async function getRun(db: Queryable, id: string): Promise<StoredRun | null> {
+  const { rows } = await db.query<Row>(`select ${COLUMNS} from forecast_runs where id = $1`, [id]);
+  return rows[0] ? fromRow(rows[0]) : null;
+}
+
+/** The newest run by issue time (then by storage time). */
+export async function latestRunTag(db: Queryable, gaugeId: string): Promise<{ id: string; etag: string } | null> {
+  const { rows } = await db.query<{ id: string; etag: string }>(
+    'select id, etag from forecast_runs where gauge_id = $1 order by issue_time desc, created_at desc limit 1',
+    [gaugeId],
+  );
+  return rows[0] ?? null;
+}
+
+export async function listRuns(db: Queryable, gaugeId: string, fromMs?: number, toMs?: number, limit = 500) {
+  const params: unknown[] = [gaugeId];
+  let where = '';
+  if (fromMs !== undefined) {
+    params.push(fromMs / 1000);
+    where += ` and issue_time >= to_timestamp($${params.length})`;
+  }
+  if (toMs !== undefined) {
+    params.push(toMs / 1000);
+    where += ` and issue_time < to_timestamp($${params.length})`;
+  }
+  params.push(limit);
+  const { rows } = await db.query<{ id: string; issue_time: Date; source: string; status: string; model_version_id: string | null; summary: unknown; created_at: Date }>(
+    `select id, issue_time, source, status, model_version_id::text as model_version_id, summary, created_at from forecast_runs
+     where gauge_id = $1${where} order by issue_time desc, created_at desc limit $${params.length}`,
+    params,
+  );
+  return rows.map((r) => ({
+    id: r.id,
+    issueTime: r.issue_time.toISOString().replace('.000Z', 'Z'),
+    source: r.source,
+    status: r.status,
+    modelVersionId: r.model_version_id,
+    thresholds: r.summary,
+    createdAt: r.created_at.toISOString(),
+    href: `/forecasts/${r.id}`,
+  }));
+}
+
+/** Each gauge with its newest run's summary, for the overview. */
+export async function latestSummaries(db: Queryable) {
+  const { rows } = await db.query<{ gauge_id: string; id: string | null; issue_time: Date | null; status: string | null; summary: unknown }>(
+    `select g.id as gauge_id, r.id, r.issue_time, r.status, r.summary
+       from gauges g
+       left join lateral (select id, issue_time, status, summary from forecast_runs f where f.gauge_id = g.id
+                          order by issue_time desc, created_at desc limit 1) r on true
+      order by g.id`,
+  );
+  return rows;
+}
