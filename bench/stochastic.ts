@@ -4,6 +4,7 @@
  * Run: npx tsx bench/stochastic.ts [runs]
  * Data are invented (a synthetic seasonal river with multiplicative, autocorrelated errors).
  */
+import os from 'node:os';
 import {
   buildArchiveFromReforecasts,
   buildArchiveFromSeries,
@@ -84,7 +85,9 @@ const ws = createStochasticWorkspace();
 const rows: string[][] = [];
 for (const c of cases) {
   const times: number[] = [];
+  const cpu: number[] = [];
   for (let r = 0; r < runs + 3; r++) {
+    const c0 = process.cpuUsage();
     const s = performance.now();
     runStochasticStage(
       c.archive,
@@ -93,17 +96,26 @@ for (const c of cases) {
       ws,
     );
     const e = performance.now() - s;
-    if (r >= 3) times.push(e); // first runs warm the JIT
+    const c1 = process.cpuUsage(c0);
+    if (r >= 3) {
+      // first runs warm the JIT
+      times.push(e);
+      cpu.push((c1.user + c1.system) / 1000);
+    }
   }
-  times.sort((a, b) => a - b);
-  const q = (p: number) => times[Math.min(times.length - 1, Math.floor(p * times.length))];
-  rows.push([c.name, String(c.archive.predictor.length), String(c.archive.templateStart.length), q(0.5).toFixed(2), q(0.9).toFixed(2)]);
+  const q = (xs: number[], p: number) => {
+    const s = [...xs].sort((a, b) => a - b);
+    return s[Math.min(s.length - 1, Math.floor(p * s.length))].toFixed(2);
+  };
+  rows.push([c.name, String(c.archive.predictor.length), String(c.archive.templateStart.length), q(times, 0.5), q(times, 0.9), q(cpu, 0.5), q(cpu, 0.9)]);
 }
 
-const head = ['case (51 members × 240 leads × 1000 draws, 7 q, 3 thr)', 'cases', 'templates', 'median ms', 'p90 ms'];
+const head = ['case (51 members × 240 leads × 1000 draws, 7 q, 3 thr)', 'cases', 'templates', 'wall median ms', 'wall p90 ms', 'CPU median ms', 'CPU p90 ms'];
 const widths = head.map((h, i) => Math.max(h.length, ...rows.map((r) => r[i].length)));
 const line = (r: string[]) => r.map((v, i) => (i === 0 ? v.padEnd(widths[i]) : v.padStart(widths[i]))).join(' | ');
-console.log(`runs per case: ${runs} (after 3 warm-up runs); archive build total ${buildMs.toFixed(0)} ms; node ${process.version}`);
+// CPU time (process.cpuUsage, this process only) is shown beside wall time because the machine may be
+// shared: under load, wall time includes waiting for a core.
+console.log(`runs per case: ${runs} (after 3 warm-up runs); archive build total ${buildMs.toFixed(0)} ms; node ${process.version}; load average ${os.loadavg()[0].toFixed(2)} on ${os.availableParallelism()} cores`);
 console.log(line(head));
 console.log(widths.map((w) => '-'.repeat(w)).join('-|-'));
 for (const r of rows) console.log(line(r));

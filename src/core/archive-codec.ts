@@ -115,7 +115,7 @@ export function archiveFromBytes(bytes: Uint8Array): ErrorArchive {
     templateValues,
     templateStart,
     templateDayOfYear,
-    templateRank: rankTemplateValues(templateValues),
+    templateRank: rankTemplateValues(templateValues, h.nLeads),
   };
   validateArchive(a);
   return a;
@@ -166,7 +166,7 @@ export function archiveFromJSON(j: ErrorArchiveJson): ErrorArchive {
     templateValues,
     templateStart: Int32Array.from(j.templateStart),
     templateDayOfYear: Uint16Array.from(j.templateDayOfYear),
-    templateRank: rankTemplateValues(templateValues),
+    templateRank: rankTemplateValues(templateValues, j.nLeads),
   };
   validateArchive(a);
   return a;

@@ -28,9 +28,10 @@ import {
  * windows starting on consecutive (or every `templateStride`-th) days with no gap; reforecast
  * archives store the issue × lead error matrix row-major and each complete issue row is a
  * template. templateDayOfYear[t] is the day of year of the template's first value (lead 0).
- * templateRank is derived, not stored: the rank of each series value among all finite values
- * (ties broken by position, missing = 0xffffffff). The shuffle only needs rank order, and one
- * global ranking is consistent for every lead, so no sorting of template values per call.
+ * templateRank is derived, not stored: the rank of each series value (ties broken by position,
+ * missing = 0xffffffff) among all finite values (lead-free) or within its lead column
+ * (reforecasts); see rankTemplateValues. The shuffle only needs the rank order of values that
+ * meet at the same lead, so no template values are sorted per call.
  */
 export interface ErrorArchive {
   format: 1;
@@ -58,13 +59,23 @@ function checkDayOfYear(d: number, where: string): void {
   if (!(Number.isInteger(d) && d >= 1 && d <= 366)) throw new RangeError(`${where}: day of year must be an integer 1 … 366, got ${d}`);
 }
 
-/** Global ranks of the finite values (0 … count−1, ties by position); MISSING_RANK for NaN. */
-export function rankTemplateValues(values: Float64Array): Uint32Array {
-  const idx: number[] = [];
-  for (let i = 0; i < values.length; i++) if (Number.isFinite(values[i])) idx.push(i);
-  idx.sort((a, b) => values[a] - values[b] || a - b);
+/**
+ * Ranks of the finite template values, ties broken by position; MISSING_RANK for NaN.
+ * stride = 0: one ranking over the whole series (lead-free archives, whose overlapping windows
+ * meet any value at any lead). stride = nLeads: each lead column (values i·stride + h) ranked on
+ * its own (reforecast archives, where values meet only within their lead), which keeps ranks
+ * below the number of issues and so the shuffle's sort keys short.
+ */
+export function rankTemplateValues(values: Float64Array, stride = 0): Uint32Array {
   const rank = new Uint32Array(values.length).fill(MISSING_RANK);
-  for (let r = 0; r < idx.length; r++) rank[idx[r]] = r;
+  const nCols = stride > 0 ? stride : 1;
+  const step = stride > 0 ? stride : 1;
+  for (let c = 0; c < nCols; c++) {
+    const idx: number[] = [];
+    for (let i = c; i < values.length; i += step) if (Number.isFinite(values[i])) idx.push(i);
+    idx.sort((a, b) => values[a] - values[b] || a - b);
+    for (let r = 0; r < idx.length; r++) rank[idx[r]] = r;
+  }
   return rank;
 }
 
@@ -239,7 +250,7 @@ export function buildArchiveFromReforecasts(input: ReforecastArchiveInput): Erro
     templateValues: matrix,
     templateStart: Int32Array.from(starts),
     templateDayOfYear: Uint16Array.from(starts, (s) => dayOfYear[s]),
-    templateRank: rankTemplateValues(matrix),
+    templateRank: rankTemplateValues(matrix, nLeads),
   };
 }
 
@@ -267,6 +278,15 @@ export function validateArchive(a: ErrorArchive): void {
   }
   if (a.templateStart.length !== a.templateDayOfYear.length) throw new RangeError('templateStart and templateDayOfYear lengths differ');
   if (a.templateRank.length !== a.templateValues.length) throw new RangeError('templateRank does not match templateValues');
+  if (a.nLeads > 0) {
+    // Reforecast templates are whole issue rows of the lead-major matrix (per-lead ranks rely on it).
+    if (a.templateValues.length % a.nLeads !== 0 || a.templateLength !== a.nLeads) {
+      throw new RangeError('reforecast templates must be issue rows of nLeads values');
+    }
+    for (let t = 0; t < a.templateStart.length; t++) {
+      if (a.templateStart[t] % a.nLeads !== 0) throw new RangeError(`template ${t} does not start an issue row`);
+    }
+  }
   for (let t = 0; t < a.templateStart.length; t++) {
     const s = a.templateStart[t];
     if (!(s >= 0 && s + a.templateLength <= a.templateValues.length)) throw new RangeError(`template ${t} runs past the series`);

@@ -7,9 +7,9 @@
 
 /**
  * Sorts a[0 … n−1] ascending in place. Values must be ≥ 0 (or +0) and not NaN: for those the
- * IEEE-754 bit pattern orders like the number, so sorting on the high 32-bit word nearly sorts,
- * and one insertion pass on the full value finishes values sharing a high word (relative gap
- * below 2^-20). tmp: scratch of length ≥ n; aWords/tmpWords: Uint32Array views of a and tmp;
+ * IEEE-754 bit pattern orders like the number, so sorting on the top 24 bits of the high word
+ * nearly sorts, and one insertion pass on the full value finishes values sharing them (relative
+ * gap below 2^-12). tmp: scratch of length ≥ n; aWords/tmpWords: Uint32Array views of a and tmp;
  * counts: Int32Array of length ≥ 1024.
  */
 export function sortNonNegative(
@@ -21,10 +21,11 @@ export function sortNonNegative(
   counts: Int32Array,
 ): void {
   if (n < 2) return;
+  // Digits are bytes 1–3 of the high word; the lowest byte (relative gap < 2^-12) is left to the
+  // insertion pass, which is cheaper than a fourth scatter for typical spreads.
   counts.fill(0, 0, 1024);
   for (let i = 0; i < n; i++) {
     const w = aWords[2 * i + 1];
-    counts[w & 255]++;
     counts[256 + ((w >>> 8) & 255)]++;
     counts[512 + ((w >>> 16) & 255)]++;
     counts[768 + (w >>> 24)]++;
@@ -34,7 +35,7 @@ export function sortNonNegative(
   let dst = tmp;
   let srcW = aWords;
   let dstW = tmpWords;
-  for (let pass = 0; pass < 4; pass++) {
+  for (let pass = 1; pass < 4; pass++) {
     const shift = 8 * pass;
     const base = 256 * pass;
     if (counts[base + ((w0 >>> shift) & 255)] === n) continue; // one digit for all: nothing to do
@@ -53,8 +54,8 @@ export function sortNonNegative(
     dstW = tw;
   }
   if (src !== a) a.set(src.subarray(0, n));
-  // Insertion pass for values sharing a high word. Should that be common (a pathological
-  // input), finish with the built-in sort instead.
+  // Insertion pass for values sharing the sorted bits. Should that need many moves (values
+  // packed very closely), finish with the built-in sort instead.
   let moves = 0;
   for (let i = 1; i < n; i++) {
     const v = a[i];
@@ -123,4 +124,39 @@ export function radixOrder(
     o2 = to;
   }
   if (o !== order) order.set(o.subarray(0, n));
+}
+
+/**
+ * Sorts keys[0 … n−1] ascending by bits lo … hi−1 only (LSD radix, 8 bits per pass, stable);
+ * lower bits ride along as payload (e.g. an index packed under a rank). counts: length ≥ 1024.
+ */
+export function sortPackedKeys(
+  keys: Uint32Array,
+  n: number,
+  lo: number,
+  hi: number,
+  tmp: Uint32Array,
+  counts: Int32Array,
+): void {
+  let src = keys;
+  let dst = tmp;
+  for (let shift = lo; shift < hi; shift += 8) {
+    counts.fill(0, 0, 256);
+    for (let i = 0; i < n; i++) counts[(src[i] >>> shift) & 255]++;
+    if (counts[(src[0] >>> shift) & 255] === n) continue;
+    let sum = 0;
+    for (let d = 0; d < 256; d++) {
+      const c = counts[d];
+      counts[d] = sum;
+      sum += c;
+    }
+    for (let i = 0; i < n; i++) {
+      const v = src[i];
+      dst[counts[(v >>> shift) & 255]++] = v;
+    }
+    const t = src;
+    src = dst;
+    dst = t;
+  }
+  if (src !== keys) keys.set(src.subarray(0, n));
 }
