@@ -79,6 +79,7 @@ describe('stochastic error stage', () => {
       // Quantiles are the definition-7 quantiles of the lead's values.
       const q = quantiles(shuffled, r1.probs);
       for (let p = 0; p < q.length; p++) expect(r1.quantiles[h * r1.probs.length + p]).toBeCloseTo(q[p], 12);
+      for (let p = 1; p < q.length; p++) expect(r1.quantiles[h * r1.probs.length + p]).toBeGreaterThanOrEqual(r1.quantiles[h * r1.probs.length + p - 1]);
     }
     // 3000 − 12 + 1 windows ≥ 300 draws: templates are distinct.
     expect(new Set(r1.templateIndex).size).toBe(N);
