@@ -164,6 +164,14 @@ describe.skipIf(!hasChromium)('forecast page in chromium', () => {
     for (const t of axisText) expect(t).toMatch(/^\d{1,2} (Nov|Dec)$/); // daily steps: day and month labels
     expect(await svg.locator('.axis.y text').allTextContents()).toContain('flow (m³/s)');
 
+    // pointing at the chart shows the numbers of the nearest lead time
+    const [px, py] = median.split('L')[2].replace(/^M/, '').split(',').map(Number);
+    await svg.hover({ position: { x: px, y: py } });
+    const iMed = f.quantiles.probabilities.indexOf(0.5);
+    const readout = await svg.locator('.readout text').allTextContents();
+    expect(readout[0].replace(/\u00a0/g, ' ')).toContain('3 d');
+    expectFlow(readout[1].replace('median ', '').replace(' m³/s', ''), f.quantiles.values[iMed][2]);
+
     // probability chart: one series per threshold
     expect(await page.locator('#prob-svg .series').count()).toBe(f.thresholds.length);
 

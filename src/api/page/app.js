@@ -459,8 +459,7 @@ function renderGauge(f) {
           'p',
           { class: 'degraded', role: 'alert' },
           h('strong', {}, 'Degraded: '),
-          f.degradedReason ?? 'reason not given',
-          '. The members shown are not corrected by a residual model.',
+          f.degradedReason ?? 'no reason given',
         )
       : null,
     h('dl', { class: 'facts' }, facts.map(([k, v]) => h('div', {}, h('dt', {}, k), h('dd', {}, v)))),
@@ -896,7 +895,7 @@ function flowChart(f, width, x) {
   });
   svg.append(thrG);
 
-  addHover(svg, f, xs, height, y0);
+  addHover(svg, f, xs, y0);
   return svg;
 }
 
@@ -919,7 +918,7 @@ function describeFlow(f, probs, q, thresholds) {
 }
 
 /** A crosshair with the values at the nearest lead time, for pointer users; the table has them all. */
-function addHover(svg, f, xs, height, y0) {
+function addHover(svg, f, xs, y0) {
   const probs = f.quantiles?.probabilities ?? [];
   const q = f.quantiles?.values ?? [];
   const iMed = findProb(probs, 0.5);
@@ -928,7 +927,8 @@ function addHover(svg, f, xs, height, y0) {
   const guide = s('line', { class: 'guide', y1: MARGIN.top, y2: y0, visibility: 'hidden' });
   const box = s('g', { class: 'readout', visibility: 'hidden', 'aria-hidden': 'true' });
   const bg = s('rect', { rx: 4, ry: 4 });
-  const lines = [0, 1, 2].map((k) => s('text', { y: 16 + k * 15 }));
+  const thresholds = f.thresholds ?? [];
+  const lines = Array.from({ length: 3 + thresholds.length }, (_, k) => s('text', { x: 8, y: 16 + k * 15 }));
   box.append(bg, ...lines);
   svg.append(guide, box);
   svg.addEventListener('pointermove', (ev) => {
@@ -954,12 +954,14 @@ function addHover(svg, f, xs, height, y0) {
     lines[0].textContent = `${fmtLead(f.leadTimes[j])} · ${fmtTime(f.validTimes[j])}`;
     lines[1].textContent = iMed >= 0 ? `median ${fmtFlow(q[iMed][j])} ${UNIT}` : '';
     lines[2].textContent = iLo >= 0 && iHi >= 0 ? `5–95 %: ${fmtFlow(q[iLo][j])} – ${fmtFlow(q[iHi][j])}` : '';
+    thresholds.forEach((t, k) => {
+      lines[3 + k].textContent = `> ${t.label}: ${fmtProb(t.exceedance?.[j])}`;
+    });
     const w = 190;
     const bx = xs[j] + w + 12 > svg.viewBox.baseVal.width - 4 ? xs[j] - w - 8 : xs[j] + 8;
     box.setAttribute('transform', `translate(${bx},${MARGIN.top + 4})`);
-    for (const t of lines) t.setAttribute('x', 8);
     bg.setAttribute('width', w);
-    bg.setAttribute('height', 54);
+    bg.setAttribute('height', 10 + lines.length * 15);
     box.setAttribute('visibility', 'visible');
   });
   svg.addEventListener('pointerleave', () => {
@@ -1085,6 +1087,7 @@ async function followEvents() {
     const controller = new AbortController();
     state.events.controller = controller;
     let watchdog = 0;
+    let connectedAt = 0;
     // keep-alive comments come every 15 s; silence for longer means a dead connection
     const arm = () => {
       clearTimeout(watchdog);
@@ -1102,7 +1105,7 @@ async function followEvents() {
       }
       if (!res.ok || !res.body) throw new Error(`events answered ${res.status}`);
       setLive('live', 'live');
-      delay = 1000;
+      connectedAt = Date.now();
       if (state.events.connectedOnce) void load(); // catch up on anything missed while away
       state.events.connectedOnce = true;
       await readEvents(res.body, arm, onEvent);
@@ -1112,6 +1115,8 @@ async function followEvents() {
       clearTimeout(watchdog);
     }
     if (generation !== state.events.generation) return;
+    // back to a short wait only after a connection that held; one that drops at once keeps backing off
+    if (connectedAt && Date.now() - connectedAt > 10_000) delay = 1000;
     const wait = delay + Math.round(Math.random() * 300);
     setLive('waiting', `reconnecting in ${Math.round(wait / 1000)} s`);
     await new Promise((r) => setTimeout(r, wait));
