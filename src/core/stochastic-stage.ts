@@ -139,6 +139,7 @@ export function runStochasticStage(
   const nMembers = positiveInt(input.nMembers, 'nMembers');
   const H = positiveInt(input.nLeads, 'nLeads');
   const N = positiveInt(options.nDraws ?? 1000, 'nDraws');
+  if (N > 1 << 24) throw new RangeError('nDraws must be at most 2^24');
   const nMM = nModels * nMembers;
   const members = input.members;
   if (members.length !== nMM * H) throw new RangeError(`members must hold nModels × nMembers × nLeads = ${nMM * H} values, got ${members.length}`);
@@ -173,7 +174,7 @@ export function runStochasticStage(
   for (const t of thresholds) if (!Number.isFinite(t)) throw new RangeError('thresholds must be finite');
   if (options.k !== undefined) positiveInt(options.k, 'k');
 
-  const { predictor, error, dayOfYear: caseDoy, groupStart } = archive;
+  const { predictor, dayOfYear: caseDoy, groupStart } = archive;
   let maxGroup = 0;
   const nGroups = leadFree ? 1 : archive.nLeads;
   for (let g = 0; g < nGroups; g++) maxGroup = Math.max(maxGroup, groupStart[g + 1] - groupStart[g]);
@@ -184,9 +185,22 @@ export function runStochasticStage(
   const kind = t.kind === 'none' ? 0 : t.kind === 'log' || t.lambda === 0 ? 1 : 2;
   const offset = t.kind === 'none' ? 0 : t.offset;
   const lambda = t.kind === 'boxcox' ? t.lambda : 1;
+  // In log space the draw exp(T(x) + e) − offset is computed as (x + offset)·exp(e) − offset, with
+  // exp(e) taken once per archived case instead of once per sample: tx holds x + offset and the
+  // candidate "errors" are the factors exp(e).
   const tx = workspace.f64('tx', H * nMM); // [lead·nMM + mm]
   for (let mm = 0; mm < nMM; mm++) {
-    for (let h = 0; h < H; h++) tx[h * nMM + mm] = forwardTransform(t, members[mm * H + h]);
+    for (let h = 0; h < H; h++) {
+      const x = members[mm * H + h];
+      tx[h * nMM + mm] = kind === 1 ? (x > 0 ? x : 0) + offset : forwardTransform(t, x);
+    }
+  }
+
+  let error = archive.error;
+  if (kind === 1) {
+    const factors = workspace.f64('errorFactor', error.length);
+    for (let i = 0; i < error.length; i++) factors[i] = Math.exp(error[i]);
+    error = factors;
   }
 
   // ---- neighbours: once per (lead, model·member) ---------------------------------------------
@@ -303,7 +317,8 @@ export function runStochasticStage(
     if (k !== guideK) {
       let j = 0;
       for (let bIdx = 0; bIdx < G; bIdx++) {
-        while (cum[j] <= (bIdx / G) * cTop) j++;
+        // A hair below b/G so rounding can only start the search early, never late.
+        while (cum[j] <= (bIdx / G) * cTop * (1 - 1e-12)) j++;
         guide[bIdx] = j;
       }
       guideK = k;
@@ -311,7 +326,8 @@ export function runStochasticStage(
     const txBase = h * nMM;
     const nbBase = h * nMM * kStride;
     if (kind === 0) sampleLeadAdditive(rng, N, slot, G, cTop, cum, guide, tx, txBase, nbErr, nbBase, kStride, vals);
-    else sampleLeadTransformed(rng, N, slot, G, cTop, cum, guide, tx, txBase, nbErr, nbBase, kStride, vals, kind, offset, lambda);
+    else if (kind === 1) sampleLeadLog(rng, N, slot, G, cTop, cum, guide, tx, txBase, nbErr, nbBase, kStride, vals, offset);
+    else sampleLeadBoxCox(rng, N, slot, G, cTop, cum, guide, tx, txBase, nbErr, nbBase, kStride, vals, offset, lambda);
     if (!shuffle) {
       for (let j = 0; j < N; j++) {
         const v = vals[j];
@@ -468,8 +484,8 @@ function sampleLeadAdditive(
   }
 }
 
-/** As sampleLeadAdditive, in log (kind 1) or Box–Cox (kind 2) space, back-transformed and clipped at 0. */
-function sampleLeadTransformed(
+/** As sampleLeadAdditive in log space: tx = x + offset, nbErr = exp(error); value = tx·factor − offset. */
+function sampleLeadLog(
   rng: Prng,
   N: number,
   slot: Int32Array,
@@ -483,7 +499,34 @@ function sampleLeadTransformed(
   nbBase: number,
   kStride: number,
   vals: Float64Array,
-  kind: number,
+  offset: number,
+): void {
+  for (let j = 0; j < N; j++) {
+    const mm = slot[j];
+    const u = rng.nextUniform32();
+    const target = u * cTop;
+    let idx = guide[Math.floor(u * G)];
+    while (cum[idx] <= target) idx++;
+    const v = tx[txBase + mm] * nbErr[nbBase + mm * kStride + idx] - offset;
+    vals[j] = v > 0 ? v : 0;
+  }
+}
+
+/** As sampleLeadAdditive in Box–Cox space (λ > 0), back-transformed; below the range → 0. */
+function sampleLeadBoxCox(
+  rng: Prng,
+  N: number,
+  slot: Int32Array,
+  G: number,
+  cTop: number,
+  cum: Float64Array,
+  guide: Int32Array,
+  tx: Float64Array,
+  txBase: number,
+  nbErr: Float64Array,
+  nbBase: number,
+  kStride: number,
+  vals: Float64Array,
   offset: number,
   lambda: number,
 ): void {
@@ -494,13 +537,8 @@ function sampleLeadTransformed(
     const target = u * cTop;
     let idx = guide[Math.floor(u * G)];
     while (cum[idx] <= target) idx++;
-    const z = tx[txBase + mm] + nbErr[nbBase + mm * kStride + idx];
-    let v: number;
-    if (kind === 1) v = Math.exp(z) - offset;
-    else {
-      const b = lambda * z + 1;
-      v = b > 0 ? Math.pow(b, invLambda) - offset : 0;
-    }
+    const b = lambda * (tx[txBase + mm] + nbErr[nbBase + mm * kStride + idx]) + 1;
+    const v = b > 0 ? Math.pow(b, invLambda) - offset : 0;
     vals[j] = v > 0 ? v : 0;
   }
 }

@@ -3,6 +3,7 @@ import { buildArchiveFromReforecasts, buildArchiveFromSeries, type ErrorArchive 
 import { createStochasticWorkspace, runStochasticStage } from '../../src/core/stochastic-stage.ts';
 import { createPrng } from '../../src/core/prng.ts';
 import { quantiles } from '../../src/core/quantile.ts';
+import { forwardTransform, inverseTransform } from '../../src/core/error-transform.ts';
 
 /** 9 cases with predictors 1 … 9 and errors 100·predictor, so a drawn value names its case. */
 function tinyArchive(dayOfYear?: number[]): ErrorArchive {
@@ -140,6 +141,23 @@ describe('stochastic error stage', () => {
     expect(r.quantiles[4] / r.quantiles[1]).toBeGreaterThan(8);
     const neg = runStochasticStage(a, { members: [0], nMembers: 1, nLeads: 1 }, { seed: 1, nDraws: 500, shuffle: false, probs: [0] });
     expect(neg.quantiles[0]).toBeGreaterThanOrEqual(0);
+  });
+
+  it('a draw is T⁻¹(T(member) + error), clipped at 0, in every transform space', () => {
+    for (const transform of [{ kind: 'none' }, { kind: 'log', offset: 0.5 }, { kind: 'boxcox', lambda: 0.3, offset: 0.5 }, { kind: 'boxcox', lambda: 0, offset: 0.5 }] as const) {
+      // One archived case: corrected 20, observed 26 → one error in the transform's space.
+      const a = buildArchiveFromSeries({ corrected: [20], observed: [26], dayOfYear: [1], templateLength: 1, transform: transform });
+      const e = a.error[0];
+      const members = [3, 20, 100, 0];
+      const r = runStochasticStage(a, { members, nMembers: 4, nLeads: 1 }, { seed: 1, nDraws: 400, shuffle: false, keepTrajectories: true });
+      const got = new Set(Array.from(r.trajectories!, (v) => v.toPrecision(12)));
+      const want = new Set(members.map((x) => Math.max(0, inverseTransform(a.transform, forwardTransform(a.transform, x) + e)).toPrecision(12)));
+      expect(got, transform.kind).toEqual(want);
+    }
+    // Additive error larger than the flow: clipped at 0.
+    const a = buildArchiveFromSeries({ corrected: [20], observed: [5], dayOfYear: [1], templateLength: 1 });
+    const r = runStochasticStage(a, { members: [10], nMembers: 1, nLeads: 1 }, { seed: 1, nDraws: 10, shuffle: false, probs: [0, 1] });
+    expect(Array.from(r.quantiles)).toEqual([0, 0]);
   });
 
   it('statistical check: member = truth + bias + N(0, σ²) gives a 5–95 % band → truth ± 1.645σ', () => {
