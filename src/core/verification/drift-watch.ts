@@ -3,6 +3,7 @@ import { createPrng } from '../prng.ts';
 import { binomialLowerTail } from './binomial.ts';
 import { sourceValues, type SourceName, type VerificationCase } from './case.ts';
 import { pitFromSorted } from './randomised-pit.ts';
+import { ValueSorter } from './value-sorter.ts';
 import type { ComparisonReport } from './compare-forecasts.ts';
 
 /** Validation-period level a gauge is held to. */
@@ -94,6 +95,7 @@ export function watchDrift(cases: Iterable<VerificationCase>, reference: DriftRe
 
   const rng = createPrng(options.seed ?? 1);
   let row = new Float64Array(64);
+  const sorter = new ValueSorter();
   let n = 0;
   let covered = 0;
   let crpsSum = 0;
@@ -101,12 +103,16 @@ export function watchDrift(cases: Iterable<VerificationCase>, reference: DriftRe
     const v = sourceValues(c, source)!;
     if (row.length < v.length) row = new Float64Array(v.length);
     let m = 0;
+    let min = Infinity;
     for (let i = 0; i < v.length; i++) {
       const x = v[i];
-      if (x !== null && Number.isFinite(x)) row[m++] = x;
+      if (x !== null && Number.isFinite(x)) {
+        row[m++] = x + 0;
+        if (x < min) min = x;
+      }
     }
     if (m === 0) continue;
-    const sorted = row.subarray(0, m).sort();
+    const sorted = sorter.sort(row, m, min >= 0);
     const y = c.observation as number;
     const pit = pitFromSorted(sorted, m, y, rng.nextFloat());
     n++;

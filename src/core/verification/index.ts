@@ -10,3 +10,4 @@ export * from './advice.ts';
 export * from './binomial.ts';
 export * from './drift-watch.ts';
 export * from './hindcast.ts';
+export * from './value-sorter.ts';

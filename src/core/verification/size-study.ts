@@ -6,6 +6,7 @@ import { sourceValues, type SourceName, type VerificationCase } from './case.ts'
 import { GrowableF64 } from './growable.ts';
 import { jsonNumber } from './json-number.ts';
 import { pitCoverage, pitFromSorted } from './randomised-pit.ts';
+import { ValueSorter } from './value-sorter.ts';
 
 /**
  * Ensemble-size study: how much do more members buy? For each case and repeat, members are
@@ -28,8 +29,11 @@ export interface SizeStudyOptions {
   /** Random draws per case and size (default 20). */
   repeats?: number;
   seed?: number;
-  /** Use every n-th case only (default 1), to bound the cost on long hindcasts. */
-  caseStride?: number;
+  /**
+   * Share of cases studied (default 1 = all), to bound the cost on long hindcasts. Cases are
+   * picked at random (seeded), not every n-th, so the pick does not follow the lead-time cycle.
+   */
+  caseFraction?: number;
   /** Central interval level for width and coverage (default 0.95). */
   level?: number;
 }
@@ -55,7 +59,7 @@ export interface SizeStudyResult {
   members: number;
   level: number;
   repeats: number;
-  caseStride: number;
+  caseFraction: number;
   rows: SizeStudyRow[];
 }
 
@@ -76,10 +80,10 @@ export class SizeStudyAccumulator {
   private perm = new Int32Array(0);
   private permM = -1;
   private buf = new Float64Array(0);
-  private seen = 0;
+  private readonly sorter = new ValueSorter();
   private members = 0;
   readonly repeats: number;
-  readonly caseStride: number;
+  readonly caseFraction: number;
   readonly level: number;
   private readonly rng: Prng;
 
@@ -89,10 +93,10 @@ export class SizeStudyAccumulator {
     stream: number,
   ) {
     this.repeats = options.repeats ?? 20;
-    this.caseStride = options.caseStride ?? 1;
+    this.caseFraction = options.caseFraction ?? 1;
     this.level = options.level ?? 0.95;
     if (!Number.isInteger(this.repeats) || this.repeats < 1) throw new RangeError('repeats must be a positive integer');
-    if (!Number.isInteger(this.caseStride) || this.caseStride < 1) throw new RangeError('caseStride must be a positive integer');
+    if (!(this.caseFraction > 0 && this.caseFraction <= 1)) throw new RangeError('caseFraction must be in (0, 1]');
     if (!(this.level > 0 && this.level < 1)) throw new RangeError('level must be in (0, 1)');
     this.rng = createPrng(options.seed ?? 1, stream);
   }
@@ -115,7 +119,7 @@ export class SizeStudyAccumulator {
 
   /** Adds one case: its m finite values (any order) and observation y. */
   add(values: ArrayLike<number>, m: number, y: number): void {
-    if (this.seen++ % this.caseStride !== 0 || m < 1) return;
+    if (m < 1 || (this.caseFraction < 1 && this.rng.nextFloat() >= this.caseFraction)) return;
     const sums = (this.sums ??= this.init(m));
     if (this.permM !== m) {
       // Any permutation of 0 … m−1 works as the start of a partial Fisher–Yates shuffle.
@@ -140,9 +144,14 @@ export class SizeStudyAccumulator {
       for (const s of sums) {
         const k = s.size;
         if (k > m) break;
-        const sub = this.buf.subarray(0, k);
-        for (let i = 0; i < k; i++) sub[i] = values[perm[i]];
-        sub.sort();
+        const buf = this.buf;
+        let min = Infinity;
+        for (let i = 0; i < k; i++) {
+          const v = values[perm[i]];
+          buf[i] = v + 0;
+          if (v < min) min = v;
+        }
+        const sub = this.sorter.sort(buf, k, min >= 0);
         s.crps += crpsSorted(sub, y);
         if (k >= 2) s.fair += crpsSorted(sub, y, true);
         const a = quantileSorted(sub, lo);
@@ -180,7 +189,7 @@ export class SizeStudyAccumulator {
         alphaIndexSd: jsonNumber(asd),
       };
     });
-    return { source: this.source, members: this.members, level: this.level, repeats: this.repeats, caseStride: this.caseStride, rows };
+    return { source: this.source, members: this.members, level: this.level, repeats: this.repeats, caseFraction: this.caseFraction, rows };
   }
 }
 

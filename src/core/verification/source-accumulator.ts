@@ -5,6 +5,7 @@ import { quantileSorted } from '../quantile.ts';
 import { GrowableF64 } from './growable.ts';
 import { HersbachAccumulator } from './hersbach-accumulator.ts';
 import { pitFromSorted } from './randomised-pit.ts';
+import { ValueSorter } from './value-sorter.ts';
 
 /**
  * Per-forecast (raw, corrected or stochastic) running state of a comparison. Each case is
@@ -16,6 +17,8 @@ import { pitFromSorted } from './randomised-pit.ts';
 export class SourceAccumulator {
   private row = new Float64Array(64);
   private m = 0;
+  private nonNegative = true;
+  private readonly sorter = new ValueSorter();
   readonly crps = new GrowableF64();
   readonly fairCrps = new GrowableF64();
   readonly pit = new GrowableF64();
@@ -46,18 +49,23 @@ export class SourceAccumulator {
     if (this.row.length < values.length) this.row = new Float64Array(values.length);
     const row = this.row;
     let m = 0;
+    let min = Infinity;
     for (let i = 0; i < values.length; i++) {
       const v = values[i];
-      if (v !== null && Number.isFinite(v)) row[m++] = v;
+      if (v !== null && Number.isFinite(v)) {
+        row[m++] = v + 0; // −0 → +0
+        if (v < min) min = v;
+      }
     }
     this.m = m;
+    this.nonNegative = min >= 0;
     return m;
   }
 
   /** Scores the loaded case against observation y; returns the sorted row (valid until the next load). */
   commit(y: number): Float64Array {
     const m = this.m;
-    const sorted = this.row.subarray(0, m).sort();
+    const sorted = this.sorter.sort(this.row, m, this.nonNegative);
     if (m < this.minMembers) this.minMembers = m;
     if (m > this.maxMembers) this.maxMembers = m;
     this.crps.push(crpsSorted(sorted, y));
