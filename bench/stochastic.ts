@@ -25,7 +25,7 @@ function flowOn(day: number): number {
 }
 
 // (a) Lead-free archive: 20 years of daily corrected flow and observations.
-function seriesArchive(transform: 'none' | 'log'): ErrorArchive {
+function seriesArchive(transform: 'none' | 'log' | 'boxcox'): ErrorArchive {
   const S = 20 * 365;
   const corrected = new Float64Array(S);
   const observed = new Float64Array(S);
@@ -42,7 +42,7 @@ function seriesArchive(transform: 'none' | 'log'): ErrorArchive {
     observed,
     dayOfYear,
     templateLength: nLeads,
-    transform: transform === 'log' ? { kind: 'log' } : { kind: 'none' },
+    transform: transform === 'log' ? { kind: 'log' } : transform === 'boxcox' ? { kind: 'boxcox', lambda: 0.3 } : { kind: 'none' },
   });
 }
 
@@ -74,10 +74,12 @@ const cases: { name: string; archive: ErrorArchive; options: Partial<StochasticO
 const t0 = performance.now();
 const lf = seriesArchive('none');
 const lfLog = seriesArchive('log');
+const lfBoxCox = seriesArchive('boxcox');
 const rf = reforecastArchive();
 const buildMs = performance.now() - t0;
 cases.push({ name: 'lead-free 20 y daily, additive', archive: lf, options: {} });
 cases.push({ name: 'lead-free 20 y daily, log, ±30 d', archive: lfLog, options: { seasonalWindowDays: 30 } });
+cases.push({ name: 'lead-free 20 y daily, Box–Cox 0.3', archive: lfBoxCox, options: {} });
 cases.push({ name: 'reforecast 240 × 300, additive', archive: rf, options: {} });
 cases.push({ name: 'lead-free additive, no shuffle', archive: lf, options: { shuffle: false } });
 

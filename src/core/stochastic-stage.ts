@@ -185,22 +185,25 @@ export function runStochasticStage(
   const kind = t.kind === 'none' ? 0 : t.kind === 'log' || t.lambda === 0 ? 1 : 2;
   const offset = t.kind === 'none' ? 0 : t.offset;
   const lambda = t.kind === 'boxcox' ? t.lambda : 1;
-  // In log space the draw exp(T(x) + e) − offset is computed as (x + offset)·exp(e) − offset, with
-  // exp(e) taken once per archived case instead of once per sample: tx holds x + offset and the
-  // candidate "errors" are the factors exp(e).
+  // Transcendental work moved out of the per-sample loop: in log space the draw
+  // exp(T(x) + e) − offset is computed as (x + offset)·exp(e) − offset, with exp(e) taken once per
+  // archived case; tx holds x + offset and the candidate "errors" are the factors exp(e).
   const tx = workspace.f64('tx', H * nMM); // [lead·nMM + mm]
   for (let mm = 0; mm < nMM; mm++) {
     for (let h = 0; h < H; h++) {
       const x = members[mm * H + h];
-      tx[h * nMM + mm] = kind === 1 ? (x > 0 ? x : 0) + offset : forwardTransform(t, x);
+      // Box–Cox: λ·T(x) + 1 = (x + offset)^λ, so a draw is (tx + λ·e)^(1/λ) − offset.
+      tx[h * nMM + mm] = kind === 1 ? (x > 0 ? x : 0) + offset : kind === 2 ? lambda * forwardTransform(t, x) + 1 : forwardTransform(t, x);
     }
   }
 
   let error = archive.error;
-  if (kind === 1) {
-    const factors = workspace.f64('errorFactor', error.length);
-    for (let i = 0; i < error.length; i++) factors[i] = Math.exp(error[i]);
-    error = factors;
+  if (kind !== 0) {
+    // Per-case terms prepared once per call: exp(e) in log space, λ·e in Box–Cox space.
+    const terms = workspace.f64('errorTerm', error.length);
+    if (kind === 1) for (let i = 0; i < error.length; i++) terms[i] = Math.exp(error[i]);
+    else for (let i = 0; i < error.length; i++) terms[i] = lambda * error[i];
+    error = terms;
   }
 
   // ---- neighbours: once per (lead, model·member) ---------------------------------------------
@@ -512,7 +515,10 @@ function sampleLeadLog(
   }
 }
 
-/** As sampleLeadAdditive in Box–Cox space (λ > 0), back-transformed; below the range → 0. */
+/**
+ * As sampleLeadAdditive in Box–Cox space (λ > 0): tx = (x + offset)^λ, nbErr = λ·e; value =
+ * (tx + λe)^(1/λ) − offset, as exp(ln(·)/λ) (2–3× faster than Math.pow here); below the range → 0.
+ */
 function sampleLeadBoxCox(
   rng: Prng,
   N: number,
@@ -531,14 +537,24 @@ function sampleLeadBoxCox(
   lambda: number,
 ): void {
   const invLambda = 1 / lambda;
+  // λ = 1/2, 1/3, 1/4 (square-root-like transforms) back-transform with plain products.
+  const n = Math.round(invLambda);
+  const integerPower = n >= 1 && n <= 4 && Math.abs(invLambda - n) < 1e-9 ? n : 0;
   for (let j = 0; j < N; j++) {
     const mm = slot[j];
     const u = rng.nextUniform32();
     const target = u * cTop;
     let idx = guide[Math.floor(u * G)];
     while (cum[idx] <= target) idx++;
-    const b = lambda * (tx[txBase + mm] + nbErr[nbBase + mm * kStride + idx]) + 1;
-    const v = b > 0 ? Math.pow(b, invLambda) - offset : 0;
+    const b = tx[txBase + mm] + nbErr[nbBase + mm * kStride + idx];
+    let v = 0;
+    if (b > 0) {
+      if (integerPower === 2) v = b * b - offset;
+      else if (integerPower === 3) v = b * b * b - offset;
+      else if (integerPower === 4) v = b * b * (b * b) - offset;
+      else if (integerPower === 1) v = b - offset;
+      else v = Math.exp(Math.log(b) * invLambda) - offset;
+    }
     vals[j] = v > 0 ? v : 0;
   }
 }

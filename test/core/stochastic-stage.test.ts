@@ -144,7 +144,7 @@ describe('stochastic error stage', () => {
   });
 
   it('a draw is T⁻¹(T(member) + error), clipped at 0, in every transform space', () => {
-    for (const transform of [{ kind: 'none' }, { kind: 'log', offset: 0.5 }, { kind: 'boxcox', lambda: 0.3, offset: 0.5 }, { kind: 'boxcox', lambda: 0, offset: 0.5 }] as const) {
+    for (const transform of [{ kind: 'none' }, { kind: 'log', offset: 0.5 }, { kind: 'boxcox', lambda: 0.3, offset: 0.5 }, { kind: 'boxcox', lambda: 0.5, offset: 0.5 }, { kind: 'boxcox', lambda: 1 / 3, offset: 0.5 }, { kind: 'boxcox', lambda: 0, offset: 0.5 }] as const) {
       // One archived case: corrected 20, observed 26 → one error in the transform's space.
       const a = buildArchiveFromSeries({ corrected: [20], observed: [26], dayOfYear: [1], templateLength: 1, transform: transform });
       const e = a.error[0];
