@@ -4,6 +4,7 @@ import { createStochasticWorkspace, runStochasticStage } from '../../src/core/st
 import { createPrng } from '../../src/core/prng.ts';
 import { quantiles } from '../../src/core/quantile.ts';
 import { forwardTransform, inverseTransform } from '../../src/core/error-transform.ts';
+import { normalQuantile } from '../../src/core/normal.ts';
 
 /** 9 cases with predictors 1 … 9 and errors 100·predictor, so a drawn value names its case. */
 function tinyArchive(dayOfYear?: number[]): ErrorArchive {
@@ -207,6 +208,51 @@ describe('stochastic error stage', () => {
     // case to case and covers less than nominal (observed here: 0.83). Bounds: binomial SE 0.015.
     expect(covered / nNew).toBeGreaterThan(0.8);
     expect(covered / nNew).toBeLessThan(0.92);
+  });
+
+  it('statistical check: with autocorrelated errors the shuffle gets "exceeded at any time" right', () => {
+    // Errors follow a stationary AR(1) with φ = 0.95, σ = 1 (invented process). The member is 10 at
+    // every lead, so every lead resamples the same neighbours and has the same marginal exceedance p̂
+    // of the threshold. The kernel's few effective neighbours make p̂ itself noisy, so the reference is
+    // built on the stage's own marginal: by Monte Carlo, P(max over 10 leads of the AR(1) > z*) with
+    // z* = Φ⁻¹(1 − p̂). Without the shuffle the leads are independent: 1 − (1 − p̂)^10.
+    const g = createPrng(31);
+    const phi = 0.95;
+    const innov = Math.sqrt(1 - phi * phi);
+    const S = 20000;
+    const corrected = Float64Array.from({ length: S }, () => 9 + 2 * g.nextFloat());
+    let e = g.normal();
+    const observed = Float64Array.from(corrected, (c) => {
+      e = phi * e + innov * g.normal();
+      return c + e;
+    });
+    const H = 10;
+    const a = buildArchiveFromSeries({ corrected, observed, dayOfYear: Array.from({ length: S }, () => 1), templateLength: H });
+    const input = { members: new Float64Array(H).fill(10), nMembers: 1, nLeads: H };
+    const opts = { seed: 4, nDraws: 4000, thresholds: [12] };
+    const r = runStochasticStage(a, input, opts);
+    const independent = runStochasticStage(a, input, { ...opts, shuffle: false }).exceedanceAnyTime[0];
+    let pHat = 0;
+    for (let h = 0; h < H; h++) pHat += r.exceedance[h] / H;
+    for (let h = 0; h < H; h++) expect(Math.abs(r.exceedance[h] - pHat)).toBeLessThan(0.02);
+    const z = normalQuantile(1 - pHat);
+    const paths = 200000;
+    let hits = 0;
+    for (let p = 0; p < paths; p++) {
+      let x = g.normal();
+      let m = x;
+      for (let h = 1; h < H; h++) {
+        x = phi * x + innov * g.normal();
+        if (x > m) m = x;
+      }
+      if (m > z) hits++;
+    }
+    const reference = hits / paths;
+    // Binomial SE with 4000 draws ≈ 0.005; the templates (4000 windows of one 20 000-step series,
+    // ~500 independent stretches) add some more: ±0.02.
+    expect(Math.abs(r.exceedanceAnyTime[0] - reference)).toBeLessThan(0.02);
+    expect(Math.abs(independent - (1 - (1 - pHat) ** H))).toBeLessThan(0.03);
+    expect(independent).toBeGreaterThan(2 * reference);
   });
 
   it('rejects bad input with clear messages', () => {
