@@ -1,4 +1,6 @@
+import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
+import { nearestSorted } from '../../src/core/knn.ts';
 import { buildArchiveFromReforecasts, buildArchiveFromSeries, type ErrorArchive } from '../../src/core/error-archive.ts';
 import { createStochasticWorkspace, runStochasticStage } from '../../src/core/stochastic-stage.ts';
 import { createPrng } from '../../src/core/prng.ts';
@@ -30,6 +32,33 @@ describe('stochastic error stage', () => {
     expect(Math.abs(count.get(505)! / n - 6 / 11)).toBeLessThan(5 * se(6 / 11));
     expect(Math.abs(count.get(405)! / n - 3 / 11)).toBeLessThan(5 * se(3 / 11));
     expect(Math.abs(count.get(605)! / n - 2 / 11)).toBeLessThan(5 * se(2 / 11));
+  });
+
+  it('property: the stage draws exactly from the k nearest cases of nearestSorted (ties included)', () => {
+    fc.assert(
+      fc.property(
+        fc.array(fc.integer({ min: 0, max: 20 }), { minLength: 1, maxLength: 30 }),
+        fc.integer({ min: -2, max: 22 }),
+        fc.integer({ min: 1, max: 5 }),
+        (preds, x, kWanted) => {
+          // Error of case i is 1000·(i + 1), so a draw names its case.
+          const a = buildArchiveFromSeries({
+            corrected: preds,
+            observed: preds.map((p, i) => p + 1000 * (i + 1)),
+            dayOfYear: preds.map(() => 1),
+            templateLength: 1,
+          });
+          const k = Math.min(kWanted, preds.length);
+          const r = runStochasticStage(a, { members: [x], nMembers: 1, nLeads: 1 }, { seed: 1, nDraws: 2000, k, shuffle: false, keepTrajectories: true });
+          const out = new Float64Array(k);
+          nearestSorted(a.predictor, a.error, 0, a.predictor.length, x, k, out);
+          const want = new Set(Array.from(out, (e) => Math.max(0, x) + e));
+          const got = new Set(r.trajectories);
+          return got.size === want.size && [...got].every((v) => want.has(v));
+        },
+      ),
+      { numRuns: 60 },
+    );
   });
 
   it('keeps to the seasonal window (circular) and falls back to all cases when it is empty', () => {
