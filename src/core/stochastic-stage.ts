@@ -297,6 +297,15 @@ export function runStochasticStage(
   const exceedance = new Float64Array(nT * H);
   const trajectories = options.keepTrajectories ? new Float64Array(N * H) : null;
   const trajMax = workspace.f64('trajMax', N).fill(-Infinity, 0, N);
+  // Box–Cox draws stay in the working space b = (x + offset)^λ + λe, floored at offset^λ (flow 0):
+  // the back-transform is increasing there, so sorting, ranks, maxima and threshold tests can all
+  // be done on b, and only the values actually reported are back-transformed (no exp/log per
+  // sample). Other spaces work on flows directly. invLambdaOut = 0 marks flow space.
+  const invLambdaOut = kind === 2 ? 1 / lambda : 0;
+  const boxCoxFloor = kind === 2 ? Math.exp(Math.log(offset) * lambda) : 0; // offset^λ (0 when offset = 0)
+  const workThresholds = Float64Array.from(thresholds, (t) =>
+    kind !== 2 ? t : t < 0 ? -Infinity : Math.exp(Math.log(t + offset) * lambda),
+  );
   const vals = workspace.f64('vals', N);
   const valsTmp = workspace.f64('valsTmp', N);
   const valsWords = new Uint32Array(vals.buffer, vals.byteOffset, 2 * vals.length);
@@ -330,28 +339,30 @@ export function runStochasticStage(
     const nbBase = h * nMM * kStride;
     if (kind === 0) sampleLeadAdditive(rng, N, slot, G, cTop, cum, guide, tx, txBase, nbErr, nbBase, kStride, vals);
     else if (kind === 1) sampleLeadLog(rng, N, slot, G, cTop, cum, guide, tx, txBase, nbErr, nbBase, kStride, vals, offset);
-    else sampleLeadBoxCox(rng, N, slot, G, cTop, cum, guide, tx, txBase, nbErr, nbBase, kStride, vals, offset, lambda);
+    else sampleLeadBoxCox(rng, N, slot, G, cTop, cum, guide, tx, txBase, nbErr, nbBase, kStride, vals, boxCoxFloor);
     if (!shuffle) {
       for (let j = 0; j < N; j++) {
         const v = vals[j];
         if (v > trajMax[j]) trajMax[j] = v;
-        if (trajectories) trajectories[j * H + h] = v;
+        if (trajectories) trajectories[j * H + h] = invLambdaOut ? boxCoxFlow(v, invLambdaOut, offset) : v;
       }
     }
     sortNonNegative(vals, N, valsTmp, valsWords, tmpWords, counts);
     const sorted = vals;
-    for (let q = 0; q < nP; q++) quantiles[h * nP + q] = quantileSorted(sorted, probs[q], 0, N);
-    for (let ti = 0; ti < nT; ti++) exceedance[ti * H + h] = countAboveSorted(sorted, thresholds[ti], 0, N) / N;
+    for (let q = 0; q < nP; q++) {
+      quantiles[h * nP + q] = invLambdaOut ? boxCoxQuantile(sorted, probs[q], N, invLambdaOut, offset) : quantileSorted(sorted, probs[q], 0, N);
+    }
+    for (let ti = 0; ti < nT; ti++) exceedance[ti * H + h] = countAboveSorted(sorted, workThresholds[ti], 0, N) / N;
     if (shuffle) {
       // Rank order of this lead's template values (ties by draw index).
       if (packed) {
         for (let j = 0; j < N; j++) keys[j] = ((rank[tBase[j] + h] << drawBits) | j) >>> 0;
         sortPackedKeys(keys, N, drawBits, drawBits + rankBits, keysTmp, counts);
-        assignByPackedRank(N, keys, (1 << drawBits) - 1, vals, trajMax, trajectories, H, h);
+        assignByPackedRank(N, keys, (1 << drawBits) - 1, vals, trajMax, trajectories, H, h, invLambdaOut, offset);
       } else {
         for (let j = 0; j < N; j++) keys[j] = rank[tBase[j] + h];
         radixOrder(keys, N, rankBits, order, keysTmp, orderTmp, counts);
-        assignByRank(N, order, vals, trajMax, trajectories, H, h);
+        assignByRank(N, order, vals, trajMax, trajectories, H, h, invLambdaOut, offset);
       }
     }
   }
@@ -360,7 +371,7 @@ export function runStochasticStage(
   const firstLikelyLead: (number | null)[] = [];
   for (let ti = 0; ti < nT; ti++) {
     let c = 0;
-    for (let j = 0; j < N; j++) if (trajMax[j] > thresholds[ti]) c++;
+    for (let j = 0; j < N; j++) if (trajMax[j] > workThresholds[ti]) c++;
     exceedanceAnyTime[ti] = c / N;
     let first: number | null = null;
     for (let h = 0; h < H; h++) {
@@ -516,8 +527,8 @@ function sampleLeadLog(
 }
 
 /**
- * As sampleLeadAdditive in Box–Cox space (λ > 0): tx = (x + offset)^λ, nbErr = λ·e; value =
- * (tx + λe)^(1/λ) − offset, as exp(ln(·)/λ) (2–3× faster than Math.pow here); below the range → 0.
+ * As sampleLeadAdditive in Box–Cox space (λ > 0): tx = (x + offset)^λ, nbErr = λ·e; writes the
+ * working value b = tx + λe floored at offset^λ (where the flow reaches 0); see boxCoxFlow.
  */
 function sampleLeadBoxCox(
   rng: Prng,
@@ -533,13 +544,8 @@ function sampleLeadBoxCox(
   nbBase: number,
   kStride: number,
   vals: Float64Array,
-  offset: number,
-  lambda: number,
+  floor: number,
 ): void {
-  const invLambda = 1 / lambda;
-  // λ = 1/2, 1/3, 1/4 (square-root-like transforms) back-transform with plain products.
-  const n = Math.round(invLambda);
-  const integerPower = n >= 1 && n <= 4 && Math.abs(invLambda - n) < 1e-9 ? n : 0;
   for (let j = 0; j < N; j++) {
     const mm = slot[j];
     const u = rng.nextUniform32();
@@ -547,16 +553,24 @@ function sampleLeadBoxCox(
     let idx = guide[Math.floor(u * G)];
     while (cum[idx] <= target) idx++;
     const b = tx[txBase + mm] + nbErr[nbBase + mm * kStride + idx];
-    let v = 0;
-    if (b > 0) {
-      if (integerPower === 2) v = b * b - offset;
-      else if (integerPower === 3) v = b * b * b - offset;
-      else if (integerPower === 4) v = b * b * (b * b) - offset;
-      else if (integerPower === 1) v = b - offset;
-      else v = Math.exp(Math.log(b) * invLambda) - offset;
-    }
-    vals[j] = v > 0 ? v : 0;
+    vals[j] = b > floor ? b : floor;
   }
+}
+
+/** Flow of a Box–Cox working value b ≥ offset^λ: b^(1/λ) − offset, as exp(ln(b)/λ), ≥ 0. */
+function boxCoxFlow(b: number, invLambda: number, offset: number): number {
+  const v = Math.exp(Math.log(b) * invLambda) - offset;
+  return v > 0 ? v : 0;
+}
+
+/** Definition-7 quantile in flow space from ascending working values (two back-transforms). */
+function boxCoxQuantile(sorted: Float64Array, p: number, n: number, invLambda: number, offset: number): number {
+  const hq = (n - 1) * p;
+  const lo = Math.floor(hq);
+  const a = boxCoxFlow(sorted[lo], invLambda, offset);
+  if (lo >= n - 1) return a;
+  const f = hq - lo;
+  return f === 0 ? a : a + f * (boxCoxFlow(sorted[lo + 1], invLambda, offset) - a);
 }
 
 /** Schaake assignment: the draw whose template ranks p-th receives the p-th smallest value. */
@@ -568,12 +582,14 @@ function assignByRank(
   trajectories: Float64Array | null,
   H: number,
   h: number,
+  invLambdaOut: number,
+  offset: number,
 ): void {
   for (let p = 0; p < N; p++) {
     const j = order[p];
     const v = sorted[p];
     if (v > trajMax[j]) trajMax[j] = v;
-    if (trajectories !== null) trajectories[j * H + h] = v;
+    if (trajectories !== null) trajectories[j * H + h] = invLambdaOut ? boxCoxFlow(v, invLambdaOut, offset) : v;
   }
 }
 
@@ -587,11 +603,13 @@ function assignByPackedRank(
   trajectories: Float64Array | null,
   H: number,
   h: number,
+  invLambdaOut: number,
+  offset: number,
 ): void {
   for (let p = 0; p < N; p++) {
     const j = keys[p] & mask;
     const v = sorted[p];
     if (v > trajMax[j]) trajMax[j] = v;
-    if (trajectories !== null) trajectories[j * H + h] = v;
+    if (trajectories !== null) trajectories[j * H + h] = invLambdaOut ? boxCoxFlow(v, invLambdaOut, offset) : v;
   }
 }

@@ -190,6 +190,34 @@ describe('stochastic error stage', () => {
     expect(Array.from(r.quantiles)).toEqual([0, 0]);
   });
 
+  it('Box–Cox results (worked out in the transform space) agree with the returned flow trajectories', () => {
+    const g = createPrng(12);
+    const S = 2000;
+    const corrected = Float64Array.from({ length: S }, () => 40 * g.nextFloat());
+    const observed = Float64Array.from(corrected, (c) => Math.max(0, c + (1 + 0.2 * c) * g.normal()));
+    const H = 6;
+    for (const offset of [0, 0.3]) {
+      const a = buildArchiveFromSeries({ corrected, observed, dayOfYear: Array.from({ length: S }, () => 1), templateLength: H, transform: { kind: 'boxcox', lambda: 0.3, offset } });
+      const members = Float64Array.from({ length: 3 * H }, () => 40 * g.nextFloat());
+      const thresholds = [0, 5, 20, 35];
+      const N = 500;
+      const r = runStochasticStage(a, { members, nMembers: 3, nLeads: H }, { seed: 3, nDraws: N, thresholds, keepTrajectories: true });
+      const tr = r.trajectories!;
+      for (let h = 0; h < H; h++) {
+        const lead = Array.from({ length: N }, (_, j) => tr[j * H + h]);
+        const q = quantiles(lead, r.probs);
+        q.forEach((v, i) => expect(r.quantiles[h * r.probs.length + i]).toBeCloseTo(v, 9));
+        thresholds.forEach((t, ti) => expect(r.exceedance[ti * H + h]).toBe(lead.filter((v) => v > t).length / N));
+      }
+      thresholds.forEach((t, ti) => {
+        let c = 0;
+        for (let j = 0; j < N; j++) if (tr.subarray(j * H, (j + 1) * H).some((v) => v > t)) c++;
+        expect(r.exceedanceAnyTime[ti]).toBe(c / N);
+      });
+      expect(Math.min(...tr)).toBeGreaterThanOrEqual(0);
+    }
+  });
+
   it('statistical check: member = truth + bias + N(0, σ²) gives a 5–95 % band → truth ± 1.645σ', () => {
     // Same process for archive and new cases. The predictive distribution given a member value c is
     // N(c − bias, σ²) when truth varies widely, so the band is (c − bias) ± 1.645σ (normal table),
