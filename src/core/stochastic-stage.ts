@@ -31,6 +31,14 @@ import { forwardTransform } from './error-transform.ts';
  *
  * Everything is determined by the seed. Large buffers live in a reusable workspace; nothing is
  * allocated per sample.
+ *
+ * Caller's side of the contract: lead index h of the forecast uses the archive's lead h
+ * (reforecast archives); the archive's time step equals the forecast's (lead-free templates are
+ * windows of consecutive archive steps); a workspace serves one call at a time (one per worker).
+ * Known property of the method: the 1/j kernel leans on the nearest few cases (effective sample
+ * 1/Σw_j² ≈ 16 at k = 100), so single-case bands come out slightly narrow and central-interval
+ * coverage a few points under nominal (tests: ~0.83 for a nominal 0.90 at k = 100); a larger k
+ * moves it towards nominal at the cost of locality.
  */
 
 export const DEFAULT_QUANTILE_PROBS: readonly number[] = [0.05, 0.1, 0.25, 0.5, 0.75, 0.9, 0.95];
