@@ -23,6 +23,10 @@ export default defineConfig({
         extends: true,
         test: { name: 'embedded', include: storeTests, env: { TEST_STORE: 'embedded' } },
       },
+      {
+        extends: true,
+        test: { name: 'page', include: ['test/page/**/*.test.ts'], env: { TEST_STORE: 'postgres' }, globalSetup: ['test/helpers/postgres-setup.ts'] },
+      },
     ],
   },
 });

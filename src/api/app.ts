@@ -9,6 +9,7 @@ import { forecastRoutes } from './forecasts.ts';
 import { Metrics } from './metrics-registry.ts';
 import { metricsRoutes } from './metrics.ts';
 import { overviewRoutes } from './overview.ts';
+import { pageRoutes } from './page.ts';
 import { runRoutes } from './runs.ts';
 import type { Services } from './context.ts';
 import { forcingRoutes } from './forcings.ts';
@@ -90,6 +91,7 @@ export async function buildApp(options: AppOptions): Promise<FastifyInstance> {
   await app.register(overviewRoutes, { services });
   await app.register(eventRoutes, { services });
   await app.register(metricsRoutes, { services });
+  await app.register(pageRoutes, { services });
   return app;
 }
 

@@ -15,7 +15,9 @@ export function authHook(services: Services) {
   const cache = new Map<string, { principal: { tokenId: string; role: Role }; until: number }>();
 
   return async function checkToken(request: FastifyRequest): Promise<void> {
-    const required = request.routeOptions.config?.role ?? (request.routeOptions.url ? 'admin' : 'open');
+    // Unknown paths fall through to the 404 answer; every real route declares its role.
+    if (request.is404) return;
+    const required = request.routeOptions.config?.role ?? 'admin';
     if (required === 'open' || services.config.AUTH === 'off') return;
 
     const header = request.headers.authorization ?? '';

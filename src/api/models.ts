@@ -12,6 +12,7 @@ import {
   getModelVersion,
   insertModelVersion,
   listModelVersions,
+  modelParts,
   previousActivatedVersion,
 } from '../store/models-repo.ts';
 import { GaugeParams, requireGauge } from './archive-common.ts';
@@ -30,9 +31,13 @@ const Transform = z.discriminatedUnion('kind', [
 
 const TrainerParams = z.record(z.string(), z.number().finite());
 
+const boostingParams = ['nRounds', 'learningRate', 'maxDepth', 'lambda', 'gamma', 'minChildWeight', 'rowSample', 'colSample', 'maxBins', 'patience', 'baseScore'];
+const forestParams = ['nTrees', 'maxDepth', 'mtry', 'minLeafRows', 'sampleFraction', 'maxBins'];
+
 export const FitBody = z.strictObject({
   trainer: z.enum(['gradient-boosting', 'random-forest']).default('gradient-boosting'),
-  params: TrainerParams.default({ nRounds: 400, learningRate: 0.08, maxDepth: 5, patience: 30 }),
+  /** Trainer parameters; unset ones take the trainer's defaults. */
+  params: TrainerParams.optional(),
   tuning: z
     .strictObject({ evaluations: z.number().int().min(2).max(100).default(25), initial: z.number().int().min(2).max(50).default(8) })
     .nullable()
@@ -50,7 +55,15 @@ export const FitBody = z.strictObject({
   maxTrainRows: z.number().int().min(100).max(2_000_000).default(200_000),
   activate: z.boolean().default(true),
   label: z.string().min(1).max(100).optional(),
-});
+}).superRefine((body, ctx) => {
+  const allowed = body.trainer === 'gradient-boosting' ? boostingParams : forestParams;
+  for (const name of Object.keys(body.params ?? {})) {
+    if (!allowed.includes(name)) ctx.addIssue({ code: 'custom', path: ['params', name], message: `not a ${body.trainer} parameter; known: ${allowed.join(', ')}` });
+  }
+}).transform((body) => ({
+  ...body,
+  params: body.params ?? (body.trainer === 'gradient-boosting' ? { nRounds: 400, learningRate: 0.08, maxDepth: 5, patience: 30 } : { nTrees: 200, maxDepth: 10 }),
+}));
 
 const MAX_UPLOAD_BYTES = 20 * 1024 * 1024;
 
@@ -71,6 +84,12 @@ const VersionParams = z.object({ id: GaugeParams.shape.id, version: z.string().r
 
 export async function modelRoutes(app: FastifyInstance, { services }: { services: Services }) {
   const { db } = services;
+  // Load a newly active version into every correction worker now, not on the next run.
+  const warm = (v: { id: string; featureSpec: unknown }) => {
+    services.pool.warm({ versionId: v.id, load: async () => ({ parts: await modelParts(db, v.id), spec: v.featureSpec }) }).catch((err: Error) => {
+      app.log.warn({ version: v.id, err: err.message }, 'could not warm the model in the correction workers');
+    });
+  };
 
   addRoute(app, services, { method: 'POST', url: '/gauges/:id/models/fit', summary: 'Start fitting (and optionally tuning) a residual model; answers at once with a job', tag: 'models', role: 'admin', params: GaugeParams, body: FitBody }, async (req, reply) => {
     const gauge = await requireGauge(db, req.params);
@@ -163,6 +182,9 @@ export async function modelRoutes(app: FastifyInstance, { services }: { services
       if (!(await getModelVersion(tx, id, version))) throw notFound(`no model version ${version} for gauge ${id}`);
       await activateModelVersion(tx, id, version);
       return getModelVersion(tx, id, version);
+    }).then((v) => {
+      warm(v!);
+      return v;
     });
   });
 
@@ -174,6 +196,9 @@ export async function modelRoutes(app: FastifyInstance, { services }: { services
       if (!previous) throw conflict(`gauge ${gauge.id} has no earlier active version to roll back to`);
       await activateModelVersion(tx, gauge.id, previous);
       return { rolledBackFrom: current?.id ?? null, active: await getModelVersion(tx, gauge.id, previous) };
+    }).then((r) => {
+      warm(r.active!);
+      return r;
     });
   });
 

@@ -16,7 +16,12 @@ import { MemberId, Rfc3339 } from './schemas.ts';
 import { checkFlowUnit, checkTimes, isoUtc } from './series-input.ts';
 import { parseWith } from './validate.ts';
 
-const PERCENTILES = Array.from({ length: 99 }, (_, i) => (i + 1) / 100);
+/**
+ * Stored with every run for verification: the quantiles at the midpoint levels (i − 0.5)/100,
+ * which score as a 100-member ensemble (the CRPS of such a quantile ensemble approaches the
+ * continuous one; properscoring's test of the Gaussian closed form uses the same levels).
+ */
+const PERCENTILES = Array.from({ length: 100 }, (_, i) => (i + 0.5) / 100);
 
 export const RunBody = z.strictObject({
   issueTime: Rfc3339,

@@ -48,7 +48,8 @@ describe('access', () => {
     expect(doc.paths['/gauges'].post.requestBody.content['application/json'].schema.properties.thresholds).toBeDefined();
   });
 
-  it('answers unknown routes with problem details', async () => {
+  it('answers unknown routes with problem details, with or without a token', async () => {
+    expect((await t.as(null, { method: 'GET', url: '/nowhere' })).statusCode).toBe(404);
     const res = await t.as('read', { method: 'GET', url: '/nowhere' });
     expect(res.statusCode).toBe(404);
     expect(res.headers['content-type']).toContain('application/problem+json');

@@ -114,6 +114,10 @@ describe('fitting residual models as background jobs', () => {
     const res = await t.as('admin', { method: 'POST', url: `/gauges/${gaugeId}/models/fit`, payload: { trainer: 'neural-net', bundle: 0 } });
     expect(res.statusCode).toBe(422);
     expect(res.json().errors.map((e: { path: string }) => e.path)).toEqual(expect.arrayContaining(['body.trainer', 'body.bundle']));
+    const wrongParam = await t.as('admin', { method: 'POST', url: `/gauges/${gaugeId}/models/fit`, payload: { trainer: 'random-forest', params: { learningRate: 0.1 } } });
+    expect(wrongParam.statusCode).toBe(422);
+    expect(wrongParam.json().errors[0]).toMatchObject({ path: 'body.params.learningRate' });
+    expect(wrongParam.json().errors[0].message).toMatch(/not a random-forest parameter/);
   });
 });
 
