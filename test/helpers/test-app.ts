@@ -1,4 +1,4 @@
-import type { FastifyInstance, InjectOptions } from 'fastify';
+import type { FastifyInstance, InjectOptions, LightMyRequestResponse } from 'fastify';
 import { buildApp } from '../../src/api/app.ts';
 import { createToken } from '../../src/api/tokens.ts';
 import { loadConfig, type Config } from '../../src/config.ts';
@@ -9,7 +9,7 @@ export interface TestApp extends TestDb {
   config: Config;
   tokens: { admin: string; ingest: string; read: string };
   /** inject() with the given role's bearer token. */
-  as(role: 'admin' | 'ingest' | 'read' | null, opts: InjectOptions): ReturnType<FastifyInstance['inject']>;
+  as(role: 'admin' | 'ingest' | 'read' | null, opts: InjectOptions): Promise<LightMyRequestResponse>;
 }
 
 export async function makeTestApp(env: Record<string, string> = {}): Promise<TestApp> {

@@ -439,7 +439,7 @@ function renderGauge(f) {
     ['Model version', f.modelVersion ? `${f.modelVersion.label} (${f.modelVersion.id})` : 'none'],
     ['Seed', String(f.seed ?? '–')],
     ['Trajectories', String(f.trajectories ?? '–')],
-    ['Members', String(f.ensemble?.corrected?.length ?? 0)],
+    ['Members', String(f.ensemble?.corrected?.length ?? f.ensemble?.raw?.length ?? 0)],
     ['Stored', fmtTime(f.createdAt)],
     ['Source', f.source ?? '–'],
   ];
