@@ -224,16 +224,23 @@ export function runStochasticStage(
   let lastGroup = -1;
   let lastDoy = -1;
   let nCand = 0;
+  const inWindow = new Uint8Array(367);
   for (let h = 0; h < H; h++) {
     const g = leadFree ? 0 : h;
     const gs = groupStart[g];
     const ge = groupStart[g + 1];
     if (ge === gs) throw new RangeError(`the archive has no cases for lead ${h}`);
-    if (g !== lastGroup || (window !== null && doy[h] !== lastDoy)) {
+    // The window's centre follows the lead's day of year in steps of a tenth of the window (at
+    // least a day): rescanning the group for every day of a long daily horizon costs more than
+    // the rest of the stage, and a shift of a few days in a ±60-day window changes little.
+    if (g !== lastGroup || (window !== null && circularDayDistance(doy[h], lastDoy) >= Math.max(1, window / 10))) {
       nCand = 0;
       if (window !== null) {
+        // Which days of year are inside the window, looked up per case instead of computed:
+        // the scan runs over every case of the group for each new day.
+        for (let d = 1; d <= 366; d++) inWindow[d] = circularDayDistance(d, doy[h]) <= window ? 1 : 0;
         for (let i = gs; i < ge; i++) {
-          if (circularDayDistance(caseDoy[i], doy[h]) <= window) {
+          if (inWindow[caseDoy[i]] === 1) {
             nCand++;
             cP[nCand] = predictor[i];
             cE[nCand] = error[i];

@@ -148,7 +148,11 @@ export async function evaluateResidualModel(
   const ensAfter = deterministicScores(ensCor, obsWindow);
   if (residualSq.n === 0) throw new Error('no validation case has both a corrected value and an observation');
 
-  const archiveInput = { observed: obsCat, dayOfYear: doyCat, transform: options.transform, templateLength: options.templateLength };
+  // The archive keeps up to ARCHIVE_MEMBERS members, evenly spread: members share the observations,
+  // so their errors are near-duplicates, and every extra case slows the neighbour search (k = √n).
+  const keep = archiveMembers(nM);
+  const pick = (a: Float64Array) => concatMembers(a, keep, stride);
+  const archiveInput = { observed: pick(obsCat), dayOfYear: pickDoy(doyCat, keep, stride), transform: options.transform, templateLength: options.templateLength };
   return {
     scores: {
       period: { from: iso(validation.fromMs), to: iso(validation.toMs) },
@@ -158,9 +162,29 @@ export async function evaluateResidualModel(
       memberMean: memberScores,
       ensembleMean: { nseBefore: ensBefore.nse, nseAfter: ensAfter.nse, kgeBefore: ensBefore.kge, kgeAfter: ensAfter.kge },
     },
-    correctedArchive: buildArchiveFromSeries({ ...archiveInput, corrected: corCat }),
-    rawArchive: buildArchiveFromSeries({ ...archiveInput, corrected: maskWhere(rawCat, corCat) }),
+    correctedArchive: buildArchiveFromSeries({ ...archiveInput, corrected: pick(corCat) }),
+    rawArchive: buildArchiveFromSeries({ ...archiveInput, corrected: pick(maskWhere(rawCat, corCat)) }),
   };
+}
+
+export const ARCHIVE_MEMBERS = 8;
+
+/** Indices of up to ARCHIVE_MEMBERS members, evenly spread over nM. */
+export function archiveMembers(nM: number): number[] {
+  if (nM <= ARCHIVE_MEMBERS) return Array.from({ length: nM }, (_, i) => i);
+  return Array.from({ length: ARCHIVE_MEMBERS }, (_, i) => Math.round((i * (nM - 1)) / (ARCHIVE_MEMBERS - 1)));
+}
+
+function concatMembers(a: Float64Array, keep: number[], stride: number): Float64Array {
+  const out = new Float64Array(keep.length * stride);
+  keep.forEach((m, j) => out.set(a.subarray(m * stride, (m + 1) * stride), j * stride));
+  return out;
+}
+
+function pickDoy(a: Uint16Array, keep: number[], stride: number): Uint16Array {
+  const out = new Uint16Array(keep.length * stride);
+  keep.forEach((m, j) => out.set(a.subarray(m * stride, (m + 1) * stride), j * stride));
+  return out;
 }
 
 /** The raw-member archive alone (degraded mode without any model): all steps with an observation. */
@@ -168,11 +192,12 @@ export function rawArchiveFromSeries(series: ArchiveSeries, period: Period, opti
   const idx: number[] = [];
   for (let i = 0; i < series.times.length; i++) if (series.times[i] >= period.fromMs && series.times[i] < period.toMs) idx.push(i);
   const stride = idx.length + 1;
-  const n = series.members.length * stride;
+  const members = archiveMembers(series.members.length).map((m) => series.members[m]);
+  const n = members.length * stride;
   const raw = new Float64Array(n).fill(NaN);
   const obs = new Float64Array(n).fill(NaN);
   const doy = new Uint16Array(n).fill(1);
-  series.members.forEach((m, k) => {
+  members.forEach((m, k) => {
     idx.forEach((i, j) => {
       raw[k * stride + j] = m.values[i];
       obs[k * stride + j] = series.observed[i];
