@@ -15,6 +15,7 @@ import type { Services } from './context.ts';
 import { forcingRoutes } from './forcings.ts';
 import { gaugeRoutes } from './gauges.ts';
 import { healthRoutes } from './health.ts';
+import { hindcastRoutes } from './hindcasts.ts';
 import { jobRoutes } from './jobs.ts';
 import { modelRoutes } from './models.ts';
 import { observationRoutes } from './observations.ts';
@@ -24,6 +25,7 @@ import { Problem } from './problem.ts';
 import { reforecastRoutes } from './reforecasts.ts';
 import { simulationRoutes } from './simulations.ts';
 import { tokenRoutes } from './token-routes.ts';
+import { verificationRoutes } from './verification.ts';
 
 export interface AppOptions {
   db: Db;
@@ -88,6 +90,8 @@ export async function buildApp(options: AppOptions): Promise<FastifyInstance> {
   await app.register(jobRoutes, { services });
   await app.register(runRoutes, { services });
   await app.register(forecastRoutes, { services });
+  await app.register(verificationRoutes, { services });
+  await app.register(hindcastRoutes, { services });
   await app.register(overviewRoutes, { services });
   await app.register(eventRoutes, { services });
   await app.register(metricsRoutes, { services });

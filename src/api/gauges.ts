@@ -2,6 +2,8 @@ import type { FastifyInstance } from 'fastify';
 import { z } from 'zod';
 import { parseDurationSeconds } from '../core/iso-duration.ts';
 import { archiveCounts, deleteGauge, getGauge, insertGauge, listGauges, updateGauge, type GaugeInput } from '../store/gauges-repo.ts';
+import { getGaugeStatus } from '../store/gauge-status-repo.ts';
+import { hasRuns } from '../store/verification-repo.ts';
 import { addRoute, type Services } from './context.ts';
 import { conflict, notFound } from './problem.ts';
 import { FlowUnit, GaugeId, IsoDuration, Location, Thresholds, TimeZone } from './schemas.ts';
@@ -48,7 +50,10 @@ export async function gaugeRoutes(app: FastifyInstance, { services }: { services
     const { id } = parseWith(Params, req.params, 'params');
     const gauge = await getGauge(db, id);
     if (!gauge) throw notFound(`no gauge ${id}`);
-    return { ...gauge, archive: await archiveCounts(db, id) };
+    // status as in the overview: no-forecast, else the drift watch's ok / drifting / insufficient-data.
+    const drift = await getGaugeStatus(db, id);
+    const status = (await hasRuns(db, id)) ? (drift?.status ?? 'insufficient-data') : 'no-forecast';
+    return { ...gauge, archive: await archiveCounts(db, id), status, drift };
   });
 
   addRoute(app, services, { method: 'PATCH', url: '/gauges/:id', summary: 'Change a gauge', tag: 'gauges', role: 'admin', params: Params, body: GaugePatch }, async (req) => {

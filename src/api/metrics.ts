@@ -1,10 +1,15 @@
 import type { FastifyInstance } from 'fastify';
+import { listGaugeStatuses } from '../store/gauge-status-repo.ts';
+import { listGauges } from '../store/gauges-repo.ts';
 import { addRoute, type Services } from './context.ts';
 
 /** Prometheus text format (scrapers send a read token). */
 export async function metricsRoutes(app: FastifyInstance, { services }: { services: Services }) {
   addRoute(app, services, { method: 'GET', url: '/metrics', summary: 'Metrics in the Prometheus text format', tag: 'health', role: 'read', responseTypes: ['text/plain'] }, async (_req, reply) => {
     const { pool, metrics, events } = services;
+    // Drift per gauge from the stored statuses, so every instance reports the same.
+    const statuses = await listGaugeStatuses(services.db);
+    for (const g of await listGauges(services.db)) metrics.drift.set({ gauge: g.id }, statuses.get(g.id)?.status === 'drifting' ? 1 : 0);
     const s = pool.stats;
     const extra = [
       '# HELP sft_model_cache_total Correction requests whose worker already held the model (hit) or had to load it (miss)',

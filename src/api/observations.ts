@@ -1,5 +1,6 @@
 import type { FastifyInstance } from 'fastify';
 import { z } from 'zod';
+import { scheduleGaugeStatusRefresh } from '../jobs/drift-refresh.ts';
 import { readObservations, upsertObservations } from '../store/archive-repo.ts';
 import { bodyFormat, GaugeParams, readWindow, requireGauge, sendCsv, wantsCsv } from './archive-common.ts';
 import { addRoute, type Services } from './context.ts';
@@ -67,7 +68,7 @@ export async function observationRoutes(app: FastifyInstance, { services }: { se
     async (req) => {
       const errors = new ErrorList();
       const batch = bodyFormat(req) === 'csv' ? fromCsv(req.body as string, errors) : fromJson(req.body, errors);
-      return db.transaction(async (tx) => {
+      const out = await db.transaction(async (tx) => {
         const gauge = await requireGauge(tx, req.params, true);
         const times = checkTimes(batch.times, gauge.stepSeconds, (i) => batch.where(i, 'times'), errors);
         const values = checkValues(batch.values, { nonNegative: true, quantity: 'flow' }, (i) => batch.where(i, 'values'), errors);
@@ -75,6 +76,9 @@ export async function observationRoutes(app: FastifyInstance, { services }: { se
         const written = await upsertObservations(tx, gauge.id, times, values, batch.quality);
         return { gaugeId: gauge.id, received: times.length, written };
       });
+      // New observations verify stored runs: refresh the drift status after the commit, off this request.
+      if (out.written > 0) scheduleGaugeStatusRefresh(db, out.gaugeId, req.log);
+      return out;
     },
   );
 

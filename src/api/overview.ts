@@ -1,6 +1,7 @@
 import type { FastifyInstance } from 'fastify';
 import { listGauges } from '../store/gauges-repo.ts';
 import { latestSummaries } from '../store/forecasts-repo.ts';
+import { listGaugeStatuses } from '../store/gauge-status-repo.ts';
 import { CAUTION } from './caution.ts';
 import { addRoute, type Services } from './context.ts';
 import { isoUtc } from './series-input.ts';
@@ -11,6 +12,8 @@ export async function overviewRoutes(app: FastifyInstance, { services }: { servi
   addRoute(app, services, { method: 'GET', url: '/overview', summary: "Every gauge with its newest run's highest exceedance probability per threshold and its status", tag: 'forecasts', role: 'read' }, async () => {
     const gauges = new Map((await listGauges(db)).map((g) => [g.id, g]));
     const rows = await latestSummaries(db);
+    // Drift status as last stored by the drift watch (src/jobs/drift-refresh.ts).
+    const drift = await listGaugeStatuses(db);
     return {
       caution: CAUTION,
       attentionLevel: services.config.ATTENTION_LEVEL,
@@ -20,7 +23,7 @@ export async function overviewRoutes(app: FastifyInstance, { services }: { servi
         return {
           id: g.id,
           name: g.name,
-          status: r.id ? 'ok' : 'no-forecast',
+          status: r.id ? (drift.get(g.id)?.status ?? 'insufficient-data') : 'no-forecast',
           latest: r.id ? { id: r.id, issueTime: isoUtc(r.issue_time!.getTime()), status: r.status } : null,
           thresholds: g.thresholds.map((t) => {
             const s = summary.find((x) => x.label === t.label);

@@ -4,13 +4,15 @@ import { parentPort, workerData } from 'node:worker_threads';
 import { archiveToBytes } from '../core/archive-codec.ts';
 import { checkFeatureSpec } from '../core/features.ts';
 import { createResidualSession, predictResiduals } from '../models/onnx-session.ts';
+import { computeHindcast, type HindcastTaskInput } from './hindcast-compute.ts';
 import { fitResidualModel, type FitOptions } from '../models/residual-fit.ts';
 import { archiveSummary, evaluateResidualModel, rawArchiveFromSeries, type ArchiveSeries, type ArchiveOptions, type Period } from '../models/residual-evaluation.ts';
 
 export type ComputeTask =
   | { kind: 'fit'; series: ArchiveSeries; options: FitOptions }
   | { kind: 'evaluate-upload'; series: ArchiveSeries; onnx: Uint8Array; spec: unknown; validation: Period; archive: ArchiveOptions }
-  | { kind: 'raw-archive'; series: ArchiveSeries; period: Period; archive: ArchiveOptions };
+  | { kind: 'raw-archive'; series: ArchiveSeries; period: Period; archive: ArchiveOptions }
+  | { kind: 'hindcast'; input: HindcastTaskInput };
 
 const { task, cancelFlag } = workerData as { task: ComputeTask; cancelFlag: Int32Array; module: string };
 const shouldStop = () => Atomics.load(cancelFlag, 0) === 1;
@@ -51,6 +53,8 @@ async function run(): Promise<unknown> {
       const a = rawArchiveFromSeries(task.series, task.period, task.archive);
       return { bytes: archiveToBytes(a), summary: archiveSummary(a) };
     }
+    case 'hindcast':
+      return computeHindcast(task.input, progress, shouldStop);
   }
 }
 

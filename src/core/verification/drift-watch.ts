@@ -32,6 +32,13 @@ export interface DriftOptions {
   crpsFactor?: number;
   /** Seed of the PIT randomisation (default 1). */
   seed?: number;
+  /**
+   * Units of the coverage test (default 'cases'). The lead times of one run share its errors, so
+   * they are far from independent and a test over cases is optimistic; 'issues' tests the
+   * observed coverage share on n = the number of distinct issue times (cases need issueTime),
+   * k = round(share · n): each run counts once, a conservative design-effect correction.
+   */
+  testUnits?: 'cases' | 'issues';
 }
 
 export interface DriftStatus {
@@ -45,6 +52,8 @@ export interface DriftStatus {
     expectedCoverage90: number;
     /** P(covered ≤ observed count) under the expected coverage (one-sided binomial). */
     coveragePValue: number | null;
+    /** Independent units the binomial test counted: cases, or distinct issue times (testUnits). */
+    testedUnits: number;
     crps: number | null;
     referenceCrps: number;
     crpsRatio: number | null;
@@ -98,6 +107,7 @@ export function watchDrift(cases: Iterable<VerificationCase>, reference: DriftRe
   const sorter = new ValueSorter();
   let n = 0;
   let covered = 0;
+  const issues = new Set<string | undefined>();
   let crpsSum = 0;
   for (const c of window) {
     const v = sourceValues(c, source)!;
@@ -116,16 +126,21 @@ export function watchDrift(cases: Iterable<VerificationCase>, reference: DriftRe
     const y = c.observation as number;
     const pit = pitFromSorted(sorted, m, y, rng.nextFloat());
     n++;
+    issues.add(c.issueTime);
     if (pit >= 0.05 && pit <= 0.95) covered++;
     crpsSum += crpsSorted(sorted, y);
   }
   const p0 = Math.min(0.9, reference.coverage90);
+  if (options.testUnits === 'issues' && issues.has(undefined)) throw new RangeError("testUnits 'issues' needs issueTime on every case");
+  const units = options.testUnits === 'issues' ? issues.size : n;
+  const unitsCovered = options.testUnits === 'issues' ? Math.round((covered / Math.max(1, n)) * units) : covered;
   const evidence: DriftStatus['evidence'] = {
     source,
     cases: n,
     coverage90: n ? covered / n : null,
     expectedCoverage90: p0,
-    coveragePValue: n ? binomialLowerTail(covered, n, p0) : null,
+    coveragePValue: n ? binomialLowerTail(unitsCovered, units, p0) : null,
+    testedUnits: n ? units : 0,
     crps: n ? crpsSum / n : null,
     referenceCrps: reference.crps,
     crpsRatio: n ? crpsSum / n / reference.crps : null,
@@ -143,7 +158,7 @@ export function watchDrift(cases: Iterable<VerificationCase>, reference: DriftRe
   const lowCoverage = pv < alpha && cov < p0 - margin;
   const highCrps = ratio > factor;
   if (lowCoverage) {
-    reasons.push(`90 % coverage ${(100 * cov).toFixed(1)} % is well below the expected ${(100 * p0).toFixed(1)} % (binomial p = ${pv.toExponential(2)} < ${alpha}, shortfall over ${margin}).`);
+    reasons.push(`90 % coverage ${(100 * cov).toFixed(1)} % is well below the expected ${(100 * p0).toFixed(1)} % (binomial p = ${pv.toExponential(2)} < ${alpha} over ${units} ${options.testUnits === 'issues' ? 'issues' : 'cases'}, shortfall over ${margin}).`);
   }
   if (highCrps) reasons.push(`CRPS ${evidence.crps!.toPrecision(4)} is ${ratio.toFixed(2)} × the validation level (limit ${factor} ×).`);
   if (!lowCoverage && !highCrps) {

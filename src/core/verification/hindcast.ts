@@ -30,6 +30,13 @@ export interface HindcastInput {
    * lead). `raw` and `out` are reused between issues.
    */
   correct: (raw: Float64Array, issue: number, out: Float64Array) => void;
+  /**
+   * Residual models bundled (default 1). `correct` then writes nModels·nMembers·nLeads values,
+   * model-major ([(model·nMembers + member)·nLeads + lead]); the corrected ensemble is the mean
+   * over models per member and the stochastic stage runs on every (model, member), as serving
+   * does (src/models/correct-run.ts).
+   */
+  nModels?: number;
   /** Error archive of the corrected members; null = no stochastic stage. */
   archive: ErrorArchive | null;
   /** Stage settings; `seed` is the seed of issue 0. Trajectories are always kept. */
@@ -54,7 +61,8 @@ export function runHindcast(
   workspace: StochasticWorkspace = createStochasticWorkspace(),
 ): HindcastSummary {
   const { nIssues, nMembers: M, nLeads: H, raw, observed, archive } = input;
-  for (const [v, name] of [[nIssues, 'nIssues'], [M, 'nMembers'], [H, 'nLeads']] as const) {
+  const K = input.nModels ?? 1;
+  for (const [v, name] of [[nIssues, 'nIssues'], [M, 'nMembers'], [H, 'nLeads'], [K, 'nModels']] as const) {
     if (!Number.isInteger(v) || v < 1) throw new RangeError(`${name} must be a positive integer`);
   }
   if (raw.length !== nIssues * M * H) throw new RangeError('raw must hold nIssues × nMembers × nLeads values');
@@ -66,7 +74,7 @@ export function runHindcast(
   }
   const N = opts.nDraws ?? 1000;
   const rawIssue = new Float64Array(M * H);
-  const corrIssue = new Float64Array(M * H);
+  const corrIssue = new Float64Array(K * M * H);
   const doyIssue = new Float64Array(H);
   const rawCol = new Float64Array(M);
   const corrCol = new Float64Array(M);
@@ -83,7 +91,7 @@ export function runHindcast(
       if (input.dayOfYear) for (let h = 0; h < H; h++) doyIssue[h] = input.dayOfYear[is * H + h];
       const r = runStochasticStage(
         archive,
-        { members: corrIssue, nMembers: M, nLeads: H, dayOfYear: input.dayOfYear ? doyIssue : undefined },
+        { members: corrIssue, nModels: K, nMembers: M, nLeads: H, dayOfYear: input.dayOfYear ? doyIssue : undefined },
         { ...opts, seed: opts.seed + is, keepTrajectories: true },
         workspace,
       );
@@ -98,7 +106,9 @@ export function runHindcast(
       }
       for (let m = 0; m < M; m++) {
         rawCol[m] = rawIssue[m * H + h];
-        corrCol[m] = corrIssue[m * H + h];
+        let s = 0;
+        for (let k = 0; k < K; k++) s += corrIssue[(k * M + m) * H + h];
+        corrCol[m] = K === 1 ? s : s / K;
       }
       if (traj) for (let j = 0; j < N; j++) stochCol[j] = traj[j * H + h];
       c.lead = h;

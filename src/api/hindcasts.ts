@@ -1,0 +1,215 @@
+import type { FastifyInstance } from 'fastify';
+import { z } from 'zod';
+import type { ComparisonReport, SizeStudyResult, StochasticAdvice } from '../core/verification/index.ts';
+import { storedPeriod, type HindcastJobParams } from '../jobs/hindcast-job.ts';
+import { enqueueJob, getJob, listJobs, type Job } from '../store/jobs-repo.ts';
+import { getActiveModelVersion, getModelVersion, versionArchive } from '../store/models-repo.ts';
+import { reforecastIssueTimes } from '../store/verification-repo.ts';
+import { GaugeParams, requireGauge } from './archive-common.ts';
+import { addRoute, type Services } from './context.ts';
+import { conflict, invalid, notFound } from './problem.ts';
+import { Rfc3339 } from './schemas.ts';
+import { isoUtc } from './series-input.ts';
+import { parseWith } from './validate.ts';
+import { chooseFormat, FormatOnly, scoresCsv, scoresText, sendReport, textTable } from './verification.ts';
+
+const SourceEnum = z.enum(['raw', 'corrected', 'stochastic']);
+
+const HindcastBody = z
+  .strictObject({
+    /** simulation: pseudo-forecasts from the continuous member simulations; reforecast: the stored past runs. */
+    mode: z.enum(['simulation', 'reforecast']).default('simulation'),
+    /** Model version to run (default: the active one). */
+    version: z.string().regex(/^\d{1,18}$/, 'must be a version number').optional(),
+    /** Issue-time window [from, to); default: the version's validation period. */
+    from: Rfc3339.optional(),
+    to: Rfc3339.optional(),
+    /** Lead times per issue, in steps (default 10 in simulation mode, the longest stored in reforecast mode). */
+    horizon: z.number().int().min(1).max(2000).optional(),
+    /** Simulation mode: one issue every n steps (default every step). */
+    everySteps: z.number().int().min(1).max(100_000).default(1),
+    trajectories: z.number().int().min(10).default(1000),
+    seed: z.number().int().min(0).max(2 ** 31 - 1).default(1),
+    seasonalWindowDays: z.number().int().min(0).max(183).nullable().default(60),
+    minLead: z.number().int().min(1).optional(),
+    maxLead: z.number().int().min(1).optional(),
+    sizeStudy: z
+      .strictObject({
+        sources: z.array(SourceEnum).max(3).default(['corrected', 'stochastic']),
+        /** Candidate sizes; each forecast keeps those up to its own count and adds its full count. */
+        sizes: z.array(z.number().int().min(1).max(100_000)).min(1).max(20).default([5, 10, 25, 50, 100]),
+        repeats: z.number().int().min(1).max(200).default(20),
+        /** Share of cases studied (default: about 20 000 cases). */
+        caseFraction: z.number().gt(0).max(1).optional(),
+      })
+      .default({ sources: ['corrected', 'stochastic'], sizes: [5, 10, 25, 50, 100], repeats: 20 }),
+  })
+  .refine((b) => !(b.from && b.to) || Date.parse(b.from) < Date.parse(b.to), { message: 'from must be before to', path: ['to'] })
+  .refine((b) => b.minLead === undefined || b.maxLead === undefined || b.minLead <= b.maxLead, { message: 'minLead must not exceed maxLead', path: ['maxLead'] });
+
+const HindcastParams = z.object({ id: GaugeParams.shape.id, jobId: z.string().regex(/^\d{1,18}$/, 'must be a job id') });
+const HindcastQuery = z.strictObject({ format: FormatOnly });
+
+/** What a finished hindcast job stores as its result (see src/jobs/hindcast-job.ts). */
+interface HindcastResult {
+  gaugeId: string;
+  mode: string;
+  modelVersion: { id: string; label: string };
+  period: { from: string; to: string };
+  issues: { first: string | null; last: string | null; used: number };
+  horizon: number;
+  members: string[];
+  trajectories: number;
+  warnings: string[];
+  cases: { verified: number };
+  comparison: ComparisonReport;
+  sizeStudy: SizeStudyResult[] | null;
+  advice: StochasticAdvice;
+}
+
+const href = (gaugeId: string, jobId: string) => `/gauges/${gaugeId}/hindcasts/${jobId}`;
+
+function summary(job: Job) {
+  const p = job.params as unknown as HindcastJobParams;
+  return {
+    id: job.id,
+    status: job.status,
+    stage: job.stage,
+    percent: job.percent,
+    mode: p.mode,
+    purpose: p.purpose,
+    modelVersion: p.versionId,
+    from: p.from,
+    to: p.to,
+    createdAt: job.createdAt,
+    finishedAt: job.finishedAt,
+    error: job.error,
+    href: href(job.gaugeId!, job.id),
+  };
+}
+
+function sizeStudyText(studies: SizeStudyResult[] | null): string[] {
+  if (!studies?.length) return [];
+  const out: string[] = [''];
+  for (const s of studies) {
+    out.push(`Ensemble-size study, ${s.source} (${s.members} available; ${s.repeats} random draws per case, ${Math.round(s.caseFraction * 1000) / 10} % of cases; band ${Math.round(s.level * 100)} %):`);
+    const f = (x: number | null, d = 3) => (x === null ? '–' : x.toFixed(d));
+    out.push(
+      ...textTable(
+        ['members', 'cases', 'CRPS', 'fair CRPS', 'band width', 'band coverage', 'PIT coverage', 'alpha', 'alpha sd'],
+        s.rows.map((r) => [String(r.size), String(r.cases), f(r.crps), f(r.fairCrps), f(r.meanWidth, 2), f(r.coverage), f(r.pitCoverage), f(r.alphaIndex), f(r.alphaIndexSd)]),
+      ),
+    );
+  }
+  return out;
+}
+
+export async function hindcastRoutes(app: FastifyInstance, { services }: { services: Services }) {
+  const { db, config } = services;
+
+  addRoute(
+    app,
+    services,
+    {
+      method: 'POST',
+      url: '/gauges/:id/hindcasts',
+      summary: 'Start a hindcast job: the whole correction pipeline over a stored period (simulation or reforecast mode), compared with the same scores, with an ensemble-size study and the stochastic-stage advice',
+      tag: 'verification',
+      role: 'admin',
+      params: GaugeParams,
+      body: HindcastBody,
+    },
+    async (req, reply) => {
+      const gauge = await requireGauge(db, req.params);
+      const body = parseWith(HindcastBody, req.body ?? {}, 'body');
+      const version = body.version ? await getModelVersion(db, gauge.id, body.version) : await getActiveModelVersion(db, gauge.id);
+      if (!version) {
+        if (body.version) throw invalid([{ path: 'body.version', message: `gauge ${gauge.id} has no model version ${body.version}` }]);
+        throw conflict(`gauge ${gauge.id} has no active residual model; fit one (POST /gauges/${gauge.id}/models/fit) or name a version`);
+      }
+      const errors: { path: string; message: string }[] = [];
+      const archive = await versionArchive(db, version.id, 'corrected');
+      if (!archive) throw conflict(`model version ${version.id} has no corrected-member error archive`);
+      const templateLength = Number(archive.summary.templateLength ?? 0);
+      if (body.horizon !== undefined && body.horizon > templateLength) errors.push({ path: 'body.horizon', message: `the error archive of version ${version.id} covers at most ${templateLength} lead times` });
+      if (body.trajectories > config.MAX_TRAJECTORIES) errors.push({ path: 'body.trajectories', message: `at most ${config.MAX_TRAJECTORIES}` });
+      const validation = storedPeriod(version.periods.validation);
+      if ((!body.from || !body.to) && !validation) errors.push({ path: body.from ? 'body.to' : 'body.from', message: `model version ${version.id} records no validation period; give from and to` });
+      const fromMs = body.from ? Date.parse(body.from) : validation?.fromMs;
+      const toMs = body.to ? Date.parse(body.to) : validation?.toMs;
+      if (fromMs !== undefined && toMs !== undefined && !(fromMs < toMs)) errors.push({ path: 'body.to', message: 'the period is empty (from must be before to)' });
+      if (!errors.length && body.mode === 'reforecast' && (await reforecastIssueTimes(db, gauge.id, fromMs!, toMs!)).length === 0) {
+        errors.push({ path: 'body.mode', message: `gauge ${gauge.id} has no reforecasts issued between ${isoUtc(fromMs!)} and ${isoUtc(toMs!)}` });
+      }
+      if (errors.length) throw invalid(errors);
+      const params: HindcastJobParams = {
+        mode: body.mode,
+        versionId: version.id,
+        from: isoUtc(fromMs!),
+        to: isoUtc(toMs!),
+        horizon: body.horizon ?? null,
+        everySteps: body.everySteps,
+        trajectories: body.trajectories,
+        seed: body.seed,
+        seasonalWindowDays: body.seasonalWindowDays,
+        minLead: body.minLead ?? null,
+        maxLead: body.maxLead ?? null,
+        sizeStudy: { sources: body.sizeStudy.sources, sizes: body.sizeStudy.sizes, repeats: body.sizeStudy.repeats, caseFraction: body.sizeStudy.caseFraction ?? null },
+        purpose: 'request',
+      };
+      const job = await enqueueJob(db, 'hindcast', gauge.id, params, req.principal?.tokenId ?? null);
+      reply.code(202).header('location', href(gauge.id, job.id));
+      return { ...job, href: href(gauge.id, job.id) };
+    },
+  );
+
+  addRoute(
+    app,
+    services,
+    { method: 'GET', url: '/gauges/:id/hindcasts', summary: "The gauge's hindcast jobs, newest first", tag: 'verification', role: 'read', params: GaugeParams },
+    async (req) => {
+      const gauge = await requireGauge(db, req.params);
+      const jobs = (await listJobs(db, gauge.id, 200)).filter((j) => j.kind === 'hindcast');
+      return { gaugeId: gauge.id, hindcasts: jobs.map(summary) };
+    },
+  );
+
+  addRoute(
+    app,
+    services,
+    {
+      method: 'GET',
+      url: '/gauges/:id/hindcasts/:jobId',
+      summary: 'One hindcast: progress while it runs; when done, the side-by-side comparison, the ensemble-size study and the advice with its evidence (JSON; CSV or text of the main scores)',
+      tag: 'verification',
+      role: 'read',
+      params: HindcastParams,
+      query: HindcastQuery,
+      responseTypes: ['application/json', 'text/csv', 'text/plain'],
+    },
+    async (req, reply) => {
+      const { id, jobId } = parseWith(HindcastParams, req.params, 'params');
+      const { format } = parseWith(HindcastQuery, req.query, 'query');
+      await requireGauge(db, { id });
+      const job = await getJob(db, jobId);
+      if (!job || job.kind !== 'hindcast' || job.gaugeId !== id) throw notFound(`gauge ${id} has no hindcast ${jobId}`);
+      const chosen = chooseFormat(req, format);
+      const body = { ...summary(job), params: job.params, startedAt: job.startedAt, result: job.result };
+      if (chosen === 'json') return body;
+      if (job.status !== 'succeeded' || !job.result) throw conflict(`hindcast ${jobId} is ${job.status}${job.status === 'running' ? ` (${job.stage}, ${Math.round(job.percent)} %)` : ''}; its scores are available as JSON status until it succeeds`);
+      const r = job.result as unknown as HindcastResult;
+      const header = [
+        `${r.gaugeId} — hindcast ${jobId} (${r.mode} mode), model version ${r.modelVersion.id} (${r.modelVersion.label}); flows in m3/s`,
+        `issues ${r.issues.first} – ${r.issues.last} (${r.issues.used}), ${r.horizon} lead times, ${r.members.length} members, ${r.trajectories} trajectories; ${r.cases.verified} verified cases`,
+      ];
+      return sendReport(
+        reply,
+        chosen,
+        `${r.gaugeId}-hindcast-${jobId}`,
+        body,
+        () => scoresCsv(r.comparison, [...header, `advice: ${r.advice.recommendation}`, ...r.warnings]),
+        () => scoresText(header, r.comparison, r.advice, r.warnings) + sizeStudyText(r.sizeStudy).join('\n') + '\n',
+      );
+    },
+  );
+}

@@ -1,0 +1,408 @@
+// The hindcast's CPU work, run inside a compute worker thread (compute-worker.ts, task kind
+// 'hindcast'): the whole correction pipeline over many past issues — feature rows → the version's
+// ONNX residual model(s) → stochastic stage with the version's error archive — then the
+// side-by-side verification of raw, corrected and stochastic, the ensemble-size study and the
+// stochastic-stage advice.
+import type { InferenceSession } from 'onnxruntime-node';
+import { archiveFromBytes } from '../core/archive-codec.ts';
+import { dayOfYearUtc } from '../core/day-of-year.ts';
+import { checkFeatureSpec, continuousRows, featureCount, FeatureInputError, requiredInputs, servingRows, type FeatureSpec, type RunInput } from '../core/features.ts';
+import { createStochasticWorkspace } from '../core/stochastic-stage.ts';
+import {
+  adviseStochasticStage,
+  createComparison,
+  driftReferenceFrom,
+  runHindcast,
+  type ComparisonReport,
+  type DriftReference,
+  type SourceName,
+  type StochasticAdvice,
+} from '../core/verification/index.ts';
+import { createResidualSession, predictResiduals } from '../models/onnx-session.ts';
+import type { ArchiveSeries } from '../models/residual-evaluation.ts';
+
+export interface HindcastSettings {
+  mode: 'simulation' | 'reforecast';
+  /** Lead times per issue (steps). */
+  horizon: number;
+  /** Seed of issue 0's stochastic stage (issue i uses seed + i) and of the verification draws. */
+  seed: number;
+  nDraws: number;
+  seasonalWindowDays: number | null;
+  /** Gauge thresholds (m³/s) for Brier scores. */
+  thresholds: number[];
+  /** Lead indices (0 = first lead) kept by the verification; null = all. */
+  leadRange: { min?: number; max?: number } | null;
+  sizeStudy: {
+    sources: SourceName[];
+    /** Candidate sizes; each source keeps those up to its count, plus its full count. */
+    sizes: number[];
+    repeats: number;
+    /** Share of cases studied; null = enough for about `targetCases` cases. */
+    caseFraction: number | null;
+    targetCases: number;
+  };
+}
+
+export interface HindcastTaskInput {
+  /** The gauge's archive around the period: warm-up before the first issue to the last valid time. */
+  series: ArchiveSeries;
+  /** Index into series.times of each issue time. */
+  issueIndex: Int32Array;
+  /**
+   * Reforecast mode: the stored past runs, values [(issue·nMembers + member)·horizon + lead], NaN
+   * where missing; members in series.members order. null in simulation mode.
+   */
+  reforecast: { values: Float64Array } | null;
+  model: { spec: unknown; parts: Uint8Array[] };
+  /** The version's corrected-member error archive (archive-codec bytes). */
+  archive: Uint8Array;
+  settings: HindcastSettings;
+}
+
+export interface HindcastOutput {
+  issues: {
+    given: number;
+    used: number;
+    /** Issues left out: a raw value missing (simulation gap, incomplete reforecast) or a feature input missing. */
+    skippedMissingForecast: number;
+    skippedMissingInputs: number;
+    /** Index into series.times of each issue used. */
+    usedIndex: Int32Array;
+  };
+  /** Verification cases handed to the comparison, and leads without observation. */
+  cases: number;
+  unobserved: number;
+  members: string[];
+  models: number;
+  /** How the corrected members were computed: once per member and valid time, or per issue. */
+  correction: 'per-valid-time' | 'per-issue';
+  report: ComparisonReport;
+  advice: StochasticAdvice;
+  driftReference: DriftReference | null;
+  timings: { correctionMs: number; stageMs: number; verificationMs: number; reportMs: number; totalMs: number };
+}
+
+export type Progress = (p: { stage: string; percent: number }) => void;
+
+/** Thrown inside the worker when the job was asked to stop. */
+export class HindcastCancelled extends Error {
+  constructor() {
+    super('cancelled');
+  }
+}
+
+const ROWS_PER_BATCH = 100_000;
+
+/**
+ * Runs the hindcast. Simulation mode: issue i's pseudo-forecast of member m is the member's
+ * continuous simulation at i + 1 … i + H, with the simulation before i as warm-up; reforecast
+ * mode: the stored run per lead, warm-up from the continuous simulation up to issue time. Both use
+ * the archived (observed) forcings for the feature rows: reforecast forcings are not stored.
+ * When the feature spec reads neither the lead time nor the issue-time error, a lead's feature row
+ * in simulation mode depends only on the member and the valid time, so each (member, valid time)
+ * is corrected once instead of once per issue (the rows are identical; it saves a factor H).
+ */
+export async function computeHindcast(input: HindcastTaskInput, progress: Progress, shouldStop: () => boolean): Promise<HindcastOutput> {
+  const t0 = performance.now();
+  const { series, settings } = input;
+  const H = settings.horizon;
+  const M = series.members.length;
+  const n = series.times.length;
+  const stepMs = series.stepSeconds * 1000;
+  const spec = checkFeatureSpec(input.model.spec);
+  if (spec.stepSeconds !== series.stepSeconds) throw new Error(`the model's step (${spec.stepSeconds} s) differs from the gauge's (${series.stepSeconds} s)`);
+  for (const f of spec.forcings) {
+    if (!(f.name in series.forcings)) throw new Error(`the model needs forcing ${f.name}, which the gauge's archive does not hold`);
+  }
+  if (M === 0) throw new Error('no members to hindcast');
+  const archive = archiveFromBytes(input.archive);
+  if (archive.templateLength < H) throw new Error(`the error archive covers ${archive.templateLength} lead times; the hindcast asks for ${H}`);
+  const need = requiredInputs(spec);
+  let warm = need.simStepsToIssue;
+  for (const f of need.forcings) warm = Math.max(warm, f.stepsToIssue);
+  const check = () => {
+    if (shouldStop()) throw new HindcastCancelled();
+  };
+
+  // Raw values per issue; issues with any missing raw value are left out.
+  const given = input.issueIndex.length;
+  const keep: number[] = [];
+  const keepSource: number[] = [];
+  let skippedForecast = 0;
+  let skippedInputs = 0;
+  for (let s = 0; s < given; s++) {
+    const i = input.issueIndex[s];
+    if (i - warm < 0 || i + H >= n) {
+      skippedInputs++;
+      continue;
+    }
+    let ok = true;
+    for (let m = 0; m < M && ok; m++) {
+      for (let h = 0; h < H; h++) {
+        const v = input.reforecast ? input.reforecast.values[(s * M + m) * H + h] : series.members[m].values[i + h + 1];
+        if (!Number.isFinite(v)) {
+          ok = false;
+          break;
+        }
+      }
+    }
+    if (ok) {
+      keep.push(i);
+      keepSource.push(s);
+    } else skippedForecast++;
+  }
+
+  const sessions: InferenceSession[] = [];
+  for (const bytes of input.model.parts) sessions.push(await createResidualSession(bytes));
+  const K = sessions.length;
+  if (K === 0) throw new Error('the model version has no ONNX parts');
+  try {
+    progress({ stage: 'correcting the members', percent: 2 });
+    const tCorr = performance.now();
+    const perValidTime = input.reforecast === null && !spec.leadTime && !spec.issueError;
+    // corrected values: per valid time [(k·M + m)·n + t], or per issue [((s·K + k)·M + m)·H + h].
+    let byTime: Float64Array | null = null;
+    let byIssue: Float64Array | null = null;
+    const inputsOk = new Uint8Array(keep.length).fill(1);
+    if (perValidTime) byTime = await correctPerValidTime(spec, series, sessions, keep, H, progress, check);
+    else byIssue = await correctPerIssue(spec, series, sessions, keep, keepSource, input.reforecast, H, inputsOk, progress, check);
+    const correctionMs = performance.now() - tCorr;
+
+    // The issues that go through the stage: all their corrected values present.
+    const issues: number[] = [];
+    const slots: number[] = [];
+    for (let j = 0; j < keep.length; j++) {
+      const i = keep[j];
+      let ok = inputsOk[j] === 1;
+      if (ok && byTime) {
+        for (let k = 0; k < K * M && ok; k++) for (let h = 1; h <= H; h++) if (!Number.isFinite(byTime[k * n + i + h])) ok = false;
+      }
+      if (ok) {
+        issues.push(i);
+        slots.push(j);
+      } else skippedInputs++;
+    }
+    const I = issues.length;
+    if (I === 0) throw new Error('no issue in the period has complete inputs (raw values, forcings and the warm-up)');
+
+    const raw = new Float64Array(I * M * H);
+    const observed = new Float64Array(I * H);
+    const dayOfYear = new Uint16Array(I * H);
+    for (let s = 0; s < I; s++) {
+      const i = issues[s];
+      const src = keepSource[slots[s]];
+      for (let m = 0; m < M; m++) {
+        for (let h = 0; h < H; h++) {
+          raw[(s * M + m) * H + h] = input.reforecast ? input.reforecast.values[(src * M + m) * H + h] : series.members[m].values[i + h + 1];
+        }
+      }
+      for (let h = 0; h < H; h++) {
+        observed[s * H + h] = series.observed[i + h + 1];
+        dayOfYear[s * H + h] = dayOfYearUtc(series.times[i] + (h + 1) * stepMs);
+      }
+    }
+    const correct = byTime
+      ? (_raw: Float64Array, s: number, out: Float64Array) => {
+          const i = issues[s];
+          for (let k = 0; k < K * M; k++) for (let h = 0; h < H; h++) out[k * H + h] = byTime![k * n + i + h + 1];
+        }
+      : (_raw: Float64Array, s: number, out: Float64Array) => {
+          out.set(byIssue!.subarray(slots[s] * K * M * H, (slots[s] + 1) * K * M * H));
+        };
+
+    const study = settings.sizeStudy;
+    const caseFraction = study.caseFraction ?? Math.min(1, study.targetCases / Math.max(1, I * H));
+    const sizes = [...new Set([...study.sizes, M, settings.nDraws])].sort((a, b) => a - b);
+    const comparison = createComparison({
+      seed: settings.seed,
+      thresholds: settings.thresholds,
+      leadRange: settings.leadRange,
+      includeStochastic: true,
+      sizeStudy: study.sources.length ? { sources: study.sources, sizes, repeats: study.repeats, caseFraction, seed: settings.seed } : null,
+    });
+    progress({ stage: 'stochastic stage and verification', percent: 35 });
+    let verificationMs = 0;
+    let lastIssue = -1;
+    const tStage = performance.now();
+    const summary = runHindcast(
+      {
+        nIssues: I,
+        nMembers: M,
+        nLeads: H,
+        nModels: K,
+        raw,
+        observed,
+        dayOfYear,
+        correct,
+        archive,
+        stochastic: { seed: settings.seed, nDraws: settings.nDraws, seasonalWindowDays: settings.seasonalWindowDays },
+      },
+      (c, issue) => {
+        if (issue !== lastIssue) {
+          lastIssue = issue;
+          if ((issue & 63) === 0) {
+            check();
+            progress({ stage: 'stochastic stage and verification', percent: 35 + (60 * issue) / I });
+          }
+        }
+        const a = performance.now();
+        comparison.add(c);
+        verificationMs += performance.now() - a;
+      },
+      createStochasticWorkspace(),
+    );
+    const stageMs = performance.now() - tStage - verificationMs;
+    check();
+    progress({ stage: 'scores and advice', percent: 96 });
+    const tReport = performance.now();
+    const report = comparison.result();
+    const advice = adviseStochasticStage(report);
+    let driftReference: DriftReference | null = null;
+    try {
+      driftReference = report.stochastic && report.stochastic.n >= 30 ? driftReferenceFrom(report, 'stochastic') : null;
+    } catch {
+      driftReference = null;
+    }
+    const reportMs = performance.now() - tReport;
+    return {
+      issues: {
+        given,
+        used: I,
+        skippedMissingForecast: skippedForecast,
+        skippedMissingInputs: skippedInputs,
+        usedIndex: Int32Array.from(issues),
+      },
+      cases: summary.cases,
+      unobserved: summary.unobserved,
+      members: series.members.map((m) => m.id),
+      models: K,
+      correction: byTime ? 'per-valid-time' : 'per-issue',
+      report,
+      advice,
+      driftReference,
+      timings: { correctionMs, stageMs, verificationMs, reportMs, totalMs: performance.now() - t0 },
+    };
+  } finally {
+    await Promise.all(sessions.map((s) => s.release()));
+  }
+}
+
+/** max(0, value + residual), or NaN when either is missing. */
+function correctedValue(value: number, residual: number): number {
+  const v = value + residual;
+  return Number.isFinite(v) ? Math.max(0, v) : NaN;
+}
+
+/**
+ * Simulation mode with lead-free features: every (model, member, valid time) the issues need is
+ * corrected once from the continuous rows (the same row builder serving uses).
+ */
+async function correctPerValidTime(
+  spec: FeatureSpec,
+  series: ArchiveSeries,
+  sessions: InferenceSession[],
+  issues: number[],
+  H: number,
+  progress: Progress,
+  check: () => void,
+): Promise<Float64Array> {
+  const n = series.times.length;
+  const M = series.members.length;
+  const K = sessions.length;
+  const out = new Float64Array(K * M * n).fill(NaN);
+  if (!issues.length) return out;
+  const need = new Uint8Array(n);
+  for (const i of issues) for (let h = 1; h <= H; h++) need[i + h] = 1;
+  for (let m = 0; m < M; m++) {
+    check();
+    const sim = series.members[m].values;
+    const all = continuousRows(spec, { times: series.times, sim, forcings: series.forcings, obs: sim });
+    const nF = all.nFeatures;
+    const pick: number[] = [];
+    for (let r = 0; r < all.nRows; r++) if (need[all.index[r]]) pick.push(r);
+    const x = new Float32Array(pick.length * nF);
+    for (let j = 0; j < pick.length; j++) x.set(all.rows.subarray(pick[j] * nF, (pick[j] + 1) * nF), j * nF);
+    for (let k = 0; k < K; k++) {
+      const residual = pick.length ? await predictResiduals(sessions[k], x, pick.length, nF) : new Float32Array(0);
+      const base = (k * M + m) * n;
+      for (let j = 0; j < pick.length; j++) {
+        const t = all.index[pick[j]];
+        out[base + t] = correctedValue(sim[t], residual[j]);
+      }
+    }
+    progress({ stage: 'correcting the members', percent: 2 + (33 * (m + 1)) / M });
+  }
+  return out;
+}
+
+/**
+ * Per issue (reforecast mode, or features that read the lead time or the issue-time error):
+ * serving rows for each issue's members × lead times, batched over issues for inference.
+ */
+async function correctPerIssue(
+  spec: FeatureSpec,
+  series: ArchiveSeries,
+  sessions: InferenceSession[],
+  issues: number[],
+  issueSource: number[],
+  reforecast: { values: Float64Array } | null,
+  H: number,
+  inputsOk: Uint8Array,
+  progress: Progress,
+  check: () => void,
+): Promise<Float64Array> {
+  const M = series.members.length;
+  const K = sessions.length;
+  const nF = featureCount(spec);
+  const need = requiredInputs(spec);
+  const W = need.simStepsToIssue;
+  const out = new Float64Array(issues.length * K * M * H).fill(NaN);
+  const perIssue = M * H;
+  const batchIssues = Math.max(1, Math.floor(ROWS_PER_BATCH / perIssue));
+  const rows = new Float32Array(batchIssues * perIssue * nF);
+  const rawBatch = new Float64Array(batchIssues * perIssue);
+  const memberBuf = Array.from({ length: M }, () => new Float64Array(W + 1 + H));
+  const forcings = spec.forcings.map((f) => series.forcings[f.name]);
+  for (let b0 = 0; b0 < issues.length; b0 += batchIssues) {
+    check();
+    const b1 = Math.min(issues.length, b0 + batchIssues);
+    const filled: number[] = [];
+    for (let j = b0; j < b1; j++) {
+      const i = issues[j];
+      const slot = filled.length;
+      const members = memberBuf.map((buf, m) => {
+        const sim = series.members[m].values;
+        for (let w = 0; w <= W; w++) buf[w] = sim[i - W + w];
+        for (let h = 0; h < H; h++) buf[W + 1 + h] = reforecast ? reforecast.values[(issueSource[j] * M + m) * H + h] : sim[i + h + 1];
+        for (let h = 0; h < H; h++) rawBatch[slot * perIssue + m * H + h] = buf[W + 1 + h];
+        return buf;
+      });
+      const run: RunInput = {
+        issueTime: series.times[i],
+        nLeads: H,
+        members,
+        forcings: Object.fromEntries(spec.forcings.map((f, fi) => [f.name, forcings[fi].subarray(i - need.forcings[fi].stepsToIssue, i + H + 1)])),
+        issueObservation: series.observed[i],
+      };
+      try {
+        servingRows(spec, run, rows.subarray(slot * perIssue * nF));
+        filled.push(j);
+      } catch (err) {
+        if (!(err instanceof FeatureInputError)) throw err;
+        inputsOk[j] = 0;
+      }
+    }
+    const nRows = filled.length * perIssue;
+    for (let k = 0; k < K && nRows > 0; k++) {
+      const residual = await predictResiduals(sessions[k], rows, nRows, nF);
+      for (let slot = 0; slot < filled.length; slot++) {
+        const j = filled[slot];
+        const base = (j * K + k) * perIssue;
+        for (let r = 0; r < perIssue; r++) out[base + r] = correctedValue(rawBatch[slot * perIssue + r], residual[slot * perIssue + r]);
+      }
+    }
+    progress({ stage: 'correcting the members', percent: 2 + (33 * b1) / issues.length });
+  }
+  return out;
+}

@@ -1,0 +1,108 @@
+import type { Queryable } from './db.ts';
+
+/** What verification reads of one stored run (see src/api/forecast-view.ts for the served shape). */
+export interface RunForVerification {
+  id: string;
+  issueMs: number;
+  source: string;
+  status: 'corrected' | 'degraded';
+  modelVersionId: string | null;
+  /** Valid time of each lead (RFC 3339). */
+  validTimes: string[];
+  raw: { id: string; values: number[] }[];
+  /** null for degraded runs. */
+  corrected: { id: string; values: number[] }[] | null;
+  /** Per lead, the stochastic stage's quantiles at the midpoint levels (i − 0.5)/K. */
+  percentiles: number[][];
+}
+
+export interface RunPage {
+  gaugeId: string;
+  fromMs?: number;
+  toMs?: number;
+  source?: string;
+  /** Keyset: runs after this (issue time, id). */
+  after?: { issueMs: number; id: string };
+  limit: number;
+}
+
+/** Stored runs in issue-time order (then id), one page at a time so long windows stream. */
+export async function readRunsForVerification(db: Queryable, p: RunPage): Promise<RunForVerification[]> {
+  const params: unknown[] = [p.gaugeId];
+  let where = '';
+  const add = (sql: string, v: unknown) => {
+    params.push(v);
+    where += ` and ${sql.replace('?', `$${params.length}`)}`;
+  };
+  if (p.fromMs !== undefined) add('issue_time >= to_timestamp(?)', p.fromMs / 1000);
+  if (p.toMs !== undefined) add('issue_time < to_timestamp(?)', p.toMs / 1000);
+  if (p.source !== undefined) add('source = ?', p.source);
+  if (p.after) {
+    params.push(p.after.issueMs / 1000, p.after.id);
+    where += ` and (issue_time, id) > (to_timestamp($${params.length - 1}), $${params.length})`;
+  }
+  params.push(p.limit);
+  const { rows } = await db.query<{
+    id: string;
+    t: number;
+    source: string;
+    status: 'corrected' | 'degraded';
+    model_version_id: string | null;
+    valid_times: string[];
+    ensemble: { raw: { id: string; values: number[] }[]; corrected: { id: string; values: number[] }[] | null };
+    percentiles: number[][];
+  }>(
+    `select id, (extract(epoch from issue_time) * 1000)::float8 as t, source, status, model_version_id::text as model_version_id,
+            (output::jsonb)->'validTimes' as valid_times, (output::jsonb)->'ensemble' as ensemble, percentiles
+       from forecast_runs where gauge_id = $1${where}
+      order by issue_time, id limit $${params.length}`,
+    params,
+  );
+  return rows.map((r) => ({
+    id: r.id,
+    issueMs: Number(r.t),
+    source: r.source,
+    status: r.status,
+    modelVersionId: r.model_version_id,
+    validTimes: r.valid_times,
+    raw: r.ensemble.raw,
+    corrected: r.ensemble.corrected,
+    percentiles: r.percentiles,
+  }));
+}
+
+/** The newest corrected runs of one model version issued at or after a time (newest first). */
+export async function readRecentRunPercentiles(db: Queryable, gaugeId: string, versionId: string, fromMs: number, limit: number) {
+  const { rows } = await db.query<{ t: number; percentiles: number[][] }>(
+    `select (extract(epoch from issue_time) * 1000)::float8 as t, percentiles from forecast_runs
+      where gauge_id = $1 and status = 'corrected' and model_version_id = $2 and issue_time >= to_timestamp($3)
+      order by issue_time desc, created_at desc limit $4`,
+    [gaugeId, versionId, fromMs / 1000, limit],
+  );
+  return rows.map((r) => ({ issueMs: Number(r.t), percentiles: r.percentiles }));
+}
+
+/** Time of the newest non-missing observation (epoch ms), or null. */
+export async function latestObservationMs(db: Queryable, gaugeId: string): Promise<number | null> {
+  const { rows } = await db.query<{ t: number | null }>(
+    `select (extract(epoch from max(time)) * 1000)::float8 as t from observed_flow where gauge_id = $1 and value is not null`,
+    [gaugeId],
+  );
+  return rows[0]?.t === null || rows[0]?.t === undefined ? null : Number(rows[0].t);
+}
+
+/** Whether the gauge has any stored run (the overview's 'no-forecast'). */
+export async function hasRuns(db: Queryable, gaugeId: string): Promise<boolean> {
+  const { rows } = await db.query('select 1 from forecast_runs where gauge_id = $1 limit 1', [gaugeId]);
+  return rows.length > 0;
+}
+
+/** Distinct reforecast issue times in a window (epoch ms, ascending). */
+export async function reforecastIssueTimes(db: Queryable, gaugeId: string, fromMs: number, toMs: number): Promise<number[]> {
+  const { rows } = await db.query<{ t: number }>(
+    `select distinct (extract(epoch from issue_time) * 1000)::float8 as t from reforecasts
+      where gauge_id = $1 and issue_time >= to_timestamp($2) and issue_time < to_timestamp($3) order by 1`,
+    [gaugeId, fromMs / 1000, toMs / 1000],
+  );
+  return rows.map((r) => Number(r.t));
+}
