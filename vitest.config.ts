@@ -10,6 +10,7 @@ export default defineConfig({
     testTimeout: 60_000,
     hookTimeout: 120_000,
     pool: 'forks',
+    reporters: ['default', './test/helpers/summary-reporter.ts'],
     projects: [
       {
         extends: true,
