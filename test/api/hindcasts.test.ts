@@ -1,0 +1,247 @@
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { jobHandlers } from '../../src/jobs/handlers.ts';
+import { JobRunner } from '../../src/jobs/runner.ts';
+import { loadScenarioArchive } from '../../src/scenario/load-archive.ts';
+import { buildScenario } from '../../src/scenario/scenario.ts';
+import { makeTestApp, type TestApp } from '../helpers/test-app.ts';
+import { injectSend } from '../helpers/scenario-send.ts';
+
+let t: TestApp;
+let runner: JobRunner;
+const scenario = buildScenario({ seed: 7, years: 4, members: 6 });
+const gaugeId = scenario.gauge.id;
+const quiet = { info() {}, warn() {}, error() {} } as never;
+const DAY = 86_400_000;
+const iso = (ms: number) => new Date(ms).toISOString().replace('.000Z', 'Z');
+let version: { id: string; periods: { calibration: { from: string; to: string }; validation: { from: string; to: string } } };
+
+beforeAll(async () => {
+  t = await makeTestApp();
+  runner = new JobRunner(t.db, jobHandlers, quiet, 60_000);
+  await loadScenarioArchive(injectSend(t), scenario, { reforecasts: true });
+  const fit = await t.as('admin', {
+    method: 'POST',
+    url: `/gauges/${gaugeId}/models/fit`,
+    payload: { params: { nRounds: 60, learningRate: 0.15, maxDepth: 4, patience: 10 }, templateLength: 30, simLags: 5, forcingLags: 2 },
+  });
+  await runner.drain();
+  const job = (await t.as('read', { method: 'GET', url: `/jobs/${fit.json().id}` })).json();
+  expect(job.status, job.error).toBe('succeeded');
+  version = (await t.as('read', { method: 'GET', url: `/gauges/${gaugeId}/models/${job.result.versionId}` })).json();
+});
+afterAll(async () => {
+  await runner.stop();
+  await t.close();
+});
+
+const start = (payload: object) => t.as('admin', { method: 'POST', url: `/gauges/${gaugeId}/hindcasts`, payload });
+const get = (jobId: string, query = '') => t.as('read', { method: 'GET', url: `/gauges/${gaugeId}/hindcasts/${jobId}${query}` });
+
+/** Runs the queue while polling the hindcast; returns every state seen. */
+async function drainWatching(jobId: string, onPoll?: (h: Record<string, any>) => Promise<void>) {
+  const seen: { status: string; stage: string; percent: number }[] = [];
+  let done = false;
+  const drained = runner.drain().finally(() => {
+    done = true;
+  });
+  while (!done) {
+    const h = (await get(jobId)).json();
+    seen.push({ status: h.status, stage: h.stage, percent: h.percent });
+    if (onPoll) await onPoll(h);
+    await new Promise((r) => setTimeout(r, 25));
+  }
+  await drained;
+  return seen;
+}
+
+describe('hindcast jobs', () => {
+  let first: Record<string, any>;
+
+  it('runs the pipeline over the validation period in simulation mode, with progress, and stores comparison, size study and advice', async () => {
+    const res = await start({ trajectories: 200, sizeStudy: { repeats: 5 } });
+    expect(res.statusCode, res.body).toBe(202);
+    const job = res.json();
+    expect(res.headers.location).toBe(`/gauges/${gaugeId}/hindcasts/${job.id}`);
+    expect(job).toMatchObject({ kind: 'hindcast', status: 'queued', href: res.headers.location });
+
+    const seen = await drainWatching(job.id);
+    expect(seen.some((s) => s.status === 'running' && s.percent > 0 && s.percent < 100)).toBe(true);
+    const h = (await get(job.id)).json();
+    expect(h.status, h.error).toBe('succeeded');
+    expect(h.percent).toBe(100);
+    first = h.result;
+    const r = first;
+    expect(r).toMatchObject({ mode: 'simulation', modelVersion: { id: version.id }, period: version.periods.validation, horizon: 10, trajectories: 200, correction: 'per-valid-time' });
+    expect(r.members).toHaveLength(6);
+    expect(r.leadTimes[9]).toBe('P10D');
+    // Every issue of the validation period (daily) with its 10 lead times inside the archive.
+    expect(r.issues.used).toBeGreaterThan(300);
+    const { raw, corrected, stochastic } = r.comparison;
+    expect(r.comparison.stochasticFrom).toBe('samples');
+    expect(r.comparison.cases.used).toBe(r.cases.verified);
+    for (const s of [raw, corrected, stochastic]) expect(s.n).toBe(r.cases.verified);
+    expect(raw.members.max).toBe(6);
+    expect(stochastic.members.max).toBe(200);
+    expect(stochastic.byLead).toHaveLength(10);
+    expect(stochastic.brier).toHaveLength(scenario.gauge.thresholds.length);
+    // The scenario's raw members are biased: the residual stage improves them where it was validated.
+    expect(corrected.crps.crps).toBeLessThan(raw.crps.crps);
+
+    // Size study: each forecast's sizes up to its own count; for exchangeable draws the fair CRPS
+    // does not depend on size while the standard CRPS exceeds it by E|X − X'|/(2m) (Ferro 2014),
+    // so it falls with size.
+    const bySource = Object.fromEntries(r.sizeStudy.map((s: { source: string }) => [s.source, s]));
+    expect(bySource.corrected.rows.map((x: { size: number }) => x.size)).toEqual([5, 6]);
+    expect(bySource.stochastic.rows.map((x: { size: number }) => x.size)).toEqual([5, 6, 10, 25, 50, 100, 200]);
+    const rows = bySource.stochastic.rows as { size: number; crps: number; fairCrps: number; meanWidth: number; alphaIndex: number }[];
+    for (let i = 1; i < rows.length; i++) expect(rows[i].crps).toBeLessThan(rows[i - 1].crps);
+    expect(Math.abs(rows[0].fairCrps / rows[rows.length - 1].fairCrps - 1)).toBeLessThan(0.03);
+    for (const row of rows) expect(row.meanWidth).toBeGreaterThan(0);
+
+    // Advice with its evidence; both stages stay visible.
+    expect(['use-stochastic', 'corrected-ensemble-suffices']).toContain(r.advice.recommendation);
+    expect(r.advice.evidence).toMatchObject({ cases: r.cases.verified, alphaCorrected: corrected.alphaIndex, alphaStochastic: stochastic.alphaIndex });
+    expect(r.advice.reasons.join(' ')).toMatch(/Reliability: alpha/);
+    // Honest about what the model and archive have seen.
+    expect(r.overlap.calibration).toBe(0);
+    expect(r.warnings.join(' ')).toMatch(/error archive was built from the validation period/);
+    expect(r.warnings.join(' ')).toMatch(/Simulation mode/);
+    expect(r.warnings.join(' ')).not.toMatch(/calibration period/);
+    expect(r.driftReference).toMatchObject({ stored: true });
+
+    const viaJobs = (await t.as('read', { method: 'GET', url: `/jobs/${job.id}` })).json();
+    expect(viaJobs.result.advice).toEqual(r.advice);
+  });
+
+  it('serves the main scores as CSV and a text table with the size study', async () => {
+    const jobs = (await t.as('read', { method: 'GET', url: `/gauges/${gaugeId}/hindcasts` })).json().hindcasts;
+    const id = jobs[0].id;
+    expect(jobs[0]).toMatchObject({ status: 'succeeded', mode: 'simulation', purpose: 'request', href: `/gauges/${gaugeId}/hindcasts/${id}` });
+    const csv = await get(id, '?format=csv');
+    expect(csv.statusCode).toBe(200);
+    expect(csv.headers['content-type']).toContain('text/csv');
+    const lines = csv.body.trim().split('\n').filter((l) => !l.startsWith('#'));
+    expect(lines[0]).toBe('score,unit,raw,corrected,stochastic');
+    const crps = lines.find((l) => l.startsWith('CRPS,'))!.split(',');
+    expect(Number(crps[4])).toBe(first.comparison.stochastic.crps.crps);
+    const text = await get(id, '?format=text');
+    expect(text.body).toContain(`Stochastic stage: ${first.advice.recommendation}`);
+    expect(text.body).toContain('Ensemble-size study, stochastic');
+    expect(text.body).toMatch(/alpha index\s+0\.\d+\s+0\.\d+\s+0\.\d+/);
+  });
+
+  it('warns when the period overlaps the calibration period, and keeps such a level out of the drift watch', async () => {
+    const from = version.periods.calibration.from;
+    const to = iso(Date.parse(from) + 60 * DAY);
+    const res = await start({ from, to, everySteps: 3, trajectories: 100, sizeStudy: { sources: [] } });
+    expect(res.statusCode, res.body).toBe(202);
+    await runner.drain();
+    const h = (await get(res.json().id)).json();
+    expect(h.status, h.error).toBe('succeeded');
+    expect(h.result.overlap.calibration).toBe(h.result.issues.used);
+    expect(h.result.warnings.join(' ')).toMatch(/overlaps the model's calibration period/);
+    expect(h.result.driftReference).toMatchObject({ stored: false });
+    expect(h.result.sizeStudy).toBeNull();
+    // 20 issues asked; the first ones lack the model's warm-up (the archive starts there) and are left out, with a warning.
+    expect(h.result.issues.given).toBe(20);
+    expect(h.result.issues.skippedMissingInputs).toBeGreaterThan(0);
+    expect(h.result.issues.used + h.result.issues.skippedMissingInputs).toBe(20);
+    expect(h.result.warnings.join(' ')).toMatch(/issues were left out/);
+  });
+
+  it('runs in reforecast mode over the stored past runs', async () => {
+    const res = await start({ mode: 'reforecast', trajectories: 200, sizeStudy: { repeats: 3 } });
+    expect(res.statusCode, res.body).toBe(202);
+    await runner.drain();
+    const h = (await get(res.json().id)).json();
+    expect(h.status, h.error).toBe('succeeded');
+    const r = h.result;
+    const v = { from: Date.parse(version.periods.validation.from), to: Date.parse(version.periods.validation.to) };
+    const stored = scenario.reforecasts().filter((run) => Date.parse(run.issueTime) >= v.from && Date.parse(run.issueTime) < v.to);
+    expect(r).toMatchObject({ mode: 'reforecast', horizon: 10, correction: 'per-issue' });
+    expect(r.issues.given).toBe(stored.length);
+    expect(r.issues.used).toBe(stored.length);
+    expect(r.comparison.stochastic.n).toBe(r.cases.verified);
+    expect(r.warnings.join(' ')).toMatch(/Reforecast mode/);
+  });
+
+  it('corrects a past run exactly as the service corrected it when it was posted', async () => {
+    // One stored reforecast, posted as a run with the archived forcings (what the hindcast uses),
+    // the same seed and trajectory count: raw, corrected and stochastic must agree.
+    const past = scenario.reforecasts().at(-5)!;
+    const i = past.issueTimeIndex;
+    const w = past.warmupSteps;
+    const posted = await t.as('ingest', {
+      method: 'POST',
+      url: `/gauges/${gaugeId}/runs`,
+      payload: {
+        issueTime: past.issueTime,
+        source: 'replay',
+        unit: 'm3/s',
+        warmupSteps: w,
+        members: past.members.map((m) => ({ id: m.id, values: m.values })),
+        forcings: {
+          precipitation: scenario.forcings.precipitation.slice(i - w + 1, i + 11),
+          air_temperature: scenario.forcings.air_temperature.slice(i - w + 1, i + 11),
+        },
+        trajectories: 200,
+        seed: 4321,
+        seasonalWindowDays: 60,
+      },
+    });
+    expect(posted.statusCode, posted.body).toBe(201);
+    const run = posted.json();
+    const res = await start({ mode: 'reforecast', from: past.issueTime, to: iso(Date.parse(past.issueTime) + DAY), trajectories: 200, seed: 4321, sizeStudy: { sources: [] } });
+    expect(res.statusCode, res.body).toBe(202);
+    await runner.drain();
+    const h = (await get(res.json().id)).json();
+    expect(h.status, h.error).toBe('succeeded');
+    const c = h.result.comparison;
+    const obs = scenario.observedFlow.slice(i + 1, i + 11);
+    const observed = obs.map((y, k) => [y, k] as const).filter(([y]) => y !== null) as [number, number][];
+    expect(c.cases.used).toBe(observed.length);
+    const median = (xs: number[]) => {
+      const s = [...xs].sort((a, b) => a - b);
+      return s.length % 2 ? s[(s.length - 1) / 2] : (s[s.length / 2 - 1] + s[s.length / 2]) / 2;
+    };
+    const mae = (at: (k: number) => number) => observed.reduce((a, [y, k]) => a + Math.abs(at(k) - y), 0) / observed.length;
+    const q50 = run.quantiles.values[run.quantiles.probabilities.indexOf(0.5)];
+    // MAE of the median from the served run (values rounded to 1e-4) against the hindcast's.
+    expect(c.raw.median.mae).toBeCloseTo(mae((k) => median(run.ensemble.raw.map((m: { values: number[] }) => m.values[k]))), 3);
+    expect(c.corrected.median.mae).toBeCloseTo(mae((k) => median(run.ensemble.corrected.map((m: { values: number[] }) => m.values[k]))), 3);
+    expect(c.stochastic.median.mae).toBeCloseTo(mae((k) => q50[k]), 3);
+  });
+
+  it('can be cancelled while it runs', async () => {
+    const res = await start({ from: scenario.times[30], to: scenario.times[scenario.times.length - 20], trajectories: 5000, sizeStudy: { sources: [] } });
+    expect(res.statusCode, res.body).toBe(202);
+    const id = res.json().id;
+    let asked = false;
+    const seen = await drainWatching(id, async (h) => {
+      if (!asked && h.status === 'running' && h.percent >= 36) {
+        asked = true;
+        expect((await t.as('admin', { method: 'POST', url: `/jobs/${id}/cancel` })).statusCode).toBe(202);
+      }
+    });
+    expect(asked).toBe(true);
+    expect(seen.some((s) => s.stage === 'stochastic stage and verification')).toBe(true);
+    const h = (await get(id)).json();
+    expect(h.status).toBe('cancelled');
+    expect(h.result).toBeNull();
+    expect((await get(id, '?format=csv')).statusCode).toBe(409);
+  });
+
+  it('refuses what it cannot run, naming the field', async () => {
+    const long = await start({ horizon: 31 });
+    expect(long.statusCode).toBe(422);
+    expect(long.json().errors[0]).toMatchObject({ path: 'body.horizon' });
+    const early = await start({ mode: 'reforecast', from: scenario.times[0], to: scenario.times[30] });
+    expect(early.statusCode).toBe(422);
+    expect(early.json().errors[0]).toMatchObject({ path: 'body.mode' });
+    expect((await start({ version: '999' })).json().errors[0]).toMatchObject({ path: 'body.version' });
+    expect((await start({ trajectories: 1_000_000 })).json().errors[0]).toMatchObject({ path: 'body.trajectories' });
+    expect((await start({ from: scenario.times[40], to: scenario.times[20] })).json().errors[0]).toMatchObject({ path: 'body.to' });
+    expect((await t.as('read', { method: 'POST', url: `/gauges/${gaugeId}/hindcasts`, payload: {} })).statusCode).toBe(403);
+    expect((await get('999999')).statusCode).toBe(404);
+  });
+});
