@@ -36,7 +36,7 @@ const HindcastBody = z
     sizeStudy: z
       .strictObject({
         sources: z.array(SourceEnum).max(3).default(['corrected', 'stochastic']),
-        /** Candidate sizes; each forecast keeps those up to its own count and adds its full count. */
+        /** Candidate sizes; each forecast keeps those up to its own count; the member count is added. */
         sizes: z.array(z.number().int().min(1).max(100_000)).min(1).max(20).default([5, 10, 25, 50, 100]),
         repeats: z.number().int().min(1).max(200).default(20),
         /** Share of cases studied (default: about 20 000 cases). */

@@ -35,7 +35,7 @@ export interface HindcastSettings {
   leadRange: { min?: number; max?: number } | null;
   sizeStudy: {
     sources: SourceName[];
-    /** Candidate sizes; each source keeps those up to its count, plus its full count. */
+    /** Candidate sizes; each source keeps those up to its count; the member count is added. */
     sizes: number[];
     repeats: number;
     /** Share of cases studied; null = enough for about `targetCases` cases. */
@@ -213,7 +213,10 @@ export async function computeHindcast(input: HindcastTaskInput, progress: Progre
 
     const study = settings.sizeStudy;
     const caseFraction = study.caseFraction ?? Math.min(1, study.targetCases / Math.max(1, I * H));
-    const sizes = [...new Set([...study.sizes, M, settings.nDraws])].sort((a, b) => a - b);
+    // The members' count is added so the stage can be read at the ensemble's size; the stage's full
+    // draw count is not (all of it is the comparison's own stochastic column, and re-drawing all
+    // values in random order would only repeat it at great cost).
+    const sizes = [...new Set([...study.sizes, M])].sort((a, b) => a - b);
     const comparison = createComparison({
       seed: settings.seed,
       thresholds: settings.thresholds,
