@@ -58,10 +58,10 @@ if (hasModel) {
 
   say('fitting a residual model (gradient-boosted trees, tuned by Bayesian optimisation) as a background job');
   const job = await send('POST', `/gauges/${gaugeId}/models/fit`, {
-    tuning: { evaluations: 8, initial: 4 },
+    tuning: { evaluations: 6, initial: 3 },
     bundle: 3,
     params: { nRounds: 250, patience: 20 },
-    maxTrainRows: 60_000,
+    maxTrainRows: 40_000,
     templateLength: 30,
     label: 'demo: tuned trees',
   });
@@ -83,10 +83,10 @@ if (hasModel) {
   }
 }
 
-// The record ends on the scenario's "today"; post the last 30 daily runs so there is history.
+// The record ends on the scenario's "today"; post the last 10 daily runs so there is some history.
 const last = scenario.times.length - 1;
 let posted = 0;
-for (let i = last - 29; i <= last; i++) {
+for (let i = last - 9; i <= last; i++) {
   const run = scenario.forecastRun(i);
   const res = await send('POST', `/gauges/${gaugeId}/runs`, {
     issueTime: run.issueTime,
@@ -99,7 +99,7 @@ for (let i = last - 29; i <= last; i++) {
   if (res.status === 201) posted++;
   else if (res.status !== 200) throw new Error(`posting the run of ${run.issueTime} failed: ${JSON.stringify(res.body)}`);
 }
-say(`posted the raw runs of the last 30 days (${posted} new); the latest was issued ${scenario.times[last]} ("today" in the scenario)`);
+say(`posted the raw runs of the last 10 days (${posted} new); the latest was issued ${scenario.times[last]} ("today" in the scenario)`);
 
 const table = await fetch(`${url}/gauges/${gaugeId}/forecasts/latest?format=text`, { headers: { authorization: `Bearer ${read}` } });
 console.log(`\n${await table.text()}`);
