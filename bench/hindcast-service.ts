@@ -9,14 +9,22 @@
  * Setup (timed, but not part of the goal): the demo scenario (invented data) loaded through the
  * API, and a residual model fitted by the fit job. The store is the embedded one in memory, or a
  * PostgreSQL server with BENCH_DATABASE_URL (a fresh database is created and dropped).
- * Run: npx tsx bench/hindcast-service.ts [years=30] [members=50]
+ * With --per-issue, the same hindcast also runs with the reforecast-mode correction path (feature
+ * rows built per issue × member × lead and batched through onnxruntime), using the members'
+ * simulations as daily "reforecasts": what a reforecast archive or a lead-time feature costs.
+ * Run: npx tsx bench/hindcast-service.ts [years=30] [members=50] [--per-issue]
  */
 import { randomBytes } from 'node:crypto';
 import pg from 'pg';
 import { buildApp } from '../src/api/app.ts';
 import { loadConfig } from '../src/config.ts';
 import { jobHandlers } from '../src/jobs/handlers.ts';
+import type { HindcastOutput } from '../src/jobs/hindcast-compute.ts';
+import { runCompute } from '../src/jobs/run-compute.ts';
 import { JobRunner } from '../src/jobs/runner.ts';
+import { loadArchiveSeries } from '../src/store/archive-series.ts';
+import { getGauge } from '../src/store/gauges-repo.ts';
+import { modelParts, getModelVersion, versionArchive } from '../src/store/models-repo.ts';
 import { loadScenarioArchive, type Send } from '../src/scenario/load-archive.ts';
 import { buildScenario } from '../src/scenario/scenario.ts';
 import type { Db } from '../src/store/db.ts';
@@ -24,8 +32,10 @@ import { openEmbedded } from '../src/store/embedded-driver.ts';
 import { migrate } from '../src/store/migrate.ts';
 import { openPostgres } from '../src/store/postgres-driver.ts';
 
-const years = Number(process.argv[2] ?? 30);
-const members = Number(process.argv[3] ?? 50);
+const args = process.argv.slice(2).filter((a) => !a.startsWith('--'));
+const perIssue = process.argv.includes('--per-issue');
+const years = Number(args[0] ?? 30);
+const members = Number(args[1] ?? 50);
 const H = 10;
 const N = 1000;
 
@@ -110,6 +120,46 @@ try {
   rows.push(['hindcast: verification, streamed (3 forecasts + size study)', s(tm.verificationMs)]);
   rows.push(['hindcast: report and advice', s(tm.reportMs)]);
   rows.push(['hindcast job, end to end (POST → succeeded)', `${s(jobMs)} (goal < 60 s)`]);
+
+  if (perIssue) {
+    // Same issues, model and archive; the members' simulations passed as reforecasts force the per-issue path.
+    const gauge = (await getGauge(store.db, gaugeId))!;
+    const version = (await getModelVersion(store.db, gaugeId, fitJob.result.versionId))!;
+    const archive = (await versionArchive(store.db, version.id, 'corrected'))!;
+    const series = await loadArchiveSeries(store.db, gaugeId, gauge.stepSeconds);
+    const n = series.times.length;
+    const issueIndex = Int32Array.from({ length: n - H - 1 }, (_, i) => i);
+    const M = series.members.length;
+    const values = new Float64Array(issueIndex.length * M * H);
+    for (let i = 0; i < issueIndex.length; i++) for (let m = 0; m < M; m++) for (let k = 0; k < H; k++) values[(i * M + m) * H + k] = series.members[m].values[i + k + 1];
+    const t1 = performance.now();
+    const out = await runCompute<HindcastOutput>({
+      kind: 'hindcast',
+      input: {
+        series,
+        issueIndex,
+        reforecast: { values },
+        model: { spec: version.featureSpec, parts: await modelParts(store.db, version.id) },
+        archive: archive.bytes,
+        settings: {
+          mode: 'reforecast',
+          horizon: H,
+          seed: 1,
+          nDraws: N,
+          seasonalWindowDays: 60,
+          thresholds: gauge.thresholds.map((x) => x.value),
+          leadRange: null,
+          sizeStudy: { sources: ['corrected', 'stochastic'], sizes: [5, 10, 25, 50, 100], repeats: 20, caseFraction: null, targetCases: 20_000 },
+        },
+      },
+    }).result;
+    const all = performance.now() - t1;
+    rows.push([`per-issue path: correction (${out.correction}, ${out.issues.used * M * H} feature rows)`, s(out.timings.correctionMs)]);
+    rows.push(['per-issue path: stage + verification + report', s(out.timings.stageMs + out.timings.verificationMs + out.timings.reportMs)]);
+    rows.push(['per-issue path: compute worker, end to end (no store reads)', s(all)]);
+    const same = Math.abs(out.report.corrected.crps.crps! - r.comparison.corrected.crps.crps) < 1e-9;
+    rows.push(['per-issue path: corrected CRPS equals the per-valid-time path', same ? 'yes' : `no (${out.report.corrected.crps.crps} vs ${r.comparison.corrected.crps.crps})`]);
+  }
 
   console.log(`Hindcast job: ${years} years daily, ${members} members, ${H} lead times, ${N} trajectories; ${r.cases.verified} cases verified; store: ${store.kind}`);
   console.log('');
