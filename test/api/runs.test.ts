@@ -246,3 +246,33 @@ describe('reading forecasts', () => {
     expect(m).toMatch(/sft_model_cache_total\{result="hit"\} \d+/);
   });
 });
+
+describe('a failing residual model', () => {
+  it('falls back to the raw members and raw archive, and says why', async () => {
+    // A version whose stored ONNX bytes are damaged: the worker cannot load it.
+    const { rows } = await t.db.query<{ id: string }>(
+      `insert into model_versions (gauge_id, origin, label, feature_spec, trainer, periods, scores)
+       select gauge_id, origin, 'damaged copy', feature_spec, trainer, periods, scores from model_versions
+        where gauge_id = $1 and active returning id::text as id`,
+      [gaugeId],
+    );
+    const damaged = rows[0].id;
+    await t.db.query(`insert into model_parts (version_id, part, onnx) values ($1, 0, $2)`, [damaged, Buffer.from('not onnx at all')]);
+    await t.db.query(
+      `insert into error_archives (gauge_id, version_id, kind, lead_mode, cases, summary, bytes)
+       select gauge_id, $1, kind, lead_mode, cases, summary, bytes from error_archives
+        where version_id = (select id from model_versions where gauge_id = $2 and active) and kind = 'corrected'`,
+      [damaged, gaugeId],
+    );
+    const previous = (await t.db.query<{ id: string }>('select id::text as id from model_versions where gauge_id = $1 and active', [gaugeId])).rows[0].id;
+    expect((await t.as('admin', { method: 'POST', url: `/gauges/${gaugeId}/models/${damaged}/activate` })).statusCode).toBe(200);
+
+    const res = await post(runBody(scenario.forecastRun(lastIndex - 70), { source: 'damaged-model' }));
+    expect(res.statusCode, res.body).toBe(201);
+    const body = res.json();
+    expect(body.status).toBe('degraded');
+    expect(body.degradedReason).toMatch(new RegExp(`version ${damaged}\\) failed`));
+    expect(body.modelVersion).toBeNull();
+    await t.as('admin', { method: 'POST', url: `/gauges/${gaugeId}/models/${previous}/activate` });
+  });
+});
