@@ -7,6 +7,13 @@ const seconds = (ms: Float64Array, from: number, to: number) => Array.from(ms.su
 const nullable = (v: Float64Array, from: number, to: number) =>
   Array.from(v.subarray(from, to), (x) => (Number.isNaN(x) ? null : x));
 
+/** Runs one statement per chunk of rows and adds up the rows each wrote. */
+async function inChunks(n: number, write: (from: number, to: number) => Promise<{ rows: { n: number }[] }>): Promise<number> {
+  let written = 0;
+  for (let from = 0; from < n; from += CHUNK) written += Number((await write(from, Math.min(from + CHUNK, n))).rows[0].n);
+  return written;
+}
+
 /** Each upsert returns how many rows it inserted or changed; re-sending the same batch changes none. */
 export async function upsertObservations(
   tx: Queryable,
@@ -15,10 +22,8 @@ export async function upsertObservations(
   values: Float64Array,
   quality: (string | null)[] | null,
 ): Promise<number> {
-  let written = 0;
-  for (let from = 0; from < times.length; from += CHUNK) {
-    const to = Math.min(from + CHUNK, times.length);
-    const { rows } = await tx.query<{ n: number }>(
+  return inChunks(times.length, (from, to) =>
+    tx.query<{ n: number }>(
       `with w as (
          insert into observed_flow (gauge_id, time, value, quality)
          select $1, to_timestamp(t), v, q from unnest($2::float8[], $3::float8[], $4::text[]) as u(t, v, q)
@@ -27,17 +32,13 @@ export async function upsertObservations(
          returning 1)
        select count(*)::int as n from w`,
       [gaugeId, seconds(times, from, to), nullable(values, from, to), quality ? quality.slice(from, to) : new Array(to - from).fill(null)],
-    );
-    written += Number(rows[0].n);
-  }
-  return written;
+    ),
+  );
 }
 
 export async function upsertForcing(tx: Queryable, gaugeId: string, variable: string, times: Float64Array, values: Float64Array): Promise<number> {
-  let written = 0;
-  for (let from = 0; from < times.length; from += CHUNK) {
-    const to = Math.min(from + CHUNK, times.length);
-    const { rows } = await tx.query<{ n: number }>(
+  return inChunks(times.length, (from, to) =>
+    tx.query<{ n: number }>(
       `with w as (
          insert into forcing_values (gauge_id, variable, time, value)
          select $1, $2, to_timestamp(t), v from unnest($3::float8[], $4::float8[]) as u(t, v)
@@ -46,17 +47,13 @@ export async function upsertForcing(tx: Queryable, gaugeId: string, variable: st
          returning 1)
        select count(*)::int as n from w`,
       [gaugeId, variable, seconds(times, from, to), nullable(values, from, to)],
-    );
-    written += Number(rows[0].n);
-  }
-  return written;
+    ),
+  );
 }
 
 export async function upsertSimulation(tx: Queryable, gaugeId: string, memberId: string, times: Float64Array, values: Float64Array): Promise<number> {
-  let written = 0;
-  for (let from = 0; from < times.length; from += CHUNK) {
-    const to = Math.min(from + CHUNK, times.length);
-    const { rows } = await tx.query<{ n: number }>(
+  return inChunks(times.length, (from, to) =>
+    tx.query<{ n: number }>(
       `with w as (
          insert into member_simulations (gauge_id, member_id, time, value)
          select $1, $2, to_timestamp(t), v from unnest($3::float8[], $4::float8[]) as u(t, v)
@@ -65,19 +62,14 @@ export async function upsertSimulation(tx: Queryable, gaugeId: string, memberId:
          returning 1)
        select count(*)::int as n from w`,
       [gaugeId, memberId, seconds(times, from, to), nullable(values, from, to)],
-    );
-    written += Number(rows[0].n);
-  }
-  return written;
+    ),
+  );
 }
 
 /** One member of one past run: values[0] is lead 1 (one step after issue time). */
 export async function upsertReforecast(tx: Queryable, gaugeId: string, issueMs: number, memberId: string, values: Float64Array): Promise<number> {
-  let written = 0;
-  for (let from = 0; from < values.length; from += CHUNK) {
-    const to = Math.min(from + CHUNK, values.length);
-    const leads = Array.from({ length: to - from }, (_, i) => from + i + 1);
-    const { rows } = await tx.query<{ n: number }>(
+  return inChunks(values.length, (from, to) =>
+    tx.query<{ n: number }>(
       `with w as (
          insert into reforecasts (gauge_id, issue_time, member_id, lead, value)
          select $1, to_timestamp($2), $3, l, v from unnest($4::int[], $5::float8[]) as u(l, v)
@@ -85,11 +77,9 @@ export async function upsertReforecast(tx: Queryable, gaugeId: string, issueMs: 
          where reforecasts.value is distinct from excluded.value
          returning 1)
        select count(*)::int as n from w`,
-      [gaugeId, issueMs / 1000, memberId, leads, nullable(values, from, to)],
-    );
-    written += Number(rows[0].n);
-  }
-  return written;
+      [gaugeId, issueMs / 1000, memberId, Array.from({ length: to - from }, (_, i) => from + i + 1), nullable(values, from, to)],
+    ),
+  );
 }
 
 export async function ensureMembers(tx: Queryable, gaugeId: string, ids: string[]): Promise<void> {
