@@ -46,6 +46,9 @@ const send: Send = async (method, path, body) => {
 const scenario = buildScenario({ seed: 1 });
 const g = scenario.gauge;
 const gaugeId = g.id;
+// "Today" in the scenario is three days before the largest flood of its last three years, so the
+// latest forecast has something to say; the archive loaded ends today.
+const today = floodEve(scenario.observedFlow, 3 * 365, 3);
 say(`scenario: ${g.name} (${g.catchmentAreaKm2} km², invented), ${scenario.times.length} days, ${scenario.memberIds.length} raw members`);
 
 const existing = await send('GET', `/gauges/${gaugeId}/models`);
@@ -54,7 +57,7 @@ if (hasModel) {
   say('found the gauge, its archive and an active residual model from an earlier start: reusing them');
 } else {
   say('loading the archive through the API: gauge, forcings, observed flow, member simulations');
-  await loadScenarioArchive(send, scenario, { onStep: (what) => say(`  loaded ${what}`) });
+  await loadScenarioArchive(send, scenario, { endIndex: today, onStep: (what) => say(`  loaded ${what}`) });
 
   say('fitting a residual model (gradient-boosted trees, tuned by Bayesian optimisation) as a background job');
   const job = await send('POST', `/gauges/${gaugeId}/models/fit`, {
@@ -83,8 +86,8 @@ if (hasModel) {
   }
 }
 
-// The record ends on the scenario's "today"; post the last 10 daily runs so there is some history.
-const last = scenario.times.length - 1;
+// Post the last 10 daily runs up to today, so there is some history.
+const last = today;
 let posted = 0;
 for (let i = last - 9; i <= last; i++) {
   const run = scenario.forecastRun(i);
@@ -100,6 +103,13 @@ for (let i = last - 9; i <= last; i++) {
   else if (res.status !== 200) throw new Error(`posting the run of ${run.issueTime} failed: ${JSON.stringify(res.body)}`);
 }
 say(`posted the raw runs of the last 10 days (${posted} new); the latest was issued ${scenario.times[last]} ("today" in the scenario)`);
+
+/** The index `lead` days before the highest observed flow within the final `span` days. */
+function floodEve(observed: (number | null)[], span: number, lead: number): number {
+  let peak = observed.length - span;
+  for (let i = peak; i < observed.length - 11; i++) if ((observed[i] ?? -1) > (observed[peak] ?? -1)) peak = i;
+  return peak - lead;
+}
 
 const table = await fetch(`${url}/gauges/${gaugeId}/forecasts/latest?format=text`, { headers: { authorization: `Bearer ${read}` } });
 console.log(`\n${await table.text()}`);

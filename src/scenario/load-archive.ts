@@ -14,7 +14,14 @@ async function expectOk(send: Send, method: 'POST' | 'PATCH', url: string, body:
  * gauge, forcings, observed flow, member simulations, and reforecasts when asked. Re-running it
  * changes nothing (every write is an upsert).
  */
-export async function loadScenarioArchive(send: Send, scenario: Scenario, options: { reforecasts?: boolean; onStep?: (what: string) => void } = {}): Promise<void> {
+export async function loadScenarioArchive(
+  send: Send,
+  scenario: Scenario,
+  options: { reforecasts?: boolean; onStep?: (what: string) => void; /** Last time index loaded (default: all). */ endIndex?: number } = {},
+): Promise<void> {
+  const end = (options.endIndex ?? scenario.times.length - 1) + 1;
+  const times = scenario.times.slice(0, end);
+  const cut = <T>(values: T[]) => values.slice(0, end);
   const g = scenario.gauge;
   const step = options.onStep ?? (() => {});
   const gauge = {
@@ -32,27 +39,27 @@ export async function loadScenarioArchive(send: Send, scenario: Scenario, option
   step('gauge');
 
   await expectOk(send, 'POST', `/gauges/${g.id}/forcings`, {
-    times: scenario.times,
+    times,
     variables: [
-      { name: 'precipitation', unit: 'mm', values: scenario.forcings.precipitation },
-      { name: 'air_temperature', unit: 'degC', values: scenario.forcings.air_temperature },
+      { name: 'precipitation', unit: 'mm', values: cut(scenario.forcings.precipitation) },
+      { name: 'air_temperature', unit: 'degC', values: cut(scenario.forcings.air_temperature) },
     ],
   });
   step('forcings');
-  await expectOk(send, 'POST', `/gauges/${g.id}/observations`, { unit: 'm3/s', times: scenario.times, values: scenario.observedFlow });
+  await expectOk(send, 'POST', `/gauges/${g.id}/observations`, { unit: 'm3/s', times, values: cut(scenario.observedFlow) });
   step('observed flow');
   // Members in batches of ten keep each request a few MB.
   for (let i = 0; i < scenario.memberIds.length; i += 10) {
     const ids = scenario.memberIds.slice(i, i + 10);
     await expectOk(send, 'POST', `/gauges/${g.id}/simulations`, {
       unit: 'm3/s',
-      times: scenario.times,
-      members: ids.map((id) => ({ id, values: scenario.memberSimulations[id] })),
+      times,
+      members: ids.map((id) => ({ id, values: cut(scenario.memberSimulations[id]) })),
     });
   }
   step('member simulations');
   if (options.reforecasts) {
-    const runs = scenario.reforecasts();
+    const runs = scenario.reforecasts().filter((r) => r.issueTimeIndex + r.horizonSteps < end);
     for (let i = 0; i < runs.length; i += 20) {
       await expectOk(send, 'POST', `/gauges/${g.id}/reforecasts`, {
         unit: 'm3/s',
