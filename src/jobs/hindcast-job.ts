@@ -181,6 +181,9 @@ export const hindcastJob: JobHandler = async (job, { db, progress, signal }) => 
       `The stochastic stage's error archive was built from the validation period (${iso(validation!.fromMs)} – ${iso(validation!.toMs)}), which ${inValidation} of ${usedTimes.length} issues overlap: there the stage resamples errors of the very period it is scored on.`,
     );
   }
+  if (!calibration) {
+    warnings.push(`Model version ${version.id} (${version.origin}) records no calibration period, so whether the hindcast overlaps the data it was trained on cannot be checked.`);
+  }
   if (mode === 'simulation') {
     warnings.push('Simulation mode: the pseudo-forecasts are the members\' continuous simulations driven by observed forcings, so they carry no forcing error; real forecasts score worse, above all at long lead times.');
   } else {

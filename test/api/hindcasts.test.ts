@@ -1,4 +1,5 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { buildArchiveFromReforecasts, createPrng, hindcastCases, runStochasticStage } from '../../src/core/index.ts';
 import { jobHandlers } from '../../src/jobs/handlers.ts';
 import { JobRunner } from '../../src/jobs/runner.ts';
 import { loadScenarioArchive } from '../../src/scenario/load-archive.ts';
@@ -243,5 +244,39 @@ describe('hindcast jobs', () => {
     expect((await start({ from: scenario.times[40], to: scenario.times[20] })).json().errors[0]).toMatchObject({ path: 'body.to' });
     expect((await t.as('read', { method: 'POST', url: `/gauges/${gaugeId}/hindcasts`, payload: {} })).statusCode).toBe(403);
     expect((await get('999999')).statusCode).toBe(404);
+  });
+});
+
+describe('a bundle of residual models in the hindcast (core runHindcast, nModels)', () => {
+  it('scores the mean over models as the corrected ensemble and runs the stage on every (model, member), as serving does', () => {
+    const I = 3;
+    const M = 4;
+    const Hh = 3;
+    const g = createPrng(3);
+    const raw = Float64Array.from({ length: I * M * Hh }, () => 50 + 10 * g.normal());
+    const observed = Float64Array.from({ length: I * Hh }, () => 50 + 10 * g.normal());
+    const dayOfYear = Uint16Array.from({ length: I * Hh }, (_, k) => 100 + k);
+    const archive = buildArchiveFromReforecasts({
+      nIssues: 200,
+      nLeads: Hh,
+      corrected: Float64Array.from({ length: 200 * Hh }, () => 50 + 10 * g.normal()),
+      observed: Float64Array.from({ length: 200 * Hh }, () => 50 + 10 * g.normal()),
+      dayOfYear: Uint16Array.from({ length: 200 * Hh }, (_, k) => 1 + (k % 365)),
+    });
+    // Model 0 adds 1, model 1 adds 3: the corrected member is raw + 2.
+    const correct = (r: Float64Array, _i: number, out: Float64Array) => {
+      for (let j = 0; j < M * Hh; j++) {
+        out[j] = r[j] + 1;
+        out[M * Hh + j] = r[j] + 3;
+      }
+    };
+    const cases = hindcastCases({ nIssues: I, nMembers: M, nLeads: Hh, nModels: 2, raw, observed, dayOfYear, correct, archive, stochastic: { seed: 9, nDraws: 40 } });
+    expect(cases).toHaveLength(I * Hh);
+    const c = cases[1 * Hh + 2];
+    for (let m = 0; m < M; m++) expect(c.corrected[m]).toBeCloseTo(raw[(1 * M + m) * Hh + 2] + 2, 12);
+    const members = new Float64Array(2 * M * Hh);
+    correct(raw.subarray(1 * M * Hh, 2 * M * Hh), 1, members);
+    const direct = runStochasticStage(archive, { members, nModels: 2, nMembers: M, nLeads: Hh, dayOfYear: Array.from(dayOfYear.subarray(Hh, 2 * Hh)) }, { seed: 10, nDraws: 40, keepTrajectories: true });
+    expect(Array.from(c.stochastic as Float64Array)).toEqual(Array.from({ length: 40 }, (_, j) => direct.trajectories![j * Hh + 2]));
   });
 });

@@ -1,6 +1,6 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { buildForecastView } from '../../src/api/forecast-view.ts';
-import { createPrng, crpsGaussian, normalQuantile } from '../../src/core/index.ts';
+import { createPrng, crpsGaussian, normalQuantile, watchDrift, type VerificationCase } from '../../src/core/index.ts';
 import { settleGaugeStatusRefreshes } from '../../src/jobs/drift-refresh.ts';
 import { jobHandlers } from '../../src/jobs/handlers.ts';
 import { JobRunner } from '../../src/jobs/runner.ts';
@@ -347,5 +347,29 @@ describe('the scenario: stored runs, later observations, drift', () => {
     expect(s.gauge.drift.evidence.cases).toBeGreaterThanOrEqual(30);
     expect(s.overview).toBe('drifting');
     expect(s.metric).toBe(1);
+  });
+});
+
+describe('drift coverage test with runs as units (core watchDrift, testUnits)', () => {
+  it('counts each issue once: 40 runs of 5 lead times, 28 runs covered throughout', () => {
+    const values = Array.from({ length: 99 }, (_, i) => 10 + (i - 49) / 10 + 0.05);
+    const probs = Float64Array.from({ length: 99 }, (_, i) => (i + 0.5) / 99);
+    const cases: VerificationCase[] = [];
+    for (let i = 0; i < 40; i++) {
+      for (let k = 0; k < 5; k++) {
+        // Inside the band (PIT near 0.5) for 28 runs, far above every value (PIT 1) for 12.
+        cases.push({ lead: k, observation: i < 28 ? 10 : 100, raw: [], corrected: [], stochasticQuantiles: { probs, values }, issueTime: `issue-${i}`, validTime: iso(Date.UTC(2024, 0, 1 + i + k)) });
+      }
+    }
+    const reference = { coverage90: 0.95, crps: 1000 };
+    const byIssue = watchDrift(cases, reference, { testUnits: 'issues' });
+    const byCase = watchDrift(cases, reference);
+    expect(byIssue.evidence.coverage90).toBeCloseTo(0.7, 12);
+    expect(byIssue.evidence.testedUnits).toBe(40);
+    expect(byCase.evidence.testedUnits).toBe(200);
+    // One-sided binomial P(X ≤ 28 | 40, 0.9) and P(X ≤ 140 | 200, 0.9), scipy 1.10.1 binom.cdf.
+    expect(Math.abs(byIssue.evidence.coveragePValue! / 0.0003808342667363419 - 1)).toBeLessThan(1e-9);
+    expect(Math.abs(byCase.evidence.coveragePValue! / 3.700520420614742e-15 - 1)).toBeLessThan(1e-9);
+    expect(() => watchDrift(cases.map((c) => ({ ...c, issueTime: undefined })), reference, { testUnits: 'issues' })).toThrow(/issueTime/);
   });
 });
