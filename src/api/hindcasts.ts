@@ -3,8 +3,8 @@ import { z } from 'zod';
 import type { ComparisonReport, SizeStudyResult, StochasticAdvice } from '../core/verification/index.ts';
 import { storedPeriod, type HindcastJobParams } from '../jobs/hindcast-job.ts';
 import { enqueueJob, getJob, listJobs, type Job } from '../store/jobs-repo.ts';
-import { getActiveModelVersion, getModelVersion, versionArchive } from '../store/models-repo.ts';
-import { reforecastIssueTimes } from '../store/verification-repo.ts';
+import { getActiveModelVersion, getModelVersion } from '../store/models-repo.ts';
+import { correctedArchiveFor, reforecastIssueTimes } from '../store/verification-repo.ts';
 import { GaugeParams, requireGauge } from './archive-common.ts';
 import { addRoute, type Services } from './context.ts';
 import { conflict, invalid, notFound } from './problem.ts';
@@ -31,6 +31,12 @@ const HindcastBody = z
     trajectories: z.number().int().min(10).default(1000),
     seed: z.number().int().min(0).max(2 ** 31 - 1).default(1),
     seasonalWindowDays: z.number().int().min(0).max(183).nullable().default(60),
+    /**
+     * Store this hindcast's stochastic-stage coverage and CRPS as the model version's drift-watch
+     * level (refused when the period overlaps the calibration period). Best from reforecasts of a
+     * period the model and its archives have not seen.
+     */
+    setDriftLevel: z.boolean().default(false),
     minLead: z.number().int().min(1).optional(),
     maxLead: z.number().int().min(1).optional(),
     sizeStudy: z
@@ -128,10 +134,9 @@ export async function hindcastRoutes(app: FastifyInstance, { services }: { servi
         throw conflict(`gauge ${gauge.id} has no active residual model; fit one (POST /gauges/${gauge.id}/models/fit) or name a version`);
       }
       const errors: { path: string; message: string }[] = [];
-      const archive = await versionArchive(db, version.id, 'corrected');
-      if (!archive) throw conflict(`model version ${version.id} has no corrected-member error archive`);
-      const templateLength = Number(archive.summary.templateLength ?? 0);
-      if (body.horizon !== undefined && body.horizon > templateLength) errors.push({ path: 'body.horizon', message: `the error archive of version ${version.id} covers at most ${templateLength} lead times` });
+      const reach = (await correctedArchiveFor(db, version.id, 1)).maxReach;
+      if (!reach) throw conflict(`model version ${version.id} has no corrected-member error archive`);
+      if (body.horizon !== undefined && body.horizon > reach) errors.push({ path: 'body.horizon', message: `the error archives of version ${version.id} cover at most ${reach} lead times` });
       if (body.trajectories > config.MAX_TRAJECTORIES) errors.push({ path: 'body.trajectories', message: `at most ${config.MAX_TRAJECTORIES}` });
       const validation = storedPeriod(version.periods.validation);
       if ((!body.from || !body.to) && !validation) errors.push({ path: body.from ? 'body.to' : 'body.from', message: `model version ${version.id} records no validation period; give from and to` });
@@ -156,6 +161,7 @@ export async function hindcastRoutes(app: FastifyInstance, { services }: { servi
         maxLead: body.maxLead ?? null,
         sizeStudy: { sources: body.sizeStudy.sources, sizes: body.sizeStudy.sizes, repeats: body.sizeStudy.repeats, caseFraction: body.sizeStudy.caseFraction ?? null },
         purpose: 'request',
+        setDriftLevel: body.setDriftLevel,
       };
       const job = await enqueueJob(db, 'hindcast', gauge.id, params, req.principal?.tokenId ?? null);
       reply.code(202).header('location', href(gauge.id, job.id));

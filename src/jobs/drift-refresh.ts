@@ -41,6 +41,7 @@ export function referenceHindcastParams(versionId: string, horizon: number | nul
     maxLead: null,
     sizeStudy: { sources: [], sizes: [], repeats: 1, caseFraction: null },
     purpose: 'drift-reference',
+    setDriftLevel: true,
   };
 }
 
@@ -110,6 +111,13 @@ export async function computeGaugeStatus(db: Queryable, gaugeId: string): Promis
     // A run's lead times share its errors: each run counts once in the coverage test.
     testUnits: 'issues',
   });
+  const validation = active.periods.validation as { from?: string; to?: string } | undefined;
+  const p = reference.basis.period;
+  if (validation?.from && validation.to && p.from < validation.to && p.to > validation.from) {
+    d.reasons.push(
+      `The level was measured on the validation period, from which the stage's error archives were built, so it is optimistic; a level from reforecasts of a later period is fairer (POST /gauges/${gaugeId}/hindcasts with mode reforecast, from, to and setDriftLevel).`,
+    );
+  }
   if (reference.basis.mode === 'simulation') {
     d.reasons.push(
       `The level comes from a simulation-mode hindcast (hindcast ${reference.basis.jobId}): pseudo-forecasts without forcing error, so it is stricter than real forecasts can meet; store reforecasts of the validation period for a fair level.`,

@@ -117,7 +117,8 @@ export async function computeHindcast(input: HindcastTaskInput, progress: Progre
   }
   if (M === 0) throw new Error('no members to hindcast');
   const archive = archiveFromBytes(input.archive);
-  if (archive.templateLength < H) throw new Error(`the error archive covers ${archive.templateLength} lead times; the hindcast asks for ${H}`);
+  const reach = archive.nLeads > 0 ? Math.min(archive.nLeads, archive.templateLength) : archive.templateLength;
+  if (reach < H) throw new Error(`the error archive covers ${reach} lead times; the hindcast asks for ${H}`);
   const need = requiredInputs(spec);
   let warm = need.simStepsToIssue;
   for (const f of need.forcings) warm = Math.max(warm, f.stepsToIssue);

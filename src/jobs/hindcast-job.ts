@@ -5,8 +5,8 @@ import { readReforecasts } from '../store/archive-repo.ts';
 import { loadArchiveSeries } from '../store/archive-series.ts';
 import { saveDriftReference } from '../store/gauge-status-repo.ts';
 import { getGauge } from '../store/gauges-repo.ts';
-import { getModelVersion, modelParts, versionArchive } from '../store/models-repo.ts';
-import { reforecastIssueTimes } from '../store/verification-repo.ts';
+import { getModelVersion, modelParts } from '../store/models-repo.ts';
+import { correctedArchiveFor, reforecastIssueTimes } from '../store/verification-repo.ts';
 import { refreshGaugeStatus } from './drift-refresh.ts';
 import type { HindcastOutput, HindcastSettings } from './hindcast-compute.ts';
 import { runCompute } from './run-compute.ts';
@@ -33,6 +33,8 @@ export interface HindcastJobParams {
   sizeStudy: { sources: SourceName[]; sizes: number[]; repeats: number; caseFraction: number | null };
   /** 'drift-reference' when the drift watch started it to measure the version's validation level. */
   purpose: 'request' | 'drift-reference';
+  /** Store the stochastic stage's coverage and CRPS as the version's drift-watch level (refused when the period overlaps calibration). */
+  setDriftLevel: boolean;
 }
 
 export const REFERENCE_MIN_REFORECASTS = 20;
@@ -76,9 +78,8 @@ export const hindcastJob: JobHandler = async (job, { db, progress, signal }) => 
   if (!gauge) throw new Error(`gauge ${job.gaugeId} no longer exists`);
   const version = await getModelVersion(db, gauge.id, p.versionId);
   if (!version) throw new Error(`model version ${p.versionId} of gauge ${gauge.id} no longer exists`);
-  const archive = await versionArchive(db, version.id, 'corrected');
-  if (!archive) throw new Error(`model version ${version.id} has no corrected-member error archive`);
-  const templateLength = Number(archive.summary.templateLength ?? 0);
+  const reach = (await correctedArchiveFor(db, version.id, 1)).maxReach;
+  if (!reach) throw new Error(`model version ${version.id} has no corrected-member error archive`);
   const stepMs = gauge.stepSeconds * 1000;
   const calibration = storedPeriod(version.periods.calibration);
   const validation = storedPeriod(version.periods.validation);
@@ -113,11 +114,14 @@ export const hindcastJob: JobHandler = async (job, { db, progress, signal }) => 
     }
     if (!stored.size) throw new Error(`gauge ${gauge.id} has no reforecasts issued between ${iso(fromMs)} and ${iso(toMs)}`);
   }
-  let H = p.horizon ?? (mode === 'reforecast' ? Math.min(maxLead, templateLength) : Math.min(10, templateLength));
+  let H = p.horizon ?? (mode === 'reforecast' ? Math.min(maxLead, reach) : Math.min(10, reach));
   // A reference job takes the operational runs' horizon where the archive and reforecasts reach it.
-  if (p.mode === 'auto') H = Math.min(H, templateLength, mode === 'reforecast' ? maxLead : H);
-  if (H > templateLength) throw new Error(`the error archive covers ${templateLength} lead times; the hindcast asks for ${H}`);
+  if (p.mode === 'auto') H = Math.min(H, reach, mode === 'reforecast' ? maxLead : H);
+  if (H > reach) throw new Error(`the error archives cover ${reach} lead times; the hindcast asks for ${H}`);
   if (mode === 'reforecast' && H > maxLead) throw new Error(`the stored reforecasts reach ${maxLead} lead times; the hindcast asks for ${H}`);
+
+  // The archive serving would use for runs of H lead times.
+  const archive = (await correctedArchiveFor(db, version.id, H)).archive!;
 
   const series = await loadArchiveSeries(db, gauge.id, gauge.stepSeconds, { fromMs: fromMs - (warm + 1) * stepMs, toMs: toMs + (H + 1) * stepMs });
   const t0 = series.times[0];
@@ -178,7 +182,7 @@ export const hindcastJob: JobHandler = async (job, { db, progress, signal }) => 
   }
   if (inValidation > 0) {
     warnings.push(
-      `The stochastic stage's error archive was built from the validation period (${iso(validation!.fromMs)} – ${iso(validation!.toMs)}), which ${inValidation} of ${usedTimes.length} issues overlap: there the stage resamples errors of the very period it is scored on.`,
+      `The stochastic stage's error archives were built from the validation period (${iso(validation!.fromMs)} – ${iso(validation!.toMs)}), which ${inValidation} of ${usedTimes.length} issues overlap: there the stage resamples errors of the very period it is scored on.`,
     );
   }
   if (!calibration) {
@@ -197,10 +201,12 @@ export const hindcastJob: JobHandler = async (job, { db, progress, signal }) => 
     const basis = { jobId: job.id, mode, period: { from: iso(fromMs), to: iso(toMs) }, cases: out.report.stochastic?.n ?? 0 };
     let stored = false;
     let note: string;
-    if (inCalibration > 0) note = 'not stored: the period overlaps the calibration period';
+    if (!p.setDriftLevel) note = 'not stored: the hindcast was not asked to set the drift-watch level (setDriftLevel)';
+    else if (inCalibration > 0) note = 'not stored: the period overlaps the calibration period';
     else {
-      stored = await saveDriftReference(db, { versionId: version.id, gaugeId: gauge.id, coverage90: out.driftReference.coverage90, crps: out.driftReference.crps, basis });
-      note = stored ? `stored as model version ${version.id}'s drift-watch level` : 'not stored: the version keeps its reforecast-mode level';
+      await saveDriftReference(db, { versionId: version.id, gaugeId: gauge.id, coverage90: out.driftReference.coverage90, crps: out.driftReference.crps, basis });
+      stored = true;
+      note = `stored as model version ${version.id}'s drift-watch level`;
     }
     driftReference = { ...out.driftReference, stored, note };
     if (stored) await refreshGaugeStatus(db, gauge.id).catch(() => undefined);
@@ -230,6 +236,7 @@ export const hindcastJob: JobHandler = async (job, { db, progress, signal }) => 
     unit: 'm3/s',
     thresholds: gauge.thresholds,
     correction: out.correction,
+    errorArchive: { id: archive.id, leadMode: archive.leadMode, leadTimes: archive.reach, cases: Number(archive.summary.cases ?? 0) },
     overlap: { issues: usedTimes.length, calibration: inCalibration, validation: inValidation },
     warnings,
     cases: { verified: out.cases, unobserved: out.unobserved },

@@ -72,20 +72,13 @@ export async function getDriftReference(db: Queryable, versionId: string): Promi
   return r ? { versionId: r.version_id, gaugeId: r.gauge_id, coverage90: r.coverage90, crps: r.crps, basis: r.basis, createdAt: r.created_at.toISOString() } : null;
 }
 
-/**
- * Stores a version's reference level. A reforecast-mode level (real forecasts, with forcing
- * errors) replaces a simulation-mode one but is never replaced by one; otherwise the newest wins.
- * Returns whether it was stored.
- */
-export async function saveDriftReference(db: Queryable, r: Omit<DriftReferenceRecord, 'createdAt'>): Promise<boolean> {
-  const { rows } = await db.query<{ version_id: string }>(
+/** Stores (or replaces) a version's reference level. */
+export async function saveDriftReference(db: Queryable, r: Omit<DriftReferenceRecord, 'createdAt'>): Promise<void> {
+  await db.query(
     `insert into drift_references (version_id, gauge_id, coverage90, crps, basis) values ($1, $2, $3, $4, $5::jsonb)
-     on conflict (version_id) do update set coverage90 = excluded.coverage90, crps = excluded.crps, basis = excluded.basis, created_at = now()
-       where excluded.basis->>'mode' = 'reforecast' or drift_references.basis->>'mode' <> 'reforecast'
-     returning version_id::text as version_id`,
+     on conflict (version_id) do update set coverage90 = excluded.coverage90, crps = excluded.crps, basis = excluded.basis, created_at = now()`,
     [r.versionId, r.gaugeId, r.coverage90, r.crps, JSON.stringify(r.basis)],
   );
-  return rows.length > 0;
 }
 
 /** The newest hindcast job started to measure a version's reference level, if any. */

@@ -106,3 +106,37 @@ export async function reforecastIssueTimes(db: Queryable, gaugeId: string, fromM
   );
   return rows.map((r) => Number(r.t));
 }
+
+/** A version's corrected-member error archive, as the hindcast's stochastic stage uses it. */
+export interface ChosenArchive {
+  id: string;
+  leadMode: 'lead-free' | 'per-lead';
+  /** Lead times it can serve: a per-lead archive its lead count, a lead-free one its template length. */
+  reach: number;
+  summary: Record<string, unknown>;
+  bytes: Uint8Array;
+}
+
+/**
+ * The archive serving would use for a run of nLeads lead times (as POST /gauges/:id/runs
+ * chooses): the per-lead archive (errors of past runs at each lead) when it reaches that far, else
+ * the lead-free one (continuous simulations). Also the farthest reach of the two.
+ */
+export async function correctedArchiveFor(db: Queryable, versionId: string, nLeads: number): Promise<{ archive: ChosenArchive | null; maxReach: number }> {
+  const { rows } = await db.query<{ id: string; lead_mode: 'lead-free' | 'per-lead'; summary: Record<string, unknown>; bytes: Uint8Array }>(
+    `select distinct on (lead_mode) id::text as id, lead_mode, summary, bytes from error_archives
+      where version_id = $1 and kind = 'corrected' order by lead_mode, id desc`,
+    [versionId],
+  );
+  const all = rows.map((r) => ({
+    id: r.id,
+    leadMode: r.lead_mode,
+    reach: Number((r.lead_mode === 'per-lead' ? r.summary.nLeads : r.summary.templateLength) ?? 0) || 0,
+    summary: r.summary,
+    bytes: new Uint8Array(r.bytes),
+  }));
+  const perLead = all.find((a) => a.leadMode === 'per-lead') ?? null;
+  const leadFree = all.find((a) => a.leadMode === 'lead-free') ?? null;
+  const archive = perLead && nLeads <= perLead.reach ? perLead : (leadFree ?? perLead);
+  return { archive, maxReach: Math.max(0, ...all.map((a) => a.reach)) };
+}

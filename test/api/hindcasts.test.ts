@@ -105,10 +105,13 @@ describe('hindcast jobs', () => {
     expect(r.advice.reasons.join(' ')).toMatch(/Reliability: alpha/);
     // Honest about what the model and archive have seen.
     expect(r.overlap.calibration).toBe(0);
-    expect(r.warnings.join(' ')).toMatch(/error archive was built from the validation period/);
+    expect(r.warnings.join(' ')).toMatch(/error archives were built from the validation period/);
     expect(r.warnings.join(' ')).toMatch(/Simulation mode/);
     expect(r.warnings.join(' ')).not.toMatch(/calibration period/);
-    expect(r.driftReference).toMatchObject({ stored: true });
+    // Not asked to set the drift-watch level, so it keeps what it has.
+    expect(r.driftReference).toMatchObject({ stored: false });
+    expect(r.driftReference.note).toMatch(/setDriftLevel/);
+    expect(r.errorArchive).toMatchObject({ leadTimes: expect.any(Number) });
 
     const viaJobs = (await t.as('read', { method: 'GET', url: `/jobs/${job.id}` })).json();
     expect(viaJobs.result.advice).toEqual(r.advice);
@@ -134,7 +137,7 @@ describe('hindcast jobs', () => {
   it('warns when the period overlaps the calibration period, and keeps such a level out of the drift watch', async () => {
     const from = version.periods.calibration.from;
     const to = iso(Date.parse(from) + 60 * DAY);
-    const res = await start({ from, to, everySteps: 3, trajectories: 100, sizeStudy: { sources: [] } });
+    const res = await start({ from, to, everySteps: 3, trajectories: 100, sizeStudy: { sources: [] }, setDriftLevel: true });
     expect(res.statusCode, res.body).toBe(202);
     await runner.drain();
     const h = (await get(res.json().id)).json();
@@ -142,6 +145,7 @@ describe('hindcast jobs', () => {
     expect(h.result.overlap.calibration).toBe(h.result.issues.used);
     expect(h.result.warnings.join(' ')).toMatch(/overlaps the model's calibration period/);
     expect(h.result.driftReference).toMatchObject({ stored: false });
+    expect(h.result.driftReference.note).toMatch(/overlaps the calibration period/);
     expect(h.result.sizeStudy).toBeNull();
     // 20 issues asked; the first ones lack the model's warm-up (the archive starts there) and are left out, with a warning.
     expect(h.result.issues.given).toBe(20);

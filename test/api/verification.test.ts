@@ -41,7 +41,7 @@ async function storeRun(gaugeId: string, issueMs: number, members: { raw: number
   const M = members.raw.length;
   const flat = (m: number[][]) => Float64Array.from(m.flat());
   const id = crypto.randomUUID();
-  const view = buildForecastView({
+  const input = {
     id,
     gauge,
     issueTimeMs: issueMs,
@@ -64,7 +64,9 @@ async function storeRun(gaugeId: string, issueMs: number, members: { raw: number
     firstLikelyLead: gauge.thresholds.map(() => null),
     recent: { times: [], observed: [] },
     timings: { featuresMs: 0, inferenceMs: 0, stochasticMs: 0, totalMs: 0 },
-  });
+    errorArchive: { id: 'none', kind: 'corrected', leadMode: 'lead-free', leadTimes: H, cases: 0, templates: 0 },
+  };
+  const view = buildForecastView(input as Parameters<typeof buildForecastView>[0]);
   await insertRun(t.db, {
     id,
     gaugeId,
@@ -305,7 +307,7 @@ describe('the scenario: stored runs, later observations, drift', () => {
     expect(s.gauge.status).toBe('insufficient-data');
   });
 
-  it('verifies the runs once observations are posted; the drift watch measures its level, then says ok', async () => {
+  it('verifies the runs once observations are posted, and the drift watch measures the version\'s validation level', async () => {
     const times = scenario.times.slice(withheldFrom);
     const res = await postObservations(gaugeId, times, scenario.observedFlow.slice(withheldFrom));
     expect(res.statusCode).toBe(200);
@@ -319,7 +321,7 @@ describe('the scenario: stored runs, later observations, drift', () => {
     expect(['use-stochastic', 'corrected-ensemble-suffices']).toContain(v.advice.recommendation);
     expect(v.advice.evidence.cases).toBe(v.comparison.cases.used);
 
-    // No validation level yet: the watch starts a hindcast over the version's validation period.
+    // No level yet: the watch starts a hindcast over the version's validation period.
     let s = await status();
     expect(s.gauge.status).toBe('insufficient-data');
     expect(s.gauge.drift.reasons.join(' ')).toMatch(/Hindcast job \d+ \(queued\)/);
@@ -328,10 +330,36 @@ describe('the scenario: stored runs, later observations, drift', () => {
     const ref = jobs.find((j: { purpose: string }) => j.purpose === 'drift-reference');
     expect(ref.status, ref.error).toBe('succeeded');
     s = await status();
-    // The level comes from the reforecasts of the validation period (real forecasts, with forcing errors).
+    // From the stored reforecasts of the validation period (real forecasts, with forcing errors);
+    // in-sample for the stage's archives, which the reasons say.
     expect(s.gauge.drift.evidence.reference).toMatchObject({ jobId: ref.id, mode: 'reforecast' });
+    expect(['ok', 'drifting']).toContain(s.gauge.status);
+    expect(s.gauge.drift.reasons.join(' ')).toMatch(/measured on the validation period/);
     // Each run counts once in the coverage test (its lead times share their errors).
     expect(s.gauge.drift.evidence.testedUnits).toBe(lastIssue - firstIssue + 1);
+  });
+
+  it('takes a fairer level from reforecasts of a period the model has not seen, and then says ok', async () => {
+    // The operator stores the recent runs' raw members as reforecasts and sets the level from them.
+    const runs = Array.from({ length: lastIssue - firstIssue + 1 }, (_, k) => scenario.forecastRun(firstIssue + k));
+    const stored = await t.as('ingest', {
+      method: 'POST',
+      url: `/gauges/${gaugeId}/reforecasts`,
+      payload: { unit: 'm3/s', runs: runs.map((r) => ({ issueTime: r.issueTime, members: r.members.map((m) => ({ id: m.id, values: m.values.slice(m.warmupSteps) })) })) },
+    });
+    expect(stored.statusCode, stored.body).toBeLessThan(300);
+    const started = await t.as('admin', {
+      method: 'POST',
+      url: `/gauges/${gaugeId}/hindcasts`,
+      payload: { mode: 'reforecast', from: runs[0].issueTime, to: scenario.times[lastIssue + 1], trajectories: 500, setDriftLevel: true, sizeStudy: { sources: [] } },
+    });
+    expect(started.statusCode, started.body).toBe(202);
+    await runner.drain();
+    const h = (await t.as('read', { method: 'GET', url: `/gauges/${gaugeId}/hindcasts/${started.json().id}` })).json();
+    expect(h.status, h.error).toBe('succeeded');
+    expect(h.result.driftReference).toMatchObject({ stored: true });
+    const s = await status();
+    expect(s.gauge.drift.evidence.reference).toMatchObject({ jobId: started.json().id, mode: 'reforecast' });
     expect(s.gauge.status).toBe('ok');
     expect(s.overview).toBe('ok');
     expect(s.metric).toBe(0);
