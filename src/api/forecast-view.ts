@@ -16,6 +16,12 @@ export interface ForecastView {
   status: 'corrected' | 'degraded';
   degradedReason: string | null;
   modelVersion: { id: string; label: string } | null;
+  /**
+   * The error archive the stochastic stage drew from: of the corrected or the raw members, per lead
+   * time (past runs) or lead-free (continuous simulations); leadTimes = how many it can serve.
+   * Absent on runs stored before it was recorded.
+   */
+  errorArchive?: ErrorArchiveUsed;
   seed: number;
   trajectories: number;
   attentionLevel: number;
@@ -26,6 +32,15 @@ export interface ForecastView {
   ensemble: { raw: { id: string; values: number[] }[]; corrected: { id: string; values: number[] }[] | null };
   recent: { times: string[]; observed: (number | null)[] };
   timings: { featuresMs: number; inferenceMs: number; stochasticMs: number; totalMs: number };
+}
+
+export interface ErrorArchiveUsed {
+  id: string;
+  kind: 'corrected' | 'raw';
+  leadMode: 'lead-free' | 'per-lead';
+  leadTimes: number;
+  cases: number;
+  templates: number;
 }
 
 const round = (x: number, digits = 4) => {
@@ -42,6 +57,7 @@ export interface ViewInput {
   status: 'corrected' | 'degraded';
   degradedReason: string | null;
   modelVersion: { id: string; label: string } | null;
+  errorArchive?: ErrorArchiveUsed;
   seed: number;
   nDraws: number;
   attentionLevel: number;
@@ -77,6 +93,7 @@ export function buildForecastView(v: ViewInput): ForecastView {
     status: v.status,
     degradedReason: v.degradedReason,
     modelVersion: v.modelVersion,
+    errorArchive: v.errorArchive,
     seed: v.seed,
     trajectories: v.nDraws,
     attentionLevel: v.attentionLevel,

@@ -1,10 +1,10 @@
 import type { FastifyInstance } from 'fastify';
 import { z } from 'zod';
 import { checkFeatureSpec, featureCount, FeatureInputError } from '../core/features.ts';
-import { defaultPeriods } from '../jobs/fit-job.ts';
+import { defaultPeriods, perLeadParts, type PerLeadOutput } from '../jobs/fit-job.ts';
 import { runCompute } from '../jobs/run-compute.ts';
 import { inspectOnnx, OnnxInspectError } from '../models/onnx-inspect.ts';
-import { loadArchiveSeries } from '../store/archive-series.ts';
+import { loadArchiveSeries, loadReforecastSet } from '../store/archive-series.ts';
 import { enqueueJob } from '../store/jobs-repo.ts';
 import {
   activateModelVersion,
@@ -14,6 +14,8 @@ import {
   listModelVersions,
   modelParts,
   previousActivatedVersion,
+  versionArchiveSummaries,
+  type ModelVersion,
 } from '../store/models-repo.ts';
 import { GaugeParams, requireGauge } from './archive-common.ts';
 import { addRoute, type Services } from './context.ts';
@@ -91,6 +93,13 @@ export async function modelRoutes(app: FastifyInstance, { services }: { services
     });
   };
 
+  // A version with what its error archives hold: lead-free (continuous simulations) and, where
+  // past runs were stored, per-lead.
+  const withArchives = async (v: ModelVersion) => ({
+    ...v,
+    archives: (await versionArchiveSummaries(db, v.id)).map((a) => ({ kind: a.kind, leadMode: a.leadMode, ...a.summary })),
+  });
+
   addRoute(app, services, { method: 'POST', url: '/gauges/:id/models/fit', summary: 'Start fitting (and optionally tuning) a residual model; answers at once with a job', tag: 'models', role: 'admin', params: GaugeParams, body: FitBody }, async (req, reply) => {
     const gauge = await requireGauge(db, req.params);
     const body = parseWith(FitBody, req.body ?? {}, 'body');
@@ -137,12 +146,21 @@ export async function modelRoutes(app: FastifyInstance, { services }: { services
       throw conflict(`the model cannot be checked: ${e.message}`);
     });
     const validation = body.validation ? { fromMs: Date.parse(body.validation.from), toMs: Date.parse(body.validation.to) } : defaultPeriods(series).validation;
-    let out: { scores: Record<string, unknown>; correctedArchive: { bytes: Uint8Array; summary: Record<string, unknown> }; rawArchive: { bytes: Uint8Array; summary: Record<string, unknown> } };
+    // Past runs issued in the validation period give the per-lead archives, as for a fitted model.
+    const reforecasts = await loadReforecastSet(db, gauge.id, validation);
+    let out: {
+      scores: Record<string, unknown>;
+      correctedArchive: { bytes: Uint8Array; summary: Record<string, unknown> };
+      rawArchive: { bytes: Uint8Array; summary: Record<string, unknown> };
+      perLead: PerLeadOutput | null;
+    };
     try {
-      out = await runCompute<typeof out>({ kind: 'evaluate-upload', series, onnx, spec, validation, archive: { transform: body.transform, templateLength: body.templateLength } }).result;
+      out = await runCompute<typeof out>({ kind: 'evaluate-upload', series, onnx, spec, validation, archive: { transform: body.transform, templateLength: body.templateLength }, reforecasts }).result;
     } catch (e) {
       throw invalid([{ path: 'body.onnxBase64', message: `the model failed on archive rows: ${(e as Error).message}` }], 'the uploaded model was refused; nothing was stored');
     }
+    const perLead = perLeadParts(out.perLead);
+    const scores = perLead.scores ? { ...out.scores, reforecasts: perLead.scores } : out.scores;
     const id = await db.transaction(async (tx) => {
       const versionId = await insertModelVersion(tx, {
         gaugeId: gauge.id,
@@ -151,17 +169,18 @@ export async function modelRoutes(app: FastifyInstance, { services }: { services
         featureSpec: spec,
         trainer: { kind: 'uploaded', description: body.description ?? null, producer: summary.producer, opsets: summary.opsets, bytes: onnx.length },
         periods: { validation: out.scores.period },
-        scores: out.scores,
+        scores,
         createdBy: req.principal?.tokenId ?? null,
         parts: [onnx],
         correctedArchive: out.correctedArchive,
         rawArchive: out.rawArchive,
+        perLeadArchives: perLead.archives,
       });
       if (body.activate) await activateModelVersion(tx, gauge.id, versionId);
       return versionId;
     });
     reply.code(201).header('location', `/gauges/${gauge.id}/models/${id}`);
-    return getModelVersion(db, gauge.id, id);
+    return withArchives((await getModelVersion(db, gauge.id, id))!);
   });
 
   addRoute(app, services, { method: 'GET', url: '/gauges/:id/models', summary: "A gauge's residual model versions, newest first", tag: 'models', role: 'read', params: GaugeParams }, async (req) => {
@@ -169,11 +188,11 @@ export async function modelRoutes(app: FastifyInstance, { services }: { services
     return { gaugeId: gauge.id, versions: await listModelVersions(db, gauge.id) };
   });
 
-  addRoute(app, services, { method: 'GET', url: '/gauges/:id/models/:version', summary: 'One model version: feature spec, periods, trainer, validation scores', tag: 'models', role: 'read', params: VersionParams }, async (req) => {
+  addRoute(app, services, { method: 'GET', url: '/gauges/:id/models/:version', summary: 'One model version: feature spec, periods, trainer, validation scores, error archives', tag: 'models', role: 'read', params: VersionParams }, async (req) => {
     const { id, version } = parseWith(VersionParams, req.params, 'params');
     const v = await getModelVersion(db, id, version);
     if (!v) throw notFound(`no model version ${version} for gauge ${id}`);
-    return v;
+    return withArchives(v);
   });
 
   addRoute(app, services, { method: 'POST', url: '/gauges/:id/models/:version/activate', summary: 'Make a version the one that corrects new runs', tag: 'models', role: 'admin', params: VersionParams }, async (req) => {

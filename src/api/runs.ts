@@ -94,6 +94,18 @@ function checkRun(body: RunBody, gauge: Gauge, known: Set<string>, horizonLimit:
   return { issueTime: issueMs, nLeads, members, forcings, issueObservation: body.issueObservation ?? null };
 }
 
+/** Lead times an archive can serve: a per-lead archive its lead count, a lead-free one its template length. */
+function archiveReach(a: StoredArchive | null): number {
+  if (!a) return 0;
+  return Number((a.leadMode === 'per-lead' ? a.summary.nLeads : a.summary.templateLength) ?? 0) || 0;
+}
+
+/** The per-lead archive when the run's lead times fit within it, else the lead-free one. */
+function chooseArchive(perLead: StoredArchive | null, leadFree: StoredArchive | null, nLeads: number): StoredArchive | null {
+  if (perLead && nLeads <= archiveReach(perLead)) return perLead;
+  return leadFree ?? perLead;
+}
+
 /** The stored answer of an earlier identical request, or a conflict when the request differs. */
 function replay(stored: StoredRun, requestHash: string, what: string): StoredRun {
   if (stored.requestHash !== requestHash) {
@@ -133,13 +145,23 @@ export async function runRoutes(app: FastifyInstance, { services }: { services: 
       if (byKey) return sendStored(replay(byKey, requestHash, `issue time ${body.issueTime} from source ${body.source}`));
 
       // Which correction: the active model with its archive, else degraded on the raw archive.
+      // Each prefers its per-lead archive (errors of past runs at each lead time) when the run's
+      // lead times fit within it, else the lead-free one (continuous simulations).
+      const asked = body.members[0].values.length - body.warmupSteps;
       const active = await getActiveModelVersion(db, gauge.id);
-      const correctedArchive = active ? await versionArchive(db, active.id, 'corrected') : null;
-      const rawArchive = await latestRawArchive(db, gauge.id);
+      const correctedChoice = active ? [await versionArchive(db, active.id, 'corrected', 'per-lead'), await versionArchive(db, active.id, 'corrected')] : null;
+      const rawChoice = [await latestRawArchive(db, gauge.id, 'per-lead'), await latestRawArchive(db, gauge.id)];
+      const correctedArchive = correctedChoice ? chooseArchive(correctedChoice[0], correctedChoice[1], asked) : null;
+      const rawArchive = chooseArchive(rawChoice[0], rawChoice[1], asked);
       if (!correctedArchive && !rawArchive) {
         throw new Problem(409, 'no-correction-available', 'No correction available', `gauge ${gauge.id} has no active residual model and no raw error archive; fit a model (POST /gauges/${gauge.id}/models/fit) or build the raw archive (POST /gauges/${gauge.id}/raw-archive)`);
       }
-      const horizonLimit = Math.min(...[correctedArchive, rawArchive].filter((a): a is StoredArchive => a !== null).map((a) => Number(a.summary.templateLength ?? 0)));
+      // Both the corrected path and its degraded fallback must be able to serve the run; each
+      // reaches as far as the longer of its two archives.
+      const reaches: number[] = [];
+      if (correctedArchive) reaches.push(Math.max(...correctedChoice!.map(archiveReach)));
+      if (rawArchive) reaches.push(Math.max(...rawChoice.map(archiveReach)));
+      const horizonLimit = Math.min(...reaches);
       const known = new Set(await listMembers(db, gauge.id));
       const run = checkRun(body, gauge, known, horizonLimit, config.MAX_TRAJECTORIES);
 
@@ -164,11 +186,13 @@ export async function runRoutes(app: FastifyInstance, { services }: { services: 
       });
 
       let result: CorrectionResult;
+      let used: StoredArchive;
       let status: 'corrected' | 'degraded' = 'corrected';
       let degradedReason: string | null = null;
       try {
         if (active && correctedArchive) {
           try {
+            used = correctedArchive;
             result = await pool.correct(modelSource(active.id, active.featureSpec), archiveSource(correctedArchive), run, options);
           } catch (err) {
             if (err instanceof CorrectionError && err.path) {
@@ -178,11 +202,13 @@ export async function runRoutes(app: FastifyInstance, { services }: { services: 
             status = 'degraded';
             degradedReason = `the residual model (version ${active.id}) failed: ${(err as Error).message}`;
             req.log.warn({ gauge: gauge.id, err: (err as Error).message }, 'residual model failed; serving degraded');
+            used = rawArchive;
             result = await pool.correct(null, archiveSource(rawArchive), run, options);
           }
         } else {
           status = 'degraded';
           degradedReason = `no active residual model for gauge ${gauge.id}: the stochastic stage ran on the raw members with the raw error archive`;
+          used = rawArchive!;
           result = await pool.correct(null, archiveSource(rawArchive!), run, options);
         }
       } catch (err) {
@@ -219,6 +245,7 @@ export async function runRoutes(app: FastifyInstance, { services }: { services: 
         status,
         degradedReason,
         modelVersion: status === 'corrected' && active ? { id: active.id, label: active.label } : null,
+        errorArchive: { id: used!.id, kind: used!.kind, leadMode: used!.leadMode, leadTimes: archiveReach(used!), cases: Number(used!.summary.cases ?? 0), templates: Number(used!.summary.templates ?? 0) },
         seed,
         nDraws: result.nDraws,
         attentionLevel: config.ATTENTION_LEVEL,

@@ -6,17 +6,30 @@ import { checkFeatureSpec } from '../core/features.ts';
 import { createResidualSession, predictResiduals } from '../models/onnx-session.ts';
 import { computeHindcast, type HindcastTaskInput } from './hindcast-compute.ts';
 import { fitResidualModel, type FitOptions } from '../models/residual-fit.ts';
+import { evaluateReforecasts, type ReforecastEvaluation, type ReforecastSet } from '../models/reforecast-evaluation.ts';
 import { archiveSummary, evaluateResidualModel, rawArchiveFromSeries, type ArchiveSeries, type ArchiveOptions, type Period } from '../models/residual-evaluation.ts';
 
 export type ComputeTask =
   | { kind: 'fit'; series: ArchiveSeries; options: FitOptions }
-  | { kind: 'evaluate-upload'; series: ArchiveSeries; onnx: Uint8Array; spec: unknown; validation: Period; archive: ArchiveOptions }
+  | { kind: 'evaluate-upload'; series: ArchiveSeries; onnx: Uint8Array; spec: unknown; validation: Period; archive: ArchiveOptions; reforecasts?: ReforecastSet | null }
   | { kind: 'raw-archive'; series: ArchiveSeries; period: Period; archive: ArchiveOptions }
   | { kind: 'hindcast'; input: HindcastTaskInput };
 
 const { task, cancelFlag } = workerData as { task: ComputeTask; cancelFlag: Int32Array; module: string };
 const shouldStop = () => Atomics.load(cancelFlag, 0) === 1;
 const progress = (p: { stage: string; percent: number }) => parentPort!.postMessage({ type: 'progress', ...p });
+
+/** The per-lead archives as stored (bytes + summary), or why there are none; null without past runs. */
+function perLeadResult(e: ReforecastEvaluation | null) {
+  if (!e) return null;
+  const a = e.archives;
+  return {
+    corrected: a ? { bytes: archiveToBytes(a.corrected), summary: { ...a.correctedSummary } as Record<string, unknown> } : null,
+    raw: a ? { bytes: archiveToBytes(a.raw), summary: { ...a.rawSummary } as Record<string, unknown> } : null,
+    reason: e.reason,
+    scores: e.scores,
+  };
+}
 
 async function run(): Promise<unknown> {
   switch (task.kind) {
@@ -31,6 +44,7 @@ async function run(): Promise<unknown> {
         onnxCheck: r.onnxCheck,
         correctedArchive: { bytes: archiveToBytes(r.evaluation.correctedArchive), summary: archiveSummary(r.evaluation.correctedArchive) },
         rawArchive: { bytes: archiveToBytes(r.evaluation.rawArchive), summary: archiveSummary(r.evaluation.rawArchive) },
+        perLead: perLeadResult(r.perLead),
       };
     }
     case 'evaluate-upload': {
@@ -38,15 +52,22 @@ async function run(): Promise<unknown> {
       progress({ stage: 'loading the model', percent: 10 });
       const session = await createResidualSession(task.onnx);
       progress({ stage: 'running it on the validation period', percent: 30 });
-      const evaluation = await evaluateResidualModel(task.series, spec, task.validation, [(rows, n, nF) => predictResiduals(session, rows, n, nF)], task.archive);
-      await session.release();
+      const predictors = [(rows: Float32Array, n: number, nF: number) => predictResiduals(session, rows, n, nF)];
+      const evaluation = await evaluateResidualModel(task.series, spec, task.validation, predictors, task.archive);
       const check = evaluation.correctedArchive.error.every(Number.isFinite);
       if (!check) throw new Error('the model produced non-finite residuals on archive rows');
+      let perLead: ReforecastEvaluation | null = null;
+      if (task.reforecasts) {
+        progress({ stage: 'running it on the past runs', percent: 70 });
+        perLead = await evaluateReforecasts(task.series, task.reforecasts, spec, predictors, { transform: evaluation.correctedArchive.transform });
+      }
+      await session.release();
       return {
         spec,
         scores: evaluation.scores,
         correctedArchive: { bytes: archiveToBytes(evaluation.correctedArchive), summary: archiveSummary(evaluation.correctedArchive) },
         rawArchive: { bytes: archiveToBytes(evaluation.rawArchive), summary: archiveSummary(evaluation.rawArchive) },
+        perLead: perLeadResult(perLead),
       };
     }
     case 'raw-archive': {

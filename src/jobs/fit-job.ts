@@ -1,7 +1,10 @@
 import type { FitOptions } from '../models/residual-fit.ts';
 import { defaultBoostingSpace, defaultForestSpace } from '../models/residual-fit.ts';
+import { archiveToBytes } from '../core/archive-codec.ts';
+import type { ErrorTransform } from '../core/error-transform.ts';
+import { rawArchiveFromReforecasts, type ReforecastScores } from '../models/reforecast-evaluation.ts';
 import type { ArchiveSeries, Period } from '../models/residual-evaluation.ts';
-import { loadArchiveSeries } from '../store/archive-series.ts';
+import { loadArchiveSeries, loadReforecastSet } from '../store/archive-series.ts';
 import { getGauge } from '../store/gauges-repo.ts';
 import { activateModelVersion, insertArchive, insertModelVersion } from '../store/models-repo.ts';
 import type { JobHandler } from './runner.ts';
@@ -52,7 +55,31 @@ interface FitOutput {
   onnxCheck: unknown;
   correctedArchive: { bytes: Uint8Array; summary: Record<string, unknown> };
   rawArchive: { bytes: Uint8Array; summary: Record<string, unknown> };
+  perLead: PerLeadOutput | null;
 }
+
+type StoredForm = { bytes: Uint8Array; summary: Record<string, unknown> };
+
+/** The worker's per-lead result ('fit' and 'evaluate-upload'): archives, or why there are none. */
+export interface PerLeadOutput {
+  corrected: StoredForm | null;
+  raw: StoredForm | null;
+  reason: string | null;
+  scores: ReforecastScores | null;
+}
+
+/** The version's per-lead archives to store, and what its scores say about the past runs. */
+export function perLeadParts(p: PerLeadOutput | null): {
+  archives: { corrected: StoredForm; raw: StoredForm | null } | null;
+  scores: Record<string, unknown> | null;
+} {
+  if (!p) return { archives: null, scores: null };
+  const archives = p.corrected ? { corrected: p.corrected, raw: p.raw } : null;
+  const perLeadArchive = archives ? { stored: true, ...pick(p.corrected!.summary, ['nLeads', 'issues', 'members', 'cases', 'templates']) } : { stored: false, reason: p.reason };
+  return { archives, scores: { ...(p.scores ?? {}), perLeadArchive } };
+}
+
+const pick = (o: Record<string, unknown>, keys: string[]) => Object.fromEntries(keys.map((k) => [k, o[k]]));
 
 export const fitJob: JobHandler = async (job, { db, progress, signal }) => {
   const p = job.params as unknown as FitJobParams;
@@ -65,6 +92,8 @@ export const fitJob: JobHandler = async (job, { db, progress, signal }) => {
   const validation = p.validation ? period(p.validation) : defaults.validation;
   if (calibration.toMs > validation.fromMs && calibration.fromMs < validation.toMs) throw new Error('the calibration and validation periods overlap');
   const forcingNames = (p.forcings ?? Object.keys(series.forcings)).filter((n) => n in series.forcings).sort();
+  // Past runs issued in the validation period give the per-lead archives.
+  const reforecasts = await loadReforecastSet(db, gauge.id, validation);
   const options: FitOptions = {
     calibration,
     validation,
@@ -79,12 +108,15 @@ export const fitJob: JobHandler = async (job, { db, progress, signal }) => {
     transform: p.transform,
     templateLength: p.templateLength,
     maxTrainRows: p.maxTrainRows,
+    reforecasts,
   };
   const handle = runCompute<FitOutput>({ kind: 'fit', series, options }, (pr) => {
     void progress(pr.stage, pr.percent * 0.97);
   });
   signal.addEventListener('abort', () => handle.cancel());
   const out = await handle.result;
+  const perLead = perLeadParts(out.perLead);
+  const scores = perLead.scores ? { ...out.scores, reforecasts: perLead.scores } : out.scores;
   await progress('storing the model version', 98);
   const versionId = await db.transaction(async (tx) => {
     const id = await insertModelVersion(tx, {
@@ -94,16 +126,23 @@ export const fitJob: JobHandler = async (job, { db, progress, signal }) => {
       featureSpec: out.spec,
       trainer: { kind: p.trainer, bundle: out.parts.map((part) => ({ params: part.params, validationRmse: part.validationRmse, trees: part.trees })), trials: out.trials, seed: p.seed, rows: out.rows, onnxCheck: out.onnxCheck },
       periods: { calibration: { from: iso(calibration.fromMs), to: iso(calibration.toMs) }, validation: { from: iso(validation.fromMs), to: iso(validation.toMs) } },
-      scores: out.scores,
+      scores,
       createdBy: job.createdBy,
       parts: out.parts.map((part) => part.onnx),
       correctedArchive: out.correctedArchive,
       rawArchive: out.rawArchive,
+      perLeadArchives: perLead.archives,
     });
     if (p.activate) await activateModelVersion(tx, gauge.id, id);
     return id;
   });
-  return { versionId, activated: p.activate, scores: out.scores, onnxCheck: out.onnxCheck };
+  return {
+    versionId,
+    activated: p.activate,
+    scores,
+    onnxCheck: out.onnxCheck,
+    archives: { leadFree: out.correctedArchive.summary, perLead: perLead.archives?.corrected.summary ?? null, perLeadNote: out.perLead ? out.perLead.reason : 'no past runs (reforecasts) issued in the validation period' },
+  };
 };
 
 /** Builds the raw members' error archive alone, so degraded mode works before any model is fitted. */
@@ -116,6 +155,18 @@ export const rawArchiveJob: JobHandler = async (job, { db, progress }) => {
   const all = { fromMs: series.times[0], toMs: series.times[series.times.length - 1] + 1 };
   await progress('building the raw error archive', 30);
   const out = await runCompute<{ bytes: Uint8Array; summary: Record<string, unknown> }>({ kind: 'raw-archive', series, period: all, archive: p }).result;
-  await insertArchive(db, gauge.id, null, 'raw', out);
-  return { summary: out.summary };
+  // The raw per-lead archive of all stored past runs; small next to the lead-free one (a few
+  // members × leads per run), so it is built here rather than in a worker.
+  await progress('building the raw per-lead error archive from past runs', 80);
+  const reforecasts = await loadReforecastSet(db, gauge.id, {});
+  const perLead = reforecasts ? rawArchiveFromReforecasts(series, reforecasts, { transform: out.summary.transform as ErrorTransform }) : null;
+  await db.transaction(async (tx) => {
+    await insertArchive(tx, gauge.id, null, 'raw', out);
+    if (perLead?.archive) await insertArchive(tx, gauge.id, null, 'raw', { bytes: archiveToBytes(perLead.archive), summary: { ...perLead.summary } }, 'per-lead');
+  });
+  return {
+    summary: out.summary,
+    perLead: perLead?.archive ? perLead.summary : null,
+    perLeadNote: !reforecasts ? 'no past runs (reforecasts) stored' : perLead?.archive ? null : (perLead as { reason: string }).reason,
+  };
 };

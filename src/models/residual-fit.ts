@@ -3,6 +3,7 @@ import { continuousRows, makeFeatureSpec, type FeatureSpec } from '../core/featu
 import { createPrng } from '../core/prng.ts';
 import { treeModelToOnnx } from './onnx-export.ts';
 import { createResidualSession, predictResiduals } from './onnx-session.ts';
+import { evaluateReforecasts, type ReforecastEvaluation, type ReforecastSet } from './reforecast-evaluation.ts';
 import { evaluateResidualModel, type ArchiveSeries, type Evaluation, type Period } from './residual-evaluation.ts';
 import { predictTrees, trainGradientBoosting, trainRandomForest, type TreeModel } from './trees/index.ts';
 import { tune, type SearchParam } from './tuning/index.ts';
@@ -25,6 +26,8 @@ export interface FitOptions {
   templateLength: number;
   /** Calibration rows are subsampled to at most this many (seeded), to bound fitting time. */
   maxTrainRows: number;
+  /** Past runs issued in the validation period; when given, per-lead error archives are built from them too. */
+  reforecasts?: ReforecastSet | null;
 }
 
 export interface FitProgress {
@@ -45,6 +48,8 @@ export interface FitResult {
   parts: FittedPart[];
   trials: { params: Record<string, number>; validationRmse: number }[];
   evaluation: Evaluation;
+  /** Per-lead archives of the past runs (null when no reforecasts were given). */
+  perLead: ReforecastEvaluation | null;
   rows: { calibration: number; validation: number };
   onnxCheck: { rows: number; mismatches: number };
 }
@@ -69,7 +74,8 @@ export const defaultForestSpace: SearchParam[] = [
  * simulated, pooled over members; calibration and validation are contiguous date blocks (nothing
  * shuffled across time); early stopping and tuning look at the validation block. Exports each
  * kept model to ONNX and checks that onnxruntime reproduces the in-process predictions exactly on
- * every validation row, then scores the correction and builds the error archives.
+ * every validation row, then scores the correction and builds the error archives: the lead-free
+ * one, and the per-lead ones when past runs issued in the validation period are given.
  */
 export async function fitResidualModel(
   series: ArchiveSeries,
@@ -149,16 +155,17 @@ export async function fitResidualModel(
   }
 
   onProgress({ stage: 'scoring the validation period and building error archives', percent: 90 });
-  const evaluation = await evaluateResidualModel(
-    series,
-    spec,
-    options.validation,
-    sessions.map((s) => (rows: Float32Array, n: number, nF: number) => predictResiduals(s, rows, n, nF)),
-    { transform: options.transform, templateLength: options.templateLength },
-  );
+  const predictors = sessions.map((s) => (rows: Float32Array, n: number, nF: number) => predictResiduals(s, rows, n, nF));
+  const evaluation = await evaluateResidualModel(series, spec, options.validation, predictors, { transform: options.transform, templateLength: options.templateLength });
+  let perLead: ReforecastEvaluation | null = null;
+  if (options.reforecasts) {
+    onProgress({ stage: 'building the per-lead error archives from the past runs', percent: 95 });
+    // The lead-free archive's resolved transform, so both archives' errors share one scale.
+    perLead = await evaluateReforecasts(series, options.reforecasts, spec, predictors, { transform: evaluation.correctedArchive.transform });
+  }
   await Promise.all(sessions.map((s) => s.release()));
   onProgress({ stage: 'done', percent: 100 });
-  return { spec, parts, trials, evaluation, rows: { calibration: cal.nRows, validation: val.nRows }, onnxCheck: { rows: val.nRows * parts.length, mismatches } };
+  return { spec, parts, trials, evaluation, perLead, rows: { calibration: cal.nRows, validation: val.nRows }, onnxCheck: { rows: val.nRows * parts.length, mismatches } };
 }
 
 export class CancelledError extends Error {

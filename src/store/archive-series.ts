@@ -1,5 +1,6 @@
+import type { ReforecastSet } from '../models/reforecast-evaluation.ts';
 import type { ArchiveSeries } from '../models/residual-evaluation.ts';
-import { forcingUnits, readForcings, readObservations, readSimulations, type Window } from './archive-repo.ts';
+import { forcingUnits, readForcings, readObservations, readReforecasts, readSimulations, type Window } from './archive-repo.ts';
 import type { Queryable } from './db.ts';
 
 /**
@@ -39,4 +40,30 @@ export async function loadArchiveSeries(db: Queryable, gaugeId: string, stepSeco
     forcings,
     members: [...members].sort(([a], [b]) => a.localeCompare(b)).map(([id, values]) => ({ id, values })),
   };
+}
+
+/**
+ * A gauge's stored past runs issued in a window, as one issue × member × lead block (missing =
+ * NaN), or null when there are none: what the per-lead error archives are built from.
+ */
+export async function loadReforecastSet(db: Queryable, gaugeId: string, window: Window): Promise<ReforecastSet | null> {
+  const rows = await readReforecasts(db, gaugeId, window);
+  if (!rows.length) return null;
+  const issues = new Map<number, number>();
+  const members = new Set<string>();
+  let nLeads = 0;
+  for (const r of rows) {
+    if (!issues.has(r.t)) issues.set(r.t, issues.size);
+    members.add(r.member_id);
+    if (r.lead > nLeads) nLeads = r.lead;
+  }
+  // Rows come ordered by issue time, so issue indices are ascending in time.
+  const memberIds = [...members].sort((a, b) => a.localeCompare(b));
+  const memberIndex = new Map(memberIds.map((id, i) => [id, i]));
+  const nM = memberIds.length;
+  const values = new Float64Array(issues.size * nM * nLeads).fill(NaN);
+  for (const r of rows) {
+    if (r.value !== null) values[(issues.get(r.t)! * nM + memberIndex.get(r.member_id)!) * nLeads + r.lead - 1] = r.value;
+  }
+  return { issueTimes: Float64Array.from(issues.keys()), nLeads, memberIds, values };
 }

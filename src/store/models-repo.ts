@@ -62,7 +62,11 @@ export interface NewModelVersion {
   parts: Uint8Array[];
   correctedArchive: { bytes: Uint8Array; summary: Record<string, unknown> };
   rawArchive: { bytes: Uint8Array; summary: Record<string, unknown> } | null;
+  /** Per-lead archives built from past runs (reforecasts), when there were enough. */
+  perLeadArchives?: { corrected: { bytes: Uint8Array; summary: Record<string, unknown> }; raw: { bytes: Uint8Array; summary: Record<string, unknown> } | null } | null;
 }
+
+export type LeadMode = 'lead-free' | 'per-lead';
 
 /** Stores a version with its ONNX parts and error archives; call inside a transaction. */
 export async function insertModelVersion(tx: Queryable, v: NewModelVersion): Promise<string> {
@@ -77,6 +81,10 @@ export async function insertModelVersion(tx: Queryable, v: NewModelVersion): Pro
   }
   await insertArchive(tx, v.gaugeId, id, 'corrected', v.correctedArchive);
   if (v.rawArchive) await insertArchive(tx, v.gaugeId, id, 'raw', v.rawArchive);
+  if (v.perLeadArchives) {
+    await insertArchive(tx, v.gaugeId, id, 'corrected', v.perLeadArchives.corrected, 'per-lead');
+    if (v.perLeadArchives.raw) await insertArchive(tx, v.gaugeId, id, 'raw', v.perLeadArchives.raw, 'per-lead');
+  }
   return id;
 }
 
@@ -86,10 +94,11 @@ export async function insertArchive(
   versionId: string | null,
   kind: 'corrected' | 'raw',
   a: { bytes: Uint8Array; summary: Record<string, unknown> },
+  leadMode: LeadMode = 'lead-free',
 ): Promise<void> {
   await tx.query(
     `insert into error_archives (gauge_id, version_id, kind, lead_mode, cases, summary, bytes) values ($1, $2, $3, $4, $5, $6::jsonb, $7)`,
-    [gaugeId, versionId, kind, 'lead-free', Number(a.summary.cases ?? 0), JSON.stringify(a.summary), Buffer.from(a.bytes)],
+    [gaugeId, versionId, kind, leadMode, Number(a.summary.cases ?? 0), JSON.stringify(a.summary), Buffer.from(a.bytes)],
   );
 }
 
@@ -137,27 +146,51 @@ export interface StoredArchive {
   id: string;
   versionId: string | null;
   kind: 'corrected' | 'raw';
+  leadMode: LeadMode;
   summary: Record<string, unknown>;
   bytes: Uint8Array;
 }
 
-export async function versionArchive(db: Queryable, versionId: string, kind: 'corrected' | 'raw'): Promise<StoredArchive | null> {
-  const { rows } = await db.query<{ id: string; version_id: string | null; kind: 'corrected' | 'raw'; summary: Record<string, unknown>; bytes: Uint8Array }>(
-    `select id::text as id, version_id::text as version_id, kind, summary, bytes from error_archives
-     where version_id = $1 and kind = $2 order by id desc limit 1`,
-    [versionId, kind],
-  );
-  const r = rows[0];
-  return r ? { id: r.id, versionId: r.version_id, kind: r.kind, summary: r.summary, bytes: new Uint8Array(r.bytes) } : null;
+interface ArchiveRow {
+  id: string;
+  version_id: string | null;
+  kind: 'corrected' | 'raw';
+  lead_mode: LeadMode;
+  summary: Record<string, unknown>;
+  bytes: Uint8Array;
 }
 
-/** The newest raw-member archive of a gauge (from any fit, upload or a raw-archive job). */
-export async function latestRawArchive(db: Queryable, gaugeId: string): Promise<StoredArchive | null> {
-  const { rows } = await db.query<{ id: string; version_id: string | null; summary: Record<string, unknown>; bytes: Uint8Array }>(
-    `select id::text as id, version_id::text as version_id, summary, bytes from error_archives
-     where gauge_id = $1 and kind = 'raw' order by id desc limit 1`,
-    [gaugeId],
+const archiveFromRow = (r: ArchiveRow | undefined): StoredArchive | null =>
+  r ? { id: r.id, versionId: r.version_id, kind: r.kind, leadMode: r.lead_mode, summary: r.summary, bytes: new Uint8Array(r.bytes) } : null;
+
+const ARCHIVE_COLUMNS = 'id::text as id, version_id::text as version_id, kind, lead_mode, summary, bytes';
+
+/** A version's newest archive of a kind and lead mode (lead-free unless asked). */
+export async function versionArchive(db: Queryable, versionId: string, kind: 'corrected' | 'raw', leadMode: LeadMode = 'lead-free'): Promise<StoredArchive | null> {
+  const { rows } = await db.query<ArchiveRow>(
+    `select ${ARCHIVE_COLUMNS} from error_archives where version_id = $1 and kind = $2 and lead_mode = $3 order by id desc limit 1`,
+    [versionId, kind, leadMode],
   );
-  const r = rows[0];
-  return r ? { id: r.id, versionId: r.version_id, kind: 'raw', summary: r.summary, bytes: new Uint8Array(r.bytes) } : null;
+  return archiveFromRow(rows[0]);
+}
+
+/** The newest raw-member archive of a gauge in a lead mode (from any fit, upload or a raw-archive job). */
+export async function latestRawArchive(db: Queryable, gaugeId: string, leadMode: LeadMode = 'lead-free'): Promise<StoredArchive | null> {
+  const { rows } = await db.query<ArchiveRow>(
+    `select ${ARCHIVE_COLUMNS} from error_archives where gauge_id = $1 and kind = 'raw' and lead_mode = $2 order by id desc limit 1`,
+    [gaugeId, leadMode],
+  );
+  return archiveFromRow(rows[0]);
+}
+
+/** What a version's archives hold (without their bytes), oldest first. */
+export async function versionArchiveSummaries(
+  db: Queryable,
+  versionId: string,
+): Promise<{ id: string; kind: 'corrected' | 'raw'; leadMode: LeadMode; summary: Record<string, unknown> }[]> {
+  const { rows } = await db.query<{ id: string; kind: 'corrected' | 'raw'; lead_mode: LeadMode; summary: Record<string, unknown> }>(
+    `select id::text as id, kind, lead_mode, summary from error_archives where version_id = $1 order by id`,
+    [versionId],
+  );
+  return rows.map((r) => ({ id: r.id, kind: r.kind, leadMode: r.lead_mode, summary: r.summary }));
 }

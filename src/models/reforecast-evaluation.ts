@@ -1,0 +1,292 @@
+import { dayOfYearUtc } from '../core/day-of-year.ts';
+import { buildArchiveFromReforecasts, type ErrorArchive } from '../core/error-archive.ts';
+import type { ErrorTransformSpec } from '../core/error-transform.ts';
+import { reforecastRows, requiredInputs, type FeatureSpec, type ReforecastIssue } from '../core/features.ts';
+import { archiveMembers, archiveSummary, type ArchiveSeries, type ResidualPredictor } from './residual-evaluation.ts';
+
+/** Stored past runs of a gauge on one layout: what the per-lead error archives are built from. */
+export interface ReforecastSet {
+  /** Issue times, epoch ms, ascending. */
+  issueTimes: Float64Array;
+  /** Longest lead stored (steps). */
+  nLeads: number;
+  /** Members with stored runs, sorted by id. */
+  memberIds: string[];
+  /** [(issue·memberIds.length + member)·nLeads + lead]; lead 0 is one step after issue time; NaN = missing. */
+  values: Float64Array;
+}
+
+/** Fewer usable past runs than this and no per-lead archive is built (common practice, like the hindcast's reference minimum). */
+export const MIN_PER_LEAD_ISSUES = 20;
+
+export interface PerLeadSummary {
+  nLeads: number;
+  /** Past runs with at least one case, and past runs given (issued in the period). */
+  issues: number;
+  issuesGiven: number;
+  members: number;
+  cases: number;
+  templates: number;
+  templateLength: number;
+  transform: unknown;
+}
+
+export interface ReforecastScores {
+  issues: number;
+  members: number;
+  cases: number;
+  /** Residual RMSE (observed − member) of the raw and corrected reforecast members, over all leads and per lead. */
+  residualRmse: { before: number | null; after: number | null };
+  byLead: { lead: number; cases: number; rmseBefore: number | null; rmseAfter: number | null }[];
+  note: string;
+}
+
+export interface ReforecastEvaluation {
+  /** null when the past runs do not make a usable archive; `reason` says why. */
+  archives: { corrected: ErrorArchive; raw: ErrorArchive; correctedSummary: PerLeadSummary; rawSummary: PerLeadSummary } | null;
+  reason: string | null;
+  scores: ReforecastScores | null;
+}
+
+/** Said wherever reforecast-based results are shown: the archive stores no forecast forcings. */
+export const PAST_FORCINGS_NOTE =
+  "The reforecasts' feature rows use the archived (observed) forcings at the lead times, not the forecast forcings available when each run was issued (those are not stored); warm-up values come from the members' continuous simulations before issue time.";
+
+/**
+ * The horizon of the per-lead archive: the longest lead that at least half of the past runs reach
+ * (a few longer runs would otherwise leave no issue row complete, and so no Schaake template).
+ */
+export function perLeadHorizon(set: ReforecastSet): number {
+  const nM = set.memberIds.length;
+  const reach: number[] = [];
+  for (let s = 0; s < set.issueTimes.length; s++) {
+    let last = 0;
+    for (let m = 0; m < nM; m++) {
+      const base = (s * nM + m) * set.nLeads;
+      for (let h = set.nLeads - 1; h >= last; h--) {
+        if (Number.isFinite(set.values[base + h])) {
+          last = h + 1;
+          break;
+        }
+      }
+    }
+    if (last > 0) reach.push(last);
+  }
+  if (!reach.length) return 0;
+  reach.sort((a, b) => b - a);
+  return reach[Math.ceil(reach.length / 2) - 1];
+}
+
+interface Layout {
+  H: number;
+  stepMs: number;
+  /** Per used issue: its index in set.issueTimes and in series.times. */
+  issue: number[];
+  at: number[];
+  /** Kept members: index in set.memberIds and in series.members (−1 when the member has no continuous simulation). */
+  setMember: number[];
+  seriesMember: number[];
+}
+
+function layout(series: ArchiveSeries, set: ReforecastSet, needSimulation: boolean): Layout | string {
+  const H = perLeadHorizon(set);
+  if (H < 1) return 'the past runs hold no value';
+  const stepMs = series.stepSeconds * 1000;
+  const t0 = series.times[0];
+  const issue: number[] = [];
+  const at: number[] = [];
+  set.issueTimes.forEach((t, s) => {
+    const i = (t - t0) / stepMs;
+    // Issues off the archive's time grid cannot be lined up with its observations.
+    if (Number.isInteger(i) && i >= 0 && i < series.times.length) {
+      issue.push(s);
+      at.push(i);
+    }
+  });
+  const bySeries = new Map(series.members.map((m, k) => [m.id, k]));
+  const usable = set.memberIds.map((id, m) => ({ m, k: bySeries.get(id) ?? -1 })).filter((x) => !needSimulation || x.k >= 0);
+  if (!usable.length) return "no member of the past runs has a continuous simulation (needed for the warm-up)";
+  // Members share the observations, so their errors are near-duplicates: keep a few, evenly spread,
+  // as the lead-free archive does.
+  const keep = archiveMembers(usable.length).map((j) => usable[j]);
+  return { H, stepMs, issue, at, setMember: keep.map((x) => x.m), seriesMember: keep.map((x) => x.k) };
+}
+
+/** Observed flow and day of year at every (row, lead) valid time; rows = used issue × kept member. */
+function observedMatrix(series: ArchiveSeries, set: ReforecastSet, L: Layout) {
+  const nK = L.setMember.length;
+  const nRows = L.issue.length * nK;
+  const observed = new Float64Array(nRows * L.H).fill(NaN);
+  const dayOfYear = new Uint16Array(nRows * L.H);
+  const raw = new Float64Array(nRows * L.H).fill(NaN);
+  const nM = set.memberIds.length;
+  L.issue.forEach((s, u) => {
+    for (let j = 0; j < nK; j++) {
+      const row = (u * nK + j) * L.H;
+      const src = (s * nM + L.setMember[j]) * set.nLeads;
+      for (let h = 0; h < L.H; h++) {
+        const v = L.at[u] + h + 1;
+        observed[row + h] = v < series.times.length ? series.observed[v] : NaN;
+        dayOfYear[row + h] = dayOfYearUtc(set.issueTimes[s] + (h + 1) * L.stepMs);
+        raw[row + h] = set.values[src + h];
+      }
+    }
+  });
+  return { nRows, observed, dayOfYear, raw };
+}
+
+/** Used issues with at least one case (a value and an observation at the same cell). */
+function issuesWithCases(values: Float64Array, observed: Float64Array, L: Layout): number {
+  const size = L.setMember.length * L.H;
+  let issues = 0;
+  for (let u = 0; u < L.issue.length; u++) {
+    for (let i = u * size; i < (u + 1) * size; i++) {
+      if (Number.isFinite(values[i]) && Number.isFinite(observed[i])) {
+        issues++;
+        break;
+      }
+    }
+  }
+  return issues;
+}
+
+function summaryOf(a: ErrorArchive, L: Layout, given: number, issues: number): PerLeadSummary {
+  return { nLeads: a.nLeads, issues, issuesGiven: given, members: L.setMember.length, ...archiveSummary(a) };
+}
+
+/** Checks that an archive can serve any run up to its horizon: cases at every lead and a template. */
+function unusable(a: ErrorArchive, issues: number): string | null {
+  if (issues < MIN_PER_LEAD_ISSUES) return `only ${issues} past runs have observed leads; at least ${MIN_PER_LEAD_ISSUES} are needed`;
+  for (let h = 0; h < a.nLeads; h++) if (a.groupStart[h + 1] === a.groupStart[h]) return `no case at lead ${h + 1}`;
+  if (!a.templateStart.length) return 'no past run is complete over all its leads (no Schaake template)';
+  return null;
+}
+
+/**
+ * Per-lead error archives from the gauge's stored past runs (reforecasts): each issue is laid out
+ * like a served run — the members' continuous simulations up to issue time as warm-up, then the
+ * stored value per lead — corrected by the residual model(s) (a bundle's mean, never negative, as
+ * the lead-free archive), and compared with the observations at the valid times. Each issue ×
+ * member is one row of the issue × lead matrix (up to ARCHIVE_MEMBERS members, evenly spread), so
+ * every complete row is a Schaake template and cases are grouped per lead. The raw members' errors
+ * on the same cases make the degraded-mode archive. Forcings at the lead times are the archived
+ * (observed) ones: see PAST_FORCINGS_NOTE.
+ */
+export async function evaluateReforecasts(
+  series: ArchiveSeries,
+  set: ReforecastSet,
+  spec: FeatureSpec,
+  predictors: ResidualPredictor[],
+  options: { transform: ErrorTransformSpec },
+): Promise<ReforecastEvaluation> {
+  const L = layout(series, set, true);
+  if (typeof L === 'string') return { archives: null, reason: L, scores: null };
+  const { nRows, observed, dayOfYear, raw } = observedMatrix(series, set, L);
+  const corrected = new Float64Array(nRows * L.H).fill(NaN);
+  const need = requiredInputs(spec);
+  const W = Math.max(need.simStepsToIssue, ...need.forcings.map((f) => f.stepsToIssue));
+  const nK = L.setMember.length;
+  const n = series.times.length;
+  const window = (values: Float64Array, i: number, len: number) => {
+    const out = new Float64Array(len).fill(NaN);
+    for (let j = 0; j < len; j++) {
+      const k = i - W + 1 + j;
+      if (k >= 0 && k < n) out[j] = values[k];
+    }
+    return out;
+  };
+  // Issues in batches, so the feature rows stay a few MB whatever the archive's size.
+  const perBatch = Math.max(1, Math.floor(50_000 / (nK * L.H)));
+  for (let u0 = 0; u0 < L.issue.length; u0 += perBatch) {
+    const batch: ReforecastIssue[] = [];
+    for (let u = u0; u < Math.min(L.issue.length, u0 + perBatch); u++) {
+      const i = L.at[u];
+      const forcings: Record<string, Float64Array> = {};
+      for (const f of spec.forcings) if (series.forcings[f.name]) forcings[f.name] = window(series.forcings[f.name], i, W + L.H);
+      batch.push({
+        issueTime: set.issueTimes[L.issue[u]],
+        nLeads: L.H,
+        members: L.seriesMember.map((k, j) => {
+          const values = window(series.members[k].values, i, W + L.H);
+          values.set(raw.subarray((u * nK + j) * L.H, (u * nK + j + 1) * L.H), W);
+          return values;
+        }),
+        forcings,
+        issueObservation: series.observed[i],
+        obs: observed.subarray(u * nK * L.H, u * nK * L.H + L.H),
+      });
+    }
+    const rows = reforecastRows(spec, batch);
+    if (!rows.nRows) continue;
+    const sum = new Float64Array(rows.nRows);
+    for (const predict of predictors) {
+      const out = await predict(rows.rows, rows.nRows, rows.nFeatures);
+      for (let r = 0; r < rows.nRows; r++) {
+        if (!Number.isFinite(out[r])) throw new Error(`the residual model returned a non-finite value on a past run (issued ${new Date(batch[rows.issue[r]].issueTime).toISOString()}, lead ${rows.lead[r]})`);
+        sum[r] += out[r];
+      }
+    }
+    for (let r = 0; r < rows.nRows; r++) {
+      const cell = ((u0 + rows.issue[r]) * nK + rows.member[r]) * L.H + rows.lead[r] - 1;
+      corrected[cell] = Math.max(0, raw[cell] + sum[r] / predictors.length);
+    }
+  }
+  // Raw errors on the same cases as the corrected ones, as in the lead-free archives.
+  const rawMasked = raw.map((v, i) => (Number.isFinite(corrected[i]) ? v : NaN));
+  const issues = issuesWithCases(corrected, observed, L);
+  const scores = scoreReforecasts(rawMasked, corrected, observed, L, issues);
+  if (scores.cases === 0) return { archives: null, reason: 'no past run has a corrected value with an observation', scores: null };
+  const input = { nIssues: nRows, nLeads: L.H, observed, dayOfYear, transform: options.transform };
+  const cor = buildArchiveFromReforecasts({ ...input, corrected });
+  const reason = unusable(cor, issues);
+  if (reason) return { archives: null, reason, scores };
+  const rawArchive = buildArchiveFromReforecasts({ ...input, corrected: rawMasked });
+  const given = set.issueTimes.length;
+  return {
+    archives: { corrected: cor, raw: rawArchive, correctedSummary: summaryOf(cor, L, given, issues), rawSummary: summaryOf(rawArchive, L, given, issues) },
+    reason: null,
+    scores,
+  };
+}
+
+/** The raw members' per-lead archive alone (degraded mode without any model): every raw value with an observation. */
+export function rawArchiveFromReforecasts(
+  series: Pick<ArchiveSeries, 'stepSeconds' | 'times' | 'observed' | 'members'>,
+  set: ReforecastSet,
+  options: { transform: ErrorTransformSpec },
+): { archive: ErrorArchive; summary: PerLeadSummary } | { archive: null; reason: string } {
+  const L = layout(series as ArchiveSeries, set, false);
+  if (typeof L === 'string') return { archive: null, reason: L };
+  const { nRows, observed, dayOfYear, raw } = observedMatrix(series as ArchiveSeries, set, L);
+  const a = buildArchiveFromReforecasts({ nIssues: nRows, nLeads: L.H, corrected: raw, observed, dayOfYear, transform: options.transform });
+  const summary = summaryOf(a, L, set.issueTimes.length, issuesWithCases(raw, observed, L));
+  const reason = unusable(a, summary.issues);
+  return reason ? { archive: null, reason } : { archive: a, summary };
+}
+
+const rmse = (sumSq: number, n: number): number | null => (n ? Math.sqrt(sumSq / n) : null);
+
+function scoreReforecasts(raw: Float64Array, corrected: Float64Array, observed: Float64Array, L: Layout, issues: number): ReforecastScores {
+  const H = L.H;
+  const before = new Float64Array(H);
+  const after = new Float64Array(H);
+  const count = new Float64Array(H);
+  for (let i = 0; i < corrected.length; i++) {
+    const y = observed[i];
+    if (!Number.isFinite(corrected[i]) || !Number.isFinite(y)) continue;
+    const h = i % H;
+    before[h] += (y - raw[i]) ** 2;
+    after[h] += (y - corrected[i]) ** 2;
+    count[h]++;
+  }
+  let b = 0;
+  let a = 0;
+  let n = 0;
+  const byLead = Array.from({ length: H }, (_, h) => {
+    b += before[h];
+    a += after[h];
+    n += count[h];
+    return { lead: h + 1, cases: count[h], rmseBefore: rmse(before[h], count[h]), rmseAfter: rmse(after[h], count[h]) };
+  });
+  return { issues, members: L.setMember.length, cases: n, residualRmse: { before: rmse(b, n), after: rmse(a, n) }, byLead, note: PAST_FORCINGS_NOTE };
+}

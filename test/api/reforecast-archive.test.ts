@@ -1,0 +1,256 @@
+// Per-lead error archives from stored past runs (reforecasts), built after fitting and after an
+// upload, and chosen by POST /gauges/:id/runs when the run's lead times fit within them.
+// Expected sizes are counted here from the scenario itself (issues in the validation period,
+// observed leads), not taken from the service.
+import { readFileSync } from 'node:fs';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { archiveFromBytes } from '../../src/core/archive-codec.ts';
+import type { ErrorArchive } from '../../src/core/error-archive.ts';
+import { jobHandlers } from '../../src/jobs/handlers.ts';
+import { JobRunner } from '../../src/jobs/runner.ts';
+import { loadScenarioArchive } from '../../src/scenario/load-archive.ts';
+import { buildScenario, type ForecastRun } from '../../src/scenario/scenario.ts';
+import { versionArchive } from '../../src/store/models-repo.ts';
+import { makeTestApp, type TestApp } from '../helpers/test-app.ts';
+import { injectSend } from '../helpers/scenario-send.ts';
+
+let t: TestApp;
+let runner: JobRunner;
+const scenario = buildScenario({ seed: 11, years: 3, members: 4 });
+const gaugeId = scenario.gauge.id;
+const quiet = { info() {}, warn() {}, error() {} } as never;
+const DAY = 86_400_000;
+const LEADS = scenario.horizonSteps; // 10
+const fitBody = { params: { nRounds: 40, learningRate: 0.2, maxDepth: 3, patience: 10 }, templateLength: 30, simLags: 5, forcingLags: 2 };
+
+let versionId: string;
+let version: Record<string, any>;
+let inValidation: ForecastRun[];
+
+async function fit(body: object) {
+  const started = await t.as('admin', { method: 'POST', url: `/gauges/${gaugeId}/models/fit`, payload: body });
+  expect(started.statusCode, started.body).toBe(202);
+  await runner.drain();
+  const job = (await t.as('read', { method: 'GET', url: `/jobs/${started.json().id}` })).json();
+  expect(job.status, job.error).toBe('succeeded');
+  return job.result;
+}
+
+/** What the per-lead archive must hold, counted from the scenario: cases per lead and complete rows. */
+function expected(runs: ForecastRun[]) {
+  const M = scenario.memberIds.length;
+  const perLead = new Array(LEADS).fill(0);
+  let templates = 0;
+  let issues = 0;
+  for (const run of runs) {
+    const obs = scenario.observedFlow.slice(run.issueTimeIndex + 1, run.issueTimeIndex + 1 + LEADS);
+    obs.forEach((y, h) => {
+      if (y !== null) perLead[h] += M;
+    });
+    if (obs.every((y) => y !== null)) templates += M;
+    if (obs.some((y) => y !== null)) issues++;
+  }
+  return { perLead, cases: perLead.reduce((a, b) => a + b, 0), templates, issues };
+}
+
+const groupSizes = (a: ErrorArchive) => Array.from({ length: a.nLeads }, (_, h) => a.groupStart[h + 1] - a.groupStart[h]);
+
+/** A served run's body: warm-up from the archive, lead values and forcings as given. */
+function runBody(issueIndex: number, leadValues: (m: number, k: number) => number, nLeads: number, extra: Record<string, unknown> = {}) {
+  const w = scenario.warmupSteps;
+  const from = issueIndex - w + 1;
+  return {
+    issueTime: scenario.times[issueIndex],
+    unit: 'm3/s',
+    warmupSteps: w,
+    members: scenario.memberIds.map((id, m) => ({
+      id,
+      values: [...scenario.memberSimulations[id].slice(from, issueIndex + 1), ...Array.from({ length: nLeads }, (_, k) => leadValues(m, k))],
+    })),
+    // The archived forcings, which are also what the per-lead archive's feature rows read.
+    forcings: {
+      precipitation: scenario.forcings.precipitation.slice(from, issueIndex + 1 + nLeads),
+      air_temperature: scenario.forcings.air_temperature.slice(from, issueIndex + 1 + nLeads),
+    },
+    trajectories: 200,
+    ...extra,
+  };
+}
+const post = (body: object) => t.as('ingest', { method: 'POST', url: `/gauges/${gaugeId}/runs`, payload: body });
+
+beforeAll(async () => {
+  t = await makeTestApp();
+  runner = new JobRunner(t.db, jobHandlers, quiet, 60_000);
+  await loadScenarioArchive(injectSend(t), scenario, { reforecasts: true });
+  const result = await fit(fitBody);
+  versionId = result.versionId;
+  version = (await t.as('read', { method: 'GET', url: `/gauges/${gaugeId}/models/${versionId}` })).json();
+  const v = { from: Date.parse(version.periods.validation.from), to: Date.parse(version.periods.validation.to) };
+  inValidation = scenario.reforecasts().filter((r) => Date.parse(r.issueTime) >= v.from && Date.parse(r.issueTime) < v.to);
+});
+afterAll(async () => {
+  await runner.stop();
+  await t.close();
+});
+
+describe('per-lead error archives after fitting', () => {
+  it('stores a corrected and a raw per-lead archive next to the lead-free ones, sized by the past runs in the validation period', async () => {
+    expect(inValidation.length).toBeGreaterThanOrEqual(20);
+    const want = expected(inValidation);
+    const { rows } = await t.db.query<{ kind: string; lead_mode: string; cases: number }>('select kind, lead_mode, cases from error_archives where version_id = $1 order by id', [versionId]);
+    expect(rows.map((r) => `${r.kind}/${r.lead_mode}`)).toEqual(['corrected/lead-free', 'raw/lead-free', 'corrected/per-lead', 'raw/per-lead']);
+
+    for (const kind of ['corrected', 'raw'] as const) {
+      const stored = (await versionArchive(t.db, versionId, kind, 'per-lead'))!;
+      expect(stored.leadMode).toBe('per-lead');
+      const a = archiveFromBytes(stored.bytes);
+      expect(a.nLeads).toBe(LEADS);
+      expect(a.templateLength).toBe(LEADS);
+      expect(a.groupStart).toHaveLength(LEADS + 1);
+      // Every issue × member is one row of the issue × lead matrix: cases per lead and complete rows.
+      expect(groupSizes(a)).toEqual(want.perLead);
+      expect(a.templateStart).toHaveLength(want.templates);
+      expect(a.templateValues).toHaveLength(inValidation.length * scenario.memberIds.length * LEADS);
+      expect(stored.summary).toMatchObject({ nLeads: LEADS, issues: want.issues, issuesGiven: inValidation.length, members: 4, cases: want.cases, templates: want.templates });
+    }
+    // The lead-free archive is unchanged: one group serving every lead, templates of the asked length.
+    const leadFree = archiveFromBytes((await versionArchive(t.db, versionId, 'corrected'))!.bytes);
+    expect(leadFree.nLeads).toBe(0);
+    expect(leadFree.templateLength).toBe(30);
+  });
+
+  it("the raw per-lead archive holds the stored runs' values and their errors against the observations", async () => {
+    const a = archiveFromBytes((await versionArchive(t.db, versionId, 'raw', 'per-lead'))!.bytes);
+    if (a.transform.kind !== 'log') throw new Error('the fit asked for the default log transform');
+    const offset = a.transform.offset;
+    for (const h of [0, LEADS - 1]) {
+      const values: number[] = [];
+      let errorSum = 0;
+      for (const run of inValidation) {
+        const y = scenario.observedFlow[run.issueTimeIndex + 1 + h];
+        if (y === null) continue;
+        for (const m of run.members) {
+          const x = m.values[m.warmupSteps + h];
+          values.push(x);
+          errorSum += Math.log(y + offset) - Math.log(x + offset);
+        }
+      }
+      const got = Array.from(a.predictor.subarray(a.groupStart[h], a.groupStart[h + 1]));
+      expect(got).toEqual(values.sort((p, q) => p - q));
+      const err = a.error.subarray(a.groupStart[h], a.groupStart[h + 1]).reduce((s, e) => s + e, 0);
+      expect(err).toBeCloseTo(errorSum, 8);
+    }
+  });
+
+  it("the corrected per-lead archive holds what the service serves for the same past run (one feature builder)", async () => {
+    const past = inValidation[inValidation.length - 3];
+    const i = past.issueTimeIndex;
+    const res = await post(runBody(i, (m, k) => past.members[m].values[past.warmupSteps + k], LEADS, { source: 'past-run' }));
+    expect(res.statusCode, res.body).toBe(201);
+    const served = res.json();
+    expect(served.status).toBe('corrected');
+    const a = archiveFromBytes((await versionArchive(t.db, versionId, 'corrected', 'per-lead'))!.bytes);
+    for (let h = 0; h < LEADS; h++) {
+      if (scenario.observedFlow[i + 1 + h] === null) continue;
+      const group = a.predictor.subarray(a.groupStart[h], a.groupStart[h + 1]);
+      for (const member of served.ensemble.corrected as { values: number[] }[]) {
+        // Served values are rounded to 1e-4; the nearest archived case must be that value.
+        const nearest = group.reduce((best, x) => (Math.abs(x - member.values[h]) < Math.abs(best - member.values[h]) ? x : best), Infinity);
+        expect(Math.abs(nearest - member.values[h])).toBeLessThanOrEqual(5e-5 + 1e-9);
+      }
+    }
+  });
+
+  it('records the past runs in the version: archive summaries and residual scores per lead', async () => {
+    const modes = (version.archives as { kind: string; leadMode: string; nLeads?: number }[]).map((a) => `${a.kind}/${a.leadMode}`);
+    expect(modes).toEqual(['corrected/lead-free', 'raw/lead-free', 'corrected/per-lead', 'raw/per-lead']);
+    const r = version.scores.reforecasts;
+    expect(r.perLeadArchive).toMatchObject({ stored: true, nLeads: LEADS, issues: expected(inValidation).issues });
+    expect(r.byLead).toHaveLength(LEADS);
+    expect(r.cases).toBe(expected(inValidation).cases);
+    expect(r.note).toMatch(/observed\) forcings at the lead times/);
+  });
+});
+
+describe('serving chooses the archive by the run\'s lead count', () => {
+  const issue = scenario.times.length - 40;
+  const sim = (m: number, k: number) => scenario.memberSimulations[scenario.memberIds[m]][issue + 1 + k];
+
+  it('uses the per-lead archive for a run within its lead times', async () => {
+    const res = await post(runBody(issue, sim, LEADS));
+    expect(res.statusCode, res.body).toBe(201);
+    const stored = (await versionArchive(t.db, versionId, 'corrected', 'per-lead'))!;
+    expect(res.json().errorArchive).toEqual({ id: stored.id, kind: 'corrected', leadMode: 'per-lead', leadTimes: LEADS, cases: stored.summary.cases, templates: stored.summary.templates });
+    // Existing fields are unchanged.
+    expect(res.json()).toMatchObject({ status: 'corrected', modelVersion: { id: versionId } });
+    expect(res.json().leadTimes).toHaveLength(LEADS);
+  });
+
+  it('falls back to the lead-free archive for a longer run, and refuses one longer than both', async () => {
+    const res = await post(runBody(issue, sim, LEADS + 5, { source: 'longer' }));
+    expect(res.statusCode, res.body).toBe(201);
+    expect(res.json().errorArchive).toMatchObject({ kind: 'corrected', leadMode: 'lead-free', leadTimes: 30 });
+    expect(res.json().leadTimes).toHaveLength(LEADS + 5);
+
+    const tooLong = await post(runBody(issue, sim, 31, { source: 'too-long' }));
+    expect(tooLong.statusCode).toBe(422);
+    expect(tooLong.json().errors[0]).toMatchObject({ path: 'body.members[0].values' });
+    expect(tooLong.json().errors[0].message).toMatch(/covers at most 30/);
+  });
+
+  it('prefers the raw per-lead archive in degraded mode, and the lead-free one beyond it', async () => {
+    await t.db.query('update model_versions set active = false where gauge_id = $1', [gaugeId]);
+    try {
+      const short = (await post(runBody(issue - 7, sim, LEADS, { source: 'degraded' }))).json();
+      expect(short).toMatchObject({ status: 'degraded', errorArchive: { kind: 'raw', leadMode: 'per-lead', leadTimes: LEADS } });
+      const long = (await post(runBody(issue - 7, sim, LEADS + 2, { source: 'degraded-long' }))).json();
+      expect(long).toMatchObject({ status: 'degraded', errorArchive: { kind: 'raw', leadMode: 'lead-free', leadTimes: 30 } });
+    } finally {
+      await t.db.query('update model_versions set active = true where id = $1', [versionId]);
+    }
+  });
+});
+
+describe('other ways to get per-lead archives', () => {
+  it('an uploaded model gets its per-lead archives the same way', async () => {
+    // The PyTorch MLP fixture of test/api/models.test.ts (test/fixtures/torch-mlp/make.py, python3-torch 1.13).
+    const spec = { version: 1, stepSeconds: 86400, simLags: 9, forcings: [{ name: 'precipitation', lags: 1 }], seasonal: false, leadTime: false, issueError: false };
+    const res = await t.as('admin', {
+      method: 'POST',
+      url: `/gauges/${gaugeId}/models/upload`,
+      payload: { label: 'partner MLP', featureSpec: spec, onnxBase64: readFileSync('test/fixtures/torch-mlp/model.onnx').toString('base64'), templateLength: 30, validation: version.periods.validation },
+    });
+    expect(res.statusCode, res.body).toBe(201);
+    const v = res.json();
+    const want = expected(inValidation);
+    const perLead = v.archives.filter((a: { leadMode: string }) => a.leadMode === 'per-lead');
+    expect(perLead.map((a: { kind: string }) => a.kind)).toEqual(['corrected', 'raw']);
+    for (const a of perLead) expect(a).toMatchObject({ nLeads: LEADS, cases: want.cases, templates: want.templates });
+    const decoded = archiveFromBytes((await versionArchive(t.db, v.id, 'corrected', 'per-lead'))!.bytes);
+    expect(groupSizes(decoded)).toEqual(want.perLead);
+  });
+
+  it('the raw-archive job builds the raw per-lead archive from every stored past run', async () => {
+    const started = await t.as('admin', { method: 'POST', url: `/gauges/${gaugeId}/raw-archive`, payload: { templateLength: 20 } });
+    await runner.drain();
+    const job = (await t.as('read', { method: 'GET', url: `/jobs/${started.json().id}` })).json();
+    expect(job.status, job.error).toBe('succeeded');
+    const all = scenario.reforecasts();
+    const want = expected(all);
+    expect(job.result.perLead).toMatchObject({ nLeads: LEADS, issuesGiven: all.length, issues: want.issues, cases: want.cases, templates: want.templates });
+  });
+
+  it('builds no per-lead archive from too few past runs, says why, and serves from the lead-free one', async () => {
+    const end = Date.parse(scenario.times[scenario.times.length - 1]) + DAY;
+    const iso = (ms: number) => new Date(ms).toISOString().replace('.000Z', 'Z');
+    const result = await fit({ ...fitBody, calibration: { from: scenario.times[0], to: iso(end - 70 * DAY) }, validation: { from: iso(end - 70 * DAY), to: iso(end) }, activate: true });
+    expect(result.archives.perLead).toBeNull();
+    expect(result.archives.perLeadNote).toMatch(/at least 20 are needed/);
+    expect(result.scores.reforecasts.perLeadArchive).toMatchObject({ stored: false });
+    expect(await versionArchive(t.db, result.versionId, 'corrected', 'per-lead')).toBeNull();
+    const issue = scenario.times.length - 40;
+    const res = await post(runBody(issue - 14, (m, k) => scenario.memberSimulations[scenario.memberIds[m]][issue - 13 + k], LEADS, { source: 'few-past-runs' }));
+    expect(res.statusCode, res.body).toBe(201);
+    expect(res.json().errorArchive).toMatchObject({ kind: 'corrected', leadMode: 'lead-free' });
+  });
+});
