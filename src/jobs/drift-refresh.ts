@@ -10,7 +10,7 @@ import { getDriftReference, referenceJob, saveGaugeStatus, type GaugeStatusRecor
 import { getGauge } from '../store/gauges-repo.ts';
 import { enqueueJob } from '../store/jobs-repo.ts';
 import { getActiveModelVersion } from '../store/models-repo.ts';
-import { latestObservationMs, readRecentRunPercentiles } from '../store/verification-repo.ts';
+import { hasRuns, latestObservationMs, readRecentRunPercentiles } from '../store/verification-repo.ts';
 import type { HindcastJobParams } from './hindcast-job.ts';
 
 /** Window of the watch: runs issued in the last 60 days before the newest observation (common practice). */
@@ -133,6 +133,8 @@ export async function computeGaugeStatus(db: Queryable, gaugeId: string): Promis
 }
 
 export async function refreshGaugeStatus(db: Queryable, gaugeId: string): Promise<GaugeStatusInput | null> {
+  // A gauge without runs shows 'no-forecast' whatever its drift row says: nothing to do.
+  if (!(await hasRuns(db, gaugeId))) return null;
   const s = await computeGaugeStatus(db, gaugeId);
   if (s) await saveGaugeStatus(db, s);
   return s;
