@@ -17,6 +17,8 @@ const ConfigSchema = z.object({
   MAX_TRAJECTORIES: z.coerce.number().int().min(10).max(100_000).default(5000),
   CORRECTION_QUEUE: z.coerce.number().int().min(1).max(10_000).default(32),
   WORKERS: z.coerce.number().int().min(1).max(64).default(2),
+  /** Past runs a per-lead error archive needs before it serves runs (see src/models/archive-choice.ts). */
+  PER_LEAD_MIN_RUNS: z.coerce.number().int().min(1).max(1_000_000).default(300),
 });
 
 export type Config = z.infer<typeof ConfigSchema>;

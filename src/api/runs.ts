@@ -8,6 +8,7 @@ import { listMembers, readObservations } from '../store/archive-repo.ts';
 import type { Gauge } from '../store/gauges-repo.ts';
 import { findRunByIdempotencyKey, findRunByKey, insertRun, type StoredRun } from '../store/forecasts-repo.ts';
 import { getActiveModelVersion, latestRawArchive, modelParts, versionArchive, type StoredArchive } from '../store/models-repo.ts';
+import { archiveReach, chooseArchive } from '../models/archive-choice.ts';
 import { GaugeParams, requireGauge } from './archive-common.ts';
 import { addRoute, type Services } from './context.ts';
 import { buildForecastView } from './forecast-view.ts';
@@ -94,18 +95,6 @@ function checkRun(body: RunBody, gauge: Gauge, known: Set<string>, horizonLimit:
   return { issueTime: issueMs, nLeads, members, forcings, issueObservation: body.issueObservation ?? null };
 }
 
-/** Lead times an archive can serve: a per-lead archive its lead count, a lead-free one its template length. */
-function archiveReach(a: StoredArchive | null): number {
-  if (!a) return 0;
-  return Number((a.leadMode === 'per-lead' ? a.summary.nLeads : a.summary.templateLength) ?? 0) || 0;
-}
-
-/** The per-lead archive when the run's lead times fit within it, else the lead-free one. */
-function chooseArchive(perLead: StoredArchive | null, leadFree: StoredArchive | null, nLeads: number): StoredArchive | null {
-  if (perLead && nLeads <= archiveReach(perLead)) return perLead;
-  return leadFree ?? perLead;
-}
-
 /** The stored answer of an earlier identical request, or a conflict when the request differs. */
 function replay(stored: StoredRun, requestHash: string, what: string): StoredRun {
   if (stored.requestHash !== requestHash) {
@@ -151,8 +140,8 @@ export async function runRoutes(app: FastifyInstance, { services }: { services: 
       const active = await getActiveModelVersion(db, gauge.id);
       const correctedChoice = active ? [await versionArchive(db, active.id, 'corrected', 'per-lead'), await versionArchive(db, active.id, 'corrected')] : null;
       const rawChoice = [await latestRawArchive(db, gauge.id, 'per-lead'), await latestRawArchive(db, gauge.id)];
-      const correctedArchive = correctedChoice ? chooseArchive(correctedChoice[0], correctedChoice[1], asked) : null;
-      const rawArchive = chooseArchive(rawChoice[0], rawChoice[1], asked);
+      const correctedArchive = correctedChoice ? chooseArchive(correctedChoice[0], correctedChoice[1], asked, config.PER_LEAD_MIN_RUNS) : null;
+      const rawArchive = chooseArchive(rawChoice[0], rawChoice[1], asked, config.PER_LEAD_MIN_RUNS);
       if (!correctedArchive && !rawArchive) {
         throw new Problem(409, 'no-correction-available', 'No correction available', `gauge ${gauge.id} has no active residual model and no raw error archive; fit a model (POST /gauges/${gauge.id}/models/fit) or build the raw archive (POST /gauges/${gauge.id}/raw-archive)`);
       }

@@ -1,4 +1,5 @@
 import type { Queryable } from './db.ts';
+import { chooseArchive } from '../models/archive-choice.ts';
 
 /** What verification reads of one stored run (see src/api/forecast-view.ts for the served shape). */
 export interface RunForVerification {
@@ -118,11 +119,10 @@ export interface ChosenArchive {
 }
 
 /**
- * The archive serving would use for a run of nLeads lead times (as POST /gauges/:id/runs
- * chooses): the per-lead archive (errors of past runs at each lead) when it reaches that far, else
- * the lead-free one (continuous simulations). Also the farthest reach of the two.
+ * The archive serving would use for a run of nLeads lead times (the rule of POST /gauges/:id/runs,
+ * src/models/archive-choice.ts). Also the farthest reach of the two.
  */
-export async function correctedArchiveFor(db: Queryable, versionId: string, nLeads: number): Promise<{ archive: ChosenArchive | null; maxReach: number }> {
+export async function correctedArchiveFor(db: Queryable, versionId: string, nLeads: number, minPerLeadRuns?: number): Promise<{ archive: ChosenArchive | null; maxReach: number }> {
   const { rows } = await db.query<{ id: string; lead_mode: 'lead-free' | 'per-lead'; summary: Record<string, unknown>; bytes: Uint8Array }>(
     `select distinct on (lead_mode) id::text as id, lead_mode, summary, bytes from error_archives
       where version_id = $1 and kind = 'corrected' order by lead_mode, id desc`,
@@ -137,6 +137,6 @@ export async function correctedArchiveFor(db: Queryable, versionId: string, nLea
   }));
   const perLead = all.find((a) => a.leadMode === 'per-lead') ?? null;
   const leadFree = all.find((a) => a.leadMode === 'lead-free') ?? null;
-  const archive = perLead && nLeads <= perLead.reach ? perLead : (leadFree ?? perLead);
+  const archive = chooseArchive(perLead, leadFree, nLeads, minPerLeadRuns);
   return { archive, maxReach: Math.max(0, ...all.map((a) => a.reach)) };
 }

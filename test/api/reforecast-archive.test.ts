@@ -79,7 +79,9 @@ function runBody(issueIndex: number, leadValues: (m: number, k: number) => numbe
 const post = (body: object) => t.as('ingest', { method: 'POST', url: `/gauges/${gaugeId}/runs`, payload: body });
 
 beforeAll(async () => {
-  t = await makeTestApp();
+  // The scenario holds far fewer past runs than the default minimum for serving from a per-lead
+  // archive; lowering it lets this file exercise that path (the default is tested in test/models/archive-choice.test.ts).
+  t = await makeTestApp({ PER_LEAD_MIN_RUNS: '20' });
   runner = new JobRunner(t.db, jobHandlers, quiet, 60_000);
   await loadScenarioArchive(injectSend(t), scenario, { reforecasts: true });
   const result = await fit(fitBody);

@@ -1,0 +1,29 @@
+/** What the choice between a version's error archives looks at. */
+export interface ArchiveOption {
+  leadMode: 'lead-free' | 'per-lead';
+  summary: Record<string, unknown>;
+}
+
+/**
+ * A per-lead archive (errors of past runs at each lead time) serves a run only when it reaches the
+ * run's horizon and holds at least this many past runs. With fewer, its nearest neighbours come from
+ * a handful of runs (members of one run are near-duplicates): on the demo scenario, 157 weekly runs
+ * gave 5–95 % bands covering 0.41–0.51 against 0.50–0.63 from the lead-free archive. The number is
+ * our own rule of thumb (about a year of daily runs), not a published one; PER_LEAD_MIN_RUNS sets it.
+ */
+export const MIN_PER_LEAD_RUNS = 300;
+
+/** Lead times an archive can serve: a per-lead archive its lead count, a lead-free one its template length. */
+export function archiveReach(a: ArchiveOption | null): number {
+  if (!a) return 0;
+  return Number((a.leadMode === 'per-lead' ? a.summary.nLeads : a.summary.templateLength) ?? 0) || 0;
+}
+
+/** The archive for a run of nLeads lead times: per-lead when it reaches and is large enough, else lead-free. */
+export function chooseArchive<A extends ArchiveOption>(perLead: A | null, leadFree: A | null, nLeads: number, minRuns = MIN_PER_LEAD_RUNS): A | null {
+  const perLeadUsable = perLead !== null && nLeads <= archiveReach(perLead) && Number(perLead.summary.issues ?? 0) >= minRuns;
+  if (perLeadUsable) return perLead;
+  if (leadFree && nLeads <= archiveReach(leadFree)) return leadFree;
+  if (perLead && nLeads <= archiveReach(perLead)) return perLead;
+  return leadFree ?? perLead;
+}
