@@ -8,7 +8,7 @@ import { loadScenarioArchive } from '../../src/scenario/load-archive.ts';
 import { buildScenario, type ForecastRun } from '../../src/scenario/scenario.ts';
 import { insertRun } from '../../src/store/forecasts-repo.ts';
 import { getGauge } from '../../src/store/gauges-repo.ts';
-import { dailyTimes, makeTestApp, type TestApp } from '../helpers/test-app.ts';
+import { makeTestApp, type TestApp } from '../helpers/test-app.ts';
 import { injectSend } from '../helpers/scenario-send.ts';
 
 let t: TestApp;
@@ -173,7 +173,7 @@ describe('verification of stored runs: a hand-checked case', () => {
     expect(Number(crps[3])).toBeCloseTo(0.5, 12);
     expect(lines.find((l) => l.startsWith('"Brier score, flow > 10.5"'))).toBeDefined();
     expect(lines.find((l) => l.startsWith('spread class,'))).toBeDefined();
-    const text = await verify(g, '', );
+    const text = await verify(g);
     expect(text.headers['content-type']).toContain('application/json');
     const plain = await t.as('read', { method: 'GET', url: `/gauges/${g}/verification`, headers: { accept: 'text/plain' } });
     expect(plain.headers['content-type']).toContain('text/plain');
