@@ -1,6 +1,7 @@
 import type { FastifyInstance } from 'fastify';
 import { z } from 'zod';
 import { checkFeatureSpec, featureCount, FeatureInputError } from '../core/features.ts';
+import { scheduleGaugeStatusRefresh } from '../jobs/drift-refresh.ts';
 import { defaultPeriods, perLeadParts, type PerLeadOutput } from '../jobs/fit-job.ts';
 import { runCompute } from '../jobs/run-compute.ts';
 import { inspectOnnx, OnnxInspectError } from '../models/onnx-inspect.ts';
@@ -87,7 +88,9 @@ const VersionParams = z.object({ id: GaugeParams.shape.id, version: z.string().r
 export async function modelRoutes(app: FastifyInstance, { services }: { services: Services }) {
   const { db } = services;
   // Load a newly active version into every correction worker now, not on the next run.
-  const warm = (v: { id: string; featureSpec: unknown }) => {
+  const warm = (v: { id: string; gaugeId: string; featureSpec: unknown }) => {
+    // The drift watch compares against the active version: refresh the gauge's status now.
+    scheduleGaugeStatusRefresh(db, v.gaugeId, app.log);
     services.pool.warm({ versionId: v.id, load: async () => ({ parts: await modelParts(db, v.id), spec: v.featureSpec }) }).catch((err: Error) => {
       app.log.warn({ version: v.id, err: err.message }, 'could not warm the model in the correction workers');
     });

@@ -4,9 +4,13 @@ import type { Db, Queryable } from './db.ts';
 // timestamptz and int8 come back as ISO strings / numbers we control, not driver-specific objects.
 pg.types.setTypeParser(pg.types.builtins.INT8, (v) => Number(v));
 
-export function openPostgres(connectionString: string, max = 10): Db {
+export function openPostgres(connectionString: string, max = 10, onError: (err: Error) => void = (err) => console.error(`postgres: ${err.message}`)): Db {
   const pool = new pg.Pool({ connectionString, max });
+  // An idle pooled connection can fail (server restart, dropped database); pg then emits 'error',
+  // which would end the process if nobody listened. The pool replaces the connection by itself.
+  pool.on('error', onError);
   let listener: pg.Client | null = null;
+  let closing = false;
   const handlers = new Map<string, Set<(payload: string) => void>>();
 
   async function listenerClient(): Promise<pg.Client> {
@@ -16,8 +20,26 @@ export function openPostgres(connectionString: string, max = 10): Db {
     client.on('notification', (msg) => {
       for (const fn of handlers.get(msg.channel) ?? []) fn(msg.payload ?? '');
     });
+    // A lost LISTEN connection is reopened with every channel, so announcements keep arriving.
+    client.on('error', (err) => {
+      onError(err);
+      if (listener === client) listener = null;
+      client.end().catch(() => undefined);
+      if (!closing) setTimeout(() => void relisten(), 1000).unref();
+    });
     listener = client;
     return client;
+  }
+
+  async function relisten(): Promise<void> {
+    if (closing || listener) return;
+    try {
+      const client = await listenerClient();
+      for (const channel of handlers.keys()) await client.query(`listen ${quoteIdent(channel)}`);
+    } catch (err) {
+      onError(err as Error);
+      if (!closing) setTimeout(() => void relisten(), 5000).unref();
+    }
   }
 
   return {
@@ -60,6 +82,7 @@ export function openPostgres(connectionString: string, max = 10): Db {
       };
     },
     async close() {
+      closing = true;
       if (listener) await listener.end().catch(() => undefined);
       await pool.end();
     },
