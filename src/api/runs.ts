@@ -7,7 +7,7 @@ import { DEFAULT_QUANTILE_PROBS } from '../core/stochastic-stage.ts';
 import { listMembers, readObservations } from '../store/archive-repo.ts';
 import type { Gauge } from '../store/gauges-repo.ts';
 import { findRunByIdempotencyKey, findRunByKey, insertRun, type StoredRun } from '../store/forecasts-repo.ts';
-import { getActiveModelVersion, latestRawArchive, modelParts, versionArchive, type StoredArchive } from '../store/models-repo.ts';
+import { archiveBytes, getActiveModelVersion, latestRawArchiveInfo, modelParts, versionArchiveInfo, type ArchiveInfo } from '../store/models-repo.ts';
 import { archiveReach, chooseArchive } from '../models/archive-choice.ts';
 import { GaugeParams, requireGauge } from './archive-common.ts';
 import { addRoute, type Services } from './context.ts';
@@ -138,8 +138,16 @@ export async function runRoutes(app: FastifyInstance, { services }: { services: 
       // lead times fit within it, else the lead-free one (continuous simulations).
       const asked = body.members[0].values.length - body.warmupSteps;
       const active = await getActiveModelVersion(db, gauge.id);
-      const correctedChoice = active ? [await versionArchive(db, active.id, 'corrected', 'per-lead'), await versionArchive(db, active.id, 'corrected')] : null;
-      const rawChoice = [await latestRawArchive(db, gauge.id, 'per-lead'), await latestRawArchive(db, gauge.id)];
+      // Independent look-ups, sent together (the pg driver runs them on separate connections).
+      const [correctedPerLead, correctedLeadFree, rawPerLead, rawLeadFree, memberIds] = await Promise.all([
+        active ? versionArchiveInfo(db, active.id, 'corrected', 'per-lead') : null,
+        active ? versionArchiveInfo(db, active.id, 'corrected') : null,
+        latestRawArchiveInfo(db, gauge.id, 'per-lead'),
+        latestRawArchiveInfo(db, gauge.id),
+        listMembers(db, gauge.id),
+      ]);
+      const correctedChoice = active ? [correctedPerLead, correctedLeadFree] : null;
+      const rawChoice = [rawPerLead, rawLeadFree];
       const correctedArchive = correctedChoice ? chooseArchive(correctedChoice[0], correctedChoice[1], asked, config.PER_LEAD_MIN_RUNS) : null;
       const rawArchive = chooseArchive(rawChoice[0], rawChoice[1], asked, config.PER_LEAD_MIN_RUNS);
       if (!correctedArchive && !rawArchive) {
@@ -151,7 +159,7 @@ export async function runRoutes(app: FastifyInstance, { services }: { services: 
       if (correctedArchive) reaches.push(Math.max(...correctedChoice!.map(archiveReach)));
       if (rawArchive) reaches.push(Math.max(...rawChoice.map(archiveReach)));
       const horizonLimit = Math.min(...reaches);
-      const known = new Set(await listMembers(db, gauge.id));
+      const known = new Set(memberIds);
       const run = checkRun(body, gauge, known, horizonLimit, config.MAX_TRAJECTORIES);
 
       const probs = body.quantiles ?? [...DEFAULT_QUANTILE_PROBS];
@@ -164,7 +172,7 @@ export async function runRoutes(app: FastifyInstance, { services }: { services: 
         thresholds: gauge.thresholds.map((t) => t.value),
         seasonalWindowDays: body.seasonalWindowDays,
       };
-      const archiveSource = (a: StoredArchive): ArchiveSource => ({ archiveId: a.id, load: async () => a.bytes });
+      const archiveSource = (a: ArchiveInfo): ArchiveSource => ({ archiveId: a.id, load: () => archiveBytes(db, a.id) });
       const modelSource = (versionId: string, spec: unknown): ModelSource => ({
         versionId,
         load: () => {
@@ -175,7 +183,7 @@ export async function runRoutes(app: FastifyInstance, { services }: { services: 
       });
 
       let result: CorrectionResult;
-      let used: StoredArchive;
+      let used: ArchiveInfo;
       let status: 'corrected' | 'degraded' = 'corrected';
       let degradedReason: string | null = null;
       try {

@@ -194,3 +194,33 @@ export async function versionArchiveSummaries(
   );
   return rows.map((r) => ({ id: r.id, kind: r.kind, leadMode: r.lead_mode, summary: r.summary }));
 }
+
+/** An archive's identity and summary, without its bytes (serving loads bytes only on a worker's first use). */
+export type ArchiveInfo = Omit<StoredArchive, 'bytes'>;
+
+const INFO_COLUMNS = 'id::text as id, version_id::text as version_id, kind, lead_mode, summary';
+
+const infoFromRow = (r: Omit<ArchiveRow, 'bytes'> | undefined): ArchiveInfo | null =>
+  r ? { id: r.id, versionId: r.version_id, kind: r.kind, leadMode: r.lead_mode, summary: r.summary } : null;
+
+export async function versionArchiveInfo(db: Queryable, versionId: string, kind: 'corrected' | 'raw', leadMode: LeadMode = 'lead-free'): Promise<ArchiveInfo | null> {
+  const { rows } = await db.query<Omit<ArchiveRow, 'bytes'>>(
+    `select ${INFO_COLUMNS} from error_archives where version_id = $1 and kind = $2 and lead_mode = $3 order by id desc limit 1`,
+    [versionId, kind, leadMode],
+  );
+  return infoFromRow(rows[0]);
+}
+
+export async function latestRawArchiveInfo(db: Queryable, gaugeId: string, leadMode: LeadMode = 'lead-free'): Promise<ArchiveInfo | null> {
+  const { rows } = await db.query<Omit<ArchiveRow, 'bytes'>>(
+    `select ${INFO_COLUMNS} from error_archives where gauge_id = $1 and kind = 'raw' and lead_mode = $2 order by id desc limit 1`,
+    [gaugeId, leadMode],
+  );
+  return infoFromRow(rows[0]);
+}
+
+export async function archiveBytes(db: Queryable, id: string): Promise<Uint8Array> {
+  const { rows } = await db.query<{ bytes: Uint8Array }>('select bytes from error_archives where id = $1', [id]);
+  if (!rows[0]) throw new Error(`error archive ${id} is gone`);
+  return new Uint8Array(rows[0].bytes);
+}
