@@ -204,7 +204,9 @@ export async function runRoutes(app: FastifyInstance, { services }: { services: 
           }
         } else {
           status = 'degraded';
-          degradedReason = `no active residual model for gauge ${gauge.id}: the stochastic stage ran on the raw members with the raw error archive`;
+          degradedReason = active
+            ? `model version ${active.id} has no error archive for this run: the stochastic stage ran on the raw members with the raw error archive`
+            : `no active residual model for gauge ${gauge.id}: the stochastic stage ran on the raw members with the raw error archive`;
           used = rawArchive!;
           result = await pool.correct(null, archiveSource(rawArchive!), run, options);
         }
