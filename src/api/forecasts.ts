@@ -4,23 +4,13 @@ import { getRun, latestRunTag, listRuns } from '../store/forecasts-repo.ts';
 import { GaugeParams, requireGauge } from './archive-common.ts';
 import { addRoute, type Services } from './context.ts';
 import { forecastCsv, forecastText, type ForecastView } from './forecast-view.ts';
+import { chooseFormat, FormatOnly, type Format } from './formats.ts';
 import { notFound } from './problem.ts';
 import { Rfc3339 } from './schemas.ts';
 import { parseWith } from './validate.ts';
 
-const FormatQuery = z.strictObject({ format: z.enum(['json', 'csv', 'text']).optional() });
+const FormatQuery = z.strictObject({ format: FormatOnly });
 const CACHE_MS = 5_000;
-
-type Format = 'json' | 'csv' | 'text';
-
-function chooseFormat(req: FastifyRequest, format?: Format): Format {
-  if (format) return format;
-  const accept = req.headers.accept ?? '';
-  if (accept.includes('application/json')) return 'json';
-  if (accept.includes('text/csv')) return 'csv';
-  if (accept.includes('text/plain')) return 'text';
-  return 'json';
-}
 
 /** Sends a stored run in the chosen format with a strong ETag per representation; 304 when unchanged. */
 function sendRun(req: FastifyRequest, reply: FastifyReply, run: { etag: string; output: string }, format: Format, cacheControl: string) {

@@ -11,7 +11,8 @@ import { conflict, invalid, notFound } from './problem.ts';
 import { Rfc3339 } from './schemas.ts';
 import { isoUtc } from './series-input.ts';
 import { parseWith } from './validate.ts';
-import { chooseFormat, FormatOnly, scoresCsv, scoresText, sendReport, textTable } from './verification.ts';
+import { chooseFormat, FormatOnly } from './formats.ts';
+import { scoresCsv, scoresText, sendReport, textTable } from './verification.ts';
 
 const SourceEnum = z.enum(['raw', 'corrected', 'stochastic']);
 

@@ -1,4 +1,4 @@
-import type { FastifyInstance, FastifyReply, FastifyRequest } from 'fastify';
+import type { FastifyInstance, FastifyReply } from 'fastify';
 import { z } from 'zod';
 import {
   adviseStochasticStage,
@@ -17,23 +17,10 @@ import { listGauges, type Gauge } from '../store/gauges-repo.ts';
 import { readRunsForVerification } from '../store/verification-repo.ts';
 import { GaugeParams, requireGauge } from './archive-common.ts';
 import { addRoute, type Services } from './context.ts';
+import { chooseFormat, FormatOnly, type Format } from './formats.ts';
 import { Rfc3339 } from './schemas.ts';
 import { isoUtc } from './series-input.ts';
 import { parseWith } from './validate.ts';
-
-export type Format = 'json' | 'csv' | 'text';
-
-export const FormatOnly = z.enum(['json', 'csv', 'text']).optional();
-
-/** ?format= first, then the Accept header; JSON by default. */
-export function chooseFormat(req: FastifyRequest, format?: Format): Format {
-  if (format) return format;
-  const accept = req.headers.accept ?? '';
-  if (accept.includes('application/json')) return 'json';
-  if (accept.includes('text/csv')) return 'csv';
-  if (accept.includes('text/plain')) return 'text';
-  return 'json';
-}
 
 const VerificationQuery = z
   .strictObject({
