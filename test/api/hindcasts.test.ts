@@ -5,7 +5,7 @@ import { JobRunner } from '../../src/jobs/runner.ts';
 import { loadScenarioArchive } from '../../src/scenario/load-archive.ts';
 import { buildScenario } from '../../src/scenario/scenario.ts';
 import { makeTestApp, type TestApp } from '../helpers/test-app.ts';
-import { injectSend } from '../helpers/scenario-send.ts';
+import { fitThroughApi, injectSend } from '../helpers/scenario-send.ts';
 
 let t: TestApp;
 let runner: JobRunner;
@@ -20,14 +20,7 @@ beforeAll(async () => {
   t = await makeTestApp();
   runner = new JobRunner(t.db, jobHandlers, quiet, 60_000);
   await loadScenarioArchive(injectSend(t), scenario, { reforecasts: true });
-  const fit = await t.as('admin', {
-    method: 'POST',
-    url: `/gauges/${gaugeId}/models/fit`,
-    payload: { params: { nRounds: 60, learningRate: 0.15, maxDepth: 4, patience: 10 }, templateLength: 30, simLags: 5, forcingLags: 2 },
-  });
-  await runner.drain();
-  const job = (await t.as('read', { method: 'GET', url: `/jobs/${fit.json().id}` })).json();
-  expect(job.status, job.error).toBe('succeeded');
+  const job = await fitThroughApi(t, runner, gaugeId);
   version = (await t.as('read', { method: 'GET', url: `/gauges/${gaugeId}/models/${job.result.versionId}` })).json();
 });
 afterAll(async () => {

@@ -4,7 +4,7 @@ import { JobRunner } from '../../src/jobs/runner.ts';
 import { loadScenarioArchive } from '../../src/scenario/load-archive.ts';
 import { buildScenario, type ForecastRun } from '../../src/scenario/scenario.ts';
 import { makeTestApp, type TestApp } from '../helpers/test-app.ts';
-import { injectSend } from '../helpers/scenario-send.ts';
+import { fitThroughApi, injectSend, scenarioRunBody, smallFit } from '../helpers/scenario-send.ts';
 
 let t: TestApp;
 let runner: JobRunner;
@@ -14,15 +14,7 @@ const quiet = { info() {}, warn() {}, error() {} } as never;
 const lastIndex = scenario.times.length - 1;
 
 function runBody(run: ForecastRun, extra: Record<string, unknown> = {}) {
-  return {
-    issueTime: run.issueTime,
-    unit: 'm3/s',
-    warmupSteps: run.warmupSteps,
-    members: run.members.map((m) => ({ id: m.id, values: m.values })),
-    forcings: { precipitation: run.forcings.precipitation, air_temperature: run.forcings.air_temperature },
-    trajectories: 500,
-    ...extra,
-  };
+  return scenarioRunBody(run, { trajectories: 500, ...extra });
 }
 
 const post = (body: unknown, headers: Record<string, string> = {}) => t.as('ingest', { method: 'POST', url: `/gauges/${gaugeId}/runs`, payload: body as object, headers });
@@ -32,14 +24,7 @@ beforeAll(async () => {
   t = await makeTestApp();
   runner = new JobRunner(t.db, jobHandlers, quiet, 60_000);
   await loadScenarioArchive(injectSend(t), scenario);
-  const fit = await t.as('admin', {
-    method: 'POST',
-    url: `/gauges/${gaugeId}/models/fit`,
-    payload: { params: { nRounds: 80, learningRate: 0.15, maxDepth: 4, patience: 10 }, templateLength: 30, simLags: 5, forcingLags: 2 },
-  });
-  await runner.drain();
-  const job = (await t.as('read', { method: 'GET', url: `/jobs/${fit.json().id}` })).json();
-  expect(job.status, job.error).toBe('succeeded');
+  await fitThroughApi(t, runner, gaugeId, { ...smallFit, params: { nRounds: 80, learningRate: 0.15, maxDepth: 4, patience: 10 } });
 });
 afterAll(async () => {
   await runner.stop();

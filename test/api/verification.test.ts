@@ -9,7 +9,7 @@ import { buildScenario, type ForecastRun } from '../../src/scenario/scenario.ts'
 import { insertRun } from '../../src/store/forecasts-repo.ts';
 import { getGauge } from '../../src/store/gauges-repo.ts';
 import { makeTestApp, type TestApp } from '../helpers/test-app.ts';
-import { injectSend } from '../helpers/scenario-send.ts';
+import { fitThroughApi, injectSend } from '../helpers/scenario-send.ts';
 
 let t: TestApp;
 let runner: JobRunner;
@@ -275,14 +275,7 @@ describe('the scenario: stored runs, later observations, drift', () => {
     const observedFlow = scenario.observedFlow.map((v, i) => (i >= withheldFrom ? null : v));
     // With reforecasts, the drift watch's level comes from real (re)forecasts of the validation period.
     await loadScenarioArchive(injectSend(t), { ...scenario, observedFlow }, { reforecasts: true });
-    const fit = await t.as('admin', {
-      method: 'POST',
-      url: `/gauges/${gaugeId}/models/fit`,
-      payload: { params: { nRounds: 60, learningRate: 0.15, maxDepth: 4, patience: 10 }, templateLength: 30, simLags: 5, forcingLags: 2 },
-    });
-    await runner.drain();
-    const job = (await t.as('read', { method: 'GET', url: `/jobs/${fit.json().id}` })).json();
-    expect(job.status, job.error).toBe('succeeded');
+    await fitThroughApi(t, runner, gaugeId);
     for (let i = firstIssue; i <= lastIssue; i++) {
       const res = await t.as('ingest', { method: 'POST', url: `/gauges/${gaugeId}/runs`, payload: runBody(scenario.forecastRun(i)) });
       expect(res.statusCode, res.body).toBe(201);

@@ -10,7 +10,7 @@ import { JobRunner } from '../../src/jobs/runner.ts';
 import { loadScenarioArchive } from '../../src/scenario/load-archive.ts';
 import { buildScenario } from '../../src/scenario/scenario.ts';
 import { makeTestApp, type TestApp } from '../helpers/test-app.ts';
-import { injectSend } from '../helpers/scenario-send.ts';
+import { fitThroughApi, injectSend, scenarioRunBody } from '../helpers/scenario-send.ts';
 
 const CHROMIUM = '/usr/bin/chromium';
 const hasChromium = existsSync(CHROMIUM);
@@ -23,24 +23,14 @@ let browser: BrowserContext;
 let base: string;
 let userDataDir: string;
 
-function runBody(i: number) {
-  const run = scenario.forecastRun(i);
-  return {
-    issueTime: run.issueTime,
-    unit: 'm3/s',
-    warmupSteps: run.warmupSteps,
-    members: run.members.map((m) => ({ id: m.id, values: m.values })),
-    forcings: { precipitation: run.forcings.precipitation, air_temperature: run.forcings.air_temperature },
-  };
-}
+const runBody = (i: number) => scenarioRunBody(scenario.forecastRun(i));
 
 beforeAll(async () => {
   if (!hasChromium) return;
   t = await makeTestApp();
   await loadScenarioArchive(injectSend(t), scenario);
-  await t.as('admin', { method: 'POST', url: `/gauges/${gaugeId}/models/fit`, payload: { params: { nRounds: 60, maxDepth: 4, learningRate: 0.15, patience: 10 }, templateLength: 30, simLags: 5, forcingLags: 2 } });
   const runner = new JobRunner(t.db, jobHandlers, { info() {}, warn() {}, error() {} } as never, 60_000);
-  await runner.drain();
+  await fitThroughApi(t, runner, gaugeId);
   await runner.stop();
   const posted = await t.as('ingest', { method: 'POST', url: `/gauges/${gaugeId}/runs`, payload: runBody(scenario.times.length - 15) });
   expect(posted.statusCode, posted.body).toBe(201);
