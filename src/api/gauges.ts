@@ -1,7 +1,7 @@
 import type { FastifyInstance } from 'fastify';
 import { z } from 'zod';
 import { parseDurationSeconds } from '../core/iso-duration.ts';
-import { archiveCounts, deleteGauge, getGauge, insertGauge, listGauges, updateGauge, type GaugeInput } from '../store/gauges-repo.ts';
+import { archiveCounts, dataCounts, deleteGauge, getGauge, insertGauge, listGauges, updateGauge, type GaugeInput } from '../store/gauges-repo.ts';
 import { getGaugeStatus } from '../store/gauge-status-repo.ts';
 import { hasRuns } from '../store/verification-repo.ts';
 import { addRoute, type Services } from './context.ts';
@@ -79,7 +79,7 @@ export async function gaugeRoutes(app: FastifyInstance, { services }: { services
     const { force } = parseWith(DeleteQuery, req.query, 'query');
     await db.transaction(async (tx) => {
       if (!(await getGauge(tx, id, true))) throw notFound(`no gauge ${id}`);
-      const counts = await archiveCounts(tx, id);
+      const counts = await dataCounts(tx, id);
       if (force !== 'true' && Object.values(counts).some((n) => n > 0)) {
         throw conflict(`gauge ${id} holds data; repeat with ?force=true to delete it and all its data`, [
           { path: 'query.force', message: `archive holds ${JSON.stringify(counts)}` },

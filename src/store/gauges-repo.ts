@@ -96,7 +96,7 @@ export async function listGauges(db: Queryable): Promise<Gauge[]> {
   return (await db.query<GaugeRow>('select * from gauges order by id')).rows.map(fromRow);
 }
 
-/** How much archive a gauge holds, per kind; delete and step changes look at it. */
+/** How much archive a gauge holds, per kind; step changes look at it. */
 export async function archiveCounts(db: Queryable, id: string): Promise<Record<string, number>> {
   const { rows } = await db.query<Record<string, number>>(
     `select (select count(*) from observed_flow where gauge_id = $1)::int as observations,
@@ -106,6 +106,16 @@ export async function archiveCounts(db: Queryable, id: string): Promise<Record<s
     [id],
   );
   return Object.fromEntries(Object.entries(rows[0]).map(([k, v]) => [k, Number(v)]));
+}
+
+/** Everything a delete would take with the gauge: its archive, model versions and stored forecasts. */
+export async function dataCounts(db: Queryable, id: string): Promise<Record<string, number>> {
+  const { rows } = await db.query<Record<string, number>>(
+    `select (select count(*) from model_versions where gauge_id = $1)::int as "modelVersions",
+            (select count(*) from forecast_runs where gauge_id = $1)::int as forecasts`,
+    [id],
+  );
+  return { ...(await archiveCounts(db, id)), ...Object.fromEntries(Object.entries(rows[0]).map(([k, v]) => [k, Number(v)])) };
 }
 
 export async function deleteGauge(db: Queryable, id: string): Promise<void> {

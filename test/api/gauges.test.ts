@@ -87,3 +87,20 @@ describe('gauges', () => {
     expect(Number(rows[0].n)).toBe(0);
   });
 });
+
+describe('deleting a gauge with stored models or forecasts', () => {
+  it('refuses without force even when only model versions exist', async () => {
+    const id = 'with-model-only';
+    await t.as('admin', { method: 'POST', url: '/gauges', payload: { ...riverGauge, id } });
+    await t.db.query(
+      `insert into model_versions (gauge_id, origin, label, feature_spec, trainer, periods, scores) values ($1, 'uploaded', 'x', '{}', '{}', '{}', '{}')`,
+      [id],
+    );
+    const refused = await t.as('admin', { method: 'DELETE', url: `/gauges/${id}` });
+    expect(refused.statusCode).toBe(409);
+    expect(refused.json().errors[0].message).toContain('"modelVersions":1');
+    expect((await t.as('admin', { method: 'DELETE', url: `/gauges/${id}?force=true` })).statusCode).toBe(204);
+    const { rows } = await t.db.query<{ n: number }>('select count(*)::int as n from model_versions where gauge_id = $1', [id]);
+    expect(Number(rows[0].n)).toBe(0);
+  });
+});
