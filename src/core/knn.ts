@@ -78,6 +78,9 @@ export function nearestSorted(
 
 /** Distance in days between two days of year on a circular year of 365.25 days. */
 export function circularDayDistance(a: number, b: number): number {
-  const d = Math.abs(a - b) % 365.25;
+  // The remainder (a slow library call) only when it changes anything: d % 365.25 is d itself
+  // below 365.25, which covers every pair of days of year.
+  let d = Math.abs(a - b);
+  if (!(d < 365.25)) d %= 365.25;
   return Math.min(d, 365.25 - d);
 }

@@ -127,8 +127,9 @@ export function radixOrder(
 }
 
 /**
- * Sorts keys[0 … n−1] ascending by bits lo … hi−1 only (LSD radix, 8 bits per pass, stable);
- * lower bits ride along as payload (e.g. an index packed under a rank). counts: length ≥ 1024.
+ * Sorts keys[0 … n−1] ascending by bits lo … hi−1 only (hi − lo ≤ 32; LSD radix, 8 bits per
+ * pass, stable); lower bits ride along as payload (e.g. an index packed under a rank). All
+ * digit histograms are counted in one read pass. counts: length ≥ 1024.
  */
 export function sortPackedKeys(
   keys: Uint32Array,
@@ -138,21 +139,38 @@ export function sortPackedKeys(
   tmp: Uint32Array,
   counts: Int32Array,
 ): void {
+  if (n < 2 || hi <= lo) return;
+  const passes = Math.ceil((hi - lo) / 8);
+  counts.fill(0, 0, 256 * passes);
+  if (passes === 2) {
+    // The common case (ranks of up to 16 bits) unrolled.
+    for (let i = 0; i < n; i++) {
+      const v = keys[i] >>> lo;
+      counts[v & 255]++;
+      counts[256 + ((v >>> 8) & 255)]++;
+    }
+  } else {
+    for (let i = 0; i < n; i++) {
+      const v = keys[i] >>> lo;
+      for (let p = 0; p < passes; p++) counts[256 * p + ((v >>> (8 * p)) & 255)]++;
+    }
+  }
+  const first = keys[0] >>> lo;
   let src = keys;
   let dst = tmp;
-  for (let shift = lo; shift < hi; shift += 8) {
-    counts.fill(0, 0, 256);
-    for (let i = 0; i < n; i++) counts[(src[i] >>> shift) & 255]++;
-    if (counts[(src[0] >>> shift) & 255] === n) continue;
+  for (let p = 0; p < passes; p++) {
+    const shift = lo + 8 * p;
+    const base = 256 * p;
+    if (counts[base + ((first >>> (8 * p)) & 255)] === n) continue; // one digit for all: nothing to do
     let sum = 0;
-    for (let d = 0; d < 256; d++) {
+    for (let d = base; d < base + 256; d++) {
       const c = counts[d];
       counts[d] = sum;
       sum += c;
     }
     for (let i = 0; i < n; i++) {
       const v = src[i];
-      dst[counts[(v >>> shift) & 255]++] = v;
+      dst[counts[base + ((v >>> shift) & 255)]++] = v;
     }
     const t = src;
     src = dst;

@@ -1,7 +1,7 @@
 import type { ErrorArchive } from './error-archive.ts';
 import { countAboveSorted } from './exceedance.ts';
 import { circularDayDistance, defaultK, harmonicCumulative } from './knn.ts';
-import { createPrng, type Prng } from './prng.ts';
+import { createPrng } from './prng.ts';
 import { quantileSorted } from './quantile.ts';
 import { radixOrder, sortNonNegative, sortPackedKeys } from './radix-sort.ts';
 import { forwardTransform } from './error-transform.ts';
@@ -214,10 +214,15 @@ export function runStochasticStage(
     error = terms;
   }
 
-  // ---- neighbours: once per (lead, model·member) ---------------------------------------------
+  // ---- neighbours: once per (lead, model·member), searched lead by lead in the draw loop ------
   // Candidates of the current (group, day) are copied between sentinels (−∞ first, +∞ last) so
-  // the nearest-first walk needs no bounds checks.
-  const nbErr = workspace.f64('nbErr', H * nMM * kStride); // [(lead·nMM + mm)·kStride + rank]
+  // the nearest-first walk needs no bounds checks. One lead's neighbours at a time: they are read
+  // right after they are written, so they stay in cache (a whole horizon's table runs to MBs).
+  for (let h = 0; h < H; h++) {
+    const g = leadFree ? 0 : h;
+    if (groupStart[g + 1] === groupStart[g]) throw new RangeError(`the archive has no cases for lead ${h}`);
+  }
+  const nbErr = workspace.f64('nbErr', nMM * kStride); // [mm·kStride + rank], current lead
   const kPerLead = new Int32Array(H);
   const cP = workspace.f64('candPred', maxGroup + 2);
   const cE = workspace.f64('candErr', maxGroup + 2);
@@ -225,45 +230,6 @@ export function runStochasticStage(
   let lastDoy = -1;
   let nCand = 0;
   const inWindow = new Uint8Array(367);
-  for (let h = 0; h < H; h++) {
-    const g = leadFree ? 0 : h;
-    const gs = groupStart[g];
-    const ge = groupStart[g + 1];
-    if (ge === gs) throw new RangeError(`the archive has no cases for lead ${h}`);
-    // The window's centre follows the lead's day of year in steps of a tenth of the window (at
-    // least a day): rescanning the group for every day of a long daily horizon costs more than
-    // the rest of the stage, and a shift of a few days in a ±60-day window changes little.
-    if (g !== lastGroup || (window !== null && circularDayDistance(doy[h], lastDoy) >= Math.max(1, window / 10))) {
-      nCand = 0;
-      if (window !== null) {
-        // Which days of year are inside the window, looked up per case instead of computed:
-        // the scan runs over every case of the group for each new day.
-        for (let d = 1; d <= 366; d++) inWindow[d] = circularDayDistance(d, doy[h]) <= window ? 1 : 0;
-        for (let i = gs; i < ge; i++) {
-          if (inWindow[caseDoy[i]] === 1) {
-            nCand++;
-            cP[nCand] = predictor[i];
-            cE[nCand] = error[i];
-          }
-        }
-      }
-      // No window, or an empty one: the whole lead group.
-      if (nCand === 0) {
-        for (let i = gs; i < ge; i++) {
-          nCand++;
-          cP[nCand] = predictor[i];
-          cE[nCand] = error[i];
-        }
-      }
-      cP[0] = -Infinity;
-      cP[nCand + 1] = Infinity;
-      lastGroup = g;
-      lastDoy = doy[h];
-    }
-    const k = Math.min(options.k ?? defaultK(nCand), nCand, kStride);
-    kPerLead[h] = k;
-    nearestPerMember(members, H, h, nMM, cP, cE, nCand, k, nbErr, h * nMM * kStride, kStride);
-  }
   const cum: Float64Array = harmonicCumulative(kStride, workspace.f64('cum', kStride));
   // Guide table (Chen & Asau 1974) for the kernel draw: guide[b] = first index whose cumulative
   // weight exceeds b/G of the total, G = 16k, so a draw rarely needs more than one comparison.
@@ -330,6 +296,9 @@ export function runStochasticStage(
   const keysTmp = workspace.u32('keysTmp', N);
   const order = workspace.i32('order', N);
   const orderTmp = workspace.i32('orderTmp', N);
+  // The draw stream continues in sampleLead on a copy of its state (rng is not used after this).
+  const rngState = workspace.i32('rngState', 4);
+  rngState.set(rng.state());
   const rank = archive.templateRank;
   // Largest possible rank: series length (lead-free) or number of issue rows (per-lead ranks).
   const maxRank = leadFree ? archive.templateValues.length : Math.ceil(archive.templateValues.length / archive.nLeads);
@@ -338,7 +307,36 @@ export function runStochasticStage(
   const drawBits = 32 - Math.clz32(Math.max(1, N - 1));
   const packed = rankBits + drawBits <= 32;
   for (let h = 0; h < H; h++) {
-    const k = kPerLead[h];
+    const g = leadFree ? 0 : h;
+    const gs = groupStart[g];
+    const ge = groupStart[g + 1];
+    // The window's centre follows the lead's day of year in steps of a tenth of the window (at
+    // least a day): rescanning the group for every day of a long daily horizon costs more than
+    // the rest of the stage, and a shift of a few days in a ±60-day window changes little.
+    if (g !== lastGroup || (window !== null && circularDayDistance(doy[h], lastDoy) >= Math.max(1, window / 10))) {
+      nCand = 0;
+      if (window !== null) {
+        // Which days of year are inside the window, looked up per case instead of computed:
+        // the scan runs over every case of the group for each new day.
+        for (let d = 1; d <= 366; d++) inWindow[d] = circularDayDistance(d, doy[h]) <= window ? 1 : 0;
+        nCand = gatherInWindow(predictor, error, caseDoy, gs, ge, inWindow, cP, cE);
+      }
+      // No window, or an empty one: the whole lead group.
+      if (nCand === 0) {
+        for (let i = gs; i < ge; i++) {
+          nCand++;
+          cP[nCand] = predictor[i];
+          cE[nCand] = error[i];
+        }
+      }
+      cP[0] = -Infinity;
+      cP[nCand + 1] = Infinity;
+      lastGroup = g;
+      lastDoy = doy[h];
+    }
+    const k = Math.min(options.k ?? defaultK(nCand), nCand, kStride);
+    kPerLead[h] = k;
+    nearestPerMember(members, H, h, nMM, cP, cE, nCand, k, nbErr, 0, kStride);
     const cTop = cum[k - 1];
     const G = 16 * k;
     if (k !== guideK) {
@@ -350,11 +348,7 @@ export function runStochasticStage(
       }
       guideK = k;
     }
-    const txBase = h * nMM;
-    const nbBase = h * nMM * kStride;
-    if (kind === 0) sampleLeadAdditive(rng, N, slot, G, cTop, cum, guide, tx, txBase, nbErr, nbBase, kStride, vals);
-    else if (kind === 1) sampleLeadLog(rng, N, slot, G, cTop, cum, guide, tx, txBase, nbErr, nbBase, kStride, vals, offset);
-    else sampleLeadBoxCox(rng, N, slot, G, cTop, cum, guide, tx, txBase, nbErr, nbBase, kStride, vals, boxCoxFloor);
+    sampleLead(kind, rngState, N, slot, G, cTop, cum, guide, tx, h * nMM, nbErr, kStride, vals, offset, boxCoxFloor);
     if (!shuffle) {
       for (let j = 0; j < N; j++) {
         const v = vals[j];
@@ -411,6 +405,31 @@ export function runStochasticStage(
     trajectories,
     templateIndex,
   };
+}
+
+/**
+ * Copies the cases gs … ge−1 whose day of year is marked in inWindow to cP/cE[1 …], keeping
+ * their order; returns how many. Without a branch: every case is written to the next free slot
+ * and the count moves only when it is inside (inside or not is unpredictable in predictor order).
+ * cP/cE need room for ge − gs + 2 values.
+ */
+function gatherInWindow(
+  predictor: Float64Array,
+  error: Float64Array,
+  caseDoy: Uint16Array,
+  gs: number,
+  ge: number,
+  inWindow: Uint8Array,
+  cP: Float64Array,
+  cE: Float64Array,
+): number {
+  let n = 0;
+  for (let i = gs; i < ge; i++) {
+    cP[n + 1] = predictor[i];
+    cE[n + 1] = error[i];
+    n += inWindow[caseDoy[i]];
+  }
+  return n;
 }
 
 /**
@@ -485,9 +504,19 @@ function nearestPerMember(
   }
 }
 
-/** One lead's draws with additive errors: vals[j] = max(0, member + kernel-chosen error). */
-function sampleLeadAdditive(
-  rng: Prng,
+/**
+ * One lead's draws: per draw j, its member's kernel-chosen neighbour (Lall & Sharma: first index
+ * whose cumulative 1/j sum exceeds u·H_k, started from the guide table) combined with the member:
+ *   kind 0 (additive): vals[j] = max(0, tx + e)
+ *   kind 1 (log):      vals[j] = max(0, tx·exp(e) − offset), tx = x + offset, nbErr holds exp(e)
+ *   kind 2 (Box–Cox):  vals[j] = max(floor, tx + λe), tx = (x + offset)^λ, nbErr holds λe (see boxCoxFlow)
+ * The uniform u is xoshiro128**'s next output / 2^32, exactly Prng.nextUniform32, stepped here on
+ * local copies of the state (read from and written back to `state`): a method call per draw keeps
+ * the four state words in memory and this loop waiting on them.
+ */
+function sampleLead(
+  kind: number,
+  state: Int32Array,
   N: number,
   slot: Int32Array,
   G: number,
@@ -497,79 +526,48 @@ function sampleLeadAdditive(
   tx: Float64Array,
   txBase: number,
   nbErr: Float64Array,
-  nbBase: number,
-  kStride: number,
-  vals: Float64Array,
-): void {
-  for (let j = 0; j < N; j++) {
-    const mm = slot[j];
-    // Kernel draw (Lall & Sharma): first index whose cumulative 1/j sum exceeds u·H_k.
-    const u = rng.nextUniform32();
-    const target = u * cTop;
-    let idx = guide[Math.floor(u * G)];
-    while (cum[idx] <= target) idx++;
-    const v = tx[txBase + mm] + nbErr[nbBase + mm * kStride + idx];
-    vals[j] = v > 0 ? v : 0;
-  }
-}
-
-/** As sampleLeadAdditive in log space: tx = x + offset, nbErr = exp(error); value = tx·factor − offset. */
-function sampleLeadLog(
-  rng: Prng,
-  N: number,
-  slot: Int32Array,
-  G: number,
-  cTop: number,
-  cum: Float64Array,
-  guide: Int32Array,
-  tx: Float64Array,
-  txBase: number,
-  nbErr: Float64Array,
-  nbBase: number,
   kStride: number,
   vals: Float64Array,
   offset: number,
-): void {
-  for (let j = 0; j < N; j++) {
-    const mm = slot[j];
-    const u = rng.nextUniform32();
-    const target = u * cTop;
-    let idx = guide[Math.floor(u * G)];
-    while (cum[idx] <= target) idx++;
-    const v = tx[txBase + mm] * nbErr[nbBase + mm * kStride + idx] - offset;
-    vals[j] = v > 0 ? v : 0;
-  }
-}
-
-/**
- * As sampleLeadAdditive in Box–Cox space (λ > 0): tx = (x + offset)^λ, nbErr = λ·e; writes the
- * working value b = tx + λe floored at offset^λ (where the flow reaches 0); see boxCoxFlow.
- */
-function sampleLeadBoxCox(
-  rng: Prng,
-  N: number,
-  slot: Int32Array,
-  G: number,
-  cTop: number,
-  cum: Float64Array,
-  guide: Int32Array,
-  tx: Float64Array,
-  txBase: number,
-  nbErr: Float64Array,
-  nbBase: number,
-  kStride: number,
-  vals: Float64Array,
   floor: number,
 ): void {
+  let s0 = state[0];
+  let s1 = state[1];
+  let s2 = state[2];
+  let s3 = state[3];
   for (let j = 0; j < N; j++) {
-    const mm = slot[j];
-    const u = rng.nextUniform32();
+    // xoshiro128** step, as Prng.nextUint32.
+    const m5 = Math.imul(s1, 5);
+    const r = Math.imul((m5 << 7) | (m5 >>> 25), 9);
+    const t = s1 << 9;
+    s2 ^= s0;
+    s3 ^= s1;
+    s1 ^= s2;
+    s0 ^= s3;
+    s2 ^= t;
+    s3 = (s3 << 11) | (s3 >>> 21);
+    const u = (r >>> 0) * 2.3283064365386963e-10;
     const target = u * cTop;
     let idx = guide[Math.floor(u * G)];
     while (cum[idx] <= target) idx++;
-    const b = tx[txBase + mm] + nbErr[nbBase + mm * kStride + idx];
-    vals[j] = b > floor ? b : floor;
+    const mm = slot[j];
+    const x = tx[txBase + mm];
+    const e = nbErr[mm * kStride + idx];
+    if (kind === 1) {
+      const v = x * e - offset;
+      vals[j] = v > 0 ? v : 0;
+    } else if (kind === 0) {
+      const v = x + e;
+      vals[j] = v > 0 ? v : 0;
+    } else {
+      const b = x + e;
+      vals[j] = b > floor ? b : floor;
+    }
   }
+  state[0] = s0;
+  state[1] = s1;
+  state[2] = s2;
+  state[3] = s3;
 }
 
 /** Flow of a Box–Cox working value b ≥ offset^λ: b^(1/λ) − offset, as exp(ln(b)/λ), ≥ 0. */
