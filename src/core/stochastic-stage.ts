@@ -98,6 +98,7 @@ export class StochasticWorkspace {
   private f64s = new Map<string, Float64Array>();
   private i32s = new Map<string, Int32Array>();
   private u32s = new Map<string, Uint32Array>();
+  private u16s = new Map<string, Uint16Array>();
 
   f64(name: string, size: number): Float64Array {
     let a = this.f64s.get(name);
@@ -113,6 +114,15 @@ export class StochasticWorkspace {
     if (!a || a.length < size) {
       a = new Uint32Array(Math.max(size, Math.ceil((a?.length ?? 0) * 1.5)));
       this.u32s.set(name, a);
+    }
+    return a;
+  }
+
+  u16(name: string, size: number): Uint16Array {
+    let a = this.u16s.get(name);
+    if (!a || a.length < size) {
+      a = new Uint16Array(Math.max(size, Math.ceil((a?.length ?? 0) * 1.5)));
+      this.u16s.set(name, a);
     }
     return a;
   }
@@ -230,6 +240,20 @@ export function runStochasticStage(
   let lastDoy = -1;
   let nCand = 0;
   const inWindow = new Uint8Array(367);
+  // Lead-free archives with a seasonal window: the window's cases are filtered from a wider
+  // superset (window + margin days around the superset's centre) while the centre stays within
+  // `margin` of it, instead of from the whole archive each time. Any case within the window of
+  // the current centre is within window + margin of the superset's centre (triangle inequality
+  // on the circular year), and filtering keeps the archive's order, so the candidates are the
+  // same as from a full scan. Used only when the superset is a real subset of the year.
+  const margin = window !== null ? Math.max(2, Math.ceil(window / 2)) : 0;
+  const useSuperset = leadFree && window !== null && window + margin < 182;
+  const inSuper = useSuperset ? new Uint8Array(367) : inWindow;
+  const sP = useSuperset ? workspace.f64('superPred', maxGroup) : cP;
+  const sE = useSuperset ? workspace.f64('superErr', maxGroup) : cE;
+  const sD = useSuperset ? workspace.u16('superDoy', maxGroup) : caseDoy;
+  let superDoy = -1;
+  let nSuper = 0;
   const cum: Float64Array = harmonicCumulative(kStride, workspace.f64('cum', kStride));
   // Guide table (Chen & Asau 1974) for the kernel draw: guide[b] = first index whose cumulative
   // weight exceeds b/G of the total, G = 16k, so a draw rarely needs more than one comparison.
@@ -319,7 +343,16 @@ export function runStochasticStage(
         // Which days of year are inside the window, looked up per case instead of computed:
         // the scan runs over every case of the group for each new day.
         for (let d = 1; d <= 366; d++) inWindow[d] = circularDayDistance(d, doy[h]) <= window ? 1 : 0;
-        nCand = gatherInWindow(predictor, error, caseDoy, gs, ge, inWindow, cP, cE);
+        if (useSuperset) {
+          if (superDoy < 0 || circularDayDistance(doy[h], superDoy) > margin) {
+            for (let d = 1; d <= 366; d++) inSuper[d] = circularDayDistance(d, doy[h]) <= window + margin ? 1 : 0;
+            nSuper = gatherSuperset(predictor, error, caseDoy, gs, ge, inSuper, sP, sE, sD);
+            superDoy = doy[h];
+          }
+          nCand = gatherInWindow(sP, sE, sD, 0, nSuper, inWindow, cP, cE);
+        } else {
+          nCand = gatherInWindow(predictor, error, caseDoy, gs, ge, inWindow, cP, cE);
+        }
       }
       // No window, or an empty one: the whole lead group.
       if (nCand === 0) {
@@ -428,6 +461,32 @@ function gatherInWindow(
     cP[n + 1] = predictor[i];
     cE[n + 1] = error[i];
     n += inWindow[caseDoy[i]];
+  }
+  return n;
+}
+
+/**
+ * As gatherInWindow, into sP/sE/sD[0 …] with each case's day of year (the superset later
+ * windows are filtered from). sP/sE/sD need room for ge − gs values.
+ */
+function gatherSuperset(
+  predictor: Float64Array,
+  error: Float64Array,
+  caseDoy: Uint16Array,
+  gs: number,
+  ge: number,
+  inSuper: Uint8Array,
+  sP: Float64Array,
+  sE: Float64Array,
+  sD: Uint16Array,
+): number {
+  let n = 0;
+  for (let i = gs; i < ge; i++) {
+    const d = caseDoy[i];
+    sP[n] = predictor[i];
+    sE[n] = error[i];
+    sD[n] = d;
+    n += inSuper[d];
   }
   return n;
 }
