@@ -55,7 +55,25 @@ export interface NewRun {
   output: string;
   etag: string;
   summary: unknown;
-  percentiles: unknown;
+  /** Per lead time, the 100 midpoint-level quantiles. */
+  percentiles: number[][];
+}
+
+export const PERCENTILE_LEVELS = 100;
+
+/** Quantiles per lead as float32 bytes, lead-major: compact and cheap to store. */
+export function encodePercentiles(perLead: number[][]): Uint8Array {
+  const out = new Float32Array(perLead.length * PERCENTILE_LEVELS);
+  perLead.forEach((row, k) => out.set(row, k * PERCENTILE_LEVELS));
+  return new Uint8Array(out.buffer);
+}
+
+export function decodePercentiles(bytes: Uint8Array): number[][] {
+  const copy = new Uint8Array(bytes); // aligned for the float view
+  const values = new Float32Array(copy.buffer, 0, copy.byteLength / 4);
+  const out: number[][] = [];
+  for (let k = 0; k < values.length; k += PERCENTILE_LEVELS) out.push(Array.from(values.subarray(k, k + PERCENTILE_LEVELS)));
+  return out;
 }
 
 /** Stores a run and announces it (NOTIFY is delivered when the transaction commits). */
@@ -63,9 +81,9 @@ export async function insertRun(tx: Queryable, r: NewRun): Promise<void> {
   await tx.query(
     `insert into forecast_runs (id, gauge_id, issue_time, source, request_hash, idempotency_key, status, model_version_id, seed,
                                 input, output, etag, summary, percentiles)
-     values ($1, $2, to_timestamp($3), $4, $5, $6, $7, $8, $9, $10::jsonb, $11, $12, $13::jsonb, $14::jsonb)`,
+     values ($1, $2, to_timestamp($3), $4, $5, $6, $7, $8, $9, $10, $11, $12, $13::jsonb, $14)`,
     [r.id, r.gaugeId, r.issueTimeMs / 1000, r.source, r.requestHash, r.idempotencyKey, r.status, r.modelVersionId, r.seed,
-      JSON.stringify(r.input), r.output, r.etag, JSON.stringify(r.summary), JSON.stringify(r.percentiles)],
+      JSON.stringify(r.input), r.output, r.etag, JSON.stringify(r.summary), Buffer.from(encodePercentiles(r.percentiles))],
   );
   await tx.query(`select pg_notify('forecast_runs', $1)`, [
     JSON.stringify({ gaugeId: r.gaugeId, runId: r.id, issueTime: new Date(r.issueTimeMs).toISOString().replace('.000Z', 'Z') }),

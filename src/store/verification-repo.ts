@@ -1,5 +1,6 @@
 import type { Queryable } from './db.ts';
 import { chooseArchive } from '../models/archive-choice.ts';
+import { decodePercentiles } from './forecasts-repo.ts';
 
 /** What verification reads of one stored run (see src/api/forecast-view.ts for the served shape). */
 export interface RunForVerification {
@@ -51,7 +52,7 @@ export async function readRunsForVerification(db: Queryable, p: RunPage): Promis
     model_version_id: string | null;
     valid_times: string[];
     ensemble: { raw: { id: string; values: number[] }[]; corrected: { id: string; values: number[] }[] | null };
-    percentiles: number[][];
+    percentiles: Uint8Array;
   }>(
     `select id, (extract(epoch from issue_time) * 1000)::float8 as t, source, status, model_version_id::text as model_version_id,
             (output::jsonb)->'validTimes' as valid_times, (output::jsonb)->'ensemble' as ensemble, percentiles
@@ -68,19 +69,19 @@ export async function readRunsForVerification(db: Queryable, p: RunPage): Promis
     validTimes: r.valid_times,
     raw: r.ensemble.raw,
     corrected: r.ensemble.corrected,
-    percentiles: r.percentiles,
+    percentiles: decodePercentiles(r.percentiles),
   }));
 }
 
 /** The newest corrected runs of one model version issued at or after a time (newest first). */
 export async function readRecentRunPercentiles(db: Queryable, gaugeId: string, versionId: string, fromMs: number, limit: number) {
-  const { rows } = await db.query<{ t: number; percentiles: number[][] }>(
+  const { rows } = await db.query<{ t: number; percentiles: Uint8Array }>(
     `select (extract(epoch from issue_time) * 1000)::float8 as t, percentiles from forecast_runs
       where gauge_id = $1 and status = 'corrected' and model_version_id = $2 and issue_time >= to_timestamp($3)
       order by issue_time desc, created_at desc limit $4`,
     [gaugeId, versionId, fromMs / 1000, limit],
   );
-  return rows.map((r) => ({ issueMs: Number(r.t), percentiles: r.percentiles }));
+  return rows.map((r) => ({ issueMs: Number(r.t), percentiles: decodePercentiles(r.percentiles) }));
 }
 
 /** Time of the newest non-missing observation (epoch ms), or null. */

@@ -4,6 +4,7 @@ import { crpsGaussian } from '../../src/core/crps-gaussian.ts';
 import { createPrng } from '../../src/core/prng.ts';
 import { jobHandlers } from '../../src/jobs/handlers.ts';
 import { JobRunner } from '../../src/jobs/runner.ts';
+import { decodePercentiles } from '../../src/store/forecasts-repo.ts';
 import { dailyTimes, makeTestApp, type TestApp } from '../helpers/test-app.ts';
 
 /**
@@ -71,14 +72,15 @@ describe('the corrected band against theory', () => {
       expect(res.statusCode, res.body).toBe(201);
       const f = res.json();
       expect(f.status).toBe('corrected');
-      const run = (await t.db.query<{ percentiles: number[][] }>('select percentiles from forecast_runs where id = $1', [f.id])).rows[0];
+      const stored = (await t.db.query<{ percentiles: Uint8Array }>('select percentiles from forecast_runs where id = $1', [f.id])).rows[0];
+      const run = { percentiles: decodePercentiles(stored.percentiles) };
       for (let k = 0; k < leads; k++) {
         const y = truth[issue + 1 + k];
         const lo = f.quantiles.values[0][k];
         const hi = f.quantiles.values[2][k];
         widths += hi - lo;
         if (y >= lo && y <= hi) covered++;
-        // The stored percentiles 1 … 99 stand for the predictive distribution (a quantile ensemble).
+        // The stored quantiles at levels (i − 0.5)/100 stand for the predictive distribution (a quantile ensemble).
         crps += crpsEnsemble(run.percentiles[k], y);
         crpsIdeal += crpsGaussian(member[issue + 1 + k] - bias, sigma, y);
         n++;
