@@ -26,6 +26,10 @@ export default defineConfig({
       },
       {
         extends: true,
+        test: { name: 'demo', include: ['test/demo/**/*.test.ts'], env: { TEST_STORE: 'embedded' } },
+      },
+      {
+        extends: true,
         test: { name: 'page', include: ['test/page/**/*.test.ts'], env: { TEST_STORE: 'postgres' }, globalSetup: ['test/helpers/postgres-setup.ts'] },
       },
     ],

@@ -1,0 +1,50 @@
+// The README's first command, end to end: `npm run demo` on the embedded store in a fresh data
+// directory, then a second start that reuses what the first stored.
+import { spawn } from 'node:child_process';
+import { mkdtempSync, rmSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { afterAll, describe, expect, it } from 'vitest';
+
+const dataDir = mkdtempSync(join(tmpdir(), 'sft-demo-'));
+afterAll(() => rmSync(dataDir, { recursive: true, force: true }));
+
+/** Runs the demo until it says it is ready, checks what it serves, then stops it with Ctrl-C. */
+async function runDemo(): Promise<{ output: string; exitCode: number | null; page: number; table: string }> {
+  const child = spawn(process.execPath, ['--import', 'tsx', 'src/scenario/demo.ts'], {
+    env: { ...process.env, DATA_DIR: dataDir, PORT: '0', DATABASE_URL: '', LOG_LEVEL: 'warn' },
+    stdio: ['ignore', 'pipe', 'pipe'],
+  });
+  let output = '';
+  child.stdout.on('data', (d) => (output += d));
+  child.stderr.on('data', (d) => (output += d));
+  const exited = new Promise<number | null>((resolve) => child.on('exit', resolve));
+  const deadline = Date.now() + 170_000;
+  while (!/demo ready/.test(output) && Date.now() < deadline && child.exitCode === null) await new Promise((r) => setTimeout(r, 250));
+  expect(output, output).toMatch(/demo ready/);
+  const pageUrl = /Page:\s+(\S+)#token=(\S+)/.exec(output)!;
+  const base = new URL(pageUrl[1]).origin;
+  const page = (await fetch(pageUrl[1])).status;
+  const table = await (await fetch(`${base}/gauges/corvane-stillmere-bridge/forecasts/latest?format=text`, { headers: { authorization: `Bearer ${pageUrl[2]}` } })).text();
+  child.kill('SIGINT');
+  return { output, exitCode: await exited, page, table };
+}
+
+describe.skipIf(process.env.TEST_STORE === 'postgres')('npm run demo', () => {
+  it('loads the archive, fits a model, posts runs, prints the table and serves the page', async () => {
+    const first = await runDemo();
+    expect(first.output).toMatch(/loaded member simulations/);
+    expect(first.output).toMatch(/model version 1 active/);
+    expect(first.output).toMatch(/posted the raw runs of the last 10 days \(10 new\)/);
+    expect(first.output).toMatch(/CAUTION: .*responsible local authority/);
+    expect(first.output).toMatch(/any time\s+in the horizon/);
+    expect(first.page).toBe(200);
+    expect(first.table).toContain('corrected with model version 1');
+    expect(first.exitCode).toBe(0);
+
+    const second = await runDemo();
+    expect(second.output).toMatch(/reusing them/);
+    expect(second.output).toMatch(/\(0 new\)/);
+    expect(second.exitCode).toBe(0);
+  }, 400_000);
+});
