@@ -20,3 +20,6 @@ export * from './schaake.ts';
 export * from './stochastic-stage.ts';
 export * from './radix-sort.ts';
 export * from './verification/index.ts';
+export * from './features.ts';
+export * from './day-of-year.ts';
+export * from './iso-duration.ts';
