@@ -1,7 +1,7 @@
 // CemaNeige snow routine, one elevation layer, without the later SWE–SCA hysteresis variant
 // (Valéry, Andréassian & Perrin 2014, J. Hydrol. 517 (volume from memory), "As simple as possible but not simpler",
 // Part 2, section 2 — equations from memory; order of operations cross-read, not copied, from
-// the public airGR CemaNeige routine):
+// a public reference implementation):
 //   snow fraction  f(T): 1 at T ≤ −1 °C, 0 at T ≥ 3 °C, linear between — the single-temperature
 //                  ramp used with CemaNeige for low/mid-altitude layers (from memory)
 //   pack           G ← G + f·P

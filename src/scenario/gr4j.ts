@@ -12,7 +12,7 @@
 // would go negative it is clipped and the actual exchange is what was really taken. With the
 // actual exchange the water balance closes exactly:
 //   Σ P = Σ AE + Σ Q + Δ(S + R + UH contents) − Σ actual exchange.
-// Cross-read (not copied) against the public airGR GR4J routine for the order of operations.
+// Cross-read (not copied) against a public reference implementation for the order of operations.
 import { checkGr4jParameters, type Gr4jParameters } from './gr4j-parameters.ts';
 import { uh1Ordinates, uh2Ordinates } from './unit-hydrograph.ts';
 
@@ -58,9 +58,9 @@ export function createGr4j(params: Gr4jParameters): Gr4jModel {
 }
 
 export interface Gr4jInitialFill {
-  /** S0 / X1, default 0.3 (airGR's default, from memory). */
+  /** S0 / X1, default 0.3 (a common starting fill, from memory). */
   readonly production?: number;
-  /** R0 / X3, default 0.5 (airGR's default, from memory). */
+  /** R0 / X3, default 0.5 (a common starting fill, from memory). */
   readonly routing?: number;
 }
 
