@@ -39,8 +39,8 @@ export async function makeTestApp(env: Record<string, string> = {}): Promise<Tes
 }
 
 export const riverGauge = {
-  id: 'test-brook-at-upper-mill',
-  name: 'Test Brook at Upper Mill',
+  id: 'sample-brook-at-brennock-mill',
+  name: 'Sample Brook at Brennock Mill',
   catchmentAreaKm2: 120.5,
   timeStep: 'P1D',
   timeZone: 'UTC',

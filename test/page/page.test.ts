@@ -16,8 +16,8 @@ if (!hasChromium) console.warn(`page test skipped: ${CHROMIUM} is missing (Debia
 const OUT = join(import.meta.dirname, '..', 'output');
 const TOKEN = 'read-token-for-the-page-test';
 const RIVER = { id: 'corvane-stillmere-bridge', name: 'Corvane at Stillmere Bridge' };
-const BROOK = { id: 'pellow-brook-at-ashcombe', name: 'Pellow Brook at Ashcombe' };
-const FELL = { id: 'harrow-fell-beck', name: 'Harrow Fell Beck at Dunmoor' };
+const BROOK = { id: 'pellow-brook-at-quillbrae', name: 'Pellow Brook at Quillbrae' };
+const FELL = { id: 'tarnwick-beck', name: 'Tarnwick Beck at Ostrevale' };
 const RIVER_THRESHOLDS = [
   { label: 'high', value: 85.2 },
   { label: 'very high', value: 121.5 },
