@@ -1,4 +1,4 @@
-import { crpsSorted } from './crps.ts';
+import { HersbachAccumulator } from './verification/hersbach-accumulator.ts';
 
 /**
  * Decomposition of the mean ensemble CRPS (Hersbach 2000): CRPS = reliability + potential,
@@ -37,68 +37,15 @@ export function hersbachDecomposition(
   const N = nMembers;
   const nCases = obs.length;
   if (N < 1 || ensembles.length !== nCases * N) throw new RangeError('ensembles must hold obs.length × nMembers values');
-  const a = new Float64Array(N + 1);
-  const b = new Float64Array(N + 1);
-  let belowFirst = 0; // count of y ≤ x_1
-  let belowLast = 0; // count of y ≤ x_N
-  let crpsSum = 0;
-  let n = 0;
+  // The same sums, case by case, as a streamed hindcast gathers them.
+  const sums = new HersbachAccumulator(N);
   const row = new Float64Array(N);
-  const ys = new Float64Array(nCases);
   for (let c = 0; c < nCases; c++) {
     const y = obs[c];
     if (y === null || !Number.isFinite(y)) continue;
     for (let j = 0; j < N; j++) row[j] = ensembles[c * N + j];
     row.sort();
-    ys[n++] = y;
-    crpsSum += crpsSorted(row, y);
-    if (y < row[0]) b[0] += row[0] - y;
-    if (y > row[N - 1]) a[N] += y - row[N - 1];
-    if (y <= row[0]) belowFirst++;
-    if (y <= row[N - 1]) belowLast++;
-    for (let i = 1; i < N; i++) {
-      const lo = row[i - 1];
-      const w = row[i] - lo;
-      const al = Math.min(Math.max(y - lo, 0), w);
-      a[i] += al;
-      b[i] += w - al;
-    }
+    sums.add(row, y);
   }
-  const p = new Float64Array(N + 1);
-  const g = new Float64Array(N + 1);
-  const o = new Float64Array(N + 1);
-  let reliability = 0;
-  let potential = 0;
-  for (let i = 0; i <= N; i++) {
-    p[i] = i / N;
-    const am = a[i] / n;
-    const bm = b[i] / n;
-    if (i === 0) {
-      o[i] = belowFirst / n;
-      g[i] = o[i] > 0 ? bm / o[i] : 0;
-    } else if (i === N) {
-      o[i] = belowLast / n;
-      g[i] = 1 - o[i] > 0 ? am / (1 - o[i]) : 0;
-    } else {
-      g[i] = am + bm;
-      o[i] = g[i] > 0 ? bm / g[i] : 0;
-    }
-    reliability += g[i] * (o[i] - p[i]) ** 2;
-    potential += g[i] * o[i] * (1 - o[i]);
-  }
-  const sortedY = ys.subarray(0, n).sort();
-  let s = 0;
-  for (let j = 0; j < n; j++) s += (2 * (j + 1) - n - 1) * sortedY[j];
-  const uncertainty = s / (n * n);
-  return {
-    n,
-    crps: crpsSum / n,
-    reliability,
-    potential,
-    uncertainty,
-    resolution: uncertainty - potential,
-    p,
-    g,
-    o,
-  };
+  return sums.result();
 }

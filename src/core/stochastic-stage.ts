@@ -93,47 +93,36 @@ export interface StochasticResult {
   templateIndex: Int32Array | null;
 }
 
+type TypedArray = Float64Array | Int32Array | Uint32Array | Uint16Array;
+
 /** Reusable buffers for runStochasticStage; one per thread, not shared between concurrent calls. */
 export class StochasticWorkspace {
-  private f64s = new Map<string, Float64Array>();
-  private i32s = new Map<string, Int32Array>();
-  private u32s = new Map<string, Uint32Array>();
-  private u16s = new Map<string, Uint16Array>();
+  private buffers = new Map<string, TypedArray>();
 
-  f64(name: string, size: number): Float64Array {
-    let a = this.f64s.get(name);
+  /** The named buffer, grown (by half again) when it is shorter than size. */
+  private get<T extends TypedArray>(name: string, size: number, make: new (n: number) => T): T {
+    let a = this.buffers.get(name) as T | undefined;
     if (!a || a.length < size) {
-      a = new Float64Array(Math.max(size, Math.ceil((a?.length ?? 0) * 1.5)));
-      this.f64s.set(name, a);
+      a = new make(Math.max(size, Math.ceil((a?.length ?? 0) * 1.5)));
+      this.buffers.set(name, a);
     }
     return a;
+  }
+
+  f64(name: string, size: number): Float64Array {
+    return this.get(name, size, Float64Array);
   }
 
   u32(name: string, size: number): Uint32Array {
-    let a = this.u32s.get(name);
-    if (!a || a.length < size) {
-      a = new Uint32Array(Math.max(size, Math.ceil((a?.length ?? 0) * 1.5)));
-      this.u32s.set(name, a);
-    }
-    return a;
+    return this.get(name, size, Uint32Array);
   }
 
   u16(name: string, size: number): Uint16Array {
-    let a = this.u16s.get(name);
-    if (!a || a.length < size) {
-      a = new Uint16Array(Math.max(size, Math.ceil((a?.length ?? 0) * 1.5)));
-      this.u16s.set(name, a);
-    }
-    return a;
+    return this.get(name, size, Uint16Array);
   }
 
   i32(name: string, size: number): Int32Array {
-    let a = this.i32s.get(name);
-    if (!a || a.length < size) {
-      a = new Int32Array(Math.max(size, Math.ceil((a?.length ?? 0) * 1.5)));
-      this.i32s.set(name, a);
-    }
-    return a;
+    return this.get(name, size, Int32Array);
   }
 }
 
