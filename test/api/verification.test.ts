@@ -9,7 +9,7 @@ import { buildScenario, type ForecastRun } from '../../src/scenario/scenario.ts'
 import { insertRun } from '../../src/store/forecasts-repo.ts';
 import { getGauge } from '../../src/store/gauges-repo.ts';
 import { makeTestApp, type TestApp } from '../helpers/test-app.ts';
-import { fitThroughApi, injectSend } from '../helpers/scenario-send.ts';
+import { fitThroughApi, injectSend, scenarioRunBody } from '../helpers/scenario-send.ts';
 
 let t: TestApp;
 let runner: JobRunner;
@@ -260,16 +260,7 @@ describe('the scenario: stored runs, later observations, drift', () => {
   const lastIssue = n - 12;
   const withheldFrom = firstIssue + 1;
 
-  function runBody(run: ForecastRun) {
-    return {
-      issueTime: run.issueTime,
-      unit: 'm3/s',
-      warmupSteps: run.warmupSteps,
-      members: run.members.map((m) => ({ id: m.id, values: m.values })),
-      forcings: { precipitation: run.forcings.precipitation, air_temperature: run.forcings.air_temperature },
-      trajectories: 500,
-    };
-  }
+  const runBody = (run: ForecastRun) => scenarioRunBody(run, { trajectories: 500 });
 
   beforeAll(async () => {
     const observedFlow = scenario.observedFlow.map((v, i) => (i >= withheldFrom ? null : v));

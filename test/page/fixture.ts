@@ -2,6 +2,7 @@
 // GET /gauges/:id/forecasts/latest). The numbers only need to look like a forecast; they are made
 // self-consistent (quantiles and probabilities computed from the trajectories with the project's
 // core functions) so the page shows a coherent picture. Nothing here is checked against outside values.
+import type { ForecastView } from '../../src/api/forecast-view.ts';
 import { createPrng } from '../../src/core/prng.ts';
 import { exceedanceProbability } from '../../src/core/exceedance.ts';
 import { quantiles } from '../../src/core/quantile.ts';
@@ -10,44 +11,11 @@ export const CAUTION =
   'Guidance only: computed forecasts carry uncertainty. Flood warnings are decided by the responsible local authority.';
 export const PROBABILITIES = [0.05, 0.1, 0.25, 0.5, 0.75, 0.9, 0.95];
 
-export interface Member {
-  id: string;
-  values: (number | null)[];
-}
+export type Member = ForecastView['ensemble']['raw'][number];
+export type ThresholdForecast = ForecastView['thresholds'][number];
 
-export interface ThresholdForecast {
-  label: string;
-  value: number;
-  exceedance: number[];
-  anyTime: number;
-  firstLikelyLeadTime: string | null;
-  attention: boolean;
-}
-
-export interface Forecast {
-  id: string;
-  gaugeId: string;
-  gaugeName: string;
-  issueTime: string;
-  createdAt: string;
-  source: string;
-  unit: 'm3/s';
-  timeStep: string;
-  caution: string;
-  status: 'corrected' | 'degraded';
-  degradedReason: string | null;
-  modelVersion: { id: string; label: string } | null;
-  seed: number;
-  trajectories: number;
-  attentionLevel: number;
-  leadTimes: string[];
-  validTimes: string[];
-  quantiles: { probabilities: number[]; values: (number | null)[][] };
-  thresholds: ThresholdForecast[];
-  ensemble: { raw: Member[]; corrected: Member[] };
-  recent: { times: string[]; observed: (number | null)[] };
-  timings: { featuresMs: number; inferenceMs: number; stochasticMs: number; totalMs: number };
-}
+/** The service's forecast shape, with the corrected members always present (the fixture makes no degraded run). */
+export type Forecast = Omit<ForecastView, 'ensemble'> & { ensemble: { raw: Member[]; corrected: Member[] } };
 
 export interface OverviewGauge {
   id: string;
