@@ -85,8 +85,7 @@ export async function fitResidualModel(
 ): Promise<FitResult> {
   const spec = makeFeatureSpec({ stepSeconds: series.stepSeconds, simLags: options.simLags, forcings: options.forcings, seasonal: options.seasonal });
   onProgress({ stage: 'building feature rows', percent: 1 });
-  const cal = collectRows(series, spec, options.calibration);
-  const val = collectRows(series, spec, options.validation);
+  const [cal, val] = collectRows(series, spec, [options.calibration, options.validation]);
   if (cal.nRows < 50) throw new Error(`the calibration period gives ${cal.nRows} complete rows; at least 50 are needed`);
   if (val.nRows < 20) throw new Error(`the validation period gives ${val.nRows} complete rows; at least 20 are needed`);
   const train = subsample(cal, options.maxTrainRows, options.seed);
@@ -181,23 +180,25 @@ interface Rows {
   nFeatures: number;
 }
 
-/** Rows of every member whose time falls in the period, pooled. */
-function collectRows(series: ArchiveSeries, spec: FeatureSpec, period: Period): Rows {
+/** Rows of every member whose time falls in each period, pooled; the rows are built once for all periods. */
+function collectRows(series: ArchiveSeries, spec: FeatureSpec, periods: Period[]): Rows[] {
   const parts = series.members.map((m) => continuousRows(spec, { times: series.times, sim: m.values, forcings: series.forcings, obs: series.observed }));
   const nF = parts[0]?.nFeatures ?? 0;
-  let n = 0;
-  for (const p of parts) for (let r = 0; r < p.nRows; r++) if (inside(series.times[p.index[r]], period)) n++;
-  const rows = new Float32Array(n * nF);
-  const target = new Float64Array(n);
-  let k = 0;
-  for (const p of parts) {
-    for (let r = 0; r < p.nRows; r++) {
-      if (!inside(series.times[p.index[r]], period)) continue;
-      rows.set(p.rows.subarray(r * nF, (r + 1) * nF), k * nF);
-      target[k++] = p.target[r];
+  return periods.map((period) => {
+    let n = 0;
+    for (const p of parts) for (let r = 0; r < p.nRows; r++) if (inside(series.times[p.index[r]], period)) n++;
+    const rows = new Float32Array(n * nF);
+    const target = new Float64Array(n);
+    let k = 0;
+    for (const p of parts) {
+      for (let r = 0; r < p.nRows; r++) {
+        if (!inside(series.times[p.index[r]], period)) continue;
+        rows.set(p.rows.subarray(r * nF, (r + 1) * nF), k * nF);
+        target[k++] = p.target[r];
+      }
     }
-  }
-  return { rows, target, nRows: n, nFeatures: nF };
+    return { rows, target, nRows: n, nFeatures: nF };
+  });
 }
 
 const inside = (t: number, p: Period) => t >= p.fromMs && t < p.toMs;
