@@ -223,26 +223,26 @@ describe('verification of stored runs: calibrated, too narrow and too wide forec
     expect((await postObservations(g, obsTimes, obs)).statusCode).toBe(200);
   });
 
-  it('shows the calibrated stage reliable, the narrow ensemble unreliable and the wide one conservative, and advises the stage', async () => {
+  it('classes the calibrated stage calibrated, the narrow ensemble under-dispersive and the wide one over-dispersive, and advises the stage', async () => {
     const v = (await verify(g)).json();
     const { raw, corrected, stochastic } = v.comparison;
     expect(v.comparison.cases.used).toBe(nRuns * H);
     // Calibrated: alpha near 1 and 90 % coverage near nominal (tolerances: common practice for 600 cases).
     expect(stochastic.alphaIndex).toBeGreaterThan(0.9);
     expect(Math.abs(stochastic.spread.coverage90 - 0.9)).toBeLessThan(0.05);
-    expect(stochastic.spread.class).toBe('reliable');
-    expect(raw.spread.class).toBe('too-narrow');
+    expect(stochastic.spread.class).toBe('calibrated');
+    expect(raw.spread.class).toBe('under-dispersive');
     expect(raw.alphaIndex).toBeLessThan(0.8);
     expect(raw.pit.varianceRatio).toBeGreaterThan(1.5);
     expect(corrected.pit.varianceRatio).toBeLessThan(0.5);
-    expect(corrected.spread.class).toBe('too-wide (conservative)');
+    expect(corrected.spread.class).toBe('over-dispersive');
     expect(corrected.spread.coverage90).toBeGreaterThan(0.97);
-    // The stage improves on the too-wide corrected ensemble: better reliability and CRPS.
+    // The stage improves on the over-dispersive corrected ensemble: better reliability and CRPS.
     expect(stochastic.crps.crps).toBeLessThan(corrected.crps.crps);
     expect(v.advice.recommendation).toBe('use-stochastic');
     expect(v.advice.evidence.alphaCorrected).toBe(corrected.alphaIndex);
     expect(v.advice.evidence.alphaStochastic).toBe(stochastic.alphaIndex);
-    expect(v.advice.evidence.spreadCorrected).toBe('too-wide (conservative)');
+    expect(v.advice.evidence.spreadCorrected).toBe('over-dispersive');
     expect(v.advice.reasons.some((r: string) => /Rule of thumb/.test(r))).toBe(true);
     // Reliability-diagram data for the threshold: bins of forecast probability with observed frequency.
     const diagram = stochastic.brier[0].diagram;

@@ -99,11 +99,11 @@ describe('verification building blocks', () => {
 
   it('spread class from PIT coverage of [0.05, 0.95], by hand with n = 100 (tolerance max(0.03, 2·0.03) = 0.06)', () => {
     const pits = (inside: number) => Array.from({ length: 100 }, (_, i) => (i < inside ? 0.5 : i % 2 ? 0.01 : 0.99));
-    expect(classifySpread(pits(80)).class).toBe('too-narrow');
-    expect(classifySpread(pits(95)).class).toBe('reliable');
-    expect(classifySpread(pits(85)).class).toBe('reliable');
-    expect(classifySpread(pits(83)).class).toBe('too-narrow');
-    expect(classifySpread(pits(100)).class).toBe('too-wide (conservative)');
+    expect(classifySpread(pits(80)).class).toBe('under-dispersive');
+    expect(classifySpread(pits(95)).class).toBe('calibrated');
+    expect(classifySpread(pits(85)).class).toBe('calibrated');
+    expect(classifySpread(pits(83)).class).toBe('under-dispersive');
+    expect(classifySpread(pits(100)).class).toBe('over-dispersive');
     expect(classifySpread(pits(100)).tolerance).toBeCloseTo(0.06, 12);
     expect(classifySpread([]).class).toBeNull();
   });

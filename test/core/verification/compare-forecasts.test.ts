@@ -67,7 +67,7 @@ describe('compareForecasts', () => {
     expect(r.raw.brier[1].skill).toBeNull();
   });
 
-  it('a perfectly calibrated sampler: alpha near 1, PIT coverage near nominal, reliable spread, small Hersbach reliability', () => {
+  it('a perfectly calibrated sampler: alpha near 1, PIT coverage near nominal, calibrated spread, small Hersbach reliability', () => {
     const I = 600;
     const H = 3;
     const M = 20;
@@ -82,7 +82,7 @@ describe('compareForecasts', () => {
         const se = Math.sqrt((iv.level * (1 - iv.level)) / n);
         expect(Math.abs(iv.pitCoverage! - iv.level)).toBeLessThan(3 * se); // binomial standard error
       }
-      expect(s.spread.class).toBe('reliable');
+      expect(s.spread.class).toBe('calibrated');
       expect(Math.abs(s.pit.mean! - 0.5)).toBeLessThan(0.03);
       // Hersbach (2000): reliability + potential = CRPS; reliability small for a calibrated forecast.
       expect(s.crps.hersbach.reliability! + s.crps.hersbach.potential!).toBeCloseTo(s.crps.crps!, 9);
@@ -110,7 +110,7 @@ describe('compareForecasts', () => {
     expect(r.corrected.byLead.map((l) => l.n)).toEqual([I, I, I]);
   });
 
-  it('flags a too-narrow ensemble and a too-wide (conservative) one, and filters by lead range', () => {
+  it('flags an under-dispersive ensemble and an over-dispersive one, and filters by lead range', () => {
     const I = 400;
     const H = 3;
     const M = 20;
@@ -121,11 +121,11 @@ describe('compareForecasts', () => {
     expect(narrow.cases.outsideLeadRange).toBe(I);
     expect(narrow.corrected.byLead.map((l) => l.lead)).toEqual([1, 2]);
     expect(narrow.stochastic).toBeNull();
-    expect(narrow.corrected.spread.class).toBe('too-narrow');
+    expect(narrow.corrected.spread.class).toBe('under-dispersive');
     expect(narrow.corrected.pit.varianceRatio!).toBeGreaterThan(1.3); // U-shaped PIT
     expect(narrow.corrected.alphaIndex!).toBeLessThan(0.85);
     const wide = compareForecasts(casesOf(synthetic({ nIssues: I, nLeads: H, nMembers: M, seed: 6, spread: 2.5 }), I, H, M));
-    expect(wide.corrected.spread.class).toBe('too-wide (conservative)');
+    expect(wide.corrected.spread.class).toBe('over-dispersive');
     expect(wide.corrected.pit.varianceRatio!).toBeLessThan(0.7); // humped PIT
     expect(wide.corrected.alphaIndex!).toBeLessThan(0.85);
   });
