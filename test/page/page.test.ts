@@ -19,13 +19,13 @@ const RIVER = { id: 'corvane-stillmere-bridge', name: 'Corvane at Stillmere Brid
 const BROOK = { id: 'pellow-brook-at-quillbrae', name: 'Pellow Brook at Quillbrae' };
 const FELL = { id: 'tarnwick-beck', name: 'Tarnwick Beck at Ostrevale' };
 const RIVER_THRESHOLDS = [
-  { label: 'high', value: 85.2 },
-  { label: 'very high', value: 121.5 },
-  { label: 'extreme', value: 164.8 },
+  { label: '2-year flow', value: 85.2 },
+  { label: '10-year flow', value: 121.5 },
+  { label: '50-year flow', value: 164.8 },
 ];
 const BROOK_THRESHOLDS = [
-  { label: 'high', value: 14.6 },
-  { label: 'very high', value: 22.3 },
+  { label: '2-year flow', value: 14.6 },
+  { label: '10-year flow', value: 22.3 },
 ];
 
 const riverRun = (issueTime: string, seed: number, peak: number) =>
@@ -110,7 +110,7 @@ describe.skipIf(!hasChromium)('forecast page in chromium', () => {
           degradedReason: 'no active residual model for this gauge',
         }),
       },
-      { ...FELL, status: 'no-forecast', thresholds: [{ label: 'high', value: 30 }], latest: null },
+      { ...FELL, status: 'no-forecast', thresholds: [{ label: '2-year flow', value: 30 }], latest: null },
     ];
     server = await startFixtureServer(TOKEN, gauges);
     userDataDir = mkdtempSync(join(tmpdir(), 'page-test-chromium-'));
@@ -309,7 +309,7 @@ describe.skipIf(!hasChromium)('forecast page in chromium', () => {
       seed: 9,
       base: 18,
       peak: 1.8,
-      thresholds: [{ label: 'high', value: 30 }],
+      thresholds: [{ label: '2-year flow', value: 30 }],
     });
     server.gauges.get(FELL.id)!.status = 'ok';
     server.sendEvent('forecast', { gaugeId: FELL.id, runId: 'new', issueTime: '2024-12-02T06:00:00Z' });

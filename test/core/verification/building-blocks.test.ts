@@ -108,7 +108,7 @@ describe('verification building blocks', () => {
     expect(classifySpread([]).class).toBeNull();
   });
 
-  it('quantile ensemble: 1000 midpoint quantiles of N(μ, σ²) score like the Gaussian closed form (properscoring test, CHECKS.md; Gneiting et al. 2005)', () => {
+  it('quantile ensemble: 1000 midpoint quantiles of N(μ, σ²) score like the Gaussian closed form (properscoring 0.1 test_crps.py test_crps_gaussian_consistent; Gneiting et al. 2005)', () => {
     expect(isMidpointGrid(midpointProbs(4))).toBe(true);
     expect(Array.from(midpointProbs(4))).toEqual([0.125, 0.375, 0.625, 0.875]);
     expect(isMidpointGrid([0.05, 0.5, 0.95])).toBe(false);

@@ -35,6 +35,7 @@ describe('stochastic stage verification and advice', () => {
     const c = r.corrected;
     const s = r.stochastic!;
     expect(c.spread.class).toBe('under-dispersive');
+    // Alpha is 1 for a calibrated forecast (Renard et al. 2010); 0.8 and 0.95: common practice.
     expect(c.alphaIndex!).toBeLessThan(0.8);
     expect(s.spread.class).toBe('calibrated');
     expect(s.alphaIndex!).toBeGreaterThan(0.95);
