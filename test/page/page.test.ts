@@ -13,7 +13,8 @@ const CHROMIUM = '/usr/bin/chromium';
 const hasChromium = existsSync(CHROMIUM);
 if (!hasChromium) console.warn(`page test skipped: ${CHROMIUM} is missing (Debian: apt-get install chromium)`);
 
-const OUT = join(import.meta.dirname, '..', 'output');
+// Screenshots are test artefacts: test/output/screens/ (git-ignored), to look at after a run.
+const OUT = join(import.meta.dirname, '..', 'output', 'screens');
 const TOKEN = 'read-token-for-the-page-test';
 const RIVER = { id: 'corvane-stillmere-bridge', name: 'Corvane at Stillmere Bridge' };
 const BROOK = { id: 'pellow-brook-at-quillbrae', name: 'Pellow Brook at Quillbrae' };
@@ -159,6 +160,11 @@ describe.skipIf(!hasChromium)('forecast page in chromium', () => {
     expect(await svg.locator('.observed circle').count()).toBe(f.recent.observed.filter((v) => v !== null).length);
     const labels = await svg.locator('.threshold-label').allTextContents();
     for (const t of f.thresholds) expect(labels.some((l) => l.includes(t.label) && l.includes(String(t.value)))).toBe(true);
+    // Thresholds share one colour and differ by dash pattern: no colour ranks them.
+    const lines = await svg.locator('.threshold > line:first-child').evaluateAll((ls) => ls.map((l) => [l.getAttribute('stroke'), l.getAttribute('stroke-dasharray') ?? 'solid']));
+    expect(lines).toHaveLength(f.thresholds.length);
+    expect(new Set(lines.map(([stroke]) => stroke)).size).toBe(1);
+    expect(new Set(lines.map(([, dash]) => dash)).size).toBe(f.thresholds.length);
     const axisText = (await svg.locator('.axis.x text').allTextContents()).filter((t) => t !== 'valid time (UTC)');
     expect(axisText.length).toBeGreaterThanOrEqual(4);
     for (const t of axisText) expect(t).toMatch(/^\d{1,2} (Nov|Dec)$/); // daily steps: day and month labels

@@ -8,16 +8,17 @@ const SVG_NS = 'http://www.w3.org/2000/svg';
 const MONTHS = ['Jan', 'Feb', 'Mar', 'Apr', 'May', 'Jun', 'Jul', 'Aug', 'Sep', 'Oct', 'Nov', 'Dec'];
 const UNIT = 'm³/s';
 
-// Threshold colours: hues after Okabe & Ito's colour-blind-safe set, darkened so lines and labels
-// reach at least 4.5:1 on white; a dash pattern per threshold keeps them apart without colour too.
+// Thresholds all share one dark teal (6:1 on white), apart from the forecast's blue; a dash pattern
+// and a marker per threshold tell them apart, and every legend names each one with its value. No
+// colour ranks them, so nothing reads as an alarm scale.
+const THRESHOLD_COLOUR = '#0f6b66';
 const THRESHOLD_STYLES = [
-  { colour: '#a36600', dash: '' },
-  { colour: '#c0440a', dash: '10 4' },
-  { colour: '#9c3d86', dash: '3 3' },
-  { colour: '#007a5a', dash: '12 3 3 3' },
-  { colour: '#3f4a52', dash: '6 6' },
+  { colour: THRESHOLD_COLOUR, dash: '', marker: 'circle' },
+  { colour: THRESHOLD_COLOUR, dash: '10 4', marker: 'square' },
+  { colour: THRESHOLD_COLOUR, dash: '3 3', marker: 'triangle' },
+  { colour: THRESHOLD_COLOUR, dash: '12 3 3 3', marker: 'diamond' },
+  { colour: THRESHOLD_COLOUR, dash: '6 6', marker: 'cross' },
 ];
-const MARKERS = ['circle', 'square', 'triangle', 'diamond', 'cross'];
 
 // Nested bands, widest first; opacities add up where bands overlap, so the centre reads darkest.
 const BANDS = [
@@ -412,8 +413,9 @@ function swatch(i) {
   const st = THRESHOLD_STYLES[i % THRESHOLD_STYLES.length];
   return s(
     'svg',
-    { class: 'swatch', width: 22, height: 10, 'aria-hidden': 'true', focusable: 'false' },
-    s('line', { x1: 1, x2: 21, y1: 5, y2: 5, stroke: st.colour, 'stroke-width': 2.5, 'stroke-dasharray': st.dash || null }),
+    { class: 'swatch', width: 26, height: 12, 'aria-hidden': 'true', focusable: 'false' },
+    s('line', { x1: 1, x2: 25, y1: 6, y2: 6, stroke: st.colour, 'stroke-width': 2.5, 'stroke-dasharray': st.dash || null }),
+    marker(st.marker, 13, 6, st.colour),
   );
 }
 
@@ -878,6 +880,7 @@ function flowChart(f, width, x) {
         'g',
         { class: 'threshold', 'data-threshold': t.label },
         s('line', { x1: MARGIN.left, x2: x.range[1], y1: y(t.value), y2: y(t.value), stroke: st.colour, 'stroke-width': 1.8, 'stroke-dasharray': st.dash || null }),
+        marker(st.marker, x.range[1], y(t.value), st.colour),
         LABELS.inside ? null : s('line', { x1: x.range[1], x2: x.range[1] + 8, y1: y(t.value), y2: labelYs[k] - 4, stroke: st.colour, 'stroke-width': 1 }),
         thresholdLabel(x, labelYs[k], st.colour, `${t.label} ${fmtLevel(t.value)}`),
       ),
@@ -1050,7 +1053,7 @@ function probChart(f, width, x) {
     const g = s('g', { class: 'series', 'data-threshold': t.label });
     g.append(s('path', { d: linePath(xs, ys), fill: 'none', stroke: st.colour, 'stroke-width': 2, 'stroke-dasharray': st.dash || null }));
     xs.forEach((px, k) => {
-      if (Number.isFinite(ys[k])) g.append(marker(MARKERS[i % MARKERS.length], px, ys[k], st.colour));
+      if (Number.isFinite(ys[k])) g.append(marker(st.marker, px, ys[k], st.colour));
     });
     svg.append(g);
     let last = ys.length - 1;
