@@ -1,7 +1,7 @@
 // Browser test of the forecast page: Debian's chromium driven by playwright-core against a stand-in
 // service (test/page/fixture-server.ts) that answers in the forecast read contract's shape.
 // The checks compare what the page shows with the JSON it was given; no outside values are involved.
-import { existsSync, mkdirSync, mkdtempSync, rmSync } from 'node:fs';
+import { existsSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, rmSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { chromium, type BrowserContext, type Page } from 'playwright-core';
@@ -368,6 +368,20 @@ describe('page files', () => {
       expect(again.body).toBe('');
     }
     expect((await server.app.inject({ method: 'GET', url: '/' })).body).toContain('<title>');
+
+    // Every module of the page is served as JavaScript, and every module another one imports exists.
+    const pageDir = join(import.meta.dirname, '..', '..', 'src', 'api', 'page');
+    const modules = readdirSync(pageDir).filter((n) => n.endsWith('.js'));
+    expect(modules.length).toBeGreaterThan(1);
+    for (const name of modules) {
+      const res = await server.app.inject({ method: 'GET', url: `/page/${name}` });
+      expect(res.statusCode, name).toBe(200);
+      expect(res.headers['content-type'], name).toContain('text/javascript');
+      expect(res.headers.etag, name).toBeTruthy();
+      for (const [, imported] of readFileSync(join(pageDir, name), 'utf8').matchAll(/from '\.\/([\w-]+\.js)'/g)) {
+        expect(modules, `${name} imports ${imported}`).toContain(imported);
+      }
+    }
     const missing = await server.app.inject({ method: 'GET', url: '/page/nothing.js' });
     expect(missing.statusCode).toBe(404);
     expect(missing.headers['content-type']).toContain('application/problem+json');
