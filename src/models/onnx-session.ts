@@ -14,16 +14,20 @@ export async function createResidualSession(onnx: Uint8Array): Promise<ort.Infer
   });
 }
 
-/** Predicts one residual per row; input "features" [nRows, nFeatures] float32. */
+/**
+ * Predicts one residual per row; input float32 [nRows, nFeatures], or [nRows, …rowShape] for a
+ * sequence model (rowShape [window, steps]; the rows hold window·steps values each).
+ */
 export async function predictResiduals(
   session: ort.InferenceSession,
   rows: Float32Array,
   nRows: number,
   nFeatures: number,
+  rowShape: number[] = [nFeatures],
 ): Promise<Float32Array> {
   const inputName = session.inputNames[0];
   const outputName = session.outputNames[0];
-  const feeds = { [inputName]: new ort.Tensor('float32', rows.subarray(0, nRows * nFeatures), [nRows, nFeatures]) };
+  const feeds = { [inputName]: new ort.Tensor('float32', rows.subarray(0, nRows * nFeatures), [nRows, ...rowShape]) };
   const out = await session.run(feeds);
   const tensor = out[outputName];
   const data = tensor.data as Float32Array;

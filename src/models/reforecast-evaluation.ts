@@ -1,7 +1,8 @@
 import { dayOfYearUtc } from '../core/day-of-year.ts';
 import { buildArchiveFromReforecasts, type ErrorArchive } from '../core/error-archive.ts';
 import type { ErrorTransformSpec } from '../core/error-transform.ts';
-import { reforecastRows, requiredInputs, type FeatureSpec, type ReforecastIssue } from '../core/features.ts';
+import type { ReforecastIssue } from '../core/features.ts';
+import { reforecastInputs, requiredRunInputs, specForcings, type ResidualSpec } from '../core/model-inputs.ts';
 import { archiveMembers, archiveSummary, type ArchiveSeries, type ResidualPredictor } from './residual-evaluation.ts';
 
 /** Stored past runs of a gauge on one layout: what the per-lead error archives are built from. */
@@ -175,7 +176,7 @@ function unusable(a: ErrorArchive, issues: number): string | null {
 export async function evaluateReforecasts(
   series: ArchiveSeries,
   set: ReforecastSet,
-  spec: FeatureSpec,
+  spec: ResidualSpec,
   predictors: ResidualPredictor[],
   options: { transform: ErrorTransformSpec },
 ): Promise<ReforecastEvaluation> {
@@ -183,7 +184,7 @@ export async function evaluateReforecasts(
   if (typeof L === 'string') return { archives: null, reason: L, scores: null };
   const { nRows, observed, dayOfYear, raw } = observedMatrix(series, set, L);
   const corrected = new Float64Array(nRows * L.H).fill(NaN);
-  const need = requiredInputs(spec);
+  const need = requiredRunInputs(spec);
   const W = Math.max(need.simStepsToIssue, ...need.forcings.map((f) => f.stepsToIssue));
   const nK = L.setMember.length;
   const n = series.times.length;
@@ -202,7 +203,7 @@ export async function evaluateReforecasts(
     for (let u = u0; u < Math.min(L.issue.length, u0 + perBatch); u++) {
       const i = L.at[u];
       const forcings: Record<string, Float64Array> = {};
-      for (const f of spec.forcings) if (series.forcings[f.name]) forcings[f.name] = window(series.forcings[f.name], i, W + L.H);
+      for (const name of specForcings(spec)) if (series.forcings[name]) forcings[name] = window(series.forcings[name], i, W + L.H);
       batch.push({
         issueTime: set.issueTimes[L.issue[u]],
         nLeads: L.H,
@@ -216,7 +217,7 @@ export async function evaluateReforecasts(
         obs: observed.subarray(u * nK * L.H, u * nK * L.H + L.H),
       });
     }
-    const rows = reforecastRows(spec, batch);
+    const rows = reforecastInputs(spec, batch);
     if (!rows.nRows) continue;
     const sum = new Float64Array(rows.nRows);
     for (const predict of predictors) {

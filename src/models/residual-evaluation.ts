@@ -3,7 +3,7 @@ import { dayOfYearUtc } from '../core/day-of-year.ts';
 import { deterministicScores } from '../core/deterministic-scores.ts';
 import { buildArchiveFromSeries, type ErrorArchive } from '../core/error-archive.ts';
 import type { ErrorTransformSpec } from '../core/error-transform.ts';
-import { continuousRows, type FeatureSpec } from '../core/features.ts';
+import { continuousInputs, type ResidualSpec } from '../core/model-inputs.ts';
 
 /** A gauge's archive on one regular time axis (missing = NaN), as the fitting code needs it. */
 export interface ArchiveSeries {
@@ -58,7 +58,7 @@ const iso = (ms: number) => new Date(ms).toISOString().replace('.000Z', 'Z');
  */
 export async function evaluateResidualModel(
   series: ArchiveSeries,
-  spec: FeatureSpec,
+  spec: ResidualSpec,
   validation: Period,
   predictors: ResidualPredictor[],
   options: ArchiveOptions,
@@ -88,7 +88,7 @@ export async function evaluateResidualModel(
     const sim = series.members[m].values;
     // Rows at every time with complete inputs: the member itself stands in for the target,
     // which is not used here (an all-missing target would drop every row).
-    const all = continuousRows(spec, { times, sim, forcings: series.forcings, obs: sim });
+    const all = continuousInputs(spec, { times, sim, forcings: series.forcings, obs: sim });
     const correction = new Float64Array(times.length).fill(NaN);
     const pick: number[] = [];
     for (let r = 0; r < all.nRows; r++) {
