@@ -6,7 +6,8 @@
 import type { InferenceSession } from 'onnxruntime-node';
 import { archiveFromBytes } from '../core/archive-codec.ts';
 import { dayOfYearUtc } from '../core/day-of-year.ts';
-import { checkFeatureSpec, continuousRows, featureCount, FeatureInputError, requiredInputs, servingRows, type FeatureSpec, type RunInput } from '../core/features.ts';
+import { FeatureInputError, type RunInput } from '../core/features.ts';
+import { checkResidualSpec, continuousInputs, inputWidth, isSequenceSpec, requiredRunInputs, rowShape, servingInputs, specForcings, type ResidualSpec } from '../core/model-inputs.ts';
 import { createStochasticWorkspace } from '../core/stochastic-stage.ts';
 import {
   adviseStochasticStage,
@@ -110,16 +111,16 @@ export async function computeHindcast(input: HindcastTaskInput, progress: Progre
   const M = series.members.length;
   const n = series.times.length;
   const stepMs = series.stepSeconds * 1000;
-  const spec = checkFeatureSpec(input.model.spec);
+  const spec = checkResidualSpec(input.model.spec);
   if (spec.stepSeconds !== series.stepSeconds) throw new Error(`the model's step (${spec.stepSeconds} s) differs from the gauge's (${series.stepSeconds} s)`);
-  for (const f of spec.forcings) {
-    if (!(f.name in series.forcings)) throw new Error(`the model needs forcing ${f.name}, which the gauge's archive does not hold`);
+  for (const name of specForcings(spec)) {
+    if (!(name in series.forcings)) throw new Error(`the model needs forcing ${name}, which the gauge's archive does not hold`);
   }
   if (M === 0) throw new Error('no members to hindcast');
   const archive = archiveFromBytes(input.archive);
   const reach = archive.nLeads > 0 ? Math.min(archive.nLeads, archive.templateLength) : archive.templateLength;
   if (reach < H) throw new Error(`the error archive covers ${reach} lead times; the hindcast asks for ${H}`);
-  const need = requiredInputs(spec);
+  const need = requiredRunInputs(spec);
   let warm = need.simStepsToIssue;
   for (const f of need.forcings) warm = Math.max(warm, f.stepsToIssue);
   const check = () => {
@@ -161,7 +162,7 @@ export async function computeHindcast(input: HindcastTaskInput, progress: Progre
   try {
     progress({ stage: 'correcting the members', percent: 2 });
     const tCorr = performance.now();
-    const perValidTime = input.reforecast === null && !spec.leadTime && !spec.issueError;
+    const perValidTime = input.reforecast === null && (isSequenceSpec(spec) || (!spec.leadTime && !spec.issueError));
     // corrected values: per valid time [(k·M + m)·n + t], or per issue [((s·K + k)·M + m)·H + h].
     let byTime: Float64Array | null = null;
     let byIssue: Float64Array | null = null;
@@ -303,7 +304,7 @@ function correctedValue(value: number, residual: number): number {
  * corrected once from the continuous rows (the same row builder serving uses).
  */
 async function correctPerValidTime(
-  spec: FeatureSpec,
+  spec: ResidualSpec,
   series: ArchiveSeries,
   sessions: InferenceSession[],
   issues: number[],
@@ -321,14 +322,14 @@ async function correctPerValidTime(
   for (let m = 0; m < M; m++) {
     check();
     const sim = series.members[m].values;
-    const all = continuousRows(spec, { times: series.times, sim, forcings: series.forcings, obs: sim });
+    const all = continuousInputs(spec, { times: series.times, sim, forcings: series.forcings, obs: sim });
     const nF = all.nFeatures;
     const pick: number[] = [];
     for (let r = 0; r < all.nRows; r++) if (need[all.index[r]]) pick.push(r);
     const x = new Float32Array(pick.length * nF);
     for (let j = 0; j < pick.length; j++) x.set(all.rows.subarray(pick[j] * nF, (pick[j] + 1) * nF), j * nF);
     for (let k = 0; k < K; k++) {
-      const residual = pick.length ? await predictResiduals(sessions[k], x, pick.length, nF) : new Float32Array(0);
+      const residual = pick.length ? await predictResiduals(sessions[k], x, pick.length, nF, rowShape(spec)) : new Float32Array(0);
       const base = (k * M + m) * n;
       for (let j = 0; j < pick.length; j++) {
         const t = all.index[pick[j]];
@@ -345,7 +346,7 @@ async function correctPerValidTime(
  * serving rows for each issue's members × lead times, batched over issues for inference.
  */
 async function correctPerIssue(
-  spec: FeatureSpec,
+  spec: ResidualSpec,
   series: ArchiveSeries,
   sessions: InferenceSession[],
   issues: number[],
@@ -358,8 +359,8 @@ async function correctPerIssue(
 ): Promise<Float64Array> {
   const M = series.members.length;
   const K = sessions.length;
-  const nF = featureCount(spec);
-  const need = requiredInputs(spec);
+  const nF = inputWidth(spec);
+  const need = requiredRunInputs(spec);
   const W = need.simStepsToIssue;
   const out = new Float64Array(issues.length * K * M * H).fill(NaN);
   const perIssue = M * H;
@@ -367,7 +368,8 @@ async function correctPerIssue(
   const rows = new Float32Array(batchIssues * perIssue * nF);
   const rawBatch = new Float64Array(batchIssues * perIssue);
   const memberBuf = Array.from({ length: M }, () => new Float64Array(W + 1 + H));
-  const forcings = spec.forcings.map((f) => series.forcings[f.name]);
+  const forcingNames = specForcings(spec);
+  const forcings = forcingNames.map((name) => series.forcings[name]);
   for (let b0 = 0; b0 < issues.length; b0 += batchIssues) {
     check();
     const b1 = Math.min(issues.length, b0 + batchIssues);
@@ -386,11 +388,11 @@ async function correctPerIssue(
         issueTime: series.times[i],
         nLeads: H,
         members,
-        forcings: Object.fromEntries(spec.forcings.map((f, fi) => [f.name, forcings[fi].subarray(i - need.forcings[fi].stepsToIssue, i + H + 1)])),
+        forcings: Object.fromEntries(forcingNames.map((name, fi) => [name, forcings[fi].subarray(i - need.forcings[fi].stepsToIssue, i + H + 1)])),
         issueObservation: series.observed[i],
       };
       try {
-        servingRows(spec, run, rows.subarray(slot * perIssue * nF));
+        servingInputs(spec, run, rows.subarray(slot * perIssue * nF));
         filled.push(j);
       } catch (err) {
         if (!(err instanceof FeatureInputError)) throw err;
@@ -399,7 +401,7 @@ async function correctPerIssue(
     }
     const nRows = filled.length * perIssue;
     for (let k = 0; k < K && nRows > 0; k++) {
-      const residual = await predictResiduals(sessions[k], rows, nRows, nF);
+      const residual = await predictResiduals(sessions[k], rows, nRows, nF, rowShape(spec));
       for (let slot = 0; slot < filled.length; slot++) {
         const j = filled[slot];
         const base = (j * K + k) * perIssue;

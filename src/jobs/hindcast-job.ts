@@ -1,4 +1,4 @@
-import { checkFeatureSpec, requiredInputs } from '../core/features.ts';
+import { checkResidualSpec, requiredRunInputs } from '../core/model-inputs.ts';
 import { formatDurationSeconds } from '../core/iso-duration.ts';
 import type { ComparisonReport, SourceName } from '../core/verification/index.ts';
 import { readReforecasts } from '../store/archive-repo.ts';
@@ -90,8 +90,8 @@ export const hindcastJob: JobHandler = async (job, { db, progress, signal }) => 
 
   let mode: 'simulation' | 'reforecast' = p.mode === 'auto' ? 'simulation' : p.mode;
   if (p.mode === 'auto' && (await reforecastIssueTimes(db, gauge.id, fromMs, toMs)).length >= REFERENCE_MIN_REFORECASTS) mode = 'reforecast';
-  const spec = checkFeatureSpec(version.featureSpec);
-  const need = requiredInputs(spec);
+  const spec = checkResidualSpec(version.featureSpec);
+  const need = requiredRunInputs(spec);
   const warm = Math.max(need.simStepsToIssue, ...need.forcings.map((f) => f.stepsToIssue));
 
   // Reforecast mode: stored runs grouped by issue time and member.

@@ -1,0 +1,111 @@
+// LSTM residual model on the demo gauge: how long the fit takes (goal: within 5 minutes on 2
+// cores) and how much inference adds to a 51-member × 240-lead run (goal: at most 10 ms).
+// Run: npx tsx bench/lstm.ts [--hidden 16] [--window 14] [--repeats 30]
+// Prints figures only; nothing here is asserted.
+import { availableParallelism, cpus } from 'node:os';
+import { rowShape, servingInputs } from '../src/core/model-inputs.ts';
+import type { RunInput } from '../src/core/features.ts';
+import { fitLstmResidualModel, lstmSpec } from '../src/models/lstm-fit.ts';
+import { lstmModelToOnnx } from '../src/models/lstm-onnx-export.ts';
+import { predictLstm } from '../src/models/lstm/forward.ts';
+import { createResidualSession, predictResiduals } from '../src/models/onnx-session.ts';
+import { demoPeriods, demoSeries } from './demo-series.ts';
+
+const arg = (name: string, fallback: number) => {
+  const i = process.argv.indexOf(`--${name}`);
+  return i > 0 ? Number(process.argv[i + 1]) : fallback;
+};
+const hidden = arg('hidden', 16);
+const window = arg('window', 14);
+const repeats = arg('repeats', 30);
+const MEMBERS = 51;
+const LEADS = 240;
+
+const { series } = demoSeries();
+const periods = demoPeriods(series);
+console.log(`machine: ${availableParallelism()} cores (${cpus()[0]?.model ?? 'unknown'}), Node ${process.version}`);
+console.log(`demo gauge: ${series.times.length} daily steps, ${series.members.length} members; LSTM hidden ${hidden}, window ${window}`);
+
+// 1. The fit as the fit job runs it with trainer 'lstm' and no tuning (one thread).
+const t0 = performance.now();
+let lastEpoch = '';
+const fit = await fitLstmResidualModel(
+  series,
+  {
+    ...periods,
+    stopFraction: 0.4,
+    params: { hidden, window },
+    tuning: null,
+    seed: 1,
+    forcings: ['air_temperature', 'precipitation'],
+    seasonal: true,
+    transform: { kind: 'log' },
+    templateLength: 30,
+    maxTrainRows: 20_000,
+    maxStopRows: 10_000,
+  },
+  (p) => {
+    if (p.stage.startsWith('training')) lastEpoch = p.stage;
+  },
+);
+const fitS = (performance.now() - t0) / 1000;
+const info = fit.model.info as { epochs: number; bestEpoch: number; stopReason: string };
+console.log(`\nfit: ${fitS.toFixed(1)} s (goal ≤ 300 s) — ${fit.rows.calibration} training windows, ${fit.rows.stopping} stopping windows, ${info.epochs} epochs (best ${info.bestEpoch}, ${info.stopReason}; last progress "${lastEpoch}")`);
+console.log(`  stopping-block RMSE ${fit.validationRmse.toFixed(3)} m3/s; scored block residual RMSE ${fit.evaluation.scores.residualRmse.before.toFixed(3)} → ${fit.evaluation.scores.residualRmse.after.toFixed(3)} m3/s`);
+console.log(`  onnxruntime vs the trainer's forward pass: max relative error ${fit.onnxCheck.maxRelativeError.toExponential(2)} on ${fit.onnxCheck.rows} windows (tolerance ${fit.onnxCheck.tolerance})`);
+
+// 2. Inference added to one run: 51 members × 240 daily leads, members and forcings taken from
+// the archive (member m reuses simulation m mod 40), windows built and run in one batch.
+const spec = fit.spec;
+const issueAt = series.times.length - LEADS - 1;
+const from = issueAt - (spec.window - 1);
+const run: RunInput = {
+  issueTime: series.times[issueAt],
+  nLeads: LEADS,
+  members: Array.from({ length: MEMBERS }, (_, m) => series.members[m % series.members.length].values.subarray(from, issueAt + LEADS + 1)),
+  forcings: { air_temperature: series.forcings.air_temperature.subarray(from, issueAt + LEADS + 1), precipitation: series.forcings.precipitation.subarray(from, issueAt + LEADS + 1) },
+};
+
+async function timeInference(onnx: Uint8Array, s: typeof spec): Promise<{ windowsMs: number; inferenceMs: number }> {
+  const session = await createResidualSession(onnx);
+  const shape = rowShape(s);
+  const buffer = new Float32Array(MEMBERS * LEADS * shape[0] * shape[1]);
+  const w: number[] = [];
+  const inf: number[] = [];
+  for (let i = 0; i < repeats + 3; i++) {
+    const a = performance.now();
+    const rows = servingInputs(s, run, buffer);
+    const b = performance.now();
+    await predictResiduals(session, rows.rows, rows.nRows, rows.nFeatures, shape);
+    const c = performance.now();
+    if (i >= 3) {
+      w.push(b - a);
+      inf.push(c - b);
+    }
+  }
+  await session.release();
+  const median = (v: number[]) => v.sort((x, y) => x - y)[Math.floor(v.length / 2)];
+  return { windowsMs: median(w), inferenceMs: median(inf) };
+}
+
+const fitted = await timeInference(fit.onnx, spec);
+console.log(`\ninference, ${MEMBERS} members × ${LEADS} leads (${MEMBERS * LEADS} windows of ${spec.window} × ${spec.steps.length}), median of ${repeats}, one intra-op thread:`);
+console.log(`  fitted model (hidden ${fit.model.hidden}, window ${spec.window}): windows ${fitted.windowsMs.toFixed(2)} ms + onnxruntime ${fitted.inferenceMs.toFixed(2)} ms = ${(fitted.windowsMs + fitted.inferenceMs).toFixed(2)} ms (goal ≤ 10 ms)`);
+
+// How the cost grows with the model: same weights shape, other sizes (random weights; speed only).
+for (const [h, t] of [[8, 7], [8, 14], [16, 7], [32, 14], [16, 30]]) {
+  const s = lstmSpec(series, t, ['air_temperature', 'precipitation'], true, periods.calibration);
+  const F = s.steps.length;
+  const rand = (n: number) => Float32Array.from({ length: n }, (_, i) => Math.fround(0.1 * Math.sin(i * 12.9898)));
+  const model = { kind: 'lstm' as const, nInputs: F, hidden: h, wInput: rand(4 * h * F), wHidden: rand(4 * h * h), biasInput: rand(4 * h), biasHidden: new Float32Array(4 * h), wOut: rand(h), bOut: 0, info: {} };
+  const r = await timeInference(lstmModelToOnnx(model, { window: t }), s);
+  console.log(`  hidden ${String(h).padStart(2)}, window ${String(t).padStart(2)}: windows ${r.windowsMs.toFixed(2)} ms + onnxruntime ${r.inferenceMs.toFixed(2)} ms = ${(r.windowsMs + r.inferenceMs).toFixed(2)} ms`);
+}
+
+// The in-process forward pass on the same batch, for scale.
+{
+  const rows = servingInputs(spec, run);
+  const a = performance.now();
+  predictLstm(fit.model, rows.rows, rows.nRows, spec.window);
+  console.log(`  (the TypeScript forward pass on the same batch: ${(performance.now() - a).toFixed(1)} ms)`);
+}
