@@ -50,38 +50,47 @@ function plan(spec: SequenceSpec): Plan {
 }
 
 /**
- * Writes one window at out[o…]: its last step reads sim[simLast], forcings[k][forcingLast[k]] and
- * the season at seasonLast; earlier steps read backwards. Returns false (partial row) when any
- * value is missing or its transform is undefined (log1p of a value ≤ −1).
+ * Fills the step matrix S[u·F + f] (float32, scaled) for u = 0 … nSteps − 1, step u reading
+ * sim[simAt0 + u], forcings[k][forcingAt0[k] + u] and the season at seasonAt0 + u; bad[u] = 1
+ * where a value is missing or outside its transform (log1p of a value ≤ −1). A window of T
+ * steps starting at u is then the contiguous slice S[u·F … (u + T)·F): windows that overlap
+ * share their values, and each value is transformed once, not once per window.
  */
-function writeWindow(
+function fillSteps(
   p: Plan,
-  out: Float32Array,
-  o: number,
+  S: Float32Array,
+  bad: Uint8Array,
+  nSteps: number,
   sim: ArrayLike<number>,
-  simLast: number,
+  simAt0: number,
   forcings: ArrayLike<number>[],
-  forcingLast: Int32Array,
+  forcingAt0: Int32Array,
   sin: Float64Array,
   cos: Float64Array,
-  seasonLast: number,
-): boolean {
-  const { T, F } = p;
-  for (let j = 0; j < T; j++) {
-    const back = T - 1 - j;
+  seasonAt0: number,
+): void {
+  const F = p.F;
+  for (let u = 0; u < nSteps; u++) {
+    let isBad = 0;
     for (let f = 0; f < F; f++) {
       const kind = p.kind[f];
       let v: number;
-      if (kind === SIM) v = sim[simLast - back];
-      else if (kind === FORCING) v = forcings[p.forcing[f]][forcingLast[p.forcing[f]] - back];
-      else if (kind === SIN) v = sin[seasonLast - back];
-      else v = cos[seasonLast - back];
+      if (kind === SIM) v = sim[simAt0 + u];
+      else if (kind === FORCING) v = forcings[p.forcing[f]][forcingAt0[p.forcing[f]] + u];
+      else if (kind === SIN) v = sin[seasonAt0 + u];
+      else v = cos[seasonAt0 + u];
       if (p.log[f] === 1) v = Math.log1p(v);
-      if (!Number.isFinite(v)) return false;
-      out[o++] = (v - p.center[f]) * p.invScale[f];
+      if (!Number.isFinite(v)) isBad = 1;
+      S[u * F + f] = (v - p.center[f]) * p.invScale[f];
     }
+    bad[u] = isBad;
   }
-  return true;
+}
+
+/** badBefore[u] = number of bad steps before u, so a window's check costs two reads. */
+function countBad(bad: Uint8Array, nSteps: number, badBefore: Int32Array): void {
+  badBefore[0] = 0;
+  for (let u = 0; u < nSteps; u++) badBefore[u + 1] = badBefore[u] + bad[u];
 }
 
 /** Season sine and cosine at times start + u·step, u = 0 … n − 1. */
@@ -127,13 +136,18 @@ export function continuousWindows(spec: SequenceSpec, input: ContinuousInput): C
   const target = new Float64Array(maxRows);
   const index = new Int32Array(maxRows);
   const season = n > 0 ? seasonAt(times[0], stepMs, n) : { sin: new Float64Array(0), cos: new Float64Array(0) };
-  const forcingLast = new Int32Array(forcings.length);
+  const S = new Float32Array(n * p.F);
+  const bad = new Uint8Array(n);
+  const badBefore = new Int32Array(n + 1);
+  fillSteps(p, S, bad, n, sim, 0, forcings, new Int32Array(forcings.length), season.sin, season.cos, 0);
+  countBad(bad, n, badBefore);
   let r = 0;
   for (let t = p.T - 1; t < n; t++) {
     const y = obs[t] - sim[t];
     if (!Number.isFinite(y)) continue;
-    forcingLast.fill(t);
-    if (!writeWindow(p, rows, r * width, sim, t, forcings, forcingLast, season.sin, season.cos, t)) continue;
+    const u = t - p.T + 1;
+    if (badBefore[t + 1] - badBefore[u] > 0) continue;
+    rows.set(S.subarray(u * p.F, (t + 1) * p.F), r * width);
     target[r] = y;
     index[r] = t;
     r++;
@@ -195,19 +209,27 @@ function runWindows(
   const width = sequenceWidth(spec);
   const H = run.nLeads;
   const stepMs = spec.stepSeconds * 1000;
-  // Season at issue − (T − 1)·step + u·step: lead k's last step is u = k + T − 1.
-  const season = seasonAt(run.issueTime - (p.T - 1) * stepMs, stepMs, H + p.T);
+  // Step u = 0 … H + T − 2 is at issue + (u + 2 − T)·step; lead k's window is steps k − 1 … k + T − 2.
+  const nSteps = H + p.T - 1;
+  const season = seasonAt(run.issueTime + (2 - p.T) * stepMs, stepMs, nSteps);
   const nF = p.forcingNames.length;
   const forcingRow: ArrayLike<number>[] = new Array(nF);
-  const forcingLast = new Int32Array(nF);
+  const forcingAt0 = new Int32Array(nF);
+  const S = new Float32Array(nSteps * p.F);
+  const bad = new Uint8Array(nSteps);
+  const badBefore = new Int32Array(nSteps + 1);
   let r = row0;
   for (let m = 0; m < run.members.length; m++) {
     const sim = run.members[m];
-    const issueAt = sim.length - H - 1;
-    for (let f = 0; f < nF; f++) forcingRow[f] = forcingSeries[f][m];
+    for (let f = 0; f < nF; f++) {
+      forcingRow[f] = forcingSeries[f][m];
+      forcingAt0[f] = forcingRow[f].length - nSteps;
+    }
+    fillSteps(p, S, bad, nSteps, sim, sim.length - nSteps, forcingRow, forcingAt0, season.sin, season.cos, 0);
+    countBad(bad, nSteps, badBefore);
     for (let k = 1; k <= H; k++) {
-      for (let f = 0; f < nF; f++) forcingLast[f] = forcingRow[f].length - H - 1 + k;
-      const ok = writeWindow(p, out, r * width, sim, issueAt + k, forcingRow, forcingLast, season.sin, season.cos, k + p.T - 1);
+      const ok = badBefore[k - 1 + p.T] - badBefore[k - 1] === 0;
+      if (ok) out.set(S.subarray((k - 1) * p.F, (k - 1 + p.T) * p.F), r * width);
       if (keep(r, m, k, ok)) r++;
     }
   }

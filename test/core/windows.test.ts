@@ -127,3 +127,32 @@ describe('windows', () => {
     expect(w.target[1]).toBeCloseTo(obs[9] - sim[9], 12);
   });
 });
+
+describe('warm-up from the archive', () => {
+  it('puts archived values in front of a short run so the windows equal the continuous ones', async () => {
+    const { withArchiveWarmup, warmupShortfall } = await import('../../src/core/run-warmup.ts');
+    const n = 14;
+    const times = Array.from({ length: n }, (_, i) => T0 + i * DAY);
+    const sim = Array.from({ length: n }, (_, i) => 5 + i * i * 0.1);
+    const prec = Array.from({ length: n }, (_, i) => (i * 3) % 4);
+    const wide = checkSequenceSpec({ ...spec, window: 6 });
+    const cont = continuousWindows(wide, { times, sim, obs: sim, forcings: { precipitation: prec } });
+    // Issued at index 8 with one warm-up value (the issue-time one); the window needs 5.
+    const run = { issueTime: times[8], nLeads: 3, members: [sim.slice(8, 12)], forcings: { precipitation: prec.slice(8, 12) } };
+    const need = requiredRunInputs(wide);
+    expect(warmupShortfall(run, need)).toBe(4);
+    // The archive slice: 5 values at issue − 4 … issue.
+    const slice = { steps: 5, members: [sim.slice(4, 9)], forcings: { precipitation: prec.slice(4, 9) } };
+    const longer = withArchiveWarmup(run, need, slice);
+    expect(Array.from(longer.members[0])).toEqual(sim.slice(4, 12));
+    expect(warmupShortfall(longer, need)).toBe(0);
+    const w = servingWindows(wide, longer);
+    for (let k = 1; k <= 3; k++) {
+      const r = cont.index.indexOf(8 + k);
+      expect(Array.from(w.rows.subarray((k - 1) * 18, k * 18))).toEqual(Array.from(cont.rows.subarray(r * 18, (r + 1) * 18)));
+    }
+    // Values the run gives win over the archive's.
+    const given = withArchiveWarmup({ ...run, members: [[99, ...sim.slice(8, 12)]] }, need, slice);
+    expect(Array.from(given.members[0]).slice(0, 5)).toEqual([sim[4], sim[5], sim[6], 99, sim[8]]);
+  });
+});
