@@ -1,0 +1,157 @@
+import { readFileSync } from 'node:fs';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { archiveFromBytes } from '../../src/core/archive-codec.ts';
+import { jobHandlers } from '../../src/jobs/handlers.ts';
+import { JobRunner } from '../../src/jobs/runner.ts';
+import { loadScenarioArchive } from '../../src/scenario/load-archive.ts';
+import { buildScenario } from '../../src/scenario/scenario.ts';
+import { versionArchive } from '../../src/store/models-repo.ts';
+import { injectSend, scenarioRunBody } from '../helpers/scenario-send.ts';
+import { makeTestApp, type TestApp } from '../helpers/test-app.ts';
+
+// Sequence residual models (LSTM, GRU) through the API: uploads of PyTorch exports
+// (test/fixtures/torch-lstm/make.py, python3-torch 1.13.0a0 + python3-onnx 1.12.0) and the
+// in-house LSTM trainer as a fit job.
+let t: TestApp;
+let runner: JobRunner;
+const scenario = buildScenario({ seed: 4, years: 4, members: 6 });
+const gaugeId = scenario.gauge.id;
+const lastIndex = scenario.times.length - 1;
+const quiet = { info() {}, warn() {}, error() {} } as never;
+const fixture = (name: string) => readFileSync(`test/fixtures/torch-lstm/${name}`);
+const uploadSpec = JSON.parse(fixture('upload-spec.json').toString('utf8'));
+const lstmOnnx = fixture('lstm-upload.onnx').toString('base64');
+const gruOnnx = fixture('gru-upload.onnx').toString('base64');
+const smallLstm = { trainer: 'lstm', params: { hidden: 4, window: 6, epochs: 4, learningRate: 0.01 }, maxTrainRows: 3000, templateLength: 30 };
+
+beforeAll(async () => {
+  t = await makeTestApp();
+  runner = new JobRunner(t.db, jobHandlers, quiet, 60_000);
+  await loadScenarioArchive(injectSend(t), scenario);
+});
+afterAll(async () => {
+  await runner.stop();
+  await t.close();
+});
+
+const versions = async () => (await t.as('read', { method: 'GET', url: `/gauges/${gaugeId}/models` })).json().versions.length as number;
+const upload = (payload: object) => t.as('admin', { method: 'POST', url: `/gauges/${gaugeId}/models/upload`, payload });
+
+describe('uploading a PyTorch LSTM or GRU taking [N, window, steps]', () => {
+  it.each([
+    ['LSTM', lstmOnnx],
+    ['GRU', gruOnnx],
+  ])('%s: checked on archive windows, stored with its spec, activated, then serves a run', async (name, onnxBase64) => {
+    const res = await upload({ label: `partner ${name}`, featureSpec: uploadSpec, onnxBase64, templateLength: 30, activate: true });
+    expect(res.statusCode, res.body).toBe(201);
+    const v = res.json();
+    expect(v).toMatchObject({ origin: 'uploaded', active: true, parts: 1 });
+    expect(v.featureSpec).toEqual(uploadSpec);
+    expect(v.scores.cases).toBeGreaterThan(1000);
+    expect(archiveFromBytes((await versionArchive(t.db, v.id, 'corrected'))!.bytes).templateLength).toBe(30);
+
+    // The scenario's runs carry 10 warm-up values; the window needs 7 before issue time.
+    const run = await t.as('ingest', { method: 'POST', url: `/gauges/${gaugeId}/runs`, payload: scenarioRunBody(scenario.forecastRun(lastIndex - 30 - (name === 'GRU' ? 1 : 0))) });
+    expect(run.statusCode, run.body).toBe(201);
+    const body = run.json();
+    expect(body.status).toBe('corrected');
+    expect(body.modelVersion.id).toBe(v.id);
+    expect(body.caution).toMatch(/responsible local authority/);
+    expect(body.ensemble.corrected).toHaveLength(6);
+    for (const m of body.ensemble.corrected as number[][]) for (const x of m) expect(Number.isFinite(x) && x >= 0).toBe(true);
+  });
+
+  it('serves a run whose warm-up is shorter than the window from the archived simulations', async () => {
+    const res = await upload({ label: 'wide window', featureSpec: { ...uploadSpec }, onnxBase64: lstmOnnx, templateLength: 30, activate: true });
+    expect(res.statusCode, res.body).toBe(201);
+    const full = scenario.forecastRun(lastIndex - 40);
+    // Only 2 warm-up values: the window of 8 needs 7 at or before issue time; 5 come from the archive.
+    const short = { ...full, warmupSteps: 2, members: full.members.map((m) => ({ ...m, values: m.values.slice(full.warmupSteps - 2) })), forcings: { precipitation: full.forcings.precipitation.slice(full.warmupSteps - 2), air_temperature: full.forcings.air_temperature.slice(full.warmupSteps - 2) } };
+    const a = await t.as('ingest', { method: 'POST', url: `/gauges/${gaugeId}/runs`, payload: { ...scenarioRunBody(short as never), source: 'short' } });
+    const b = await t.as('ingest', { method: 'POST', url: `/gauges/${gaugeId}/runs`, payload: { ...scenarioRunBody(full), source: 'full' } });
+    expect(a.statusCode, a.body).toBe(201);
+    expect(b.statusCode, b.body).toBe(201);
+    // The scenario's warm-up values are the members' continuous simulations, so both give the same correction.
+    expect(a.json().ensemble.corrected).toEqual(b.json().ensemble.corrected);
+  });
+
+  it.each([
+    ['a window the model does not take', { ...uploadSpec, window: 10 }, lstmOnnx, /must be float \[N, 10, 3\]/],
+    ['a flat feature spec for a sequence model', { version: 1, stepSeconds: 86400, simLags: 9, forcings: [], seasonal: false, leadTime: false, issueError: false }, lstmOnnx, /must be float \[N, 10\]/],
+    ['a sequence spec for a flat model', { ...uploadSpec, window: 1, steps: uploadSpec.steps.slice(0, 1) }, readFileSync('test/fixtures/torch-mlp/model.onnx').toString('base64'), /must be float \[N, 1, 1\]/],
+  ])('refuses %s, naming the file, and stores nothing', async (_name, featureSpec, onnxBase64, message) => {
+    const before = await versions();
+    const res = await upload({ label: 'x', featureSpec, onnxBase64 });
+    expect(res.statusCode).toBe(422);
+    expect(res.json().errors[0].path).toBe('body.onnxBase64');
+    expect(res.json().errors[0].message).toMatch(message);
+    expect(await versions()).toBe(before);
+  });
+
+  it('names a bad field of a sequence spec', async () => {
+    const res = await upload({ label: 'x', featureSpec: { ...uploadSpec, steps: [{ name: 'sim', scale: 0 }] }, onnxBase64: lstmOnnx });
+    expect(res.statusCode).toBe(422);
+    expect(res.json().errors[0].path).toBe('body.featureSpec.steps[0].scale');
+    const forcing = await upload({ label: 'x', featureSpec: { ...uploadSpec, steps: [...uploadSpec.steps.slice(0, 2), { name: 'snow_depth' }] }, onnxBase64: lstmOnnx });
+    expect(forcing.statusCode).toBe(409);
+    expect(forcing.json().detail).toMatch(/snow_depth/);
+  });
+});
+
+describe('the in-house LSTM as a fit job', () => {
+  it('trains with early stopping, exports to the ONNX LSTM operator, checks it, stores and serves it', async () => {
+    const started = await t.as('admin', { method: 'POST', url: `/gauges/${gaugeId}/models/fit`, payload: smallLstm });
+    expect(started.statusCode, started.body).toBe(202);
+    await runner.drain();
+    const job = (await t.as('read', { method: 'GET', url: `/jobs/${started.json().id}` })).json();
+    expect(job.status, job.error).toBe('succeeded');
+    expect(job.percent).toBe(100);
+    expect(job.result.onnxCheck.maxRelativeError).toBeLessThanOrEqual(1e-5);
+    const v = (await t.as('read', { method: 'GET', url: `/gauges/${gaugeId}/models/${job.result.versionId}` })).json();
+    expect(v).toMatchObject({ origin: 'fitted', active: true, parts: 1 });
+    expect(v.featureSpec).toMatchObject({ kind: 'sequence', window: 6 });
+    expect(v.featureSpec.steps.map((s: { name: string }) => s.name)).toEqual(['sim', 'air_temperature', 'precipitation', 'day_of_year_sin', 'day_of_year_cos']);
+    expect(v.trainer).toMatchObject({ kind: 'lstm' });
+    expect(v.trainer.model.epochs).toBeGreaterThan(0);
+    // The scenario's raw members are biased, so the residual stage must improve them on the held-out period.
+    expect(v.scores.residualRmse.after).toBeLessThan(v.scores.residualRmse.before);
+
+    const run = await t.as('ingest', { method: 'POST', url: `/gauges/${gaugeId}/runs`, payload: { ...scenarioRunBody(scenario.forecastRun(lastIndex - 50)), source: 'lstm' } });
+    expect(run.statusCode, run.body).toBe(201);
+    expect(run.json()).toMatchObject({ status: 'corrected', modelVersion: { id: v.id } });
+  });
+
+  it('tunes hidden size, window and learning rate by Bayesian optimisation', async () => {
+    const started = await t.as('admin', { method: 'POST', url: `/gauges/${gaugeId}/models/fit`, payload: { ...smallLstm, params: { epochs: 2 }, tuning: { evaluations: 3, initial: 2 }, activate: false } });
+    expect(started.statusCode, started.body).toBe(202);
+    await runner.drain();
+    const job = (await t.as('read', { method: 'GET', url: `/jobs/${started.json().id}` })).json();
+    expect(job.status, job.error).toBe('succeeded');
+    const v = (await t.as('read', { method: 'GET', url: `/gauges/${gaugeId}/models/${job.result.versionId}` })).json();
+    expect(v.trainer.trials).toHaveLength(3);
+    for (const trial of v.trainer.trials) expect(Object.keys(trial.params)).toEqual(expect.arrayContaining(['hidden', 'window', 'learningRate']));
+    const best = Math.min(...v.trainer.trials.map((x: { validationRmse: number }) => x.validationRmse));
+    expect(v.trainer.model.validationRmse).toBe(best);
+    expect(v.featureSpec.window).toBe(v.trainer.trials.find((x: { validationRmse: number }) => x.validationRmse === best).params.window);
+  });
+
+  it('cancels a running LSTM fit', async () => {
+    const job = (await t.as('admin', { method: 'POST', url: `/gauges/${gaugeId}/models/fit`, payload: { ...smallLstm, params: { hidden: 16, window: 10, epochs: 200, patience: 200 } } })).json();
+    const running = runner.drain();
+    for (let i = 0; i < 400; i++) {
+      const j = (await t.as('read', { method: 'GET', url: `/jobs/${job.id}` })).json();
+      if (j.stage.startsWith('training')) break;
+      await new Promise((r) => setTimeout(r, 50));
+    }
+    await t.as('admin', { method: 'POST', url: `/jobs/${job.id}/cancel` });
+    await running;
+    expect((await t.as('read', { method: 'GET', url: `/jobs/${job.id}` })).json().status).toBe('cancelled');
+  });
+
+  it('refuses parameters of another trainer, naming them', async () => {
+    const res = await t.as('admin', { method: 'POST', url: `/gauges/${gaugeId}/models/fit`, payload: { trainer: 'lstm', params: { nRounds: 10 } } });
+    expect(res.statusCode).toBe(422);
+    expect(res.json().errors[0]).toMatchObject({ path: 'body.params.nRounds' });
+    expect(res.json().errors[0].message).toMatch(/not a lstm parameter/);
+  });
+});
