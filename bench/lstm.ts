@@ -16,7 +16,7 @@ const arg = (name: string, fallback: number) => {
   return i > 0 ? Number(process.argv[i + 1]) : fallback;
 };
 const hidden = arg('hidden', 16);
-const window = arg('window', 14);
+const window = arg('window', 10);
 const repeats = arg('repeats', 30);
 const MEMBERS = 51;
 const LEADS = 240;

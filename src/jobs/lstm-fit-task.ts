@@ -7,10 +7,8 @@ import { defaultLstmSpace, fitLstmResidualModel, type LstmFitOptions } from '../
 import type { ReforecastSet } from '../models/reforecast-evaluation.ts';
 import { archiveSummary, type ArchiveSeries, type Period } from '../models/residual-evaluation.ts';
 
-/** Parameters of the in-house LSTM a fit request may set (the rest are the trainer's defaults). */
+/** Parameters of the in-house LSTM a fit request may set; unset ones take defaultLstmFitParams (src/models/lstm-fit.ts). */
 export const LSTM_PARAMS = ['hidden', 'window', 'learningRate', 'epochs', 'batchSize', 'patience'];
-/** Defaults of a fit request with trainer 'lstm' (src/models/lstm-fit.ts has the rest). */
-export const LSTM_DEFAULT_PARAMS = { hidden: 16, window: 10, learningRate: 0.005 };
 /** Training windows are sampled down to this many unless the request says otherwise (bounds the fit to minutes). */
 export const LSTM_DEFAULT_TRAIN_ROWS = 20_000;
 const MAX_STOP_ROWS = 10_000;

@@ -23,7 +23,7 @@ export interface LstmFitParams extends LstmParams {
   window: number;
 }
 
-export const defaultLstmFitParams: LstmFitParams = { hidden: 16, learningRate: 0.005, window: 14, epochs: 30, batchSize: 64, patience: 4, clipNorm: 1 };
+export const defaultLstmFitParams: LstmFitParams = { hidden: 16, learningRate: 0.005, window: 10, epochs: 30, batchSize: 64, patience: 4, clipNorm: 1 };
 
 /** Default search space (ranges are common practice for small daily-step LSTMs). */
 export const defaultLstmSpace: SearchParam[] = [
