@@ -1,6 +1,9 @@
 import type { FastifyInstance } from 'fastify';
 import { z } from 'zod';
-import { checkFeatureSpec, featureCount, FeatureInputError } from '../core/features.ts';
+import { FeatureInputError } from '../core/features.ts';
+import { checkResidualSpec, specForcings } from '../core/model-inputs.ts';
+import { LSTM_DEFAULT_TRAIN_ROWS, LSTM_PARAMS } from '../jobs/lstm-fit-task.ts';
+import { modelShapeProblems } from '../models/model-shape.ts';
 import { scheduleGaugeStatusRefresh } from '../jobs/drift-refresh.ts';
 import { defaultPeriods, perLeadParts, type PerLeadOutput } from '../jobs/fit-job.ts';
 import { runCompute } from '../jobs/run-compute.ts';
@@ -38,7 +41,7 @@ const boostingParams = ['nRounds', 'learningRate', 'maxDepth', 'lambda', 'gamma'
 const forestParams = ['nTrees', 'maxDepth', 'mtry', 'minLeafRows', 'sampleFraction', 'maxBins'];
 
 export const FitBody = z.strictObject({
-  trainer: z.enum(['gradient-boosting', 'random-forest']).default('gradient-boosting'),
+  trainer: z.enum(['gradient-boosting', 'random-forest', 'lstm']).default('gradient-boosting'),
   /** Trainer parameters; unset ones take the trainer's defaults. */
   params: TrainerParams.optional(),
   tuning: z
@@ -55,17 +58,19 @@ export const FitBody = z.strictObject({
   seasonal: z.boolean().default(true),
   transform: Transform.default({ kind: 'log' }),
   templateLength: z.number().int().min(1).max(2000).default(240),
-  maxTrainRows: z.number().int().min(100).max(2_000_000).default(200_000),
+  /** Default 200,000 for trees, 20,000 windows for the LSTM (its epochs cost far more per row). */
+  maxTrainRows: z.number().int().min(100).max(2_000_000).optional(),
   activate: z.boolean().default(true),
   label: z.string().min(1).max(100).optional(),
 }).superRefine((body, ctx) => {
-  const allowed = body.trainer === 'gradient-boosting' ? boostingParams : forestParams;
+  const allowed = body.trainer === 'gradient-boosting' ? boostingParams : body.trainer === 'lstm' ? LSTM_PARAMS : forestParams;
   for (const name of Object.keys(body.params ?? {})) {
     if (!allowed.includes(name)) ctx.addIssue({ code: 'custom', path: ['params', name], message: `not a ${body.trainer} parameter; known: ${allowed.join(', ')}` });
   }
 }).transform((body) => ({
   ...body,
-  params: body.params ?? (body.trainer === 'gradient-boosting' ? { nRounds: 400, learningRate: 0.08, maxDepth: 5, patience: 30 } : { nTrees: 200, maxDepth: 10 }),
+  params: body.params ?? (body.trainer === 'gradient-boosting' ? { nRounds: 400, learningRate: 0.08, maxDepth: 5, patience: 30 } : body.trainer === 'lstm' ? {} : { nTrees: 200, maxDepth: 10 }),
+  maxTrainRows: body.maxTrainRows ?? (body.trainer === 'lstm' ? LSTM_DEFAULT_TRAIN_ROWS : 200_000),
 }));
 
 const MAX_UPLOAD_BYTES = 20 * 1024 * 1024;
@@ -118,7 +123,7 @@ export async function modelRoutes(app: FastifyInstance, { services }: { services
     if (onnx.length > MAX_UPLOAD_BYTES) throw invalid([{ path: 'body.onnxBase64', message: `the ONNX file is ${onnx.length} bytes; the limit is ${MAX_UPLOAD_BYTES}` }]);
     let spec;
     try {
-      spec = checkFeatureSpec(body.featureSpec);
+      spec = checkResidualSpec(body.featureSpec);
     } catch (e) {
       if (e instanceof FeatureInputError) throw invalid([{ path: `body.featureSpec${e.path.replace(/^spec/, '')}`, message: e.message }]);
       throw e;
@@ -131,23 +136,14 @@ export async function modelRoutes(app: FastifyInstance, { services }: { services
       if (e instanceof OnnxInspectError) throw invalid([{ path: 'body.onnxBase64', message: `not a readable ONNX model: ${e.message}` }]);
       throw e;
     }
-    const nF = featureCount(spec);
-    const errors = [];
-    const input = summary.inputs[0];
-    if (summary.inputs.length !== 1) errors.push({ path: 'body.onnxBase64', message: `the model must take exactly one input, it takes ${summary.inputs.length}` });
-    else if (input.elemType !== 'float' || input.dims.length !== 2 || (typeof input.dims[1] === 'number' && input.dims[1] !== nF)) {
-      errors.push({ path: 'body.onnxBase64', message: `input ${input.name} must be float [N, ${nF}] (the feature spec's ${nF} features); it is ${input.elemType} [${input.dims.join(', ')}]` });
-    }
-    const output = summary.outputs[0];
-    if (summary.outputs.length < 1) errors.push({ path: 'body.onnxBase64', message: 'the model has no output' });
-    else if (output.elemType !== 'float' || output.dims.length > 2 || (output.dims.length === 2 && typeof output.dims[1] === 'number' && output.dims[1] !== 1)) {
-      errors.push({ path: 'body.onnxBase64', message: `output ${output.name} must be float [N, 1] or [N] (one residual per row); it is ${output.elemType} [${output.dims.join(', ')}]` });
-    }
+    const errors = modelShapeProblems(spec, summary);
     if (errors.length) throw invalid(errors);
 
     const series = await loadArchiveSeries(db, gauge.id, gauge.stepSeconds).catch((e: Error) => {
       throw conflict(`the model cannot be checked: ${e.message}`);
     });
+    const absent = specForcings(spec).filter((name) => !(name in series.forcings));
+    if (absent.length) throw conflict(`the model reads forcing ${absent.join(', ')}, which the gauge's archive does not hold; load it first (POST /gauges/${gauge.id}/forcings)`);
     const validation = body.validation ? { fromMs: Date.parse(body.validation.from), toMs: Date.parse(body.validation.to) } : defaultPeriods(series).validation;
     // Past runs issued in the validation period give the per-lead archives, as for a fitted model.
     const reforecasts = await loadReforecastSet(db, gauge.id, validation);

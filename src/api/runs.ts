@@ -2,6 +2,8 @@ import { createHash, randomUUID } from 'node:crypto';
 import type { FastifyInstance } from 'fastify';
 import { z } from 'zod';
 import type { RunInput } from '../core/features.ts';
+import { checkResidualSpec } from '../core/model-inputs.ts';
+import { withWindowWarmup } from '../services/window-warmup.ts';
 import { CorrectionError, PoolFullError, type ArchiveSource, type CorrectionResult, type ModelSource } from '../models/correction-pool.ts';
 import { DEFAULT_QUANTILE_PROBS } from '../core/stochastic-stage.ts';
 import { listMembers, readObservations } from '../store/archive-repo.ts';
@@ -160,7 +162,9 @@ export async function runRoutes(app: FastifyInstance, { services }: { services: 
       if (rawArchive) reaches.push(Math.max(...rawChoice.map(archiveReach)));
       const horizonLimit = Math.min(...reaches);
       const known = new Set(memberIds);
-      const run = checkRun(body, gauge, known, horizonLimit, config.MAX_TRAJECTORIES);
+      const given = checkRun(body, gauge, known, horizonLimit, config.MAX_TRAJECTORIES);
+      // A sequence model's window may reach before the run's warm-up: the archive fills the rest.
+      const run = active && correctedArchive ? await withWindowWarmup(db, gauge, checkResidualSpec(active.featureSpec), given, body.members.map((m) => m.id)) : given;
 
       const probs = body.quantiles ?? [...DEFAULT_QUANTILE_PROBS];
       const seed = body.seed ?? defaultSeed(gauge.id, isoUtc(run.issueTime), body.source);

@@ -2,8 +2,11 @@
 // Receives one task in workerData, posts {type:'progress'} messages and one {type:'done'|'error'}.
 import { parentPort, workerData } from 'node:worker_threads';
 import { archiveToBytes } from '../core/archive-codec.ts';
-import { checkFeatureSpec } from '../core/features.ts';
-import { createResidualSession, predictResiduals } from '../models/onnx-session.ts';
+import { checkResidualSpec } from '../core/model-inputs.ts';
+import type { LstmFitOptions } from '../models/lstm-fit.ts';
+import { predictorFor } from '../models/model-shape.ts';
+import { createResidualSession } from '../models/onnx-session.ts';
+import { runLstmFit } from './lstm-fit-task.ts';
 import { computeHindcast, type HindcastTaskInput } from './hindcast-compute.ts';
 import { fitResidualModel, type FitOptions } from '../models/residual-fit.ts';
 import { evaluateReforecasts, type ReforecastEvaluation, type ReforecastSet } from '../models/reforecast-evaluation.ts';
@@ -11,6 +14,7 @@ import { archiveSummary, evaluateResidualModel, rawArchiveFromSeries, type Archi
 
 export type ComputeTask =
   | { kind: 'fit'; series: ArchiveSeries; options: FitOptions }
+  | { kind: 'fit-lstm'; series: ArchiveSeries; options: LstmFitOptions }
   | { kind: 'evaluate-upload'; series: ArchiveSeries; onnx: Uint8Array; spec: unknown; validation: Period; archive: ArchiveOptions; reforecasts?: ReforecastSet | null }
   | { kind: 'raw-archive'; series: ArchiveSeries; period: Period; archive: ArchiveOptions }
   | { kind: 'hindcast'; input: HindcastTaskInput };
@@ -47,12 +51,14 @@ async function run(): Promise<unknown> {
         perLead: perLeadResult(r.perLead),
       };
     }
+    case 'fit-lstm':
+      return runLstmFit(task.series, task.options, progress, shouldStop);
     case 'evaluate-upload': {
-      const spec = checkFeatureSpec(task.spec);
+      const spec = checkResidualSpec(task.spec);
       progress({ stage: 'loading the model', percent: 10 });
       const session = await createResidualSession(task.onnx);
       progress({ stage: 'running it on the validation period', percent: 30 });
-      const predictors = [(rows: Float32Array, n: number, nF: number) => predictResiduals(session, rows, n, nF)];
+      const predictors = [predictorFor(session, spec)];
       const evaluation = await evaluateResidualModel(task.series, spec, task.validation, predictors, task.archive);
       const check = evaluation.correctedArchive.error.every(Number.isFinite);
       if (!check) throw new Error('the model produced non-finite residuals on archive rows');

@@ -7,12 +7,13 @@ import type { ArchiveSeries, Period } from '../models/residual-evaluation.ts';
 import { loadArchiveSeries, loadReforecastSet } from '../store/archive-series.ts';
 import { getGauge } from '../store/gauges-repo.ts';
 import { activateModelVersion, insertArchive, insertModelVersion } from '../store/models-repo.ts';
+import { lstmFitOptions, lstmTrainerRecord, type LstmFitOutput } from './lstm-fit-task.ts';
 import type { JobHandler } from './runner.ts';
 import { runCompute } from './run-compute.ts';
 
 /** Parameters of a fit job, as accepted by the API (already validated there). */
 export interface FitJobParams {
-  trainer: 'gradient-boosting' | 'random-forest';
+  trainer: 'gradient-boosting' | 'random-forest' | 'lstm';
   params: Record<string, number>;
   tuning: null | { evaluations: number; initial: number };
   bundle: number;
@@ -94,6 +95,46 @@ export const fitJob: JobHandler = async (job, { db, progress, signal }) => {
   const forcingNames = (p.forcings ?? Object.keys(series.forcings)).filter((n) => n in series.forcings).sort();
   // Past runs issued in the validation period give the per-lead archives.
   const reforecasts = await loadReforecastSet(db, gauge.id, validation);
+  const onProgress = (pr: { stage: string; percent: number }) => {
+    void progress(pr.stage, pr.percent * 0.97);
+  };
+  // Stores the fitted version (one transaction) and answers with what the job reports.
+  const storeFit = async (out: Omit<FitOutput, 'parts' | 'trials'> & { parts: { onnx: Uint8Array }[] }, trainer: Record<string, unknown>, extraPeriods: Record<string, Period>) => {
+    const perLead = perLeadParts(out.perLead);
+    const scores = perLead.scores ? { ...out.scores, reforecasts: perLead.scores } : out.scores;
+    await progress('storing the model version', 98);
+    const versionId = await db.transaction(async (tx) => {
+      const id = await insertModelVersion(tx, {
+        gaugeId: gauge.id,
+        origin: 'fitted',
+        label: p.label ?? `${p.trainer}${p.tuning ? ' tuned' : ''} ${iso(Date.now()).slice(0, 16)}Z`,
+        featureSpec: out.spec,
+        trainer,
+        periods: { calibration: { from: iso(calibration.fromMs), to: iso(calibration.toMs) }, validation: { from: iso(validation.fromMs), to: iso(validation.toMs) }, ...Object.fromEntries(Object.entries(extraPeriods).map(([k, v]) => [k, { from: iso(v.fromMs), to: iso(v.toMs) }])) },
+        scores,
+        createdBy: job.createdBy,
+        parts: out.parts.map((part) => part.onnx),
+        correctedArchive: out.correctedArchive,
+        rawArchive: out.rawArchive,
+        perLeadArchives: perLead.archives,
+      });
+      if (p.activate) await activateModelVersion(tx, gauge.id, id);
+      return id;
+    });
+    return {
+      versionId,
+      activated: p.activate,
+      scores,
+      onnxCheck: out.onnxCheck,
+      archives: { leadFree: out.correctedArchive.summary, perLead: perLead.archives?.corrected.summary ?? null, perLeadNote: out.perLead ? out.perLead.reason : 'no past runs (reforecasts) issued in the validation period' },
+    };
+  };
+  if (p.trainer === 'lstm') {
+    const handle = runCompute<LstmFitOutput>({ kind: 'fit-lstm', series, options: lstmFitOptions(p, { calibration, validation }, forcingNames, reforecasts) }, onProgress);
+    signal.addEventListener('abort', () => handle.cancel());
+    const out = await handle.result;
+    return storeFit(out, lstmTrainerRecord(out, p.seed), { stopping: out.periods.stopping, scored: out.periods.scored });
+  }
   const options: FitOptions = {
     calibration,
     validation,
@@ -110,39 +151,11 @@ export const fitJob: JobHandler = async (job, { db, progress, signal }) => {
     maxTrainRows: p.maxTrainRows,
     reforecasts,
   };
-  const handle = runCompute<FitOutput>({ kind: 'fit', series, options }, (pr) => {
-    void progress(pr.stage, pr.percent * 0.97);
-  });
+  const handle = runCompute<FitOutput>({ kind: 'fit', series, options }, onProgress);
   signal.addEventListener('abort', () => handle.cancel());
   const out = await handle.result;
-  const perLead = perLeadParts(out.perLead);
-  const scores = perLead.scores ? { ...out.scores, reforecasts: perLead.scores } : out.scores;
-  await progress('storing the model version', 98);
-  const versionId = await db.transaction(async (tx) => {
-    const id = await insertModelVersion(tx, {
-      gaugeId: gauge.id,
-      origin: 'fitted',
-      label: p.label ?? `${p.trainer}${p.tuning ? ' tuned' : ''} ${iso(Date.now()).slice(0, 16)}Z`,
-      featureSpec: out.spec,
-      trainer: { kind: p.trainer, bundle: out.parts.map((part) => ({ params: part.params, validationRmse: part.validationRmse, trees: part.trees })), trials: out.trials, seed: p.seed, rows: out.rows, onnxCheck: out.onnxCheck },
-      periods: { calibration: { from: iso(calibration.fromMs), to: iso(calibration.toMs) }, validation: { from: iso(validation.fromMs), to: iso(validation.toMs) } },
-      scores,
-      createdBy: job.createdBy,
-      parts: out.parts.map((part) => part.onnx),
-      correctedArchive: out.correctedArchive,
-      rawArchive: out.rawArchive,
-      perLeadArchives: perLead.archives,
-    });
-    if (p.activate) await activateModelVersion(tx, gauge.id, id);
-    return id;
-  });
-  return {
-    versionId,
-    activated: p.activate,
-    scores,
-    onnxCheck: out.onnxCheck,
-    archives: { leadFree: out.correctedArchive.summary, perLead: perLead.archives?.corrected.summary ?? null, perLeadNote: out.perLead ? out.perLead.reason : 'no past runs (reforecasts) issued in the validation period' },
-  };
+  const trainer = { kind: p.trainer, bundle: out.parts.map((part) => ({ params: part.params, validationRmse: part.validationRmse, trees: part.trees })), trials: out.trials, seed: p.seed, rows: out.rows, onnxCheck: out.onnxCheck };
+  return storeFit(out, trainer, {});
 };
 
 /** Builds the raw members' error archive alone, so degraded mode works before any model is fitted. */

@@ -1,7 +1,8 @@
 import type { InferenceSession } from 'onnxruntime-node';
 import { dayOfYearUtc } from '../core/day-of-year.ts';
 import type { ErrorArchive } from '../core/error-archive.ts';
-import { servingRows, type FeatureSpec, type RunInput } from '../core/features.ts';
+import type { RunInput } from '../core/features.ts';
+import { rowShape, servingInputs, type ResidualSpec } from '../core/model-inputs.ts';
 import { runStochasticStage, type StochasticResult, type StochasticWorkspace } from '../core/stochastic-stage.ts';
 import { predictResiduals } from './onnx-session.ts';
 
@@ -38,7 +39,7 @@ export function rawAtLeads(run: RunInput): Float64Array {
  */
 export async function correctRun(
   run: RunInput,
-  spec: FeatureSpec | null,
+  spec: ResidualSpec | null,
   sessions: InferenceSession[],
   archive: ErrorArchive,
   options: CorrectionOptions,
@@ -53,13 +54,13 @@ export async function correctRun(
   let stageInput = raw;
   let corrected: Float64Array | null = null;
   if (sessions.length) {
-    const rows = servingRows(spec!, run);
+    const rows = servingInputs(spec!, run);
     featuresMs = performance.now() - t;
     t = performance.now();
     stageInput = new Float64Array(sessions.length * nM * H);
     corrected = new Float64Array(nM * H);
     for (let s = 0; s < sessions.length; s++) {
-      const residual = await predictResiduals(sessions[s], rows.rows, rows.nRows, rows.nFeatures);
+      const residual = await predictResiduals(sessions[s], rows.rows, rows.nRows, rows.nFeatures, rowShape(spec!));
       for (let i = 0; i < nM * H; i++) {
         const v = Math.max(0, raw[i] + residual[i]);
         if (!Number.isFinite(v)) throw new Error(`the residual model returned a non-finite value for member ${Math.floor(i / H)} at lead ${(i % H) + 1}`);

@@ -4,10 +4,12 @@ import { parentPort } from 'node:worker_threads';
 import type { InferenceSession } from 'onnxruntime-node';
 import { archiveFromBytes } from '../core/archive-codec.ts';
 import type { ErrorArchive } from '../core/error-archive.ts';
-import { checkFeatureSpec, featureCount, FeatureInputError, type FeatureSpec, type RunInput } from '../core/features.ts';
+import { FeatureInputError, type RunInput } from '../core/features.ts';
+import { checkResidualSpec, type ResidualSpec } from '../core/model-inputs.ts';
 import { createStochasticWorkspace } from '../core/stochastic-stage.ts';
 import { correctRun, type CorrectionOptions } from './correct-run.ts';
-import { createResidualSession, predictResiduals } from './onnx-session.ts';
+import { warmSession } from './model-shape.ts';
+import { createResidualSession } from './onnx-session.ts';
 
 export type CorrectionRequest =
   | { type: 'load-model'; id: number; versionId: string; parts: Uint8Array[]; spec: unknown }
@@ -16,18 +18,17 @@ export type CorrectionRequest =
 
 const MAX_MODELS = 8;
 const MAX_ARCHIVES = 16;
-const models = new Map<string, { spec: FeatureSpec; sessions: InferenceSession[] }>();
+const models = new Map<string, { spec: ResidualSpec; sessions: InferenceSession[] }>();
 const archives = new Map<string, ErrorArchive>();
 const workspace = createStochasticWorkspace();
 
 async function loadModel(versionId: string, parts: Uint8Array[], spec: unknown): Promise<void> {
   if (models.has(versionId)) return;
-  const checked = checkFeatureSpec(spec);
+  const checked = checkResidualSpec(spec);
   const sessions = [];
   for (const bytes of parts) sessions.push(await createResidualSession(bytes));
   // Warm: one inference so the first real run does not pay for lazy initialisation.
-  const width = featureCount(checked);
-  for (const s of sessions) await predictResiduals(s, new Float32Array(width), 1, width);
+  for (const s of sessions) await warmSession(s, checked);
   models.set(versionId, { spec: checked, sessions });
   while (models.size > MAX_MODELS) {
     const oldest = models.keys().next().value!;
