@@ -58,7 +58,7 @@ describe('uploading a PyTorch LSTM or GRU taking [N, window, steps]', () => {
     expect(body.modelVersion.id).toBe(v.id);
     expect(body.caution).toMatch(/responsible local authority/);
     expect(body.ensemble.corrected).toHaveLength(6);
-    for (const m of body.ensemble.corrected as number[][]) for (const x of m) expect(Number.isFinite(x) && x >= 0).toBe(true);
+    for (const m of body.ensemble.corrected as { values: number[] }[]) for (const x of m.values) expect(Number.isFinite(x) && x >= 0).toBe(true);
   });
 
   it('serves a run whose warm-up is shorter than the window from the archived simulations', async () => {
@@ -71,6 +71,8 @@ describe('uploading a PyTorch LSTM or GRU taking [N, window, steps]', () => {
     const b = await t.as('ingest', { method: 'POST', url: `/gauges/${gaugeId}/runs`, payload: { ...scenarioRunBody(full), source: 'full' } });
     expect(a.statusCode, a.body).toBe(201);
     expect(b.statusCode, b.body).toBe(201);
+    expect([a.json().status, b.json().status]).toEqual(['corrected', 'corrected']);
+    expect(a.json().modelVersion.id).toBe(res.json().id);
     // The scenario's warm-up values are the members' continuous simulations, so both give the same correction.
     expect(a.json().ensemble.corrected).toEqual(b.json().ensemble.corrected);
   });
