@@ -121,6 +121,16 @@ describe('the in-house LSTM as a fit job', () => {
     const run = await t.as('ingest', { method: 'POST', url: `/gauges/${gaugeId}/runs`, payload: { ...scenarioRunBody(scenario.forecastRun(lastIndex - 50)), source: 'lstm' } });
     expect(run.statusCode, run.body).toBe(201);
     expect(run.json()).toMatchObject({ status: 'corrected', modelVersion: { id: v.id } });
+
+    // A hindcast of the LSTM version over its validation period, like any other version's.
+    const h = await t.as('admin', { method: 'POST', url: `/gauges/${gaugeId}/hindcasts`, payload: { version: v.id, trajectories: 100 } });
+    expect(h.statusCode, h.body).toBe(202);
+    await runner.drain();
+    const done = (await t.as('read', { method: 'GET', url: `/gauges/${gaugeId}/hindcasts/${h.json().id}` })).json();
+    expect(done.status, done.error).toBe('succeeded');
+    expect(done.result).toMatchObject({ mode: 'simulation', modelVersion: { id: v.id }, correction: 'per-valid-time' });
+    expect(done.result.issues.used).toBeGreaterThan(100);
+    expect(done.result.comparison.corrected.crps.crps).toBeLessThan(done.result.comparison.raw.crps.crps);
   });
 
   it('tunes hidden size, window and learning rate by Bayesian optimisation', async () => {
