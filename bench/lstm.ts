@@ -6,6 +6,7 @@ import { availableParallelism, cpus, loadavg } from 'node:os';
 import { rowShape, servingInputs } from '../src/core/model-inputs.ts';
 import type { RunInput } from '../src/core/features.ts';
 import { fitLstmResidualModel, lstmSpec } from '../src/models/lstm-fit.ts';
+import { fitResidualModel } from '../src/models/residual-fit.ts';
 import { lstmModelToOnnx } from '../src/models/lstm-onnx-export.ts';
 import { predictLstm } from '../src/models/lstm/forward.ts';
 import { createResidualSession, predictResiduals } from '../src/models/onnx-session.ts';
@@ -108,13 +109,43 @@ console.log(`\ninference, ${MEMBERS} members × ${LEADS} leads (${MEMBERS * LEAD
 console.log(`  fitted model (hidden ${fit.model.hidden}, window ${spec.window}): windows ${fitted.windowsMs.toFixed(2)} ms + onnxruntime ${fitted.inferenceMs.toFixed(2)} ms = ${(fitted.windowsMs + fitted.inferenceMs).toFixed(2)} ms wall, ${fitted.cpuMs.toFixed(1)} ms CPU (goal ≤ 10 ms)`);
 
 // How the cost grows with the model: same weights shape, other sizes (random weights; speed only).
-for (const [h, t] of [[8, 7], [8, 14], [16, 7], [32, 14], [16, 30]]) {
+for (const [h, t] of [[8, 5], [8, 10], [16, 5], [16, 10], [32, 10], [16, 30]]) {
   const s = lstmSpec(series, t, ['air_temperature', 'precipitation'], true, periods.calibration);
   const F = s.steps.length;
   const rand = (n: number) => Float32Array.from({ length: n }, (_, i) => Math.fround(0.1 * Math.sin(i * 12.9898)));
   const model = { kind: 'lstm' as const, nInputs: F, hidden: h, wInput: rand(4 * h * F), wHidden: rand(4 * h * h), biasInput: rand(4 * h), biasHidden: new Float32Array(4 * h), wOut: rand(h), bOut: 0, info: {} };
   const r = await timeInference(lstmModelToOnnx(model, { window: t }), s);
   console.log(`  hidden ${String(h).padStart(2)}, window ${String(t).padStart(2)}: windows ${r.windowsMs.toFixed(2)} ms + onnxruntime ${r.inferenceMs.toFixed(2)} ms = ${(r.windowsMs + r.inferenceMs).toFixed(2)} ms wall, ${r.cpuMs.toFixed(1)} ms CPU`);
+}
+
+// The default trees on the same run, for comparison (gradient boosting with the API's defaults).
+{
+  const trees = await fitResidualModel(series, {
+    ...periods,
+    trainer: 'gradient-boosting',
+    params: { nRounds: 400, learningRate: 0.08, maxDepth: 5, patience: 30 },
+    tuning: null,
+    bundle: 1,
+    seed: 1,
+    simLags: 9,
+    forcings: [{ name: 'air_temperature', lags: 3 }, { name: 'precipitation', lags: 3 }],
+    seasonal: true,
+    transform: { kind: 'log' },
+    templateLength: 30,
+    maxTrainRows: 200_000,
+  });
+  const session = await createResidualSession(trees.parts[0].onnx);
+  const run = runFor(10);
+  const times: number[] = [];
+  for (let i = 0; i < repeats + 3; i++) {
+    const a = cpuMs();
+    const rows = servingInputs(trees.spec, run);
+    await predictResiduals(session, rows.rows, rows.nRows, rows.nFeatures);
+    if (i >= 3) times.push(cpuMs() - a);
+  }
+  await session.release();
+  times.sort((x, y) => x - y);
+  console.log(`  gradient-boosted trees (${trees.parts[0].model.trees.length} trees, ${trees.rows.calibration} rows): feature rows + onnxruntime ${times[Math.floor(times.length / 2)].toFixed(1)} ms CPU`);
 }
 
 // The in-process forward pass on the same batch, for scale.
