@@ -1,4 +1,4 @@
-import { rankTemplateValues, validateArchive, type ErrorArchive } from './error-archive.ts';
+import { rankTemplateValues, validateArchive, type ErrorArchive, type NeighbourSettings } from './error-archive.ts';
 import type { ErrorTransform } from './error-transform.ts';
 
 /**
@@ -9,7 +9,8 @@ import type { ErrorTransform } from './error-transform.ts';
  *   0   4 bytes  ASCII "ERRA"
  *   4   uint32   layout version (1)
  *   8   uint32   byte length J of the JSON header
- *   12  J bytes  UTF-8 JSON {format, transform, nLeads, templateLength, nCases, nTemplates, seriesLength}
+ *   12  J bytes  UTF-8 JSON {format, transform, nLeads, templateLength, nCases, nTemplates, seriesLength,
+ *                neighbours?}
  *   then, each starting at a multiple of 8 bytes (zero padding):
  *       groupStart Int32[max(nLeads,1)+1], predictor Float64[nCases], error Float64[nCases],
  *       dayOfYear Uint16[nCases], templateValues Float64[seriesLength] (NaN = missing),
@@ -30,6 +31,7 @@ interface Header {
   nCases: number;
   nTemplates: number;
   seriesLength: number;
+  neighbours?: NeighbourSettings;
 }
 
 function assertLittleEndian(): void {
@@ -50,6 +52,7 @@ export function archiveToBytes(a: ErrorArchive): Uint8Array {
     nCases: a.predictor.length,
     nTemplates: a.templateStart.length,
     seriesLength: a.templateValues.length,
+    ...(a.neighbours ? { neighbours: a.neighbours } : {}),
   };
   const json = new TextEncoder().encode(JSON.stringify(header));
   const sections: ArrayBufferView[] = [
@@ -116,6 +119,7 @@ export function archiveFromBytes(bytes: Uint8Array): ErrorArchive {
     templateStart,
     templateDayOfYear,
     templateRank: rankTemplateValues(templateValues, h.nLeads),
+    ...(h.neighbours ? { neighbours: h.neighbours } : {}),
   };
   validateArchive(a);
   return a;
@@ -134,6 +138,7 @@ export interface ErrorArchiveJson {
   templateValues: (number | null)[];
   templateStart: number[];
   templateDayOfYear: number[];
+  neighbours?: NeighbourSettings;
 }
 
 export function archiveToJSON(a: ErrorArchive): ErrorArchiveJson {
@@ -149,6 +154,7 @@ export function archiveToJSON(a: ErrorArchive): ErrorArchiveJson {
     templateValues: Array.from(a.templateValues, (v) => (Number.isNaN(v) ? null : v)),
     templateStart: Array.from(a.templateStart),
     templateDayOfYear: Array.from(a.templateDayOfYear),
+    ...(a.neighbours ? { neighbours: a.neighbours } : {}),
   };
 }
 
@@ -167,6 +173,7 @@ export function archiveFromJSON(j: ErrorArchiveJson): ErrorArchive {
     templateStart: Int32Array.from(j.templateStart),
     templateDayOfYear: Uint16Array.from(j.templateDayOfYear),
     templateRank: rankTemplateValues(templateValues, j.nLeads),
+    ...(j.neighbours ? { neighbours: j.neighbours } : {}),
   };
   validateArchive(a);
   return a;

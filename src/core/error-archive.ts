@@ -5,6 +5,7 @@ import {
   type ErrorTransform,
   type ErrorTransformSpec,
 } from './error-transform.ts';
+import { NEIGHBOUR_KERNELS, type NeighbourKernel } from './knn.ts';
 
 /**
  * Error archive for the stochastic error stage: past cases of (predictor = corrected flow,
@@ -23,10 +24,11 @@ import {
  *   dayOfYear[i]  day of year (1 … 366) of the case's valid time
  *
  * Templates: templateValues is one series of historical errors (transform space, NaN where the
- * observation was missing). Template t at lead h is templateValues[templateStart[t] + h],
- * h < templateLength. Lead-free archives store the error series itself and templates are
- * windows starting on consecutive (or every `templateStride`-th) days with no gap; reforecast
- * archives store the issue × lead error matrix row-major and each complete issue row is a
+ * observation was missing and no template covers it). Template t at lead h is
+ * templateValues[templateStart[t] + h], h < templateLength. Lead-free archives store the error
+ * series itself and templates are windows starting on consecutive (or every `templateStride`-th)
+ * days with at most TEMPLATE_MAX_MISSING missing, filled by interpolation; reforecast archives
+ * store the issue × lead error matrix row-major and each issue row as nearly complete is a
  * template. templateDayOfYear[t] is the day of year of the template's first value (lead 0).
  * templateRank is derived, not stored: the rank of each series value (ties broken by position,
  * missing = 0xffffffff) among all finite values (lead-free) or within its lead column
@@ -47,7 +49,17 @@ export interface ErrorArchive {
   templateStart: Int32Array;
   templateDayOfYear: Uint16Array;
   templateRank: Uint32Array;
+  /** Neighbour kernel and k = round(kScale·√n) chosen on held-out data at fit time (absent: 1/j, √n). */
+  neighbours?: NeighbourSettings;
 }
+
+export interface NeighbourSettings {
+  kernel: NeighbourKernel;
+  kScale: number;
+}
+
+/** Largest share of a template window that may be missing (filled from its neighbours). */
+export const TEMPLATE_MAX_MISSING = 0.1;
 
 export const MISSING_RANK = 0xffffffff;
 
@@ -105,10 +117,57 @@ function packCases(
   return { groupStart, predictor, error, dayOfYear };
 }
 
+/**
+ * Starts of the template windows [s, s + L) of an error series: every `stride`-th window whose
+ * missing values are at most TEMPLATE_MAX_MISSING of its length (real series have scattered gaps;
+ * demanding complete windows leaves none of a long horizon).
+ */
+export function templateWindowStarts(series: Float64Array, L: number, stride = 1): number[] {
+  const maxMissing = Math.floor(TEMPLATE_MAX_MISSING * L);
+  const starts: number[] = [];
+  let missing = 0;
+  let eligible = 0;
+  for (let e = 0; e < series.length; e++) {
+    if (Number.isNaN(series[e])) missing++;
+    const s = e - L + 1;
+    if (s > 0 && Number.isNaN(series[s - 1])) missing--;
+    if (s >= 0 && missing <= maxMissing && missing < L) {
+      if (eligible % stride === 0) starts.push(s);
+      eligible++;
+    }
+  }
+  return starts;
+}
+
+/**
+ * Fills the missing values inside the template windows by linear interpolation between the
+ * nearest present values of the series (the nearest one at an edge), searched within [lo, hi).
+ * Only the templates' rank order uses the filled values; the kNN cases never do.
+ */
+export function fillTemplateGaps(series: Float64Array, starts: ArrayLike<number>, L: number, lo = 0, hi = series.length): void {
+  const covered = new Int32Array(hi - lo + 1);
+  for (let t = 0; t < starts.length; t++) {
+    covered[starts[t] - lo]++;
+    covered[starts[t] + L - lo]--;
+  }
+  let depth = 0;
+  for (let i = lo; i < hi; i++) {
+    depth += covered[i - lo];
+    if (depth === 0 || !Number.isNaN(series[i])) continue;
+    let a = i - 1;
+    while (a >= lo && Number.isNaN(series[a])) a--;
+    let b = i + 1;
+    while (b < hi && Number.isNaN(series[b])) b++;
+    const va = a >= lo ? series[a] : NaN;
+    const vb = b < hi ? series[b] : NaN;
+    series[i] = Number.isNaN(va) ? vb : Number.isNaN(vb) ? va : va + ((vb - va) * (i - a)) / (b - a);
+  }
+}
+
 export interface SeriesArchiveInput {
   /** Corrected (or raw) simulated flow per time step. */
   corrected: ArrayLike<number | null>;
-  /** Observed flow per time step; null/NaN = missing (case skipped, breaks template windows). */
+  /** Observed flow per time step; null/NaN = missing (case skipped; filled in template windows). */
   observed: ArrayLike<number | null>;
   /** Day of year (1 … 366) of each time step. */
   dayOfYear: ArrayLike<number>;
@@ -122,7 +181,7 @@ export interface SeriesArchiveInput {
 /**
  * Lead-free archive from a continuous series (e.g. a validation-period simulation after the
  * residual model): every step with both values is a case; templates are windows of
- * `templateLength` consecutive errors with no missing value.
+ * `templateLength` consecutive errors with at most TEMPLATE_MAX_MISSING of them missing.
  */
 export function buildArchiveFromSeries(input: SeriesArchiveInput): ErrorArchive {
   const { corrected, observed, dayOfYear } = input;
@@ -156,18 +215,8 @@ export function buildArchiveFromSeries(input: SeriesArchiveInput): ErrorArchive 
     doy[k] = dayOfYear[i];
     k++;
   }
-  // Window [s, s + L) is complete when it holds no missing value: track the last gap seen.
-  const starts: number[] = [];
-  let lastGap = -1;
-  let complete = 0;
-  for (let e = 0; e < S; e++) {
-    if (Number.isNaN(series[e])) lastGap = e;
-    const s = e - L + 1;
-    if (s >= 0 && lastGap < s) {
-      if (complete % stride === 0) starts.push(s);
-      complete++;
-    }
-  }
+  const starts = templateWindowStarts(series, L, stride);
+  fillTemplateGaps(series, starts, L);
   const templateStart = Int32Array.from(starts);
   const templateDayOfYear = Uint16Array.from(starts, (s) => dayOfYear[s]);
   return {
@@ -197,7 +246,8 @@ export interface ReforecastArchiveInput {
 
 /**
  * Archive from reforecasts: the case of (issue, lead) goes to the group of its lead; each issue
- * whose errors are complete over all leads is a template (its historical error trajectory).
+ * whose errors miss at most TEMPLATE_MAX_MISSING of its leads is a template (its historical error
+ * trajectory, gaps filled).
  */
 export function buildArchiveFromReforecasts(input: ReforecastArchiveInput): ErrorArchive {
   const { nIssues, nLeads, corrected, observed, dayOfYear } = input;
@@ -224,13 +274,14 @@ export function buildArchiveFromReforecasts(input: ReforecastArchiveInput): Erro
   const err = new Float64Array(n);
   const doy = new Uint16Array(n);
   const starts: number[] = [];
+  const maxMissing = Math.floor(TEMPLATE_MAX_MISSING * nLeads);
   let k = 0;
   for (let is = 0; is < nIssues; is++) {
-    let completeRow = true;
+    let missing = 0;
     for (let h = 0; h < nLeads; h++) {
       const i = is * nLeads + h;
       if (Number.isNaN(matrix[i])) {
-        completeRow = false;
+        missing++;
         continue;
       }
       group[k] = h;
@@ -239,8 +290,9 @@ export function buildArchiveFromReforecasts(input: ReforecastArchiveInput): Erro
       doy[k] = dayOfYear[i];
       k++;
     }
-    if (completeRow) starts.push(is * nLeads);
+    if (missing <= maxMissing && missing < nLeads) starts.push(is * nLeads);
   }
+  for (const st of starts) fillTemplateGaps(matrix, [st], nLeads, st, st + nLeads);
   return {
     format: 1,
     transform,
@@ -258,6 +310,11 @@ export function buildArchiveFromReforecasts(input: ReforecastArchiveInput): Erro
 export function validateArchive(a: ErrorArchive): void {
   if (a.format !== 1) throw new RangeError(`unsupported archive format ${String(a.format)}`);
   checkTransform(a.transform);
+  if (a.neighbours !== undefined) {
+    const { kernel, kScale } = a.neighbours;
+    if (!NEIGHBOUR_KERNELS.includes(kernel)) throw new RangeError(`unknown neighbour kernel ${String(kernel)}`);
+    if (!(typeof kScale === 'number' && kScale > 0 && Number.isFinite(kScale))) throw new RangeError('neighbour kScale must be a positive number');
+  }
   const nGroups = Math.max(a.nLeads, 1);
   if (!Number.isInteger(a.nLeads) || a.nLeads < 0) throw new RangeError('nLeads must be an integer ≥ 0');
   if (a.groupStart.length !== nGroups + 1 || a.groupStart[0] !== 0 || a.groupStart[nGroups] !== a.predictor.length) {
