@@ -120,9 +120,11 @@ function packCases(
 /**
  * Starts of the template windows [s, s + L) of an error series: every `stride`-th window whose
  * missing values are at most TEMPLATE_MAX_MISSING of its length (real series have scattered gaps;
- * demanding complete windows leaves none of a long horizon).
+ * demanding complete windows leaves none of a long horizon). With segmentLength, the series is
+ * equal segments laid end to end (members' series concatenated) and no window crosses from one
+ * segment into the next.
  */
-export function templateWindowStarts(series: Float64Array, L: number, stride = 1): number[] {
+export function templateWindowStarts(series: Float64Array, L: number, stride = 1, segmentLength = series.length): number[] {
   const maxMissing = Math.floor(TEMPLATE_MAX_MISSING * L);
   const starts: number[] = [];
   let missing = 0;
@@ -131,7 +133,8 @@ export function templateWindowStarts(series: Float64Array, L: number, stride = 1
     if (Number.isNaN(series[e])) missing++;
     const s = e - L + 1;
     if (s > 0 && Number.isNaN(series[s - 1])) missing--;
-    if (s >= 0 && missing <= maxMissing && missing < L) {
+    const oneSegment = Math.floor(s / segmentLength) === Math.floor(e / segmentLength);
+    if (s >= 0 && oneSegment && missing <= maxMissing && missing < L) {
       if (eligible % stride === 0) starts.push(s);
       eligible++;
     }
@@ -141,19 +144,21 @@ export function templateWindowStarts(series: Float64Array, L: number, stride = 1
 
 /**
  * Fills the missing values inside the template windows by linear interpolation between the
- * nearest present values of the series (the nearest one at an edge), searched within [lo, hi).
- * Only the templates' rank order uses the filled values; the kNN cases never do.
+ * nearest present values of the same segment (the nearest one at an edge). Only the templates'
+ * rank order uses the filled values; the kNN cases never do.
  */
-export function fillTemplateGaps(series: Float64Array, starts: ArrayLike<number>, L: number, lo = 0, hi = series.length): void {
-  const covered = new Int32Array(hi - lo + 1);
+export function fillTemplateGaps(series: Float64Array, starts: ArrayLike<number>, L: number, segmentLength = series.length): void {
+  const covered = new Int32Array(series.length + 1);
   for (let t = 0; t < starts.length; t++) {
-    covered[starts[t] - lo]++;
-    covered[starts[t] + L - lo]--;
+    covered[starts[t]]++;
+    covered[starts[t] + L]--;
   }
   let depth = 0;
-  for (let i = lo; i < hi; i++) {
-    depth += covered[i - lo];
+  for (let i = 0; i < series.length; i++) {
+    depth += covered[i];
     if (depth === 0 || !Number.isNaN(series[i])) continue;
+    const lo = Math.floor(i / segmentLength) * segmentLength;
+    const hi = Math.min(series.length, lo + segmentLength);
     let a = i - 1;
     while (a >= lo && Number.isNaN(series[a])) a--;
     let b = i + 1;
@@ -163,6 +168,24 @@ export function fillTemplateGaps(series: Float64Array, starts: ArrayLike<number>
     series[i] = Number.isNaN(va) ? vb : Number.isNaN(vb) ? va : va + ((vb - va) * (i - a)) / (b - a);
   }
 }
+
+/**
+ * Why an archive cannot serve runs of `horizon` steps with a Schaake shuffle, or null when it can:
+ * a lead without cases, or fewer than `minTemplates` templates of that length.
+ */
+export function templateShortfall(a: ErrorArchive, horizon: number, minTemplates = MIN_TEMPLATES): string | null {
+  for (let g = 0; g < Math.max(a.nLeads, 1); g++) {
+    if (a.groupStart[g + 1] === a.groupStart[g]) return a.nLeads ? `no case at lead ${g + 1}` : 'no case (no step has both a simulated and an observed flow)';
+  }
+  if (a.templateLength < horizon) return `Schaake templates cover ${a.templateLength} steps; runs need ${horizon}`;
+  if (a.templateStart.length < minTemplates) {
+    return `only ${a.templateStart.length} Schaake templates of ${a.templateLength} steps (each may miss at most ${Math.round(TEMPLATE_MAX_MISSING * 100)} % of its observations); at least ${minTemplates} are needed: shorten templateLength or fill the observation gaps`;
+  }
+  return null;
+}
+
+/** Fewest templates an archive needs to serve runs (common practice here: fewer make the shuffle's dependence rest on a handful of past situations). */
+export const MIN_TEMPLATES = 20;
 
 export interface SeriesArchiveInput {
   /** Corrected (or raw) simulated flow per time step. */
@@ -174,8 +197,10 @@ export interface SeriesArchiveInput {
   transform?: ErrorTransformSpec;
   /** Length of each template window in steps: the longest horizon the archive can shuffle. */
   templateLength: number;
-  /** Keep every n-th complete window as a template (default 1: every start). */
+  /** Keep every n-th eligible window as a template (default 1: every start). */
   templateStride?: number;
+  /** The series is equal segments of this length end to end (members); windows stay in one. */
+  segmentLength?: number;
 }
 
 /**
@@ -215,8 +240,10 @@ export function buildArchiveFromSeries(input: SeriesArchiveInput): ErrorArchive 
     doy[k] = dayOfYear[i];
     k++;
   }
-  const starts = templateWindowStarts(series, L, stride);
-  fillTemplateGaps(series, starts, L);
+  const segment = input.segmentLength ?? S;
+  if (!Number.isInteger(segment) || segment < 1) throw new RangeError('segmentLength must be a positive integer');
+  const starts = templateWindowStarts(series, L, stride, segment);
+  fillTemplateGaps(series, starts, L, segment);
   const templateStart = Int32Array.from(starts);
   const templateDayOfYear = Uint16Array.from(starts, (s) => dayOfYear[s]);
   return {
@@ -292,7 +319,7 @@ export function buildArchiveFromReforecasts(input: ReforecastArchiveInput): Erro
     }
     if (missing <= maxMissing && missing < nLeads) starts.push(is * nLeads);
   }
-  for (const st of starts) fillTemplateGaps(matrix, [st], nLeads, st, st + nLeads);
+  fillTemplateGaps(matrix, starts, nLeads, nLeads);
   return {
     format: 1,
     transform,

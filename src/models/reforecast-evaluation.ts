@@ -158,7 +158,7 @@ function summaryOf(a: ErrorArchive, L: Layout, given: number, issues: number): P
 function unusable(a: ErrorArchive, issues: number): string | null {
   if (issues < MIN_PER_LEAD_ISSUES) return `only ${issues} past runs have observed leads; at least ${MIN_PER_LEAD_ISSUES} are needed`;
   for (let h = 0; h < a.nLeads; h++) if (a.groupStart[h + 1] === a.groupStart[h]) return `no case at lead ${h + 1}`;
-  if (!a.templateStart.length) return 'no past run is complete over all its leads (no Schaake template)';
+  if (!a.templateStart.length) return 'no past run has its leads observed nearly completely (no Schaake template)';
   return null;
 }
 

@@ -1,7 +1,7 @@
 import { archiveToBytes } from '../core/archive-codec.ts';
 import { dayOfYearUtc } from '../core/day-of-year.ts';
 import { deterministicScores } from '../core/deterministic-scores.ts';
-import { buildArchiveFromSeries, type ErrorArchive } from '../core/error-archive.ts';
+import { buildArchiveFromSeries, templateShortfall, type ErrorArchive } from '../core/error-archive.ts';
 import type { ErrorTransformSpec } from '../core/error-transform.ts';
 import { continuousRows, type FeatureSpec } from '../core/features.ts';
 
@@ -152,7 +152,12 @@ export async function evaluateResidualModel(
   // so their errors are near-duplicates, and every extra case slows the neighbour search (k = √n).
   const keep = archiveMembers(nM);
   const pick = (a: Float64Array) => concatMembers(a, keep, stride);
-  const archiveInput = { observed: pick(obsCat), dayOfYear: pickDoy(doyCat, keep, stride), transform: options.transform, templateLength: options.templateLength };
+  const archiveInput = { observed: pick(obsCat), dayOfYear: pickDoy(doyCat, keep, stride), transform: options.transform, templateLength: options.templateLength, segmentLength: stride };
+  const correctedArchive = buildArchiveFromSeries({ ...archiveInput, corrected: pick(corCat) });
+  // A fit whose archive cannot shuffle runs of the horizon it was asked for fails here, with the
+  // reason, rather than succeed and have every run refused.
+  const shortfall = templateShortfall(correctedArchive, options.templateLength);
+  if (shortfall) throw new Error(`the validation period cannot make the error archive: ${shortfall}`);
   return {
     scores: {
       period: { from: iso(validation.fromMs), to: iso(validation.toMs) },
@@ -162,7 +167,7 @@ export async function evaluateResidualModel(
       memberMean: memberScores,
       ensembleMean: { nseBefore: ensBefore.nse, nseAfter: ensAfter.nse, kgeBefore: ensBefore.kge, kgeAfter: ensAfter.kge },
     },
-    correctedArchive: buildArchiveFromSeries({ ...archiveInput, corrected: pick(corCat) }),
+    correctedArchive,
     rawArchive: buildArchiveFromSeries({ ...archiveInput, corrected: pick(maskWhere(rawCat, corCat)) }),
   };
 }
@@ -204,7 +209,10 @@ export function rawArchiveFromSeries(series: ArchiveSeries, period: Period, opti
       doy[k * stride + j] = dayOfYearUtc(series.times[i]);
     });
   });
-  return buildArchiveFromSeries({ corrected: raw, observed: obs, dayOfYear: doy, transform: options.transform, templateLength: options.templateLength });
+  const archive = buildArchiveFromSeries({ corrected: raw, observed: obs, dayOfYear: doy, transform: options.transform, templateLength: options.templateLength, segmentLength: stride });
+  const shortfall = templateShortfall(archive, options.templateLength);
+  if (shortfall) throw new Error(`the period cannot make the raw error archive: ${shortfall}`);
+  return archive;
 }
 
 export function archiveSummary(a: ErrorArchive): { cases: number; templates: number; templateLength: number; transform: unknown } {
