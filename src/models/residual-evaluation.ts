@@ -1,7 +1,8 @@
 import { archiveToBytes } from '../core/archive-codec.ts';
 import { dayOfYearUtc } from '../core/day-of-year.ts';
 import { deterministicScores } from '../core/deterministic-scores.ts';
-import { buildArchiveFromSeries, templateShortfall, type ErrorArchive } from '../core/error-archive.ts';
+import { buildArchiveFromSeries, templateShortfall, type ErrorArchive, type NeighbourSettings } from '../core/error-archive.ts';
+import { chooseNeighboursByHalves, type NeighbourScore } from '../core/neighbour-choice.ts';
 import type { ErrorTransformSpec } from '../core/error-transform.ts';
 import { continuousRows, type FeatureSpec } from '../core/features.ts';
 
@@ -39,6 +40,8 @@ export interface ValidationScores {
   memberMean: { nseBefore: number; nseAfter: number; kgeBefore: number; kgeAfter: number };
   /** Scores of the ensemble mean, before and after correction. */
   ensembleMean: { nseBefore: number; nseAfter: number; kgeBefore: number; kgeAfter: number };
+  /** The stochastic stage's neighbour kernel and k chosen on these errors, with every candidate's scores. */
+  neighbours: { chosen: NeighbourSettings; candidates: NeighbourScore[] };
 }
 
 export interface Evaluation {
@@ -158,6 +161,11 @@ export async function evaluateResidualModel(
   // reason, rather than succeed and have every run refused.
   const shortfall = templateShortfall(correctedArchive, options.templateLength);
   if (shortfall) throw new Error(`the validation period cannot make the error archive: ${shortfall}`);
+  const rawArchive = buildArchiveFromSeries({ ...archiveInput, corrected: pick(maskWhere(rawCat, corCat)) });
+  // The stage's kernel and k, chosen on these held-out errors (two folds by time) so the PIT is uniform.
+  const neighbours = chooseNeighboursByHalves({ corrected: pick(corCat), observed: archiveInput.observed, segmentLength: stride, transform: correctedArchive.transform });
+  correctedArchive.neighbours = neighbours.settings;
+  rawArchive.neighbours = chooseNeighboursByHalves({ corrected: pick(maskWhere(rawCat, corCat)), observed: archiveInput.observed, segmentLength: stride, transform: rawArchive.transform }).settings;
   return {
     scores: {
       period: { from: iso(validation.fromMs), to: iso(validation.toMs) },
@@ -166,9 +174,10 @@ export async function evaluateResidualModel(
       residualRmse: { before: Math.sqrt(residualSq.before / residualSq.n), after: Math.sqrt(residualSq.after / residualSq.n) },
       memberMean: memberScores,
       ensembleMean: { nseBefore: ensBefore.nse, nseAfter: ensAfter.nse, kgeBefore: ensBefore.kge, kgeAfter: ensAfter.kge },
+      neighbours: { chosen: neighbours.settings, candidates: neighbours.scores },
     },
     correctedArchive,
-    rawArchive: buildArchiveFromSeries({ ...archiveInput, corrected: pick(maskWhere(rawCat, corCat)) }),
+    rawArchive,
   };
 }
 
@@ -212,11 +221,12 @@ export function rawArchiveFromSeries(series: ArchiveSeries, period: Period, opti
   const archive = buildArchiveFromSeries({ corrected: raw, observed: obs, dayOfYear: doy, transform: options.transform, templateLength: options.templateLength, segmentLength: stride });
   const shortfall = templateShortfall(archive, options.templateLength);
   if (shortfall) throw new Error(`the period cannot make the raw error archive: ${shortfall}`);
+  archive.neighbours = chooseNeighboursByHalves({ corrected: raw, observed: obs, segmentLength: stride, transform: archive.transform }).settings;
   return archive;
 }
 
-export function archiveSummary(a: ErrorArchive): { cases: number; templates: number; templateLength: number; transform: unknown } {
-  return { cases: a.predictor.length, templates: a.templateStart.length, templateLength: a.templateLength, transform: a.transform };
+export function archiveSummary(a: ErrorArchive): { cases: number; templates: number; templateLength: number; transform: unknown; neighbours: NeighbourSettings | null } {
+  return { cases: a.predictor.length, templates: a.templateStart.length, templateLength: a.templateLength, transform: a.transform, neighbours: a.neighbours ?? null };
 }
 
 export { archiveToBytes };
