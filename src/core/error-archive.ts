@@ -287,14 +287,35 @@ export function buildArchiveFromReforecasts(input: ReforecastArchiveInput): Erro
   }
   const transform = resolveTransform(input.transform ?? { kind: 'none' }, observed);
   const matrix = new Float64Array(size).fill(NaN);
-  let n = 0;
   for (let i = 0; i < size; i++) {
-    checkDayOfYear(dayOfYear[i], `dayOfYear[${i}]`);
     const c = corrected[i];
     const o = observed[i];
     if (!finite(c) || !finite(o)) continue;
     matrix[i] = forwardTransform(transform, o) - forwardTransform(transform, c);
-    n++;
+  }
+  return archiveFromErrorMatrix({ nIssues, nLeads, predictor: corrected, error: matrix, dayOfYear, transform });
+}
+
+/**
+ * Per-lead archive from an issue × lead matrix of predictors and errors (transform space, NaN =
+ * no case), laid out row-major; see buildArchiveFromReforecasts.
+ */
+export function archiveFromErrorMatrix(input: {
+  nIssues: number;
+  nLeads: number;
+  predictor: ArrayLike<number | null>;
+  error: Float64Array;
+  dayOfYear: ArrayLike<number>;
+  transform: ErrorTransform;
+}): ErrorArchive {
+  const { nIssues, nLeads, predictor, error: matrix, dayOfYear, transform } = input;
+  let n = 0;
+  for (let i = 0; i < matrix.length; i++) {
+    checkDayOfYear(dayOfYear[i], `dayOfYear[${i}]`);
+    if (!Number.isNaN(matrix[i])) {
+      if (!finite(predictor[i])) throw new RangeError(`case ${i} has an error but no predictor`);
+      n++;
+    }
   }
   const group = new Int32Array(n);
   const pred = new Float64Array(n);
@@ -312,7 +333,7 @@ export function buildArchiveFromReforecasts(input: ReforecastArchiveInput): Erro
         continue;
       }
       group[k] = h;
-      pred[k] = corrected[i] as number;
+      pred[k] = predictor[i] as number;
       err[k] = matrix[i];
       doy[k] = dayOfYear[i];
       k++;

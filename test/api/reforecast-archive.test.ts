@@ -39,20 +39,20 @@ async function fit(body: object) {
 }
 
 /**
- * What the per-lead archive must hold, counted from the scenario: cases per lead, and templates:
- * the rows missing at most 10 % of their leads (one of ten here).
+ * What the per-lead archive must hold, counted from the scenario: one case per issue and observed
+ * lead (the ensemble mean's error), and templates: the issues missing at most 10 % of their leads
+ * (one of ten here).
  */
 function expected(runs: ForecastRun[]) {
-  const M = scenario.memberIds.length;
   const perLead = new Array(LEADS).fill(0);
   let templates = 0;
   let issues = 0;
   for (const run of runs) {
     const obs = scenario.observedFlow.slice(run.issueTimeIndex + 1, run.issueTimeIndex + 1 + LEADS);
     obs.forEach((y, h) => {
-      if (y !== null) perLead[h] += M;
+      if (y !== null) perLead[h] += 1;
     });
-    if (obs.filter((y) => y === null).length <= Math.floor(0.1 * LEADS)) templates += M;
+    if (obs.filter((y) => y === null).length <= Math.floor(0.1 * LEADS)) templates += 1;
     if (obs.some((y) => y !== null)) issues++;
   }
   return { perLead, cases: perLead.reduce((a, b) => a + b, 0), templates, issues };
@@ -118,10 +118,10 @@ describe('per-lead error archives after fitting', () => {
       expect(a.nLeads).toBe(LEADS);
       expect(a.templateLength).toBe(LEADS);
       expect(a.groupStart).toHaveLength(LEADS + 1);
-      // Every issue × member is one row of the issue × lead matrix: cases per lead and complete rows.
+      // Every issue is one row of the issue × lead matrix: cases per lead and (nearly) complete rows.
       expect(groupSizes(a)).toEqual(want.perLead);
       expect(a.templateStart).toHaveLength(want.templates);
-      expect(a.templateValues).toHaveLength(inArchive.length * scenario.memberIds.length * LEADS);
+      expect(a.templateValues).toHaveLength(inArchive.length * LEADS);
       expect(stored.summary).toMatchObject({ nLeads: LEADS, issues: want.issues, issuesGiven: inArchive.length, members: 4, cases: want.cases, templates: want.templates });
     }
     // The lead-free archive is unchanged: one group serving every lead, templates of the asked length.
@@ -130,25 +130,25 @@ describe('per-lead error archives after fitting', () => {
     expect(leadFree.templateLength).toBe(30);
   });
 
-  it("the raw per-lead archive holds the stored runs' values and their errors against the observations", async () => {
+  it("the raw per-lead archive holds the stored runs' ensemble means and their errors against the observations", async () => {
     const a = archiveFromBytes((await versionArchive(t.db, versionId, 'raw', 'per-lead'))!.bytes);
     if (a.transform.kind !== 'log') throw new Error('the fit asked for the default log transform');
     const offset = a.transform.offset;
     for (const h of [0, LEADS - 1]) {
-      const values: number[] = [];
+      const means: number[] = [];
       let errorSum = 0;
       for (const run of inArchive) {
         const y = scenario.observedFlow[run.issueTimeIndex + 1 + h];
         if (y === null) continue;
-        for (const m of run.members) {
-          const x = m.values[m.warmupSteps + h];
-          values.push(x);
-          errorSum += Math.log(y + offset) - Math.log(x + offset);
-        }
+        // The ensemble mean in the log space of the errors.
+        const logMean = run.members.reduce((sum, m) => sum + Math.log(m.values[m.warmupSteps + h] + offset), 0) / run.members.length;
+        means.push(Math.exp(logMean) - offset);
+        errorSum += Math.log(y + offset) - logMean;
       }
       const got = Array.from(a.predictor.subarray(a.groupStart[h], a.groupStart[h + 1]));
-      expect(got).toEqual(values.sort((p, q) => p - q));
-      const err = a.error.subarray(a.groupStart[h], a.groupStart[h + 1]).reduce((s, e) => s + e, 0);
+      means.sort((p, q) => p - q).forEach((m, i) => expect(got[i]).toBeCloseTo(m, 9));
+      // The dressing shrinks each error towards the lead's mean error, so their sum is unchanged.
+      const err = a.error.subarray(a.groupStart[h], a.groupStart[h + 1]).reduce((sum, e) => sum + e, 0);
       expect(err).toBeCloseTo(errorSum, 8);
     }
   });
@@ -161,14 +161,17 @@ describe('per-lead error archives after fitting', () => {
     const served = res.json();
     expect(served.status).toBe('corrected');
     const a = archiveFromBytes((await versionArchive(t.db, versionId, 'corrected', 'per-lead'))!.bytes);
+    if (a.transform.kind !== 'log') throw new Error('the fit asked for the default log transform');
+    const offset = a.transform.offset;
     for (let h = 0; h < LEADS; h++) {
       if (scenario.observedFlow[i + 1 + h] === null) continue;
       const group = a.predictor.subarray(a.groupStart[h], a.groupStart[h + 1]);
-      for (const member of served.ensemble.corrected as { values: number[] }[]) {
-        // Served values are rounded to 1e-4; the nearest archived case must be that value.
-        const nearest = group.reduce((best, x) => (Math.abs(x - member.values[h]) < Math.abs(best - member.values[h]) ? x : best), Infinity);
-        expect(Math.abs(nearest - member.values[h])).toBeLessThanOrEqual(5e-5 + 1e-9);
-      }
+      // The archived case of this issue is the served corrected members' mean (in log space).
+      const members = served.ensemble.corrected as { values: number[] }[];
+      const mean = Math.exp(members.reduce((sum, m) => sum + Math.log(m.values[h] + offset), 0) / members.length) - offset;
+      const nearest = group.reduce((best, x) => (Math.abs(x - mean) < Math.abs(best - mean) ? x : best), Infinity);
+      // Served values are rounded to 1e-4.
+      expect(Math.abs(nearest - mean)).toBeLessThanOrEqual(1e-4);
     }
   });
 
@@ -178,7 +181,8 @@ describe('per-lead error archives after fitting', () => {
     const r = version.scores.reforecasts;
     expect(r.perLeadArchive).toMatchObject({ stored: true, nLeads: LEADS, issues: expected(inArchive).issues });
     expect(r.byLead).toHaveLength(LEADS);
-    expect(r.cases).toBe(expected(inArchive).cases);
+    // The residual scores count every member at every observed lead; the archive one case per issue.
+    expect(r.cases).toBe(expected(inArchive).cases * scenario.memberIds.length);
     expect(r.note).toMatch(/observed\) forcings at the lead times/);
   });
 });
