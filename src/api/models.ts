@@ -172,7 +172,8 @@ export async function modelRoutes(app: FastifyInstance, { services }: { services
         label: body.label,
         featureSpec: spec,
         trainer: { kind: 'uploaded', description: body.description ?? null, producer: summary.producer, opsets: summary.opsets, bytes: onnx.length },
-        periods: { validation: out.scores.period },
+        // Trained elsewhere: whether the validation period was seen in training is not known here.
+        periods: { validation: out.scores.period, archive: out.scores.period, archiveSource: 'unknown (trained elsewhere)' },
         scores,
         createdBy: req.principal?.tokenId ?? null,
         parts: [onnx],
