@@ -1,4 +1,4 @@
-import { rankTemplateValues, validateArchive, type ErrorArchive, type NeighbourSettings } from './error-archive.ts';
+import { archiveStrata, rankTemplateValues, validateArchive, type ErrorArchive, type NeighbourSettings } from './error-archive.ts';
 import type { ErrorTransform } from './error-transform.ts';
 
 /**
@@ -10,9 +10,9 @@ import type { ErrorTransform } from './error-transform.ts';
  *   4   uint32   layout version (1)
  *   8   uint32   byte length J of the JSON header
  *   12  J bytes  UTF-8 JSON {format, transform, nLeads, templateLength, nCases, nTemplates, seriesLength,
- *                neighbours?}
+ *                neighbours?, issueErrorEdges?}
  *   then, each starting at a multiple of 8 bytes (zero padding):
- *       groupStart Int32[max(nLeads,1)+1], predictor Float64[nCases], error Float64[nCases],
+ *       groupStart Int32[max(nLeads,1)·strata+1], predictor Float64[nCases], error Float64[nCases],
  *       dayOfYear Uint16[nCases], templateValues Float64[seriesLength] (NaN = missing),
  *       templateStart Int32[nTemplates], templateDayOfYear Uint16[nTemplates]
  * Size ≈ 18 bytes per case + 8 per template series value + 6 per template.
@@ -32,6 +32,7 @@ interface Header {
   nTemplates: number;
   seriesLength: number;
   neighbours?: NeighbourSettings;
+  issueErrorEdges?: number[];
 }
 
 function assertLittleEndian(): void {
@@ -53,6 +54,7 @@ export function archiveToBytes(a: ErrorArchive): Uint8Array {
     nTemplates: a.templateStart.length,
     seriesLength: a.templateValues.length,
     ...(a.neighbours ? { neighbours: a.neighbours } : {}),
+    ...(a.issueErrorEdges ? { issueErrorEdges: Array.from(a.issueErrorEdges) } : {}),
   };
   const json = new TextEncoder().encode(JSON.stringify(header));
   const sections: ArrayBufferView[] = [
@@ -99,7 +101,8 @@ export function archiveFromBytes(bytes: Uint8Array): ErrorArchive {
     off += pad8(len);
     return make(buf);
   };
-  const groupStart = take(Math.max(h.nLeads, 1) + 1, 4, (b) => new Int32Array(b));
+  const issueErrorEdges = h.issueErrorEdges ? Float64Array.from(h.issueErrorEdges) : undefined;
+  const groupStart = take(Math.max(h.nLeads, 1) * archiveStrata({ issueErrorEdges }) + 1, 4, (b) => new Int32Array(b));
   const predictor = take(h.nCases, 8, (b) => new Float64Array(b));
   const error = take(h.nCases, 8, (b) => new Float64Array(b));
   const dayOfYear = take(h.nCases, 2, (b) => new Uint16Array(b));
@@ -120,6 +123,7 @@ export function archiveFromBytes(bytes: Uint8Array): ErrorArchive {
     templateDayOfYear,
     templateRank: rankTemplateValues(templateValues, h.nLeads),
     ...(h.neighbours ? { neighbours: h.neighbours } : {}),
+    ...(issueErrorEdges ? { issueErrorEdges } : {}),
   };
   validateArchive(a);
   return a;
@@ -139,6 +143,7 @@ export interface ErrorArchiveJson {
   templateStart: number[];
   templateDayOfYear: number[];
   neighbours?: NeighbourSettings;
+  issueErrorEdges?: number[];
 }
 
 export function archiveToJSON(a: ErrorArchive): ErrorArchiveJson {
@@ -155,6 +160,7 @@ export function archiveToJSON(a: ErrorArchive): ErrorArchiveJson {
     templateStart: Array.from(a.templateStart),
     templateDayOfYear: Array.from(a.templateDayOfYear),
     ...(a.neighbours ? { neighbours: a.neighbours } : {}),
+    ...(a.issueErrorEdges ? { issueErrorEdges: Array.from(a.issueErrorEdges) } : {}),
   };
 }
 
@@ -174,6 +180,7 @@ export function archiveFromJSON(j: ErrorArchiveJson): ErrorArchive {
     templateDayOfYear: Uint16Array.from(j.templateDayOfYear),
     templateRank: rankTemplateValues(templateValues, j.nLeads),
     ...(j.neighbours ? { neighbours: j.neighbours } : {}),
+    ...(j.issueErrorEdges ? { issueErrorEdges: Float64Array.from(j.issueErrorEdges) } : {}),
   };
   validateArchive(a);
   return a;

@@ -15,10 +15,14 @@ import { NEIGHBOUR_KERNELS, type NeighbourKernel } from './knn.ts';
  * bytes (archive-codec.ts).
  *
  * Cases are grouped by lead index; a lead-free archive (nLeads = 0, from a continuous
- * simulation) has one group serving every lead. Within a group, cases are sorted ascending by
+ * simulation) has one group serving every lead. Archives whose cases know the error at their
+ * issue time (past runs, pseudo-forecasts) may also split each lead into strata of that issue
+ * error (issueErrorEdges, ascending; S = edges + 1 strata), so a run issued while the model is far
+ * off draws errors from similar situations. Within a group, cases are sorted ascending by
  * predictor so the nearest neighbours of a value are found by binary search.
  *
- *   group g (0 … max(nLeads, 1) − 1) = cases groupStart[g] … groupStart[g + 1] − 1
+ *   group g = lead group · S + stratum (lead group 0 … max(nLeads, 1) − 1)
+ *           = cases groupStart[g] … groupStart[g + 1] − 1
  *   predictor[i]  corrected flow of case i (m³/s)
  *   error[i]      T(observed) − T(corrected) in the archive's transform space
  *   dayOfYear[i]  day of year (1 … 366) of the case's valid time
@@ -51,6 +55,26 @@ export interface ErrorArchive {
   templateRank: Uint32Array;
   /** Neighbour kernel and k = round(kScale·√n) chosen on held-out data at fit time (absent: 1/j, √n). */
   neighbours?: NeighbourSettings;
+  /** Edges of the issue-error strata (transform space, ascending); absent = one stratum. */
+  issueErrorEdges?: Float64Array;
+}
+
+/** Number of issue-error strata of an archive. */
+export function archiveStrata(a: Pick<ErrorArchive, 'issueErrorEdges'>): number {
+  return (a.issueErrorEdges?.length ?? 0) + 1;
+}
+
+/** The stratum (0 … edges.length) of an issue error: how many edges lie at or below it. */
+export function stratumOf(edges: ArrayLike<number> | undefined, e: number): number {
+  let s = 0;
+  if (edges) while (s < edges.length && edges[s] <= e) s++;
+  return s;
+}
+
+/** Cases of lead group g over all its strata. */
+export function casesInLeadGroup(a: Pick<ErrorArchive, 'groupStart' | 'issueErrorEdges'>, g: number): number {
+  const S = archiveStrata(a);
+  return a.groupStart[(g + 1) * S] - a.groupStart[g * S];
 }
 
 export interface NeighbourSettings {
@@ -175,7 +199,7 @@ export function fillTemplateGaps(series: Float64Array, starts: ArrayLike<number>
  */
 export function templateShortfall(a: ErrorArchive, horizon: number, minTemplates = MIN_TEMPLATES): string | null {
   for (let g = 0; g < Math.max(a.nLeads, 1); g++) {
-    if (a.groupStart[g + 1] === a.groupStart[g]) return a.nLeads ? `no case at lead ${g + 1}` : 'no case (no step has both a simulated and an observed flow)';
+    if (casesInLeadGroup(a, g) === 0) return a.nLeads ? `no case at lead ${g + 1}` : 'no case (no step has both a simulated and an observed flow)';
   }
   if (a.templateLength < horizon) return `Schaake templates cover ${a.templateLength} steps; runs need ${horizon}`;
   if (a.templateStart.length < minTemplates) {
@@ -296,6 +320,19 @@ export function buildArchiveFromReforecasts(input: ReforecastArchiveInput): Erro
   return archiveFromErrorMatrix({ nIssues, nLeads, predictor: corrected, error: matrix, dayOfYear, transform });
 }
 
+/** Edges at the j/S quantiles (j = 1 … S − 1) of the finite issue errors, repeats dropped. */
+function issueErrorEdges(issueError: ArrayLike<number>, S: number): Float64Array | undefined {
+  if (!Number.isInteger(S) || S < 1) throw new RangeError('strata must be a positive integer');
+  const v = Float64Array.from(issueError).filter((x) => Number.isFinite(x)).sort();
+  if (S === 1 || v.length < 2 * S) return undefined;
+  const edges: number[] = [];
+  for (let j = 1; j < S; j++) {
+    const e = v[Math.floor((j * v.length) / S)];
+    if (!edges.length || e > edges[edges.length - 1]) edges.push(e);
+  }
+  return edges.length ? Float64Array.from(edges) : undefined;
+}
+
 /**
  * Per-lead archive from an issue × lead matrix of predictors and errors (transform space, NaN =
  * no case), laid out row-major; see buildArchiveFromReforecasts.
@@ -307,8 +344,15 @@ export function archiveFromErrorMatrix(input: {
   error: Float64Array;
   dayOfYear: ArrayLike<number>;
   transform: ErrorTransform;
+  /** Error at each issue row's issue time (transform space; NaN = unknown): cases are split into strata of it. */
+  issueError?: ArrayLike<number>;
+  /** Strata of the issue error (default 5 when issueError is given). */
+  strata?: number;
 }): ErrorArchive {
   const { nIssues, nLeads, predictor, error: matrix, dayOfYear, transform } = input;
+  if (input.issueError && input.issueError.length !== nIssues) throw new RangeError('issueError must hold one value per issue row');
+  const edges = input.issueError ? issueErrorEdges(input.issueError, input.strata ?? 5) : undefined;
+  const S = (edges?.length ?? 0) + 1;
   let n = 0;
   for (let i = 0; i < matrix.length; i++) {
     checkDayOfYear(dayOfYear[i], `dayOfYear[${i}]`);
@@ -332,7 +376,9 @@ export function archiveFromErrorMatrix(input: {
         missing++;
         continue;
       }
-      group[k] = h;
+      // A row with an unknown issue error joins the middle stratum.
+      const ie = input.issueError ? input.issueError[is] : NaN;
+      group[k] = h * S + (Number.isNaN(ie) ? S >> 1 : stratumOf(edges, ie));
       pred[k] = predictor[i] as number;
       err[k] = matrix[i];
       doy[k] = dayOfYear[i];
@@ -345,7 +391,8 @@ export function archiveFromErrorMatrix(input: {
     format: 1,
     transform,
     nLeads,
-    ...packCases(nLeads, group, pred, err, doy),
+    ...(edges ? { issueErrorEdges: edges } : {}),
+    ...packCases(nLeads * S, group, pred, err, doy),
     templateLength: nLeads,
     templateValues: matrix,
     templateStart: Int32Array.from(starts),
@@ -363,7 +410,13 @@ export function validateArchive(a: ErrorArchive): void {
     if (!NEIGHBOUR_KERNELS.includes(kernel)) throw new RangeError(`unknown neighbour kernel ${String(kernel)}`);
     if (!(typeof kScale === 'number' && kScale > 0 && Number.isFinite(kScale))) throw new RangeError('neighbour kScale must be a positive number');
   }
-  const nGroups = Math.max(a.nLeads, 1);
+  if (a.issueErrorEdges !== undefined) {
+    if (a.nLeads === 0) throw new RangeError('issue-error strata need a per-lead archive');
+    for (let j = 0; j < a.issueErrorEdges.length; j++) {
+      if (!Number.isFinite(a.issueErrorEdges[j]) || (j > 0 && !(a.issueErrorEdges[j] > a.issueErrorEdges[j - 1]))) throw new RangeError('issueErrorEdges must be finite and increasing');
+    }
+  }
+  const nGroups = Math.max(a.nLeads, 1) * archiveStrata(a);
   if (!Number.isInteger(a.nLeads) || a.nLeads < 0) throw new RangeError('nLeads must be an integer ≥ 0');
   if (a.groupStart.length !== nGroups + 1 || a.groupStart[0] !== 0 || a.groupStart[nGroups] !== a.predictor.length) {
     throw new RangeError('groupStart does not match the cases');

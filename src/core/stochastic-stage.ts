@@ -1,4 +1,4 @@
-import { MISSING_RANK, type ErrorArchive } from './error-archive.ts';
+import { archiveStrata, MISSING_RANK, stratumOf, type ErrorArchive } from './error-archive.ts';
 import { countAboveSorted } from './exceedance.ts';
 import { circularDayDistance, defaultK, kernelCumulative, type NeighbourKernel } from './knn.ts';
 import { createPrng, type Prng } from './prng.ts';
@@ -16,8 +16,8 @@ import { forwardTransform } from './error-transform.ts';
  *  1. Each draw j is given one (model, member) for the whole horizon: members are dealt out in
  *     turn and the deal shuffled, so every member carries N / (models × members) draws (±1).
  *  2. For every (model, member, lead), the k archived cases nearest in predictor value (same
- *     lead group; optionally within ±seasonalWindowDays of the lead's valid day of year,
- *     circular) are found; cases at equal distance (tied predictors, zero flows) are taken in a
+ *     lead group and, for archives split by issue error, the member's issue-error stratum;
+ *     optionally within ±seasonalWindowDays of the lead's valid day of year, circular) are found; cases at equal distance (tied predictors, zero flows) are taken in a
  *     random (seeded) order, never by their position in the archive. k = round(kScale·√n) of the
  *     candidates unless given.
  *  3. At each lead every draw picks one of its member's k neighbours with the kernel (default
@@ -60,6 +60,12 @@ export interface StochasticInput {
   nLeads: number;
   /** Valid-time day of year (1 … 366) per lead, or one value for all leads. Needed for seasonal windows. */
   dayOfYear?: ArrayLike<number> | number;
+  /**
+   * Error at issue time per (model·nMembers + member), in the archive's transform space
+   * (T(observed) − T(member)); NaN = unknown. With an archive split into issue-error strata each
+   * member draws from the stratum of its own issue error (unknown: the middle one).
+   */
+  issueError?: ArrayLike<number>;
 }
 
 export interface StochasticOptions {
@@ -214,13 +220,28 @@ export function runStochasticStage(
   const kFor = (n: number): number => Math.min(n, options.k ?? Math.max(1, Math.round(kScale * defaultK(n))));
 
   const { predictor, dayOfYear: caseDoy, groupStart } = archive;
+  // Issue-error strata: each member searches the stratum of its own issue error (the middle one
+  // when the run gives none). Strata are fixed over the horizon.
+  const S = archiveStrata(archive);
+  const memberStratum = workspace.i32('memberStratum', nMM);
+  const stratumUsed = new Uint8Array(S);
+  if (input.issueError !== undefined && input.issueError.length !== nMM) throw new RangeError(`issueError must hold one value per model and member (${nMM})`);
+  for (let mm = 0; mm < nMM; mm++) {
+    const ie = input.issueError ? input.issueError[mm] : NaN;
+    memberStratum[mm] = S === 1 ? 0 : Number.isFinite(ie) ? stratumOf(archive.issueErrorEdges, ie) : S >> 1;
+    stratumUsed[memberStratum[mm]] = 1;
+  }
   let maxGroup = 0;
-  const nGroups = leadFree ? 1 : archive.nLeads;
+  const nGroups = (leadFree ? 1 : archive.nLeads) * S;
   for (let g = 0; g < nGroups; g++) maxGroup = Math.max(maxGroup, groupStart[g + 1] - groupStart[g]);
   const kStride = Math.max(1, kFor(maxGroup));
   for (let h = 0; h < H; h++) {
-    const g = leadFree ? 0 : h;
-    if (groupStart[g + 1] === groupStart[g]) throw new RangeError(`the archive has no cases for lead ${h}`);
+    const lg = leadFree ? 0 : h;
+    for (let st = 0; st < S; st++) {
+      if (stratumUsed[st] && groupStart[lg * S + st + 1] === groupStart[lg * S + st]) {
+        throw new RangeError(S > 1 ? `the archive has no cases for lead ${h} in issue-error stratum ${st}` : `the archive has no cases for lead ${h}`);
+      }
+    }
   }
 
   // ---- transform of the members ------------------------------------------------------------
@@ -252,10 +273,15 @@ export function runStochasticStage(
   // ---- candidates per (group, day of year) --------------------------------------------------
   // Candidates of the current (group, day) are copied between sentinels (−∞ first, +∞ last) so
   // the nearest-first walk needs no bounds checks.
+  // With strata, each used stratum's candidates live in their own slice of cP/cE (stride maxGroup + 2).
   const nbErr = workspace.f64('nbErr', nMM * kStride); // [mm·kStride + rank], current lead
   const kPerLead = new Int32Array(H);
-  const cP = workspace.f64('candPred', maxGroup + 2);
-  const cE = workspace.f64('candErr', maxGroup + 2);
+  const cStride = maxGroup + 2;
+  const cPAll = workspace.f64('candPred', S * cStride);
+  const cEAll = workspace.f64('candErr', S * cStride);
+  const nCandOf = new Int32Array(S);
+  const cP = cPAll.subarray(0, cStride);
+  const cE = cEAll.subarray(0, cStride);
   const tieIdx = workspace.i32('tieIdx', maxGroup + 2);
   let lastGroup = -1;
   let lastDoy = -1;
@@ -373,45 +399,58 @@ export function runStochasticStage(
   const maxRank = leadFree ? archive.templateValues.length : Math.ceil(archive.templateValues.length / archive.nLeads);
   if (maxRank * TIE_SPAN > Number.MAX_SAFE_INTEGER) throw new RangeError('archive template series too long for the shuffle keys');
   for (let h = 0; h < H; h++) {
-    const g = leadFree ? 0 : h;
-    const gs = groupStart[g];
-    const ge = groupStart[g + 1];
-    // The window's centre follows the lead's day of year in steps of a tenth of the window (at
-    // least a day): rescanning the group for every day of a long daily horizon costs more than
-    // the rest of the stage, and a shift of a few days in a ±60-day window changes little.
-    if (g !== lastGroup || (window !== null && circularDayDistance(doy[h], lastDoy) >= Math.max(1, window / 10))) {
-      nCand = 0;
-      if (window !== null) {
-        for (let d = 1; d <= 366; d++) inWindow[d] = circularDayDistance(d, doy[h]) <= window ? 1 : 0;
-        if (useSuperset) {
-          if (superDoy < 0 || circularDayDistance(doy[h], superDoy) > margin) {
-            for (let d = 1; d <= 366; d++) inSuper[d] = circularDayDistance(d, doy[h]) <= window + margin ? 1 : 0;
-            nSuper = gatherSuperset(predictor, error, caseDoy, gs, ge, inSuper, sP, sE, sD);
-            superDoy = doy[h];
+    let k = kStride;
+    if (S === 1) {
+      const g = leadFree ? 0 : h;
+      const gs = groupStart[g];
+      const ge = groupStart[g + 1];
+      // The window's centre follows the lead's day of year in steps of a tenth of the window (at
+      // least a day): rescanning the group for every day of a long daily horizon costs more than
+      // the rest of the stage, and a shift of a few days in a ±60-day window changes little.
+      if (g !== lastGroup || (window !== null && circularDayDistance(doy[h], lastDoy) >= Math.max(1, window / 10))) {
+        nCand = 0;
+        if (window !== null) {
+          for (let d = 1; d <= 366; d++) inWindow[d] = circularDayDistance(d, doy[h]) <= window ? 1 : 0;
+          if (useSuperset) {
+            if (superDoy < 0 || circularDayDistance(doy[h], superDoy) > margin) {
+              for (let d = 1; d <= 366; d++) inSuper[d] = circularDayDistance(d, doy[h]) <= window + margin ? 1 : 0;
+              nSuper = gatherSuperset(predictor, error, caseDoy, gs, ge, inSuper, sP, sE, sD);
+              superDoy = doy[h];
+            }
+            nCand = gatherInWindow(sP, sE, sD, 0, nSuper, inWindow, cP, cE);
+          } else {
+            nCand = gatherInWindow(predictor, error, caseDoy, gs, ge, inWindow, cP, cE);
           }
-          nCand = gatherInWindow(sP, sE, sD, 0, nSuper, inWindow, cP, cE);
-        } else {
-          nCand = gatherInWindow(predictor, error, caseDoy, gs, ge, inWindow, cP, cE);
         }
+        nCand = nCand || gatherAll(predictor, error, gs, ge, cP, cE);
+        lastGroup = g;
+        lastDoy = doy[h];
       }
-      // No window, or an empty one: the whole lead group.
-      if (nCand === 0) {
-        for (let i = gs; i < ge; i++) {
-          nCand++;
-          cP[nCand] = predictor[i];
-          cE[nCand] = error[i];
-        }
+      k = Math.min(kFor(nCand), kStride);
+      for (let mm = 0; mm < nMM; mm++) {
+        nearestWithRandomTies(members[mm * H + h], cP, cE, nCand, k, nbErr, mm * kStride, tieIdx, rngTies);
       }
-      cP[0] = -Infinity;
-      cP[nCand + 1] = Infinity;
-      lastGroup = g;
-      lastDoy = doy[h];
+    } else {
+      // Per stratum: the window's cases of this lead and stratum (all of them when the window holds none).
+      if (window !== null) for (let d = 1; d <= 366; d++) inWindow[d] = circularDayDistance(d, doy[h]) <= window ? 1 : 0;
+      for (let st = 0; st < S; st++) {
+        if (!stratumUsed[st]) continue;
+        const gs = groupStart[h * S + st];
+        const ge = groupStart[h * S + st + 1];
+        const p = cPAll.subarray(st * cStride, (st + 1) * cStride);
+        const e = cEAll.subarray(st * cStride, (st + 1) * cStride);
+        const nc = window !== null ? gatherInWindow(predictor, error, caseDoy, gs, ge, inWindow, p, e) : 0;
+        nCandOf[st] = nc || gatherAll(predictor, error, gs, ge, p, e);
+        k = Math.min(k, kFor(nCandOf[st]));
+      }
+      for (let mm = 0; mm < nMM; mm++) {
+        const st = memberStratum[mm];
+        const p = cPAll.subarray(st * cStride, (st + 1) * cStride);
+        const e = cEAll.subarray(st * cStride, (st + 1) * cStride);
+        nearestWithRandomTies(members[mm * H + h], p, e, nCandOf[st], k, nbErr, mm * kStride, tieIdx, rngTies);
+      }
     }
-    const k = Math.min(kFor(nCand), kStride);
     kPerLead[h] = k;
-    for (let mm = 0; mm < nMM; mm++) {
-      nearestWithRandomTies(members[mm * H + h], cP, cE, nCand, k, nbErr, mm * kStride, tieIdx, rngTies);
-    }
     if (k !== cumK) {
       kernelCumulative(kernel, k, cum);
       const cTop = cum[k - 1];
@@ -596,11 +635,29 @@ function shuffleWithinMembers(
   }
 }
 
+/** Copies every case gs … ge−1 to cP/cE[1 …] and sets the sentinels; returns how many. */
+function gatherAll(predictor: Float64Array, error: Float64Array, gs: number, ge: number, cP: Float64Array, cE: Float64Array): number {
+  let n = 0;
+  for (let i = gs; i < ge; i++) {
+    n++;
+    cP[n] = predictor[i];
+    cE[n] = error[i];
+  }
+  return withSentinels(cP, n);
+}
+
+/** Puts −∞ before and +∞ after the n candidates in cP[1 … n]; returns n. */
+function withSentinels(cP: Float64Array, n: number): number {
+  cP[0] = -Infinity;
+  cP[n + 1] = Infinity;
+  return n;
+}
+
 /**
  * Copies the cases gs … ge−1 whose day of year is marked in inWindow to cP/cE[1 …], keeping
- * their order; returns how many. Without a branch: every case is written to the next free slot
- * and the count moves only when it is inside (inside or not is unpredictable in predictor order).
- * cP/cE need room for ge − gs + 2 values.
+ * their order, and sets the sentinels; returns how many. Without a branch: every case is written to
+ * the next free slot and the count moves only when it is inside (inside or not is unpredictable in
+ * predictor order). cP/cE need room for ge − gs + 2 values.
  */
 function gatherInWindow(
   predictor: Float64Array,
@@ -618,7 +675,7 @@ function gatherInWindow(
     cE[n + 1] = error[i];
     n += inWindow[caseDoy[i]];
   }
-  return n;
+  return withSentinels(cP, n);
 }
 
 /**

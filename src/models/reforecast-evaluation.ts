@@ -1,6 +1,6 @@
 import { dayOfYearUtc } from '../core/day-of-year.ts';
 import { dressedArchiveFromRuns, type DressingSummary } from '../core/ensemble-dressing.ts';
-import type { ErrorArchive } from '../core/error-archive.ts';
+import { casesInLeadGroup, type ErrorArchive } from '../core/error-archive.ts';
 import type { ErrorTransformSpec } from '../core/error-transform.ts';
 import { reforecastRows, requiredInputs, type FeatureSpec, type ReforecastIssue } from '../core/features.ts';
 import { archiveSummary, type ArchiveSeries, type ResidualPredictor } from './residual-evaluation.ts';
@@ -184,7 +184,7 @@ function dressedArchive(values: Float64Array, observed: Float64Array, dayOfYear:
 /** Checks that an archive can serve any run up to its horizon: cases at every lead and a template. */
 function unusable(a: ErrorArchive, issues: number): string | null {
   if (issues < MIN_PER_LEAD_ISSUES) return `only ${issues} past runs have observed leads; at least ${MIN_PER_LEAD_ISSUES} are needed`;
-  for (let h = 0; h < a.nLeads; h++) if (a.groupStart[h + 1] === a.groupStart[h]) return `no case at lead ${h + 1}`;
+  for (let h = 0; h < a.nLeads; h++) if (casesInLeadGroup(a, h) === 0) return `no case at lead ${h + 1}`;
   if (!a.templateStart.length) return 'no past run has its leads observed nearly completely (no Schaake template)';
   return null;
 }
