@@ -10,7 +10,7 @@ import type { ErrorTransform } from './error-transform.ts';
  *   4   uint32   layout version (1)
  *   8   uint32   byte length J of the JSON header
  *   12  J bytes  UTF-8 JSON {format, transform, nLeads, templateLength, nCases, nTemplates, seriesLength,
- *                neighbours?, issueErrorEdges?}
+ *                neighbours?, issueErrorEdges?, leadScale?}
  *   then, each starting at a multiple of 8 bytes (zero padding):
  *       groupStart Int32[max(nLeads,1)·strata+1], predictor Float64[nCases], error Float64[nCases],
  *       dayOfYear Uint16[nCases], templateValues Float64[seriesLength] (NaN = missing),
@@ -33,6 +33,7 @@ interface Header {
   seriesLength: number;
   neighbours?: NeighbourSettings;
   issueErrorEdges?: number[];
+  leadScale?: number[];
 }
 
 function assertLittleEndian(): void {
@@ -55,6 +56,7 @@ export function archiveToBytes(a: ErrorArchive): Uint8Array {
     seriesLength: a.templateValues.length,
     ...(a.neighbours ? { neighbours: a.neighbours } : {}),
     ...(a.issueErrorEdges ? { issueErrorEdges: Array.from(a.issueErrorEdges) } : {}),
+    ...(a.leadScale ? { leadScale: Array.from(a.leadScale) } : {}),
   };
   const json = new TextEncoder().encode(JSON.stringify(header));
   const sections: ArrayBufferView[] = [
@@ -124,6 +126,7 @@ export function archiveFromBytes(bytes: Uint8Array): ErrorArchive {
     templateRank: rankTemplateValues(templateValues, h.nLeads),
     ...(h.neighbours ? { neighbours: h.neighbours } : {}),
     ...(issueErrorEdges ? { issueErrorEdges } : {}),
+    ...(h.leadScale ? { leadScale: Float64Array.from(h.leadScale) } : {}),
   };
   validateArchive(a);
   return a;
@@ -144,6 +147,7 @@ export interface ErrorArchiveJson {
   templateDayOfYear: number[];
   neighbours?: NeighbourSettings;
   issueErrorEdges?: number[];
+  leadScale?: number[];
 }
 
 export function archiveToJSON(a: ErrorArchive): ErrorArchiveJson {
@@ -161,6 +165,7 @@ export function archiveToJSON(a: ErrorArchive): ErrorArchiveJson {
     templateDayOfYear: Array.from(a.templateDayOfYear),
     ...(a.neighbours ? { neighbours: a.neighbours } : {}),
     ...(a.issueErrorEdges ? { issueErrorEdges: Array.from(a.issueErrorEdges) } : {}),
+    ...(a.leadScale ? { leadScale: Array.from(a.leadScale) } : {}),
   };
 }
 
@@ -181,6 +186,7 @@ export function archiveFromJSON(j: ErrorArchiveJson): ErrorArchive {
     templateRank: rankTemplateValues(templateValues, j.nLeads),
     ...(j.neighbours ? { neighbours: j.neighbours } : {}),
     ...(j.issueErrorEdges ? { issueErrorEdges: Float64Array.from(j.issueErrorEdges) } : {}),
+    ...(j.leadScale ? { leadScale: Float64Array.from(j.leadScale) } : {}),
   };
   validateArchive(a);
   return a;

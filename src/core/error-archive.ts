@@ -57,6 +57,12 @@ export interface ErrorArchive {
   neighbours?: NeighbourSettings;
   /** Edges of the issue-error strata (transform space, ascending); absent = one stratum. */
   issueErrorEdges?: Float64Array;
+  /**
+   * Lead-free archives: factor per lead (index h; leads past the end use the last) by which the
+   * stage scales the drawn errors, so bands grow with lead as forecast errors do (see
+   * lead-growth.ts); absent = errors do not grow with lead.
+   */
+  leadScale?: Float64Array;
 }
 
 /** Number of issue-error strata of an archive. */
@@ -409,6 +415,11 @@ export function validateArchive(a: ErrorArchive): void {
     const { kernel, kScale } = a.neighbours;
     if (!NEIGHBOUR_KERNELS.includes(kernel)) throw new RangeError(`unknown neighbour kernel ${String(kernel)}`);
     if (!(typeof kScale === 'number' && kScale > 0 && Number.isFinite(kScale))) throw new RangeError('neighbour kScale must be a positive number');
+  }
+  if (a.leadScale !== undefined) {
+    if (a.nLeads !== 0) throw new RangeError('a lead scale is for lead-free archives');
+    if (a.leadScale.length === 0) throw new RangeError('leadScale must not be empty');
+    for (const g of a.leadScale) if (!(Number.isFinite(g) && g > 0)) throw new RangeError('leadScale factors must be positive and finite');
   }
   if (a.issueErrorEdges !== undefined) {
     if (a.nLeads === 0) throw new RangeError('issue-error strata need a per-lead archive');

@@ -22,7 +22,7 @@ import { forwardTransform } from './error-transform.ts';
  *     candidates unless given.
  *  3. At each lead every draw picks one of its member's k neighbours with the kernel (default
  *     the Lall & Sharma 1/j weights) and adds its error in the archive's transform space:
- *     value = max(0, T⁻¹(T(member) + error)).
+ *     value = max(0, T⁻¹(T(member) + g_h·error)), g_h the archive's lead scale (1 without one).
  *  4. Schaake shuffle of the errors, member by member: the draws of one member are reordered
  *     so that, at each lead, the rank of their values among that member's draws follows the
  *     rank of their historical error templates. Each trajectory therefore stays on its member
@@ -262,7 +262,10 @@ export function runStochasticStage(
     }
   }
   let error = archive.error;
-  if (kind !== 0) {
+  // With a lead scale the drawn errors are scaled per lead, so their terms are made per lead from
+  // the neighbours' raw errors (scaleTerms) instead of once per case here.
+  const leadScale = leadFree ? archive.leadScale : undefined;
+  if (kind !== 0 && !leadScale) {
     // Per-case terms prepared once per call: exp(e) in log space, λ·e in Box–Cox space.
     const terms = workspace.f64('errorTerm', error.length);
     if (kind === 1) for (let i = 0; i < error.length; i++) terms[i] = Math.exp(error[i]);
@@ -451,6 +454,7 @@ export function runStochasticStage(
       }
     }
     kPerLead[h] = k;
+    if (leadScale) scaleTerms(kind, lambda, leadScale[Math.min(h, leadScale.length - 1)], nbErr, nMM, kStride, k);
     if (k !== cumK) {
       kernelCumulative(kernel, k, cum);
       const cTop = cum[k - 1];
@@ -631,6 +635,20 @@ function shuffleWithinMembers(
       const v = gv[i];
       if (v > trajMax[j]) trajMax[j] = v;
       if (trajectories !== null) trajectories[j * H + h] = invLambdaOut ? boxCoxFlow(v, invLambdaOut, offset) : v;
+    }
+  }
+}
+
+/**
+ * Turns one lead's neighbour errors e (transform space) into the terms sampleLead adds, scaled by
+ * the lead's factor g: g·e (additive), exp(g·e) (log), λ·g·e (Box–Cox).
+ */
+function scaleTerms(kind: number, lambda: number, g: number, nbErr: Float64Array, nMM: number, kStride: number, k: number): void {
+  for (let mm = 0; mm < nMM; mm++) {
+    const base = mm * kStride;
+    for (let j = 0; j < k; j++) {
+      const e = g * nbErr[base + j];
+      nbErr[base + j] = kind === 1 ? Math.exp(e) : kind === 2 ? lambda * e : e;
     }
   }
 }

@@ -2,6 +2,7 @@ import { archiveToBytes } from '../core/archive-codec.ts';
 import { dayOfYearUtc } from '../core/day-of-year.ts';
 import { deterministicScores } from '../core/deterministic-scores.ts';
 import { buildArchiveFromSeries, templateShortfall, type ErrorArchive, type NeighbourSettings } from '../core/error-archive.ts';
+import { simulationErrorVariances } from '../core/lead-growth.ts';
 import { chooseNeighboursByHalves, type NeighbourScore } from '../core/neighbour-choice.ts';
 import type { ErrorTransformSpec } from '../core/error-transform.ts';
 import { continuousRows, type FeatureSpec } from '../core/features.ts';
@@ -42,6 +43,10 @@ export interface ValidationScores {
   ensembleMean: { nseBefore: number; nseAfter: number; kgeBefore: number; kgeAfter: number };
   /** The stochastic stage's neighbour kernel and k chosen on these errors, with every candidate's scores. */
   neighbours: { chosen: NeighbourSettings; candidates: NeighbourScore[] };
+  /** Error variances of the corrected simulations (archive transform space): the baseline errors grow from with lead. */
+  errorVariances: { memberErrorVariance: number; meanErrorVariance: number };
+  /** Per lead, the factor the lead-free archive's errors are scaled by (from past runs); absent without them. */
+  leadGrowth?: number[];
 }
 
 export interface Evaluation {
@@ -175,6 +180,7 @@ export async function evaluateResidualModel(
       memberMean: memberScores,
       ensembleMean: { nseBefore: ensBefore.nse, nseAfter: ensAfter.nse, kgeBefore: ensBefore.kge, kgeAfter: ensAfter.kge },
       neighbours: { chosen: neighbours.settings, candidates: neighbours.scores },
+      errorVariances: simulationErrorVariances({ corrected: corCat, observed: obsCat, nMembers: nM, segmentLength: stride, transform: correctedArchive.transform }),
     },
     correctedArchive,
     rawArchive,
@@ -225,8 +231,15 @@ export function rawArchiveFromSeries(series: ArchiveSeries, period: Period, opti
   return archive;
 }
 
-export function archiveSummary(a: ErrorArchive): { cases: number; templates: number; templateLength: number; transform: unknown; neighbours: NeighbourSettings | null } {
-  return { cases: a.predictor.length, templates: a.templateStart.length, templateLength: a.templateLength, transform: a.transform, neighbours: a.neighbours ?? null };
+export function archiveSummary(a: ErrorArchive): { cases: number; templates: number; templateLength: number; transform: unknown; neighbours: NeighbourSettings | null; leadScale: number[] | null } {
+  return {
+    cases: a.predictor.length,
+    templates: a.templateStart.length,
+    templateLength: a.templateLength,
+    transform: a.transform,
+    neighbours: a.neighbours ?? null,
+    leadScale: a.leadScale ? Array.from(a.leadScale) : null,
+  };
 }
 
 export { archiveToBytes };

@@ -1,5 +1,6 @@
 import type { ErrorTransformSpec } from '../core/error-transform.ts';
 import { continuousRows, makeFeatureSpec, type FeatureSpec } from '../core/features.ts';
+import { leadGrowthScale } from '../core/lead-growth.ts';
 import { createPrng } from '../core/prng.ts';
 import { treeModelToOnnx } from './onnx-export.ts';
 import { createResidualSession, predictResiduals } from './onnx-session.ts';
@@ -187,6 +188,15 @@ export async function fitResidualModel(
     onProgress({ stage: 'building the per-lead error archives from the past runs', percent: 95 });
     // The lead-free archive's resolved transform, so both archives' errors share one scale.
     perLead = await evaluateReforecasts(series, options.reforecasts, spec, predictors, { transform: evaluation.correctedArchive.transform });
+    // The past runs also say how the errors grow with lead: the lead-free archive learns it too,
+    // for runs it serves while the per-lead archive has too few past runs to serve them itself.
+    if (perLead.archives) {
+      const v = evaluation.scores.errorVariances;
+      if (v.memberErrorVariance > 0 && Number.isFinite(v.meanErrorVariance)) {
+        evaluation.correctedArchive.leadScale = leadGrowthScale({ ...v, forecastMeanErrorVariance: perLead.archives.correctedSummary.dressing.byLead.map((l) => l.errorVariance) });
+        evaluation.scores.leadGrowth = Array.from(evaluation.correctedArchive.leadScale);
+      }
+    }
   }
   await Promise.all(sessions.map((s) => s.release()));
   onProgress({ stage: 'done', percent: 100 });

@@ -184,6 +184,12 @@ describe('per-lead error archives after fitting', () => {
     // The residual scores count every member at every observed lead; the archive one case per issue.
     expect(r.cases).toBe(expected(inArchive).cases * scenario.memberIds.length);
     expect(r.note).toMatch(/observed\) forcings at the lead times/);
+    // The past runs also give the lead-free archive its growth of errors with lead (factors ≥ 1).
+    const growth = version.scores.leadGrowth as number[];
+    expect(growth).toHaveLength(LEADS);
+    for (const g of growth) expect(g).toBeGreaterThanOrEqual(1);
+    const leadFree = version.archives.find((a: { kind: string; leadMode: string }) => a.kind === 'corrected' && a.leadMode === 'lead-free');
+    expect(leadFree.leadScale).toEqual(growth);
   });
 });
 
