@@ -1,7 +1,8 @@
 /**
  * Do the probabilities hold? The demo scenario (invented Corvane catchment, 20 years daily, 40
- * members) loaded through the API into the embedded store; a residual model fitted on the years
- * before the last three (its calibration and validation periods end there); then every other
+ * members) loaded through the API into the embedded store, with weekly past runs over the fitting
+ * years; a residual model fitted on the years before the last three (its calibration and
+ * validation periods end there); then every other
  * day of the last three years posted as a raw run (POST /gauges/:id/runs, 1000 trajectories) and
  * scored against the scenario's observations, which the fit never saw.
  * Prints per lead: alpha reliability index (Renard et al. 2010) of the PIT, 95 % interval coverage,
@@ -47,6 +48,15 @@ try {
   const H = scenario.horizonSteps;
   const heldOutFrom = n - HELD_OUT_DAYS;
   const split = Math.floor(heldOutFrom * 0.6);
+  // Past runs, weekly, over the fitting years (as a forecast system would have kept them).
+  const past = scenario.reforecasts({ fromIndex: split, toIndex: heldOutFrom - H - 1, everySteps: 7 });
+  for (let i = 0; i < past.length; i += 20) {
+    const res = await send('POST', `/gauges/${gaugeId}/reforecasts`, {
+      unit: 'm3/s',
+      runs: past.slice(i, i + 20).map((r) => ({ issueTime: r.issueTime, members: r.members.map((m) => ({ id: m.id, values: m.values.slice(m.warmupSteps) })) })),
+    });
+    if (res.status >= 300) throw new Error(`reforecasts: ${JSON.stringify(res.body)}`);
+  }
   const fit = await send('POST', `/gauges/${gaugeId}/models/fit`, {
     params: { nRounds: 250, patience: 20 },
     maxTrainRows: 40_000,
@@ -115,7 +125,9 @@ try {
   const tRuns = performance.now();
   const ok = (b: boolean) => (b ? 'met' : 'MISSED');
   console.log(`Held-out period: the last ${HELD_OUT_DAYS} days of ${years} years, ${runs} runs (every ${every} days), ${members} members, 1000 trajectories`);
-  console.log(`setup and fit ${((tFit - t0) / 1000).toFixed(1)} s, runs ${((tRuns - tFit) / 1000).toFixed(1)} s`);
+  console.log(`setup and fit ${((tFit - t0) / 1000).toFixed(1)} s, runs ${((tRuns - tFit) / 1000).toFixed(1)} s; ${past.length} past runs loaded`);
+  const version = (await send('GET', `/gauges/${gaugeId}/models/${job.result.versionId}`)).body as { archives: Record<string, unknown>[] };
+  for (const a of version.archives) console.log(`archive ${a.kind}/${a.leadMode}: ${JSON.stringify({ cases: a.cases, templates: a.templates, neighbours: a.neighbours, leadScale: a.leadScale })}`);
   console.log('');
   console.log('| lead | cases | alpha (goal ≥ 0.95) | 95 % coverage (goal 0.94–0.96) | CRPS (m3/s) |');
   console.log('|---|---|---|---|---|');
