@@ -7,18 +7,19 @@
 import { archiveToBytes } from '../src/core/archive-codec.ts';
 import type { FeatureSpec } from '../src/core/features.ts';
 import { computeHindcast, type HindcastSettings } from '../src/jobs/hindcast-compute.ts';
-import { fitLstmResidualModel, splitValidation } from '../src/models/lstm-fit.ts';
+import { fitLstmResidualModel } from '../src/models/lstm-fit.ts';
 import { predictorFor } from '../src/models/model-shape.ts';
 import { createResidualSession } from '../src/models/onnx-session.ts';
 import { evaluateResidualModel, type Period } from '../src/models/residual-evaluation.ts';
-import { fitResidualModel } from '../src/models/residual-fit.ts';
+import { fitResidualModel, splitValidation } from '../src/models/residual-fit.ts';
 import type { ResidualSpec } from '../src/core/model-inputs.ts';
 import { demoPeriods, demoSeries } from './demo-series.ts';
 
 const quick = process.argv.includes('--quick');
 const { series, scenario } = demoSeries();
 const { calibration, validation } = demoPeriods(series);
-const { stopping, scored } = splitValidation(series, validation, 0.4);
+// The fits split the validation block the same way (first 40 % by time stops early).
+const { stopping, archive: scored } = splitValidation(validation, series.stepSeconds * 1000);
 const iso = (p: Period) => `${new Date(p.fromMs).toISOString().slice(0, 10)} … ${new Date(p.toMs).toISOString().slice(0, 10)}`;
 console.log(`demo gauge, ${series.members.length} members: calibration ${iso(calibration)}, stopping ${iso(stopping)}, scored ${iso(scored)}`);
 const forcings = ['air_temperature', 'precipitation'];
@@ -38,7 +39,7 @@ async function fitTrees(trainer: 'gradient-boosting' | 'random-forest'): Promise
   const params: Record<string, number> = trainer === 'gradient-boosting' ? { nRounds: 400, learningRate: 0.08, maxDepth: 5, patience: 30 } : { nTrees: quick ? 50 : 200, maxDepth: 10 };
   const r = await fitResidualModel(series, {
     calibration,
-    validation: stopping,
+    validation,
     trainer,
     params,
     tuning: null,
@@ -59,7 +60,6 @@ async function fitLstm(): Promise<Fitted> {
   const r = await fitLstmResidualModel(series, {
     calibration,
     validation,
-    stopFraction: 0.4,
     params: {},
     tuning: null,
     seed: 1,

@@ -40,7 +40,6 @@ const fit = await fitLstmResidualModel(
   series,
   {
     ...periods,
-    stopFraction: 0.4,
     params: { hidden, window },
     tuning: null,
     seed: 1,

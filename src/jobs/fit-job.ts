@@ -1,5 +1,5 @@
 import type { FitOptions } from '../models/residual-fit.ts';
-import { defaultBoostingSpace, defaultForestSpace } from '../models/residual-fit.ts';
+import { defaultBoostingSpace, defaultForestSpace, splitValidation } from '../models/residual-fit.ts';
 import { archiveToBytes } from '../core/archive-codec.ts';
 import type { ErrorTransform } from '../core/error-transform.ts';
 import { rawArchiveFromReforecasts, type ReforecastScores } from '../models/reforecast-evaluation.ts';
@@ -32,14 +32,15 @@ export interface FitJobParams {
 }
 
 /**
- * Default periods: of the steps with an observation, the first 70 % calibrate and the rest
- * validate (contiguous blocks by date).
+ * Default periods: of the steps with an observation, the first 60 % calibrate and the rest
+ * validate (contiguous blocks by date); the fit splits validation again into an early-stopping
+ * block and a held-out archive block (splitValidation).
  */
 export function defaultPeriods(series: ArchiveSeries): { calibration: Period; validation: Period } {
   const observedTimes: number[] = [];
   for (let i = 0; i < series.times.length; i++) if (Number.isFinite(series.observed[i])) observedTimes.push(series.times[i]);
   if (observedTimes.length < 100) throw new Error(`only ${observedTimes.length} steps have both simulations and observations; at least 100 are needed`);
-  const split = observedTimes[Math.floor(observedTimes.length * 0.7)];
+  const split = observedTimes[Math.floor(observedTimes.length * 0.6)];
   const end = observedTimes[observedTimes.length - 1] + series.stepSeconds * 1000;
   return { calibration: { fromMs: observedTimes[0], toMs: split }, validation: { fromMs: split, toMs: end } };
 }
@@ -93,69 +94,79 @@ export const fitJob: JobHandler = async (job, { db, progress, signal }) => {
   const validation = p.validation ? period(p.validation) : defaults.validation;
   if (calibration.toMs > validation.fromMs && calibration.fromMs < validation.toMs) throw new Error('the calibration and validation periods overlap');
   const forcingNames = (p.forcings ?? Object.keys(series.forcings)).filter((n) => n in series.forcings).sort();
-  // Past runs issued in the validation period give the per-lead archives.
-  const reforecasts = await loadReforecastSet(db, gauge.id, validation);
+  // Past runs issued in the held-out archive block give the per-lead archives.
+  const blocks = splitValidation(validation, series.stepSeconds * 1000);
+  const reforecasts = await loadReforecastSet(db, gauge.id, blocks.archive);
   const onProgress = (pr: { stage: string; percent: number }) => {
     void progress(pr.stage, pr.percent * 0.97);
   };
-  // Stores the fitted version (one transaction) and answers with what the job reports.
-  const storeFit = async (out: Omit<FitOutput, 'parts' | 'trials'> & { parts: { onnx: Uint8Array }[] }, trainer: Record<string, unknown>, extraPeriods: Record<string, Period>) => {
-    const perLead = perLeadParts(out.perLead);
-    const scores = perLead.scores ? { ...out.scores, reforecasts: perLead.scores } : out.scores;
-    await progress('storing the model version', 98);
-    const versionId = await db.transaction(async (tx) => {
-      const id = await insertModelVersion(tx, {
-        gaugeId: gauge.id,
-        origin: 'fitted',
-        label: p.label ?? `${p.trainer}${p.tuning ? ' tuned' : ''} ${iso(Date.now()).slice(0, 16)}Z`,
-        featureSpec: out.spec,
-        trainer,
-        periods: { calibration: { from: iso(calibration.fromMs), to: iso(calibration.toMs) }, validation: { from: iso(validation.fromMs), to: iso(validation.toMs) }, ...Object.fromEntries(Object.entries(extraPeriods).map(([k, v]) => [k, { from: iso(v.fromMs), to: iso(v.toMs) }])) },
-        scores,
-        createdBy: job.createdBy,
-        parts: out.parts.map((part) => part.onnx),
-        correctedArchive: out.correctedArchive,
-        rawArchive: out.rawArchive,
-        perLeadArchives: perLead.archives,
-      });
-      if (p.activate) await activateModelVersion(tx, gauge.id, id);
-      return id;
-    });
-    return {
-      versionId,
-      activated: p.activate,
-      scores,
-      onnxCheck: out.onnxCheck,
-      archives: { leadFree: out.correctedArchive.summary, perLead: perLead.archives?.corrected.summary ?? null, perLeadNote: out.perLead ? out.perLead.reason : 'no past runs (reforecasts) issued in the validation period' },
+  const fitTrees = async (trainer: FitOptions['trainer']): Promise<FitOutput> => {
+    const options: FitOptions = {
+      calibration,
+      validation,
+      trainer,
+      params: p.params,
+      tuning: p.tuning ? { ...p.tuning, space: p.trainer === 'gradient-boosting' ? defaultBoostingSpace : defaultForestSpace } : null,
+      bundle: p.bundle,
+      seed: p.seed,
+      simLags: p.simLags,
+      forcings: forcingNames.map((name) => ({ name, lags: p.forcingLags })),
+      seasonal: p.seasonal,
+      transform: p.transform,
+      templateLength: p.templateLength,
+      maxTrainRows: p.maxTrainRows,
+      reforecasts,
     };
+    const handle = runCompute<FitOutput>({ kind: 'fit', series, options }, onProgress);
+    signal.addEventListener('abort', () => handle.cancel());
+    return handle.result;
   };
-  if (p.trainer === 'lstm') {
+  // The in-house LSTM: the same blocks, its own worker task and trainer record.
+  const fitLstm = async (): Promise<LstmFitOutput> => {
     const handle = runCompute<LstmFitOutput>({ kind: 'fit-lstm', series, options: lstmFitOptions(p, { calibration, validation }, forcingNames, reforecasts) }, onProgress);
     signal.addEventListener('abort', () => handle.cancel());
-    const out = await handle.result;
-    return storeFit(out, lstmTrainerRecord(out, p.seed), { stopping: out.periods.stopping, scored: out.periods.scored });
-  }
-  const options: FitOptions = {
-    calibration,
-    validation,
-    trainer: p.trainer,
-    params: p.params,
-    tuning: p.tuning ? { ...p.tuning, space: p.trainer === 'gradient-boosting' ? defaultBoostingSpace : defaultForestSpace } : null,
-    bundle: p.bundle,
-    seed: p.seed,
-    simLags: p.simLags,
-    forcings: forcingNames.map((name) => ({ name, lags: p.forcingLags })),
-    seasonal: p.seasonal,
-    transform: p.transform,
-    templateLength: p.templateLength,
-    maxTrainRows: p.maxTrainRows,
-    reforecasts,
+    return handle.result;
   };
-  const handle = runCompute<FitOutput>({ kind: 'fit', series, options }, onProgress);
-  signal.addEventListener('abort', () => handle.cancel());
-  const out = await handle.result;
-  const trainer = { kind: p.trainer, bundle: out.parts.map((part) => ({ params: part.params, validationRmse: part.validationRmse, trees: part.trees })), trials: out.trials, seed: p.seed, rows: out.rows, onnxCheck: out.onnxCheck };
-  return storeFit(out, trainer, {});
+  const lstmOut = p.trainer === 'lstm' ? await fitLstm() : null;
+  const out: Omit<FitOutput, 'parts' | 'trials'> & { parts: { onnx: Uint8Array }[] } = lstmOut ?? (await fitTrees(p.trainer as FitOptions['trainer']));
+  const perLead = perLeadParts(out.perLead);
+  const scores = perLead.scores ? { ...out.scores, reforecasts: perLead.scores } : out.scores;
+  await progress('storing the model version', 98);
+  const versionId = await db.transaction(async (tx) => {
+    const id = await insertModelVersion(tx, {
+      gaugeId: gauge.id,
+      origin: 'fitted',
+      label: p.label ?? `${p.trainer}${p.tuning ? ' tuned' : ''} ${iso(Date.now()).slice(0, 16)}Z`,
+      featureSpec: out.spec,
+      trainer: lstmOut ? lstmTrainerRecord(lstmOut, p.seed) : treeRecord(out as FitOutput),
+      periods: {
+        calibration: { from: iso(calibration.fromMs), to: iso(calibration.toMs) },
+        validation: { from: iso(validation.fromMs), to: iso(validation.toMs) },
+        stopping: { from: iso(blocks.stopping.fromMs), to: iso(blocks.stopping.toMs) },
+        archive: { from: iso(blocks.archive.fromMs), to: iso(blocks.archive.toMs) },
+        // The archives' errors come from a block the trees did not train, stop or tune on.
+        archiveSource: 'held-out',
+      },
+      scores,
+      createdBy: job.createdBy,
+      parts: out.parts.map((part) => part.onnx),
+      correctedArchive: out.correctedArchive,
+      rawArchive: out.rawArchive,
+      perLeadArchives: perLead.archives,
+    });
+    if (p.activate) await activateModelVersion(tx, gauge.id, id);
+    return id;
+  });
+  function treeRecord(o: FitOutput) {
+    return { kind: p.trainer, bundle: o.parts.map((part) => ({ params: part.params, validationRmse: part.validationRmse, trees: part.trees })), trials: o.trials, seed: p.seed, rows: o.rows, onnxCheck: o.onnxCheck };
+  }
+  return {
+    versionId,
+    activated: p.activate,
+    scores,
+    onnxCheck: out.onnxCheck,
+    archives: { leadFree: out.correctedArchive.summary, perLead: perLead.archives?.corrected.summary ?? null, perLeadNote: out.perLead ? out.perLead.reason : 'no past runs (reforecasts) issued in the held-out archive block of the validation period' },
+  };
 };
 
 /** Builds the raw members' error archive alone, so degraded mode works before any model is fitted. */

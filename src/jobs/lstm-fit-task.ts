@@ -12,8 +12,6 @@ export const LSTM_PARAMS = ['hidden', 'window', 'learningRate', 'epochs', 'batch
 /** Training windows are sampled down to this many unless the request says otherwise (bounds the fit to minutes). */
 export const LSTM_DEFAULT_TRAIN_ROWS = 20_000;
 const MAX_STOP_ROWS = 10_000;
-/** Share of the validation block, from its start, that stops training early. */
-export const LSTM_STOP_FRACTION = 0.4;
 
 export function lstmFitOptions(
   p: { params: Record<string, number>; tuning: null | { evaluations: number; initial: number }; seed: number; seasonal: boolean; transform: ErrorTransformSpec; templateLength: number; maxTrainRows: number },
@@ -23,7 +21,6 @@ export function lstmFitOptions(
 ): LstmFitOptions {
   return {
     ...periods,
-    stopFraction: LSTM_STOP_FRACTION,
     params: p.params,
     tuning: p.tuning ? { ...p.tuning, space: defaultLstmSpace } : null,
     seed: p.seed,
@@ -48,7 +45,6 @@ export async function runLstmFit(series: ArchiveSeries, options: LstmFitOptions,
     scores: { ...r.evaluation.scores } as Record<string, unknown>,
     rows: r.rows,
     onnxCheck: r.onnxCheck,
-    periods: { stopping: r.periods.stopping, scored: r.periods.scored },
     correctedArchive: { bytes: archiveToBytes(r.evaluation.correctedArchive), summary: archiveSummary(r.evaluation.correctedArchive) },
     rawArchive: { bytes: archiveToBytes(r.evaluation.rawArchive), summary: archiveSummary(r.evaluation.rawArchive) },
     perLead: r.perLead
@@ -64,8 +60,6 @@ export async function runLstmFit(series: ArchiveSeries, options: LstmFitOptions,
 
 export type LstmFitOutput = Awaited<ReturnType<typeof runLstmFit>>;
 
-const iso = (ms: number) => new Date(ms).toISOString().replace('.000Z', 'Z');
-
 /** What the model version records about the LSTM fit. */
 export function lstmTrainerRecord(out: LstmFitOutput, seed: number): Record<string, unknown> {
   const part = out.parts[0];
@@ -77,6 +71,5 @@ export function lstmTrainerRecord(out: LstmFitOutput, seed: number): Record<stri
     seed,
     rows: out.rows,
     onnxCheck: out.onnxCheck,
-    earlyStopping: { from: iso(out.periods.stopping.fromMs), to: iso(out.periods.stopping.toMs), note: 'training stops on this first part of the validation period; scores and error archives come from the rest' },
   };
 }

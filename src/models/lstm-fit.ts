@@ -1,8 +1,9 @@
 // Fits an LSTM residual model from a gauge's continuous member simulations, the sequence
 // counterpart of residual-fit.ts: windows [N, window, steps] of the member's simulated flow, the
 // forcings and the season; target = observed − simulated, pooled over members; the calibration
-// block trains, the first part of the validation block stops training early (and scores tuning
-// trials), the rest of it is scored and builds the error archives. The export to the ONNX LSTM
+// block trains, the validation block is split as for trees (splitValidation in residual-fit.ts):
+// its first part stops training early (and scores tuning trials), the rest is scored and builds
+// the error archives. The export to the ONNX LSTM
 // operator must reproduce the trainer's forward pass on every stopping row (relative 1e-5)
 // before anything is handed back.
 import type { ErrorTransformSpec } from '../core/error-transform.ts';
@@ -16,6 +17,7 @@ import { trainLstm, type LstmParams } from './lstm/train.ts';
 import { createResidualSession, predictResiduals } from './onnx-session.ts';
 import { evaluateReforecasts, type ReforecastEvaluation, type ReforecastSet } from './reforecast-evaluation.ts';
 import { evaluateResidualModel, type ArchiveSeries, type Evaluation, type Period } from './residual-evaluation.ts';
+import { splitValidation } from './residual-fit.ts';
 import { tune, type SearchParam } from './tuning/index.ts';
 
 export interface LstmFitParams extends LstmParams {
@@ -35,8 +37,6 @@ export const defaultLstmSpace: SearchParam[] = [
 export interface LstmFitOptions {
   calibration: Period;
   validation: Period;
-  /** Share of the validation block, from its start, that stops training; the rest is scored. */
-  stopFraction: number;
   params: Partial<LstmFitParams>;
   tuning: null | { evaluations: number; initial: number; space: SearchParam[] };
   seed: number;
@@ -60,7 +60,7 @@ export interface LstmFitResult {
   trials: { params: Record<string, number>; validationRmse: number; epochs: number }[];
   evaluation: Evaluation;
   perLead: ReforecastEvaluation | null;
-  periods: { calibration: Period; stopping: Period; scored: Period };
+  periods: { calibration: Period; stopping: Period; archive: Period };
   rows: { calibration: number; stopping: number };
   onnxCheck: { rows: number; maxRelativeError: number; tolerance: number };
 }
@@ -141,18 +141,6 @@ function sampleWindows(series: ArchiveSeries, spec: SequenceSpec, periods: Perio
   return out.map((o) => ({ x: o.x.subarray(0, o.nRows * width), y: o.y.subarray(0, o.nRows), nRows: o.nRows }));
 }
 
-/** The validation block split at stopFraction of its observed steps. */
-export function splitValidation(series: ArchiveSeries, validation: Period, stopFraction: number): { stopping: Period; scored: Period } {
-  const observed: number[] = [];
-  for (let i = 0; i < series.times.length; i++) {
-    const t = series.times[i];
-    if (t >= validation.fromMs && t < validation.toMs && Number.isFinite(series.observed[i])) observed.push(t);
-  }
-  if (observed.length < 40) throw new Error(`the validation period holds ${observed.length} observed steps; at least 40 are needed`);
-  const split = observed[Math.floor(observed.length * stopFraction)];
-  return { stopping: { fromMs: validation.fromMs, toMs: split }, scored: { fromMs: split, toMs: validation.toMs } };
-}
-
 export async function fitLstmResidualModel(
   series: ArchiveSeries,
   options: LstmFitOptions,
@@ -160,7 +148,7 @@ export async function fitLstmResidualModel(
   shouldStop: () => boolean = () => false,
 ): Promise<LstmFitResult> {
   for (const name of options.forcings) if (!series.forcings[name]) throw new Error(`the archive holds no forcing ${name}`);
-  const { stopping, scored } = splitValidation(series, options.validation, options.stopFraction);
+  const { stopping, archive } = splitValidation(options.validation, series.stepSeconds * 1000);
   const base: LstmFitParams = { ...defaultLstmFitParams, ...options.params };
   let rowCounts = { calibration: 0, stopping: 0 };
 
@@ -234,7 +222,7 @@ export async function fitLstmResidualModel(
   onProgress({ stage: 'scoring the rest of the validation period and building error archives', percent: 90 });
   const shape = rowShape(spec);
   const predictors = [(rows: Float32Array, n: number, nF: number) => predictResiduals(session, rows, n, nF, shape)];
-  const evaluation = await evaluateResidualModel(series, spec, scored, predictors, { transform: options.transform, templateLength: options.templateLength });
+  const evaluation = await evaluateResidualModel(series, spec, archive, predictors, { transform: options.transform, templateLength: options.templateLength });
   let perLead: ReforecastEvaluation | null = null;
   if (options.reforecasts) {
     onProgress({ stage: 'building the per-lead error archives from the past runs', percent: 95 });
@@ -251,7 +239,7 @@ export async function fitLstmResidualModel(
     trials,
     evaluation,
     perLead,
-    periods: { calibration: options.calibration, stopping, scored },
+    periods: { calibration: options.calibration, stopping, archive },
     rows: rowCounts,
     onnxCheck: { rows: stop.nRows, maxRelativeError, tolerance: ONNX_TOLERANCE },
   };
