@@ -68,6 +68,7 @@ export const FitBody = z.strictObject({
   for (const name of Object.keys(body.params ?? {})) {
     if (!allowed.includes(name)) ctx.addIssue({ code: 'custom', path: ['params', name], message: `not a ${body.trainer} parameter; known: ${allowed.join(', ')}` });
   }
+  if (body.trainer === 'lstm' && body.bundle > 1) ctx.addIssue({ code: 'custom', path: ['bundle'], message: 'the lstm trainer keeps one model; bundles are for trees' });
 }).transform((body) => ({
   ...body,
   params: body.params ?? (body.trainer === 'gradient-boosting' ? { nRounds: 400, learningRate: 0.08, maxDepth: 5, patience: 30 } : body.trainer === 'lstm' ? {} : { nTrees: 200, maxDepth: 10 }),

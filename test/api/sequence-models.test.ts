@@ -165,5 +165,8 @@ describe('the in-house LSTM as a fit job', () => {
     expect(res.statusCode).toBe(422);
     expect(res.json().errors[0]).toMatchObject({ path: 'body.params.nRounds' });
     expect(res.json().errors[0].message).toMatch(/not a lstm parameter/);
+    const bundle = await t.as('admin', { method: 'POST', url: `/gauges/${gaugeId}/models/fit`, payload: { trainer: 'lstm', bundle: 3 } });
+    expect(bundle.statusCode).toBe(422);
+    expect(bundle.json().errors[0].path).toBe('body.bundle');
   });
 });
