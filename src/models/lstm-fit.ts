@@ -14,6 +14,7 @@ import { lstmModelToOnnx } from './lstm-onnx-export.ts';
 import { predictLstm } from './lstm/forward.ts';
 import type { LstmModel } from './lstm/model.ts';
 import { trainLstm, type LstmParams } from './lstm/train.ts';
+import { predictorFor } from './model-shape.ts';
 import { createResidualSession, predictResiduals } from './onnx-session.ts';
 import { evaluateReforecasts, type ReforecastEvaluation, type ReforecastSet } from './reforecast-evaluation.ts';
 import { evaluateResidualModel, type ArchiveSeries, type Evaluation, type Period } from './residual-evaluation.ts';
@@ -150,7 +151,6 @@ export async function fitLstmResidualModel(
   for (const name of options.forcings) if (!series.forcings[name]) throw new Error(`the archive holds no forcing ${name}`);
   const { stopping, archive } = splitValidation(options.validation, series.stepSeconds * 1000);
   const base: LstmFitParams = { ...defaultLstmFitParams, ...options.params };
-  let rowCounts = { calibration: 0, stopping: 0 };
 
   // One training run: windows for its window length, then the trainer; scored on the stopping rows.
   const trainOnce = (params: LstmFitParams, seed: number, from: number, to: number) => {
@@ -160,7 +160,6 @@ export async function fitLstmResidualModel(
     const [cal, stop] = sampleWindows(series, spec, [options.calibration, stopping], [options.maxTrainRows, options.maxStopRows], seed);
     if (cal.nRows < 50) throw new Error(`the calibration period gives ${cal.nRows} complete windows; at least 50 are needed`);
     if (stop.nRows < 20) throw new Error(`the stopping part of the validation period gives ${stop.nRows} complete windows; at least 20 are needed`);
-    rowCounts = { calibration: cal.nRows, stopping: stop.nRows };
     const trained = trainLstm(
       { x: cal.x, nRows: cal.nRows, window, nInputs: spec.steps.length, y: cal.y, valid: { x: stop.x, nRows: stop.nRows, y: stop.y } },
       params,
@@ -168,7 +167,7 @@ export async function fitLstmResidualModel(
       (done, total) => onProgress({ stage: `training: epoch ${done} of ${total}`, percent: from + ((to - from) * done) / total }),
       shouldStop,
     );
-    return { spec, trained, stop };
+    return { spec, trained, stop, rows: { calibration: cal.nRows, stopping: stop.nRows } };
   };
 
   let best: ReturnType<typeof trainOnce> & { params: LstmFitParams };
@@ -220,8 +219,7 @@ export async function fitLstmResidualModel(
   }
 
   onProgress({ stage: 'scoring the rest of the validation period and building error archives', percent: 90 });
-  const shape = rowShape(spec);
-  const predictors = [(rows: Float32Array, n: number, nF: number) => predictResiduals(session, rows, n, nF, shape)];
+  const predictors = [predictorFor(session, spec)];
   const evaluation = await evaluateResidualModel(series, spec, archive, predictors, { transform: options.transform, templateLength: options.templateLength });
   let perLead: ReforecastEvaluation | null = null;
   if (options.reforecasts) {
@@ -240,7 +238,7 @@ export async function fitLstmResidualModel(
     evaluation,
     perLead,
     periods: { calibration: options.calibration, stopping, archive },
-    rows: rowCounts,
+    rows: best.rows,
     onnxCheck: { rows: stop.nRows, maxRelativeError, tolerance: ONNX_TOLERANCE },
   };
 }
