@@ -27,7 +27,8 @@ const smallLstm = { trainer: 'lstm', params: { hidden: 4, window: 6, epochs: 4, 
 beforeAll(async () => {
   t = await makeTestApp();
   runner = new JobRunner(t.db, jobHandlers, quiet, 60_000);
-  await loadScenarioArchive(injectSend(t), scenario);
+  // With past runs, so fits and uploads also build per-lead archives from windows of the reforecasts.
+  await loadScenarioArchive(injectSend(t), scenario, { reforecasts: true });
 });
 afterAll(async () => {
   await runner.stop();
@@ -131,6 +132,16 @@ describe('the in-house LSTM as a fit job', () => {
     expect(done.result).toMatchObject({ mode: 'simulation', modelVersion: { id: v.id }, correction: 'per-valid-time' });
     expect(done.result.issues.used).toBeGreaterThan(100);
     expect(done.result.comparison.corrected.crps.crps).toBeLessThan(done.result.comparison.raw.crps.crps);
+
+    // The per-lead archive came from windows over the past runs, and a reforecast-mode hindcast reads them per issue.
+    expect(v.scores.reforecasts.perLeadArchive).toMatchObject({ stored: true });
+    const hr = await t.as('admin', { method: 'POST', url: `/gauges/${gaugeId}/hindcasts`, payload: { version: v.id, mode: 'reforecast', trajectories: 100 } });
+    expect(hr.statusCode, hr.body).toBe(202);
+    await runner.drain();
+    const doneR = (await t.as('read', { method: 'GET', url: `/gauges/${gaugeId}/hindcasts/${hr.json().id}` })).json();
+    expect(doneR.status, doneR.error).toBe('succeeded');
+    expect(doneR.result).toMatchObject({ mode: 'reforecast', correction: 'per-issue' });
+    expect(doneR.result.issues.used).toBeGreaterThan(20);
   });
 
   it('tunes hidden size, window and learning rate by Bayesian optimisation', async () => {
