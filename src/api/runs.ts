@@ -8,7 +8,7 @@ import { listMembers, readObservations } from '../store/archive-repo.ts';
 import type { Gauge } from '../store/gauges-repo.ts';
 import { findRunByIdempotencyKey, findRunByKey, insertRun, type StoredRun } from '../store/forecasts-repo.ts';
 import { archiveBytes, getActiveModelVersion, latestRawArchiveInfo, modelParts, versionArchiveInfo, type ArchiveInfo } from '../store/models-repo.ts';
-import { archiveReach, chooseArchive } from '../models/archive-choice.ts';
+import { archiveReach, chooseArchive } from '../core/archive-choice.ts';
 import { GaugeParams, requireGauge } from './archive-common.ts';
 import { addRoute, type Services } from './context.ts';
 import { buildForecastView } from './forecast-view.ts';

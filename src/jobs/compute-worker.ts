@@ -6,8 +6,9 @@ import { checkFeatureSpec } from '../core/features.ts';
 import { createResidualSession, predictResiduals } from '../models/onnx-session.ts';
 import { computeHindcast, type HindcastTaskInput } from './hindcast-compute.ts';
 import { fitResidualModel, type FitOptions } from '../models/residual-fit.ts';
-import { evaluateReforecasts, type ReforecastEvaluation, type ReforecastSet } from '../models/reforecast-evaluation.ts';
-import { archiveSummary, evaluateResidualModel, rawArchiveFromSeries, type ArchiveSeries, type ArchiveOptions, type Period } from '../models/residual-evaluation.ts';
+import type { ArchiveSeries, Period, ReforecastSet } from '../core/archive-types.ts';
+import { evaluateReforecasts, type ReforecastEvaluation } from '../models/reforecast-evaluation.ts';
+import { archiveSummary, evaluateResidualModel, rawArchiveFromSeries, type ArchiveOptions } from '../models/residual-evaluation.ts';
 
 export type ComputeTask =
   | { kind: 'fit'; series: ArchiveSeries; options: FitOptions }

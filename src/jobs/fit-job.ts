@@ -3,7 +3,7 @@ import { defaultBoostingSpace, defaultForestSpace } from '../models/residual-fit
 import { archiveToBytes } from '../core/archive-codec.ts';
 import type { ErrorTransform } from '../core/error-transform.ts';
 import { rawArchiveFromReforecasts, type ReforecastScores } from '../models/reforecast-evaluation.ts';
-import type { ArchiveSeries, Period } from '../models/residual-evaluation.ts';
+import type { ArchiveSeries, Period } from '../core/archive-types.ts';
 import { loadArchiveSeries, loadReforecastSet } from '../store/archive-series.ts';
 import { getGauge } from '../store/gauges-repo.ts';
 import { activateModelVersion, insertArchive, insertModelVersion } from '../store/models-repo.ts';

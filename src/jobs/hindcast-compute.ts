@@ -19,7 +19,7 @@ import {
   type StochasticAdvice,
 } from '../core/verification/index.ts';
 import { createResidualSession, predictResiduals } from '../models/onnx-session.ts';
-import type { ArchiveSeries } from '../models/residual-evaluation.ts';
+import type { ArchiveSeries } from '../core/archive-types.ts';
 
 export interface HindcastSettings {
   mode: 'simulation' | 'reforecast';

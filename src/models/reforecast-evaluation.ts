@@ -2,19 +2,8 @@ import { dayOfYearUtc } from '../core/day-of-year.ts';
 import { buildArchiveFromReforecasts, type ErrorArchive } from '../core/error-archive.ts';
 import type { ErrorTransformSpec } from '../core/error-transform.ts';
 import { reforecastRows, requiredInputs, type FeatureSpec, type ReforecastIssue } from '../core/features.ts';
-import { archiveMembers, archiveSummary, type ArchiveSeries, type ResidualPredictor } from './residual-evaluation.ts';
-
-/** Stored past runs of a gauge on one layout: what the per-lead error archives are built from. */
-export interface ReforecastSet {
-  /** Issue times, epoch ms, ascending. */
-  issueTimes: Float64Array;
-  /** Longest lead stored (steps). */
-  nLeads: number;
-  /** Members with stored runs, sorted by id. */
-  memberIds: string[];
-  /** [(issue·memberIds.length + member)·nLeads + lead]; lead 0 is one step after issue time; NaN = missing. */
-  values: Float64Array;
-}
+import type { ArchiveSeries, ReforecastSet } from '../core/archive-types.ts';
+import { archiveMembers, archiveSummary, type ResidualPredictor } from './residual-evaluation.ts';
 
 /** Fewer usable past runs than this and no per-lead archive is built (common practice, like the hindcast's reference minimum). */
 export const MIN_PER_LEAD_ISSUES = 20;

@@ -4,22 +4,7 @@ import { deterministicScores } from '../core/deterministic-scores.ts';
 import { buildArchiveFromSeries, type ErrorArchive } from '../core/error-archive.ts';
 import type { ErrorTransformSpec } from '../core/error-transform.ts';
 import { continuousRows, type FeatureSpec } from '../core/features.ts';
-
-/** A gauge's archive on one regular time axis (missing = NaN), as the fitting code needs it. */
-export interface ArchiveSeries {
-  stepSeconds: number;
-  /** Epoch ms, regular step. */
-  times: Float64Array;
-  observed: Float64Array;
-  forcings: Record<string, Float64Array>;
-  members: { id: string; values: Float64Array }[];
-}
-
-export interface Period {
-  fromMs: number;
-  /** Exclusive. */
-  toMs: number;
-}
+import type { ArchiveSeries, Period } from '../core/archive-types.ts';
 
 /** Predicts residuals for row-major float32 feature rows (one function per bundled model). */
 export type ResidualPredictor = (rows: Float32Array, nRows: number, nFeatures: number) => Promise<Float32Array>;

@@ -3,8 +3,9 @@ import { continuousRows, makeFeatureSpec, type FeatureSpec } from '../core/featu
 import { createPrng } from '../core/prng.ts';
 import { treeModelToOnnx } from './onnx-export.ts';
 import { createResidualSession, predictResiduals } from './onnx-session.ts';
-import { evaluateReforecasts, type ReforecastEvaluation, type ReforecastSet } from './reforecast-evaluation.ts';
-import { evaluateResidualModel, type ArchiveSeries, type Evaluation, type Period } from './residual-evaluation.ts';
+import type { ArchiveSeries, Period, ReforecastSet } from '../core/archive-types.ts';
+import { evaluateReforecasts, type ReforecastEvaluation } from './reforecast-evaluation.ts';
+import { evaluateResidualModel, type Evaluation } from './residual-evaluation.ts';
 import { predictTrees, trainGradientBoosting, trainRandomForest, type TreeModel } from './trees/index.ts';
 import { tune, type SearchParam } from './tuning/index.ts';
 

@@ -1,5 +1,5 @@
 import type { Queryable } from './db.ts';
-import { chooseArchive } from '../models/archive-choice.ts';
+import { chooseArchive } from '../core/archive-choice.ts';
 import { decodePercentiles } from './forecasts-repo.ts';
 
 /** What verification reads of one stored run (see src/api/forecast-view.ts for the served shape). */
@@ -121,7 +121,7 @@ export interface ChosenArchive {
 
 /**
  * The archive serving would use for a run of nLeads lead times (the rule of POST /gauges/:id/runs,
- * src/models/archive-choice.ts). Also the farthest reach of the two.
+ * src/core/archive-choice.ts). Also the farthest reach of the two.
  */
 export async function correctedArchiveFor(db: Queryable, versionId: string, nLeads: number, minPerLeadRuns?: number): Promise<{ archive: ChosenArchive | null; maxReach: number }> {
   const { rows } = await db.query<{ id: string; lead_mode: 'lead-free' | 'per-lead'; summary: Record<string, unknown>; bytes: Uint8Array }>(
