@@ -1,7 +1,7 @@
 import Fastify, { type FastifyBaseLogger, type FastifyInstance } from 'fastify';
 import type { Config } from '../config.ts';
 import type { Db } from '../store/db.ts';
-import { CorrectionPool } from '../models/correction-pool.ts';
+import { CorrectionPool } from '../workers/correction-pool.ts';
 import { authHook } from './auth.ts';
 import { eventRoutes } from './events.ts';
 import { ForecastEvents } from './forecast-events.ts';

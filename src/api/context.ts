@@ -1,6 +1,6 @@
 import type { FastifyInstance, FastifyReply, FastifyRequest } from 'fastify';
 import type { Config } from '../config.ts';
-import type { CorrectionPool } from '../models/correction-pool.ts';
+import type { CorrectionPool } from '../workers/correction-pool.ts';
 import type { Db } from '../store/db.ts';
 import type { ForecastEvents } from './forecast-events.ts';
 import type { Metrics } from './metrics-registry.ts';

@@ -3,7 +3,7 @@ import { z } from 'zod';
 import { checkFeatureSpec, featureCount, FeatureInputError } from '../core/features.ts';
 import { scheduleGaugeStatusRefresh } from '../jobs/drift-refresh.ts';
 import { defaultPeriods, perLeadParts, type PerLeadOutput } from '../jobs/fit-job.ts';
-import { runCompute } from '../jobs/run-compute.ts';
+import { runCompute } from '../workers/run-compute.ts';
 import { inspectOnnx, OnnxInspectError } from '../models/onnx-inspect.ts';
 import { loadArchiveSeries, loadReforecastSet } from '../store/archive-series.ts';
 import { enqueueJob } from '../store/jobs-repo.ts';

@@ -2,7 +2,7 @@ import { createHash, randomUUID } from 'node:crypto';
 import type { FastifyInstance } from 'fastify';
 import { z } from 'zod';
 import type { RunInput } from '../core/features.ts';
-import { CorrectionError, PoolFullError, type ArchiveSource, type CorrectionResult, type ModelSource } from '../models/correction-pool.ts';
+import { CorrectionError, PoolFullError, type ArchiveSource, type CorrectionResult, type ModelSource } from '../workers/correction-pool.ts';
 import { DEFAULT_QUANTILE_PROBS } from '../core/stochastic-stage.ts';
 import { listMembers, readObservations } from '../store/archive-repo.ts';
 import type { Gauge } from '../store/gauges-repo.ts';

@@ -8,7 +8,7 @@ import { loadArchiveSeries, loadReforecastSet } from '../store/archive-series.ts
 import { getGauge } from '../store/gauges-repo.ts';
 import { activateModelVersion, insertArchive, insertModelVersion } from '../store/models-repo.ts';
 import type { JobHandler } from './runner.ts';
-import { runCompute } from './run-compute.ts';
+import { runCompute } from '../workers/run-compute.ts';
 
 /** Parameters of a fit job, as accepted by the API (already validated there). */
 export interface FitJobParams {

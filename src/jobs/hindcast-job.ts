@@ -8,8 +8,8 @@ import { getGauge } from '../store/gauges-repo.ts';
 import { getModelVersion, modelParts } from '../store/models-repo.ts';
 import { correctedArchiveFor, reforecastIssueTimes } from '../store/verification-repo.ts';
 import { refreshGaugeStatus } from './drift-refresh.ts';
-import type { HindcastOutput, HindcastSettings } from './hindcast-compute.ts';
-import { runCompute } from './run-compute.ts';
+import type { HindcastOutput, HindcastSettings } from '../models/hindcast-compute.ts';
+import { runCompute } from '../workers/run-compute.ts';
 import type { JobHandler } from './runner.ts';
 
 /** Parameters of a hindcast job, as accepted by the API (already validated there). */

@@ -2,7 +2,7 @@ import { randomBytes } from 'node:crypto';
 import type { FastifyBaseLogger } from 'fastify';
 import type { Db } from '../store/db.ts';
 import { claimJob, failStaleJobs, finishJob, reportProgress, type Job } from '../store/jobs-repo.ts';
-import { ComputeCancelled } from './run-compute.ts';
+import { CancelledError } from '../core/cancelled.ts';
 
 /** What a job kind does; `progress` records stage and percent and says whether to stop. */
 export type JobHandler = (job: Job, ctx: { db: Db; progress: (stage: string, percent: number) => Promise<boolean>; signal: AbortSignal }) => Promise<unknown>;
@@ -99,7 +99,7 @@ export class JobRunner {
       await finishJob(this.db, job.id, 'succeeded', result ?? null, null);
       this.log.info({ job: job.id, kind: job.kind }, 'job succeeded');
     } catch (err) {
-      const cancelled = err instanceof ComputeCancelled || abort.signal.aborted;
+      const cancelled = err instanceof CancelledError || abort.signal.aborted;
       await finishJob(this.db, job.id, cancelled ? 'cancelled' : 'failed', null, cancelled ? 'cancelled on request' : (err as Error).message);
       this.log[cancelled ? 'info' : 'warn']({ job: job.id, kind: job.kind, err: (err as Error).message }, cancelled ? 'job cancelled' : 'job failed');
     } finally {

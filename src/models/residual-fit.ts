@@ -1,5 +1,6 @@
 import type { ErrorTransformSpec } from '../core/error-transform.ts';
 import { continuousRows, makeFeatureSpec, type FeatureSpec } from '../core/features.ts';
+import { CancelledError } from '../core/cancelled.ts';
 import { createPrng } from '../core/prng.ts';
 import { treeModelToOnnx } from './onnx-export.ts';
 import { createResidualSession, predictResiduals } from './onnx-session.ts';
@@ -166,12 +167,6 @@ export async function fitResidualModel(
   await Promise.all(sessions.map((s) => s.release()));
   onProgress({ stage: 'done', percent: 100 });
   return { spec, parts, trials, evaluation, perLead, rows: { calibration: cal.nRows, validation: val.nRows }, onnxCheck: { rows: val.nRows * parts.length, mismatches } };
-}
-
-export class CancelledError extends Error {
-  constructor() {
-    super('cancelled');
-  }
 }
 
 interface Rows {

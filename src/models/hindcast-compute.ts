@@ -1,4 +1,4 @@
-// The hindcast's CPU work, run inside a compute worker thread (compute-worker.ts, task kind
+// The hindcast's CPU work, run inside a compute worker thread (src/workers/compute-worker.ts, task kind
 // 'hindcast'): the whole correction pipeline over many past issues — feature rows → the version's
 // ONNX residual model(s) → stochastic stage with the version's error archive — then the
 // side-by-side verification of raw, corrected and stochastic, the ensemble-size study and the
@@ -7,6 +7,7 @@ import type { InferenceSession } from 'onnxruntime-node';
 import { archiveFromBytes } from '../core/archive-codec.ts';
 import { dayOfYearUtc } from '../core/day-of-year.ts';
 import { checkFeatureSpec, continuousRows, featureCount, FeatureInputError, requiredInputs, servingRows, type FeatureSpec, type RunInput } from '../core/features.ts';
+import { CancelledError } from '../core/cancelled.ts';
 import { createStochasticWorkspace } from '../core/stochastic-stage.ts';
 import {
   adviseStochasticStage,
@@ -18,7 +19,7 @@ import {
   type SourceName,
   type StochasticAdvice,
 } from '../core/verification/index.ts';
-import { createResidualSession, predictResiduals } from '../models/onnx-session.ts';
+import { createResidualSession, predictResiduals } from './onnx-session.ts';
 import type { ArchiveSeries } from '../core/archive-types.ts';
 
 export interface HindcastSettings {
@@ -85,13 +86,6 @@ export interface HindcastOutput {
 
 export type Progress = (p: { stage: string; percent: number }) => void;
 
-/** Thrown inside the worker when the job was asked to stop. */
-export class HindcastCancelled extends Error {
-  constructor() {
-    super('cancelled');
-  }
-}
-
 const ROWS_PER_BATCH = 100_000;
 
 /**
@@ -123,7 +117,7 @@ export async function computeHindcast(input: HindcastTaskInput, progress: Progre
   let warm = need.simStepsToIssue;
   for (const f of need.forcings) warm = Math.max(warm, f.stepsToIssue);
   const check = () => {
-    if (shouldStop()) throw new HindcastCancelled();
+    if (shouldStop()) throw new CancelledError();
   };
 
   // Raw values per issue; issues with any missing raw value are left out.
