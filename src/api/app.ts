@@ -21,7 +21,7 @@ import { modelRoutes } from './models.ts';
 import { observationRoutes } from './observations.ts';
 import { ApiDocs } from './openapi.ts';
 import { docsRoutes } from './docs.ts';
-import { Problem } from './problem.ts';
+import { Problem } from '../services/problem.ts';
 import { reforecastRoutes } from './reforecasts.ts';
 import { simulationRoutes } from './simulations.ts';
 import { tokenRoutes } from './token-routes.ts';

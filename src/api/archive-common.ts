@@ -3,7 +3,7 @@ import { z } from 'zod';
 import type { Queryable } from '../store/db.ts';
 import { getGauge, type Gauge } from '../store/gauges-repo.ts';
 import type { Window } from '../store/archive-repo.ts';
-import { badRequest, notFound } from './problem.ts';
+import { badRequest, notFound } from '../services/problem.ts';
 import { GaugeId, TimeWindowQuery } from './schemas.ts';
 import { parseWith } from './validate.ts';
 

@@ -4,9 +4,9 @@ import { ensureForcingVariable, forcingUnits, readForcings, upsertForcing } from
 import { bodyFormat, GaugeParams, readWindow, requireGauge, sendCsv, wantsCsv } from './archive-common.ts';
 import { addRoute, type Services } from './context.ts';
 import { parseCsv, splitHeader } from './csv.ts';
-import { ErrorList } from './problem.ts';
+import { ErrorList } from '../services/problem.ts';
 import { TimeWindowQuery } from './schemas.ts';
-import { checkTimes, checkValues, csvNumber, isoUtc, knownForcingUnits } from './series-input.ts';
+import { checkTimes, checkValues, csvNumber, isoUtc, knownForcingUnits } from '../services/series-input.ts';
 import { parseWith } from './validate.ts';
 
 const VariableName = z.string().regex(/^[a-z][a-z0-9_]{0,47}$/, 'must be lowercase letters, digits and underscores, e.g. precipitation');

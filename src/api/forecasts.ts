@@ -3,9 +3,9 @@ import { z } from 'zod';
 import { getRun, latestRunTag, listRuns } from '../store/forecasts-repo.ts';
 import { GaugeParams, requireGauge } from './archive-common.ts';
 import { addRoute, type Services } from './context.ts';
-import { forecastCsv, forecastText, type ForecastView } from './forecast-view.ts';
+import { forecastCsv, forecastText, type ForecastView } from '../services/forecast-view.ts';
 import { chooseFormat, FormatOnly, type Format } from './formats.ts';
-import { notFound } from './problem.ts';
+import { notFound } from '../services/problem.ts';
 import { Rfc3339 } from './schemas.ts';
 import { parseWith } from './validate.ts';
 

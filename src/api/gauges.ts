@@ -5,7 +5,7 @@ import { archiveCounts, dataCounts, deleteGauge, getGauge, insertGauge, listGaug
 import { getGaugeStatus } from '../store/gauge-status-repo.ts';
 import { hasRuns } from '../store/verification-repo.ts';
 import { addRoute, type Services } from './context.ts';
-import { conflict, notFound } from './problem.ts';
+import { conflict, notFound } from '../services/problem.ts';
 import { FlowUnit, GaugeId, IsoDuration, Location, Thresholds, TimeZone } from './schemas.ts';
 import { parseWith } from './validate.ts';
 

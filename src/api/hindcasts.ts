@@ -1,15 +1,13 @@
 import type { FastifyInstance } from 'fastify';
 import { z } from 'zod';
 import type { ComparisonReport, SizeStudyResult, StochasticAdvice } from '../core/verification/index.ts';
-import { storedPeriod, type HindcastJobParams } from '../jobs/hindcast-job.ts';
-import { enqueueJob, getJob, listJobs, type Job } from '../store/jobs-repo.ts';
-import { getActiveModelVersion, getModelVersion } from '../store/models-repo.ts';
-import { correctedArchiveFor, reforecastIssueTimes } from '../store/verification-repo.ts';
+import { requestHindcast } from '../services/hindcast.ts';
+import type { HindcastJobParams } from '../services/hindcast-params.ts';
+import { getJob, listJobs, type Job } from '../store/jobs-repo.ts';
 import { GaugeParams, requireGauge } from './archive-common.ts';
 import { addRoute, type Services } from './context.ts';
-import { conflict, invalid, notFound } from './problem.ts';
+import { conflict, notFound } from '../services/problem.ts';
 import { Rfc3339 } from './schemas.ts';
-import { isoUtc } from './series-input.ts';
 import { parseWith } from './validate.ts';
 import { chooseFormat, FormatOnly } from './formats.ts';
 import { scoresCsv, scoresText, sendReport, textTable } from './verification.ts';
@@ -57,7 +55,7 @@ const HindcastBody = z
 const HindcastParams = z.object({ id: GaugeParams.shape.id, jobId: z.string().regex(/^\d{1,18}$/, 'must be a job id') });
 const HindcastQuery = z.strictObject({ format: FormatOnly });
 
-/** What a finished hindcast job stores as its result (see src/jobs/hindcast-job.ts). */
+/** What a finished hindcast job stores as its result (see src/services/hindcast.ts). */
 interface HindcastResult {
   gaugeId: string;
   mode: string;
@@ -129,42 +127,7 @@ export async function hindcastRoutes(app: FastifyInstance, { services }: { servi
     async (req, reply) => {
       const gauge = await requireGauge(db, req.params);
       const body = parseWith(HindcastBody, req.body ?? {}, 'body');
-      const version = body.version ? await getModelVersion(db, gauge.id, body.version) : await getActiveModelVersion(db, gauge.id);
-      if (!version) {
-        if (body.version) throw invalid([{ path: 'body.version', message: `gauge ${gauge.id} has no model version ${body.version}` }]);
-        throw conflict(`gauge ${gauge.id} has no active residual model; fit one (POST /gauges/${gauge.id}/models/fit) or name a version`);
-      }
-      const errors: { path: string; message: string }[] = [];
-      const reach = (await correctedArchiveFor(db, version.id, 1)).maxReach;
-      if (!reach) throw conflict(`model version ${version.id} has no corrected-member error archive`);
-      if (body.horizon !== undefined && body.horizon > reach) errors.push({ path: 'body.horizon', message: `the error archives of version ${version.id} cover at most ${reach} lead times` });
-      if (body.trajectories > config.MAX_TRAJECTORIES) errors.push({ path: 'body.trajectories', message: `at most ${config.MAX_TRAJECTORIES}` });
-      const validation = storedPeriod(version.periods.validation);
-      if ((!body.from || !body.to) && !validation) errors.push({ path: body.from ? 'body.to' : 'body.from', message: `model version ${version.id} records no validation period; give from and to` });
-      const fromMs = body.from ? Date.parse(body.from) : validation?.fromMs;
-      const toMs = body.to ? Date.parse(body.to) : validation?.toMs;
-      if (fromMs !== undefined && toMs !== undefined && !(fromMs < toMs)) errors.push({ path: 'body.to', message: 'the period is empty (from must be before to)' });
-      if (!errors.length && body.mode === 'reforecast' && (await reforecastIssueTimes(db, gauge.id, fromMs!, toMs!)).length === 0) {
-        errors.push({ path: 'body.mode', message: `gauge ${gauge.id} has no reforecasts issued between ${isoUtc(fromMs!)} and ${isoUtc(toMs!)}` });
-      }
-      if (errors.length) throw invalid(errors);
-      const params: HindcastJobParams = {
-        mode: body.mode,
-        versionId: version.id,
-        from: isoUtc(fromMs!),
-        to: isoUtc(toMs!),
-        horizon: body.horizon ?? null,
-        everySteps: body.everySteps,
-        trajectories: body.trajectories,
-        seed: body.seed,
-        seasonalWindowDays: body.seasonalWindowDays,
-        minLead: body.minLead ?? null,
-        maxLead: body.maxLead ?? null,
-        sizeStudy: { sources: body.sizeStudy.sources, sizes: body.sizeStudy.sizes, repeats: body.sizeStudy.repeats, caseFraction: body.sizeStudy.caseFraction ?? null },
-        purpose: 'request',
-        setDriftLevel: body.setDriftLevel,
-      };
-      const job = await enqueueJob(db, 'hindcast', gauge.id, params, req.principal?.tokenId ?? null);
+      const job = await requestHindcast(db, gauge, body, { maxTrajectories: config.MAX_TRAJECTORIES }, req.principal?.tokenId ?? null);
       reply.code(202).header('location', href(gauge.id, job.id));
       return { ...job, href: href(gauge.id, job.id) };
     },

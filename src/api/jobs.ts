@@ -2,7 +2,7 @@ import type { FastifyInstance } from 'fastify';
 import { z } from 'zod';
 import { getJob, listJobs, requestCancel } from '../store/jobs-repo.ts';
 import { addRoute, type Services } from './context.ts';
-import { notFound } from './problem.ts';
+import { notFound } from '../services/problem.ts';
 import { GaugeId } from './schemas.ts';
 import { parseWith } from './validate.ts';
 

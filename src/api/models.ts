@@ -1,8 +1,8 @@
 import type { FastifyInstance } from 'fastify';
 import { z } from 'zod';
 import { checkFeatureSpec, featureCount, FeatureInputError } from '../core/features.ts';
-import { scheduleGaugeStatusRefresh } from '../jobs/drift-refresh.ts';
-import { defaultPeriods, perLeadParts, type PerLeadOutput } from '../jobs/fit-job.ts';
+import { scheduleGaugeStatusRefresh } from '../services/drift.ts';
+import { defaultPeriods, perLeadParts, type PerLeadOutput } from '../services/fit.ts';
 import { runCompute } from '../workers/run-compute.ts';
 import { inspectOnnx, OnnxInspectError } from '../models/onnx-inspect.ts';
 import { loadArchiveSeries, loadReforecastSet } from '../store/archive-series.ts';
@@ -20,7 +20,7 @@ import {
 } from '../store/models-repo.ts';
 import { GaugeParams, requireGauge } from './archive-common.ts';
 import { addRoute, type Services } from './context.ts';
-import { conflict, invalid, notFound } from './problem.ts';
+import { conflict, invalid, notFound } from '../services/problem.ts';
 import { Rfc3339 } from './schemas.ts';
 import { parseWith } from './validate.ts';
 

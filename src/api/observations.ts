@@ -1,13 +1,13 @@
 import type { FastifyInstance } from 'fastify';
 import { z } from 'zod';
-import { scheduleGaugeStatusRefresh } from '../jobs/drift-refresh.ts';
+import { scheduleGaugeStatusRefresh } from '../services/drift.ts';
 import { readObservations, upsertObservations } from '../store/archive-repo.ts';
 import { bodyFormat, GaugeParams, readWindow, requireGauge, sendCsv, wantsCsv } from './archive-common.ts';
 import { addRoute, type Services } from './context.ts';
 import { csvCell, parseCsv, splitHeader } from './csv.ts';
-import { ErrorList } from './problem.ts';
+import { ErrorList } from '../services/problem.ts';
 import { TimeWindowQuery } from './schemas.ts';
-import { checkFlowUnit, checkTimes, checkValues, csvNumber, isoUtc } from './series-input.ts';
+import { checkFlowUnit, checkTimes, checkValues, csvNumber, isoUtc } from '../services/series-input.ts';
 import { parseWith } from './validate.ts';
 
 const ObservationsBody = z.strictObject({

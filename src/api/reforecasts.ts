@@ -5,9 +5,9 @@ import { listMembers, readReforecasts, upsertReforecast } from '../store/archive
 import { bodyFormat, GaugeParams, readWindow, requireGauge, sendCsv, wantsCsv } from './archive-common.ts';
 import { addRoute, type Services } from './context.ts';
 import { parseCsv, splitHeader } from './csv.ts';
-import { ErrorList } from './problem.ts';
+import { ErrorList } from '../services/problem.ts';
 import { MemberId, TimeWindowQuery } from './schemas.ts';
-import { checkFlowUnit, checkTimes, checkValues, csvNumber, isoUtc } from './series-input.ts';
+import { checkFlowUnit, checkTimes, checkValues, csvNumber, isoUtc } from '../services/series-input.ts';
 import { parseWith } from './validate.ts';
 
 const ReforecastsBody = z.strictObject({

@@ -11,10 +11,10 @@ import { archiveBytes, getActiveModelVersion, latestRawArchiveInfo, modelParts, 
 import { archiveReach, chooseArchive } from '../core/archive-choice.ts';
 import { GaugeParams, requireGauge } from './archive-common.ts';
 import { addRoute, type Services } from './context.ts';
-import { buildForecastView } from './forecast-view.ts';
-import { conflict, ErrorList, invalid, Problem } from './problem.ts';
+import { buildForecastView } from '../services/forecast-view.ts';
+import { conflict, ErrorList, invalid, Problem } from '../services/problem.ts';
 import { MemberId, Rfc3339 } from './schemas.ts';
-import { checkFlowUnit, checkTimes, isoUtc } from './series-input.ts';
+import { checkFlowUnit, checkTimes, isoUtc } from '../services/series-input.ts';
 import { parseWith } from './validate.ts';
 
 /**

@@ -2,7 +2,7 @@ import type { FastifyInstance } from 'fastify';
 import { z } from 'zod';
 import { listTokens, revokeToken } from '../store/tokens-repo.ts';
 import { addRoute, type Services } from './context.ts';
-import { notFound } from './problem.ts';
+import { notFound } from '../services/problem.ts';
 import { createToken } from './tokens.ts';
 import { parseWith } from './validate.ts';
 

@@ -7,6 +7,14 @@ import { CancelledError } from '../core/cancelled.ts';
 /** What a job kind does; `progress` records stage and percent and says whether to stop. */
 export type JobHandler = (job: Job, ctx: { db: Db; progress: (stage: string, percent: number) => Promise<boolean>; signal: AbortSignal }) => Promise<unknown>;
 
+/** Work the runner repeats on a timer, next to the queued jobs (e.g. the drift status refresh). */
+export interface ScheduledTask {
+  name: string;
+  firstMs: number;
+  everyMs: number;
+  run: (db: Db, log: FastifyBaseLogger) => Promise<void>;
+}
+
 const HEARTBEAT_MS = 3_000;
 const STALE_SECONDS = 30;
 
@@ -21,18 +29,40 @@ export class JobRunner {
   private busy: Promise<void> | null = null;
   private stopped = false;
   private current: AbortController | null = null;
+  private readonly taskTimers = new Set<NodeJS.Timeout>();
+  private readonly taskRuns = new Set<Promise<void>>();
 
   constructor(
     private readonly db: Db,
     private readonly handlers: Record<string, JobHandler>,
     private readonly log: FastifyBaseLogger,
     private readonly pollMs = 500,
+    private readonly tasks: ScheduledTask[] = [],
   ) {}
 
   async start(): Promise<void> {
     const failed = await failStaleJobs(this.db, STALE_SECONDS);
     if (failed.length) this.log.warn({ jobs: failed }, 'jobs interrupted by a stopped instance were marked failed');
     this.schedule();
+    for (const task of this.tasks) this.repeat(task, task.firstMs);
+  }
+
+  /** Runs a scheduled task after a delay, then again every everyMs after each run ends. */
+  private repeat(task: ScheduledTask, delay: number): void {
+    if (this.stopped) return;
+    const timer = setTimeout(() => {
+      this.taskTimers.delete(timer);
+      const run = task
+        .run(this.db, this.log)
+        .catch((err: Error) => this.log.warn({ task: task.name, err: err.message }, 'scheduled task failed'))
+        .finally(() => {
+          this.taskRuns.delete(run);
+          this.repeat(task, task.everyMs);
+        });
+      this.taskRuns.add(run);
+    }, delay);
+    timer.unref();
+    this.taskTimers.add(timer);
   }
 
   /** Runs queued jobs now (tests use this instead of waiting for the poll). */
@@ -45,8 +75,10 @@ export class JobRunner {
   async stop(): Promise<void> {
     this.stopped = true;
     if (this.timer) clearTimeout(this.timer);
+    for (const t of this.taskTimers) clearTimeout(t);
     this.current?.abort();
     await this.busy;
+    await Promise.all(this.taskRuns);
   }
 
   private schedule(): void {

@@ -2,7 +2,7 @@ import type { Queryable } from './db.ts';
 import { chooseArchive } from '../core/archive-choice.ts';
 import { decodePercentiles } from './forecasts-repo.ts';
 
-/** What verification reads of one stored run (see src/api/forecast-view.ts for the served shape). */
+/** What verification reads of one stored run (see src/services/forecast-view.ts for the served shape). */
 export interface RunForVerification {
   id: string;
   issueMs: number;
