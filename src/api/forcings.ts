@@ -75,7 +75,7 @@ export async function forcingRoutes(app: FastifyInstance, { services }: { servic
   addRoute(
     app,
     services,
-    { method: 'POST', url: '/gauges/:id/forcings', summary: 'Add or correct forcings (precipitation mm per step, air temperature degC, others by name)', tag: 'archive', role: 'ingest', params: GaugeParams, body: ForcingsBody, bodyTypes: ['application/json', 'text/csv'] },
+    { method: 'POST', url: '/gauges/:id/forcings', summary: 'Add or correct forcings (precipitation mm per step, air temperature degC, others by name)', tag: 'archive', role: 'ingest', params: GaugeParams, body: ForcingsBody, bodyTypes: ['application/json', 'text/csv'], bodyDecodedByHandler: true },
     async (req) => {
       const errors = new ErrorList();
       const batch = bodyFormat(req) === 'csv' ? fromCsv(req.body as string, errors) : fromJson(req.body, errors);
@@ -113,7 +113,7 @@ export async function forcingRoutes(app: FastifyInstance, { services }: { servic
     { method: 'GET', url: '/gauges/:id/forcings', summary: 'Forcings in a time window (JSON or CSV); variables=a,b to choose', tag: 'archive', role: 'read', params: GaugeParams, query: ForcingsQuery, responseTypes: ['application/json', 'text/csv'] },
     async (req, reply) => {
       const gauge = await requireGauge(db, req.params);
-      const q = parseWith(ForcingsQuery, req.query, 'query');
+      const q = req.query;
       const { window } = readWindow({ from: q.from, to: q.to });
       const units = await forcingUnits(db, gauge.id);
       const names = q.variables ? q.variables.split(',').map((s) => s.trim()) : [...units.keys()].sort();

@@ -8,7 +8,6 @@ import { GaugeParams, requireGauge } from './archive-common.ts';
 import { addRoute, type Services } from './context.ts';
 import { conflict, notFound } from '../services/problem.ts';
 import { Rfc3339 } from './schemas.ts';
-import { parseWith } from './validate.ts';
 import { chooseFormat, FormatOnly } from './formats.ts';
 import { scoresCsv, scoresText, sendReport, textTable } from './verification.ts';
 
@@ -123,10 +122,11 @@ export async function hindcastRoutes(app: FastifyInstance, { services }: { servi
       role: 'admin',
       params: GaugeParams,
       body: HindcastBody,
+      bodyOptional: true,
     },
     async (req, reply) => {
       const gauge = await requireGauge(db, req.params);
-      const body = parseWith(HindcastBody, req.body ?? {}, 'body');
+      const body = req.body;
       const job = await requestHindcast(db, gauge, body, { maxTrajectories: config.MAX_TRAJECTORIES }, req.principal?.tokenId ?? null);
       reply.code(202).header('location', href(gauge.id, job.id));
       return { ...job, href: href(gauge.id, job.id) };
@@ -158,8 +158,8 @@ export async function hindcastRoutes(app: FastifyInstance, { services }: { servi
       responseTypes: ['application/json', 'text/csv', 'text/plain'],
     },
     async (req, reply) => {
-      const { id, jobId } = parseWith(HindcastParams, req.params, 'params');
-      const { format } = parseWith(HindcastQuery, req.query, 'query');
+      const { id, jobId } = req.params;
+      const { format } = req.query;
       await requireGauge(db, { id });
       const job = await getJob(db, jobId);
       if (!job || job.kind !== 'hindcast' || job.gaugeId !== id) throw notFound(`gauge ${id} has no hindcast ${jobId}`);

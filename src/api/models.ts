@@ -8,7 +8,6 @@ import { GaugeParams, requireGauge } from './archive-common.ts';
 import { addRoute, type Services } from './context.ts';
 import { notFound } from '../services/problem.ts';
 import { Rfc3339 } from './schemas.ts';
-import { parseWith } from './validate.ts';
 
 const PeriodBody = z.strictObject({ from: Rfc3339, to: Rfc3339 }).refine((p) => Date.parse(p.from) < Date.parse(p.to), { message: 'from must be before to', path: ['to'] });
 
@@ -79,9 +78,9 @@ export async function modelRoutes(app: FastifyInstance, { services }: { services
     archives: (await versionArchiveSummaries(db, v.id)).map((a) => ({ kind: a.kind, leadMode: a.leadMode, ...a.summary })),
   });
 
-  addRoute(app, services, { method: 'POST', url: '/gauges/:id/models/fit', summary: 'Start fitting (and optionally tuning) a residual model; answers at once with a job', tag: 'models', role: 'admin', params: GaugeParams, body: FitBody }, async (req, reply) => {
+  addRoute(app, services, { method: 'POST', url: '/gauges/:id/models/fit', summary: 'Start fitting (and optionally tuning) a residual model; answers at once with a job', tag: 'models', role: 'admin', params: GaugeParams, body: FitBody, bodyOptional: true }, async (req, reply) => {
     const gauge = await requireGauge(db, req.params);
-    const body = parseWith(FitBody, req.body ?? {}, 'body');
+    const body = req.body;
     const job = await enqueueJob(db, 'fit', gauge.id, body, req.principal?.tokenId ?? null);
     reply.code(202).header('location', `/jobs/${job.id}`);
     return job;
@@ -89,7 +88,7 @@ export async function modelRoutes(app: FastifyInstance, { services }: { services
 
   addRoute(app, services, { method: 'POST', url: '/gauges/:id/models/upload', summary: 'Upload an ONNX residual model trained elsewhere, with its feature spec; it is checked on archive rows first', tag: 'models', role: 'admin', params: GaugeParams, body: UploadBody }, async (req, reply) => {
     const gauge = await requireGauge(db, req.params);
-    const body = parseWith(UploadBody, req.body, 'body');
+    const body = req.body;
     const id = await evaluateUpload(db, gauge, body, req.principal?.tokenId ?? null);
     reply.code(201).header('location', `/gauges/${gauge.id}/models/${id}`);
     return withArchives((await getModelVersion(db, gauge.id, id))!);
@@ -101,14 +100,14 @@ export async function modelRoutes(app: FastifyInstance, { services }: { services
   });
 
   addRoute(app, services, { method: 'GET', url: '/gauges/:id/models/:version', summary: 'One model version: feature spec, periods, trainer, validation scores, error archives', tag: 'models', role: 'read', params: VersionParams }, async (req) => {
-    const { id, version } = parseWith(VersionParams, req.params, 'params');
+    const { id, version } = req.params;
     const v = await getModelVersion(db, id, version);
     if (!v) throw notFound(`no model version ${version} for gauge ${id}`);
     return withArchives(v);
   });
 
   addRoute(app, services, { method: 'POST', url: '/gauges/:id/models/:version/activate', summary: 'Make a version the one that corrects new runs', tag: 'models', role: 'admin', params: VersionParams }, async (req) => {
-    const { id, version } = parseWith(VersionParams, req.params, 'params');
+    const { id, version } = req.params;
     return activateVersion(db, services.pool, id, version, app.log);
   });
 
@@ -118,9 +117,9 @@ export async function modelRoutes(app: FastifyInstance, { services }: { services
   });
 
   const RawArchiveBody = z.strictObject({ transform: Transform.default({ kind: 'log' }), templateLength: z.number().int().min(1).max(2000).default(240) });
-  addRoute(app, services, { method: 'POST', url: '/gauges/:id/raw-archive', summary: "Start building the raw members' error archive (used in degraded mode)", tag: 'models', role: 'admin', params: GaugeParams, body: RawArchiveBody }, async (req, reply) => {
+  addRoute(app, services, { method: 'POST', url: '/gauges/:id/raw-archive', summary: "Start building the raw members' error archive (used in degraded mode)", tag: 'models', role: 'admin', params: GaugeParams, body: RawArchiveBody, bodyOptional: true }, async (req, reply) => {
     const gauge = await requireGauge(db, req.params);
-    const body = parseWith(RawArchiveBody, req.body ?? {}, 'body');
+    const body = req.body;
     const job = await enqueueJob(db, 'raw-archive', gauge.id, body, req.principal?.tokenId ?? null);
     reply.code(202).header('location', `/jobs/${job.id}`);
     return job;

@@ -64,7 +64,7 @@ export async function observationRoutes(app: FastifyInstance, { services }: { se
   addRoute(
     app,
     services,
-    { method: 'POST', url: '/gauges/:id/observations', summary: 'Add or correct observed flow (upsert by time)', tag: 'archive', role: 'ingest', params: GaugeParams, body: ObservationsBody, bodyTypes: ['application/json', 'text/csv'] },
+    { method: 'POST', url: '/gauges/:id/observations', summary: 'Add or correct observed flow (upsert by time)', tag: 'archive', role: 'ingest', params: GaugeParams, body: ObservationsBody, bodyTypes: ['application/json', 'text/csv'], bodyDecodedByHandler: true },
     async (req) => {
       const errors = new ErrorList();
       const batch = bodyFormat(req) === 'csv' ? fromCsv(req.body as string, errors) : fromJson(req.body, errors);

@@ -102,7 +102,7 @@ export async function reforecastRoutes(app: FastifyInstance, { services }: { ser
   addRoute(
     app,
     services,
-    { method: 'POST', url: '/gauges/:id/reforecasts', summary: 'Add past forecast runs (upsert by issue time, member and lead time); members must be known from simulations', tag: 'archive', role: 'ingest', params: GaugeParams, body: ReforecastsBody, bodyTypes: ['application/json', 'text/csv'] },
+    { method: 'POST', url: '/gauges/:id/reforecasts', summary: 'Add past forecast runs (upsert by issue time, member and lead time); members must be known from simulations', tag: 'archive', role: 'ingest', params: GaugeParams, body: ReforecastsBody, bodyTypes: ['application/json', 'text/csv'], bodyDecodedByHandler: true },
     async (req) => {
       const errors = new ErrorList();
       const csv = bodyFormat(req) === 'csv';

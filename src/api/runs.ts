@@ -4,7 +4,6 @@ import { RunCorrection } from '../services/correct-run.ts';
 import { GaugeParams, requireGauge } from './archive-common.ts';
 import { addRoute, type Services } from './context.ts';
 import { MemberId, Rfc3339 } from './schemas.ts';
-import { parseWith } from './validate.ts';
 
 export const RunBody = z.strictObject({
   issueTime: Rfc3339,
@@ -40,7 +39,7 @@ export async function runRoutes(app: FastifyInstance, { services }: { services: 
     { method: 'POST', url: '/gauges/:id/runs', summary: 'Post a raw ensemble run; answers with corrected quantiles and exceedance probabilities', tag: 'forecasts', role: 'ingest', params: GaugeParams, body: RunBody },
     async (req, reply) => {
       const started = performance.now();
-      const body = parseWith(RunBody, req.body, 'body');
+      const body = req.body;
       const gauge = await requireGauge(db, req.params);
       const key = req.headers['idempotency-key'];
       const answer = await correction.correct(gauge, body, typeof key === 'string' ? key : null, req.log, started);

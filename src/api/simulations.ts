@@ -63,7 +63,7 @@ export async function simulationRoutes(app: FastifyInstance, { services }: { ser
   addRoute(
     app,
     services,
-    { method: 'POST', url: '/gauges/:id/simulations', summary: "Add the raw model's continuous simulation per member (upsert by member and time)", tag: 'archive', role: 'ingest', params: GaugeParams, body: SimulationsBody, bodyTypes: ['application/json', 'text/csv'] },
+    { method: 'POST', url: '/gauges/:id/simulations', summary: "Add the raw model's continuous simulation per member (upsert by member and time)", tag: 'archive', role: 'ingest', params: GaugeParams, body: SimulationsBody, bodyTypes: ['application/json', 'text/csv'], bodyDecodedByHandler: true },
     async (req) => {
       const errors = new ErrorList();
       const batch = bodyFormat(req) === 'csv' ? fromCsv(req.body as string, errors) : fromJson(req.body, errors);
@@ -90,7 +90,7 @@ export async function simulationRoutes(app: FastifyInstance, { services }: { ser
     { method: 'GET', url: '/gauges/:id/simulations', summary: 'Member simulations in a time window (JSON or CSV); members=a,b to choose', tag: 'archive', role: 'read', params: GaugeParams, query: SimulationsQuery, responseTypes: ['application/json', 'text/csv'] },
     async (req, reply) => {
       const gauge = await requireGauge(db, req.params);
-      const q = parseWith(SimulationsQuery, req.query, 'query');
+      const q = req.query;
       const { window } = readWindow({ from: q.from, to: q.to });
       const rows = await readSimulations(db, gauge.id, window, q.members?.split(',').map((s) => s.trim()));
       const timeSet = [...new Set(rows.map((r) => r.t))].sort((a, b) => a - b);
