@@ -2,7 +2,7 @@ import type { FastifyInstance } from 'fastify';
 import { z } from 'zod';
 import type { ComparisonReport, SizeStudyResult, StochasticAdvice } from '../core/verification/index.ts';
 import { requestHindcast } from '../services/hindcast.ts';
-import type { HindcastJobParams } from '../services/hindcast-params.ts';
+import { HindcastJobParams } from '../services/hindcast-params.ts';
 import { getJob, listJobs, type Job } from '../store/jobs-repo.ts';
 import { GaugeParams, requireGauge } from './archive-common.ts';
 import { addRoute, type Services } from './context.ts';
@@ -74,7 +74,7 @@ interface HindcastResult {
 const href = (gaugeId: string, jobId: string) => `/gauges/${gaugeId}/hindcasts/${jobId}`;
 
 function summary(job: Job) {
-  const p = job.params as unknown as HindcastJobParams;
+  const p = HindcastJobParams.parse(job.params);
   return {
     id: job.id,
     status: job.status,

@@ -19,7 +19,7 @@ export async function overviewRoutes(app: FastifyInstance, { services }: { servi
       attentionLevel: services.config.ATTENTION_LEVEL,
       gauges: rows.map((r) => {
         const g = gauges.get(r.gauge_id)!;
-        const summary = (r.summary ?? []) as { label: string; value: number; maxExceedance: number; anyTime: number; attention: boolean }[];
+        const summary = r.summary ?? [];
         return {
           id: g.id,
           name: g.name,

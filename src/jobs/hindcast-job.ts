@@ -1,7 +1,8 @@
 import { runHindcast } from '../services/hindcast.ts';
-import type { HindcastJobParams } from '../services/hindcast-params.ts';
-import type { JobHandler } from './runner.ts';
+import { HindcastJobParams } from '../services/hindcast-params.ts';
+import { defineJob } from './runner.ts';
 
 /** Runs a hindcast (src/services/hindcast.ts). */
-export const hindcastJob: JobHandler = (job, { db, progress, signal }) =>
-  runHindcast(db, { id: job.id, gaugeId: job.gaugeId! }, job.params as unknown as HindcastJobParams, progress, signal);
+export const hindcastJob = defineJob('hindcast', HindcastJobParams, (params, job, { db, progress, signal }) =>
+  runHindcast(db, { id: job.id, gaugeId: job.gaugeId! }, params, progress, signal),
+);

@@ -1,11 +1,45 @@
 import { randomBytes } from 'node:crypto';
 import type { FastifyBaseLogger } from 'fastify';
+import type { z } from 'zod';
 import type { Db } from '../store/db.ts';
 import { claimJob, failStaleJobs, finishJob, reportProgress, type Job } from '../store/jobs-repo.ts';
 import { CancelledError } from '../core/cancelled.ts';
 
-/** What a job kind does; `progress` records stage and percent and says whether to stop. */
-export type JobHandler = (job: Job, ctx: { db: Db; progress: (stage: string, percent: number) => Promise<boolean>; signal: AbortSignal }) => Promise<unknown>;
+export interface JobContext {
+  db: Db;
+  /** Records stage and percent; answers whether the job was asked to stop. */
+  progress: (stage: string, percent: number) => Promise<boolean>;
+  signal: AbortSignal;
+}
+
+/** What a job kind does. */
+export type JobHandler = (job: Job, ctx: JobContext) => Promise<unknown>;
+
+/** A job kind with the schema its stored params are read through. */
+export interface JobDefinition {
+  kind: string;
+  handler: JobHandler;
+}
+
+/**
+ * Registers a job kind: its stored params are parsed with `params` before the handler runs, so
+ * the handler gets them typed (a job whose params do not fit fails, naming the fields).
+ */
+export function defineJob<S extends z.ZodType>(kind: string, params: S, handler: (params: z.output<S>, job: Job, ctx: JobContext) => Promise<unknown>): JobDefinition {
+  return {
+    kind,
+    handler: (job, ctx) => {
+      const parsed = params.safeParse(job.params);
+      if (!parsed.success) throw new Error(`job ${job.id} (${kind}) has invalid params: ${parsed.error.issues.map((i) => `${i.path.join('.') || 'params'}: ${i.message}`).join('; ')}`);
+      return handler(parsed.data, job, ctx);
+    },
+  };
+}
+
+/** The handlers of several job kinds, by kind. */
+export function jobTable(definitions: JobDefinition[]): Record<string, JobHandler> {
+  return Object.fromEntries(definitions.map((d) => [d.kind, d.handler]));
+}
 
 /** Work the runner repeats on a timer, next to the queued jobs (e.g. the drift status refresh). */
 export interface ScheduledTask {

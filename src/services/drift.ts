@@ -91,7 +91,7 @@ export async function computeGaugeStatus(db: Queryable, gaugeId: string): Promis
     // A run's lead times share its errors: each run counts once in the coverage test.
     testUnits: 'issues',
   });
-  const validation = active.periods.validation as { from?: string; to?: string } | undefined;
+  const validation = active.periods.validation;
   const p = reference.basis.period;
   if (validation?.from && validation.to && p.from < validation.to && p.to > validation.from) {
     d.reasons.push(

@@ -1,6 +1,7 @@
 // Use case: fit a residual model (and its error archives) from a gauge's archive, store it as a new
 // version and optionally activate it; and build the raw members' error archive alone. The trees,
 // tuning and ONNX export run in a compute worker (src/models/residual-fit.ts).
+import { z } from 'zod';
 import { archiveToBytes } from '../core/archive-codec.ts';
 import type { ArchiveSeries, Period } from '../core/archive-types.ts';
 import type { ErrorTransform } from '../core/error-transform.ts';
@@ -13,25 +14,37 @@ import { activateModelVersion, insertArchive, insertModelVersion } from '../stor
 import { runCompute } from '../workers/run-compute.ts';
 import type { JobProgress } from './job-progress.ts';
 
+const TransformSpec = z.discriminatedUnion('kind', [
+  z.object({ kind: z.literal('none') }),
+  z.object({ kind: z.literal('log'), offset: z.number().positive().optional() }),
+  z.object({ kind: z.literal('boxcox'), lambda: z.number(), offset: z.number().positive().optional() }),
+]);
+const PeriodText = z.object({ from: z.string(), to: z.string() });
+
 /** Parameters of a fit job, as stored with the job (the API's FitBody after its defaults). */
-export interface FitJobParams {
-  trainer: 'gradient-boosting' | 'random-forest';
-  params: Record<string, number>;
-  tuning: null | { evaluations: number; initial: number };
-  bundle: number;
-  seed: number;
-  calibration?: { from: string; to: string };
-  validation?: { from: string; to: string };
-  simLags: number;
-  forcingLags: number;
-  forcings?: string[];
-  seasonal: boolean;
-  transform: FitOptions['transform'];
-  templateLength: number;
-  maxTrainRows: number;
-  activate: boolean;
-  label?: string;
-}
+export const FitJobParams = z.object({
+  trainer: z.enum(['gradient-boosting', 'random-forest']),
+  params: z.record(z.string(), z.number()),
+  tuning: z.object({ evaluations: z.number().int(), initial: z.number().int() }).nullable(),
+  bundle: z.number().int(),
+  seed: z.number().int(),
+  calibration: PeriodText.optional(),
+  validation: PeriodText.optional(),
+  simLags: z.number().int(),
+  forcingLags: z.number().int(),
+  forcings: z.array(z.string()).optional(),
+  seasonal: z.boolean(),
+  transform: TransformSpec,
+  templateLength: z.number().int(),
+  maxTrainRows: z.number().int(),
+  activate: z.boolean(),
+  label: z.string().optional(),
+});
+export type FitJobParams = z.output<typeof FitJobParams>;
+
+/** Parameters of a raw-archive job. */
+export const RawArchiveJobParams = z.object({ templateLength: z.number().int(), transform: TransformSpec });
+export type RawArchiveJobParams = z.output<typeof RawArchiveJobParams>;
 
 /**
  * Default periods: of the steps with an observation, the first 70 % calibrate and the rest
@@ -148,11 +161,7 @@ export async function fitModel(db: Db, job: { gaugeId: string; createdBy: string
   };
 }
 
-/** Parameters of a raw-archive job. */
-export interface RawArchiveJobParams {
-  templateLength: number;
-  transform: FitOptions['transform'];
-}
+
 
 /** Builds the raw members' error archive alone, so degraded mode works before any model is fitted. */
 export async function buildRawArchive(db: Db, job: { gaugeId: string }, p: RawArchiveJobParams, progress: JobProgress) {
