@@ -8,6 +8,7 @@ import { archiveFromBytes } from '../core/archive-codec.ts';
 import { dayOfYearUtc } from '../core/day-of-year.ts';
 import { checkFeatureSpec, continuousRows, featureCount, FeatureInputError, requiredInputs, servingRows, type FeatureSpec, type RunInput } from '../core/features.ts';
 import { CancelledError } from '../core/cancelled.ts';
+import { correctedMember } from '../core/corrected-member.ts';
 import { createStochasticWorkspace } from '../core/stochastic-stage.ts';
 import {
   adviseStochasticStage,
@@ -286,11 +287,8 @@ export async function computeHindcast(input: HindcastTaskInput, progress: Progre
   }
 }
 
-/** max(0, value + residual), or NaN when either is missing. */
-function correctedValue(value: number, residual: number): number {
-  const v = value + residual;
-  return Number.isFinite(v) ? Math.max(0, v) : NaN;
-}
+/** The corrected member, or NaN (missing: the issue is left out) when the sum is not finite. */
+const usableCorrected = (value: number, residual: number) => (Number.isFinite(value + residual) ? correctedMember(value, residual) : NaN);
 
 /**
  * Simulation mode with lead-free features: every (model, member, valid time) the issues need is
@@ -326,7 +324,7 @@ async function correctPerValidTime(
       const base = (k * M + m) * n;
       for (let j = 0; j < pick.length; j++) {
         const t = all.index[pick[j]];
-        out[base + t] = correctedValue(sim[t], residual[j]);
+        out[base + t] = usableCorrected(sim[t], residual[j]);
       }
     }
     progress({ stage: 'correcting the members', percent: 2 + (33 * (m + 1)) / M });
@@ -397,7 +395,7 @@ async function correctPerIssue(
       for (let slot = 0; slot < filled.length; slot++) {
         const j = filled[slot];
         const base = (j * K + k) * perIssue;
-        for (let r = 0; r < perIssue; r++) out[base + r] = correctedValue(rawBatch[slot * perIssue + r], residual[slot * perIssue + r]);
+        for (let r = 0; r < perIssue; r++) out[base + r] = usableCorrected(rawBatch[slot * perIssue + r], residual[slot * perIssue + r]);
       }
     }
     progress({ stage: 'correcting the members', percent: 2 + (33 * b1) / issues.length });

@@ -1,3 +1,4 @@
+import { correctedMember } from '../core/corrected-member.ts';
 import { dayOfYearUtc } from '../core/day-of-year.ts';
 import { buildArchiveFromReforecasts, type ErrorArchive } from '../core/error-archive.ts';
 import type { ErrorTransformSpec } from '../core/error-transform.ts';
@@ -154,8 +155,8 @@ function unusable(a: ErrorArchive, issues: number): string | null {
 /**
  * Per-lead error archives from the gauge's stored past runs (reforecasts): each issue is laid out
  * like a served run — the members' continuous simulations up to issue time as warm-up, then the
- * stored value per lead — corrected by the residual model(s) (a bundle's mean, never negative, as
- * the lead-free archive), and compared with the observations at the valid times. Each issue ×
+ * stored value per lead — corrected by the residual model(s) (src/core/corrected-member.ts: each
+ * model's value clipped at zero, a bundle's mean over models, as serving and the lead-free archive), and compared with the observations at the valid times. Each issue ×
  * member is one row of the issue × lead matrix (up to ARCHIVE_MEMBERS members, evenly spread), so
  * every complete row is a Schaake template and cases are grouped per lead. The raw members' errors
  * on the same cases make the degraded-mode archive. Forcings at the lead times are the archived
@@ -207,18 +208,17 @@ export async function evaluateReforecasts(
     }
     const rows = reforecastRows(spec, batch);
     if (!rows.nRows) continue;
+    const cells = Int32Array.from({ length: rows.nRows }, (_, r) => ((u0 + rows.issue[r]) * nK + rows.member[r]) * L.H + rows.lead[r] - 1);
+    // A bundle's member: the mean of each model's clipped corrected value (src/core/corrected-member.ts).
     const sum = new Float64Array(rows.nRows);
     for (const predict of predictors) {
       const out = await predict(rows.rows, rows.nRows, rows.nFeatures);
       for (let r = 0; r < rows.nRows; r++) {
         if (!Number.isFinite(out[r])) throw new Error(`the residual model returned a non-finite value on a past run (issued ${new Date(batch[rows.issue[r]].issueTime).toISOString()}, lead ${rows.lead[r]})`);
-        sum[r] += out[r];
+        sum[r] += correctedMember(raw[cells[r]], out[r]);
       }
     }
-    for (let r = 0; r < rows.nRows; r++) {
-      const cell = ((u0 + rows.issue[r]) * nK + rows.member[r]) * L.H + rows.lead[r] - 1;
-      corrected[cell] = Math.max(0, raw[cell] + sum[r] / predictors.length);
-    }
+    for (let r = 0; r < rows.nRows; r++) corrected[cells[r]] = sum[r] / predictors.length;
   }
   // Raw errors on the same cases as the corrected ones, as in the lead-free archives.
   const rawMasked = raw.map((v, i) => (Number.isFinite(corrected[i]) ? v : NaN));
