@@ -9,7 +9,7 @@ import { addRoute, type Services } from './context.ts';
 import { conflict, notFound } from '../services/problem.ts';
 import { Rfc3339 } from './schemas.ts';
 import { chooseFormat, FormatOnly } from './formats.ts';
-import { scoresCsv, scoresText, sendReport, textTable } from './verification.ts';
+import { scoresCsv, scoresText, sendReport, sizeStudyText } from './report-formats.ts';
 
 const SourceEnum = z.enum(['raw', 'corrected', 'stochastic']);
 
@@ -92,22 +92,6 @@ function summary(job: Job) {
   };
 }
 
-function sizeStudyText(studies: SizeStudyResult[] | null): string[] {
-  if (!studies?.length) return [];
-  const out: string[] = [''];
-  for (const s of studies) {
-    out.push(`Ensemble-size study, ${s.source} (${s.members} available; ${s.repeats} random draws per case, ${Math.round(s.caseFraction * 1000) / 10} % of cases; band ${Math.round(s.level * 100)} %):`);
-    const f = (x: number | null, d = 3) => (x === null ? '–' : x.toFixed(d));
-    out.push(
-      ...textTable(
-        ['members', 'cases', 'CRPS', 'fair CRPS', 'band width', 'band coverage', 'PIT coverage', 'alpha', 'alpha sd'],
-        s.rows.map((r) => [String(r.size), String(r.cases), f(r.crps), f(r.fairCrps), f(r.meanWidth, 2), f(r.coverage), f(r.pitCoverage), f(r.alphaIndex), f(r.alphaIndexSd)]),
-      ),
-    );
-  }
-  return out;
-}
-
 export async function hindcastRoutes(app: FastifyInstance, { services }: { services: Services }) {
   const { db, config } = services;
 
@@ -167,7 +151,7 @@ export async function hindcastRoutes(app: FastifyInstance, { services }: { servi
       const body = { ...summary(job), params: job.params, startedAt: job.startedAt, result: job.result };
       if (chosen === 'json') return body;
       if (job.status !== 'succeeded' || !job.result) throw conflict(`hindcast ${jobId} is ${job.status}${job.status === 'running' ? ` (${job.stage}, ${Math.round(job.percent)} %)` : ''}; its scores are available as JSON status until it succeeds`);
-      const r = job.result as unknown as HindcastResult;
+      const r = job.result as HindcastResult;
       const header = [
         `${r.gaugeId} — hindcast ${jobId} (${r.mode} mode), model version ${r.modelVersion.id} (${r.modelVersion.label}); flows in m3/s`,
         `issues ${r.issues.first} – ${r.issues.last} (${r.issues.used}), ${r.horizon} lead times, ${r.members.length} members, ${r.trajectories} trajectories; ${r.cases.verified} verified cases`,
