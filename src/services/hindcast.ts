@@ -5,7 +5,7 @@
 import type { Period } from '../core/archive-types.ts';
 import { checkFeatureSpec, requiredInputs } from '../core/features.ts';
 import { formatDurationSeconds } from '../core/iso-duration.ts';
-import type { ComparisonReport, SourceName } from '../core/verification/index.ts';
+import type { SourceName } from '../core/verification/index.ts';
 import type { HindcastOutput, HindcastSettings } from '../models/hindcast-compute.ts';
 import { readReforecasts } from '../store/archive-repo.ts';
 import { loadArchiveSeries } from '../store/archive-series.ts';
