@@ -27,12 +27,11 @@ export const REFERENCE_MIN_REFORECASTS = 20;
 
 const iso = (ms: number) => new Date(ms).toISOString().replace('.000Z', 'Z');
 
-/** A version's stored period ({from, to} RFC 3339), or null. */
-export function storedPeriod(p: unknown): Period | null {
-  const v = p as { from?: unknown; to?: unknown } | null | undefined;
-  if (!v || typeof v.from !== 'string' || typeof v.to !== 'string') return null;
-  const fromMs = Date.parse(v.from);
-  const toMs = Date.parse(v.to);
+/** A version's stored period ({from, to} RFC 3339) in epoch ms, or null. */
+export function storedPeriod(p: { from: string; to: string } | undefined): Period | null {
+  if (!p) return null;
+  const fromMs = Date.parse(p.from);
+  const toMs = Date.parse(p.to);
   return Number.isFinite(fromMs) && Number.isFinite(toMs) ? { fromMs, toMs } : null;
 }
 
