@@ -28,7 +28,7 @@ export interface JobDefinition {
 export function defineJob<S extends z.ZodType>(kind: string, params: S, handler: (params: z.output<S>, job: Job, ctx: JobContext) => Promise<unknown>): JobDefinition {
   return {
     kind,
-    handler: (job, ctx) => {
+    handler: async (job, ctx) => {
       const parsed = params.safeParse(job.params);
       if (!parsed.success) throw new Error(`job ${job.id} (${kind}) has invalid params: ${parsed.error.issues.map((i) => `${i.path.join('.') || 'params'}: ${i.message}`).join('; ')}`);
       return handler(parsed.data, job, ctx);
