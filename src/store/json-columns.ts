@@ -34,3 +34,8 @@ export const DriftBasis = z.object({ jobId: z.string(), mode: z.enum(['simulatio
 
 /** forecast_runs.summary: per threshold, what the overview shows. */
 export const RunSummary = z.array(z.looseObject({ label: z.string(), value: z.number(), maxExceedance: z.number(), anyTime: z.number().nullable(), attention: z.boolean() }));
+
+/** The parts of forecast_runs.output that verification reads: valid times and the two ensembles (corrected is null for degraded runs). */
+const MemberValues = z.array(z.object({ id: z.string(), values: z.array(z.number()) }));
+export const RunValidTimes = z.array(z.string());
+export const RunEnsembles = z.object({ raw: MemberValues, corrected: MemberValues.nullable() });
