@@ -6,8 +6,17 @@ import { z } from 'zod';
 /** A stored period, RFC 3339 times. */
 export const PeriodText = z.object({ from: z.string(), to: z.string() });
 
-/** model_versions.periods: the calibration (fitted models) and validation periods. */
-export const VersionPeriods = z.looseObject({ calibration: PeriodText.optional(), validation: PeriodText.optional() });
+/**
+ * model_versions.periods: calibration (fitted models) and validation; newer fits also the
+ * validation's early-stopping and held-out archive blocks, and where the archives' errors came from.
+ */
+export const VersionPeriods = z.looseObject({
+  calibration: PeriodText.optional(),
+  validation: PeriodText.optional(),
+  stopping: PeriodText.optional(),
+  archive: PeriodText.optional(),
+  archiveSource: z.string().optional(),
+});
 
 /** Open-ended JSON objects: model_versions.trainer and .scores, gauge_status.evidence. */
 export const JsonObject = z.record(z.string(), z.unknown());
