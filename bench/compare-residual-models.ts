@@ -6,11 +6,12 @@
 // Prints a table (the numbers in README.md come from it); nothing is asserted.
 import { archiveToBytes } from '../src/core/archive-codec.ts';
 import type { FeatureSpec } from '../src/core/features.ts';
-import { computeHindcast, type HindcastSettings } from '../src/jobs/hindcast-compute.ts';
+import { computeHindcast, type HindcastSettings } from '../src/models/hindcast-compute.ts';
 import { fitLstmResidualModel } from '../src/models/lstm-fit.ts';
 import { predictorFor } from '../src/models/model-shape.ts';
 import { createResidualSession } from '../src/models/onnx-session.ts';
-import { evaluateResidualModel, type Period } from '../src/models/residual-evaluation.ts';
+import type { Period } from '../src/core/archive-types.ts';
+import { evaluateResidualModel } from '../src/models/residual-evaluation.ts';
 import { fitResidualModel, splitValidation } from '../src/models/residual-fit.ts';
 import type { ResidualSpec } from '../src/core/model-inputs.ts';
 import { demoPeriods, demoSeries } from './demo-series.ts';

@@ -1,7 +1,8 @@
 // The demo gauge's archive as the fitting code sees it (what loadArchiveSeries returns after
 // `npm run demo` loaded it), built straight from the invented scenario without a database.
 import { buildScenario, type Scenario } from '../src/scenario/scenario.ts';
-import type { ArchiveSeries, Period } from '../src/models/residual-evaluation.ts';
+import type { ArchiveSeries, Period } from '../src/core/archive-types.ts';
+import { defaultPeriods } from '../src/services/fit.ts';
 
 /** The demo's "today": three days before the largest flood of the last three years (as src/scenario/demo.ts). */
 export function demoToday(observed: (number | null)[]): number {
@@ -28,10 +29,7 @@ export function demoSeries(): { scenario: Scenario; series: ArchiveSeries; today
   return { scenario, series, today };
 }
 
-/** The fit job's default periods: the first 70 % of observed steps calibrate, the rest validate. */
+/** The fit job's default periods (src/services/fit.ts): the first 60 % of observed steps calibrate, the rest validate. */
 export function demoPeriods(series: ArchiveSeries): { calibration: Period; validation: Period } {
-  const observed: number[] = [];
-  for (let i = 0; i < series.times.length; i++) if (Number.isFinite(series.observed[i])) observed.push(series.times[i]);
-  const split = observed[Math.floor(observed.length * 0.7)];
-  return { calibration: { fromMs: observed[0], toMs: split }, validation: { fromMs: split, toMs: observed[observed.length - 1] + 86_400_000 } };
+  return defaultPeriods(series);
 }

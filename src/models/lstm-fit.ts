@@ -16,8 +16,10 @@ import type { LstmModel } from './lstm/model.ts';
 import { trainLstm, type LstmParams } from './lstm/train.ts';
 import { predictorFor } from './model-shape.ts';
 import { createResidualSession, predictResiduals } from './onnx-session.ts';
-import { evaluateReforecasts, type ReforecastEvaluation, type ReforecastSet } from './reforecast-evaluation.ts';
-import { evaluateResidualModel, type ArchiveSeries, type Evaluation, type Period } from './residual-evaluation.ts';
+import type { ArchiveSeries, Period, ReforecastSet } from '../core/archive-types.ts';
+import { CancelledError } from '../core/cancelled.ts';
+import { evaluateReforecasts, type ReforecastEvaluation } from './reforecast-evaluation.ts';
+import { evaluateResidualModel, type Evaluation } from './residual-evaluation.ts';
 import { splitValidation } from './residual-fit.ts';
 import { tune, type SearchParam } from './tuning/index.ts';
 
@@ -64,12 +66,6 @@ export interface LstmFitResult {
   periods: { calibration: Period; stopping: Period; archive: Period };
   rows: { calibration: number; stopping: number };
   onnxCheck: { rows: number; maxRelativeError: number; tolerance: number };
-}
-
-export class LstmFitCancelled extends Error {
-  constructor() {
-    super('cancelled');
-  }
 }
 
 const ONNX_TOLERANCE = 1e-5;
@@ -181,7 +177,7 @@ export async function fitLstmResidualModel(
         const params = { ...base, ...p };
         const i = trials.length;
         const run = trainOnce(params, options.seed + i, 5 + (80 * i) / total, 5 + (80 * (i + 1)) / total);
-        if (run.trained.stopReason === 'cancelled') throw new LstmFitCancelled();
+        if (run.trained.stopReason === 'cancelled') throw new CancelledError();
         const value = Math.min(...run.trained.history);
         // Only the best run so far is kept in memory (its stopping windows are large).
         const bestSoFar = Math.min(Infinity, ...trials.map((t) => t.validationRmse));
@@ -194,17 +190,17 @@ export async function fitLstmResidualModel(
       },
       { evaluations: total, initial: Math.min(options.tuning.initial, total), seed: options.seed, keepBest: 1, shouldStop },
     );
-    if (shouldStop()) throw new LstmFitCancelled();
+    if (shouldStop()) throw new CancelledError();
     const top = result.trials.find((t) => Number.isFinite(t.value));
     if (!top || !runs.has(top.index)) throw new Error(`no tuning trial trained: ${result.trials.map((t) => t.error).filter(Boolean)[0] ?? 'unknown'}`);
     best = runs.get(top.index)!;
   } else {
     const run = trainOnce(base, options.seed, 5, 85);
-    if (run.trained.stopReason === 'cancelled') throw new LstmFitCancelled();
+    if (run.trained.stopReason === 'cancelled') throw new CancelledError();
     trials.push({ params: { ...base }, validationRmse: Math.min(...run.trained.history), epochs: run.trained.history.length });
     best = { ...run, params: base };
   }
-  if (shouldStop()) throw new LstmFitCancelled();
+  if (shouldStop()) throw new CancelledError();
 
   onProgress({ stage: 'exporting to ONNX and checking it', percent: 86 });
   const { spec, trained, stop } = best;

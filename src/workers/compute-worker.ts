@@ -3,25 +3,20 @@
 import { parentPort, workerData } from 'node:worker_threads';
 import { archiveToBytes } from '../core/archive-codec.ts';
 import { checkResidualSpec } from '../core/model-inputs.ts';
-import type { LstmFitOptions } from '../models/lstm-fit.ts';
+import { CancelledError } from '../core/cancelled.ts';
+import { computeHindcast } from '../models/hindcast-compute.ts';
+import { fitLstmResidualModel } from '../models/lstm-fit.ts';
 import { predictorFor } from '../models/model-shape.ts';
 import { createResidualSession } from '../models/onnx-session.ts';
-import { runLstmFit } from './lstm-fit-task.ts';
-import { computeHindcast, type HindcastTaskInput } from './hindcast-compute.ts';
-import { fitResidualModel, type FitOptions } from '../models/residual-fit.ts';
-import { evaluateReforecasts, type ReforecastEvaluation, type ReforecastSet } from '../models/reforecast-evaluation.ts';
-import { archiveSummary, evaluateResidualModel, rawArchiveFromSeries, type ArchiveSeries, type ArchiveOptions, type Period } from '../models/residual-evaluation.ts';
+import { evaluateReforecasts, type ReforecastEvaluation } from '../models/reforecast-evaluation.ts';
+import { archiveSummary, evaluateResidualModel, rawArchiveFromSeries } from '../models/residual-evaluation.ts';
+import { fitResidualModel } from '../models/residual-fit.ts';
+import type { ComputeMessage, ComputeStart } from './protocol.ts';
 
-export type ComputeTask =
-  | { kind: 'fit'; series: ArchiveSeries; options: FitOptions }
-  | { kind: 'fit-lstm'; series: ArchiveSeries; options: LstmFitOptions }
-  | { kind: 'evaluate-upload'; series: ArchiveSeries; onnx: Uint8Array; spec: unknown; validation: Period; archive: ArchiveOptions; reforecasts?: ReforecastSet | null }
-  | { kind: 'raw-archive'; series: ArchiveSeries; period: Period; archive: ArchiveOptions }
-  | { kind: 'hindcast'; input: HindcastTaskInput };
-
-const { task, cancelFlag } = workerData as { task: ComputeTask; cancelFlag: Int32Array; module: string };
+const { task, cancelFlag } = workerData as ComputeStart;
 const shouldStop = () => Atomics.load(cancelFlag, 0) === 1;
-const progress = (p: { stage: string; percent: number }) => parentPort!.postMessage({ type: 'progress', ...p });
+const post = (m: ComputeMessage) => parentPort!.postMessage(m);
+const progress = (p: { stage: string; percent: number }) => post({ type: 'progress', ...p });
 
 /** The per-lead archives as stored (bytes + summary), or why there are none; null without past runs. */
 function perLeadResult(e: ReforecastEvaluation | null) {
@@ -51,8 +46,20 @@ async function run(): Promise<unknown> {
         perLead: perLeadResult(r.perLead),
       };
     }
-    case 'fit-lstm':
-      return runLstmFit(task.series, task.options, progress, shouldStop);
+    case 'fit-lstm': {
+      const r = await fitLstmResidualModel(task.series, task.options, progress, shouldStop);
+      return {
+        spec: r.spec,
+        parts: [{ onnx: r.onnx, params: r.params, validationRmse: r.validationRmse, info: r.model.info }],
+        trials: r.trials,
+        scores: r.evaluation.scores,
+        rows: r.rows,
+        onnxCheck: r.onnxCheck,
+        correctedArchive: { bytes: archiveToBytes(r.evaluation.correctedArchive), summary: archiveSummary(r.evaluation.correctedArchive) },
+        rawArchive: { bytes: archiveToBytes(r.evaluation.rawArchive), summary: archiveSummary(r.evaluation.rawArchive) },
+        perLead: perLeadResult(r.perLead),
+      };
+    }
     case 'evaluate-upload': {
       const spec = checkResidualSpec(task.spec);
       progress({ stage: 'loading the model', percent: 10 });
@@ -86,6 +93,6 @@ async function run(): Promise<unknown> {
 }
 
 run().then(
-  (result) => parentPort!.postMessage({ type: 'done', result }),
-  (err: Error) => parentPort!.postMessage({ type: 'error', message: err.message, cancelled: err.message === 'cancelled' || shouldStop() }),
+  (result) => post({ type: 'done', result }),
+  (err: Error) => post({ type: 'error', message: err.message, cancelled: err instanceof CancelledError }),
 );
