@@ -129,12 +129,15 @@ try {
   const version = (await send('GET', `/gauges/${gaugeId}/models/${job.result.versionId}`)).body as { archives: Record<string, unknown>[] };
   for (const a of version.archives) console.log(`archive ${a.kind}/${a.leadMode}: ${JSON.stringify({ cases: a.cases, templates: a.templates, neighbours: a.neighbours, leadScale: a.leadScale })}`);
   console.log('');
-  console.log('| lead | cases | alpha (goal ≥ 0.95) | 95 % coverage (goal 0.94–0.96) | CRPS (m3/s) |');
-  console.log('|---|---|---|---|---|');
+  console.log('| lead | cases | alpha (goal ≥ 0.95) | 95 % coverage (goal 0.94–0.96) | CRPS (m3/s) | mean PIT | PIT histogram (10 bins, %) |');
+  console.log('|---|---|---|---|---|---|---|');
   for (let h = 0; h < H; h++) {
     const a = alphaIndex(pit[h]);
     const c = inside95[h] / cases[h];
-    console.log(`| ${h + 1} | ${cases[h]} | ${a.toFixed(3)} ${ok(a >= 0.95)} | ${c.toFixed(3)} ${ok(c >= 0.94 && c <= 0.96)} | ${(crps[h] / cases[h]).toFixed(3)} |`);
+    const bins = new Array(10).fill(0);
+    for (const u of pit[h]) bins[Math.min(9, Math.floor(u * 10))]++;
+    const meanPit = pit[h].reduce((x, y) => x + y, 0) / pit[h].length;
+    console.log(`| ${h + 1} | ${cases[h]} | ${a.toFixed(3)} ${ok(a >= 0.95)} | ${c.toFixed(3)} ${ok(c >= 0.94 && c <= 0.96)} | ${(crps[h] / cases[h]).toFixed(3)} | ${meanPit.toFixed(3)} | ${bins.map((b) => Math.round((100 * b) / pit[h].length)).join(' ')} |`);
   }
   const meanCrps = crps.reduce((a, b) => a + b, 0) / cases.reduce((a, b) => a + b, 0);
   console.log(`mean CRPS over leads: ${meanCrps.toFixed(4)} m3/s`);
