@@ -1,0 +1,385 @@
+// Fits the issue-time updater of a model version from pseudo-forecasts of the validation period:
+// the residual-corrected continuous simulations read as forecasts issued every step. Candidates
+// with lead in their structure are fitted on block A, tree candidates stop early on block B, and
+// all are scored per lead on block C, which neither fitting nor early stopping saw.
+import { dayOfYearUtc } from '../core/day-of-year.ts';
+import { buildArchiveFromReforecasts, type ErrorArchive } from '../core/error-archive.ts';
+import type { ErrorTransform } from '../core/error-transform.ts';
+import { continuousRows, type FeatureSpec } from '../core/features.ts';
+import { createPrng } from '../core/prng.ts';
+import {
+  ar1Multipliers,
+  buildPseudoForecasts,
+  fitAr1,
+  fitPhiPerLead,
+  multiplierPredictor,
+  pairedLeadDifference,
+  scoreShifts,
+  shiftInTransform,
+  transformedError,
+  type LeadScore,
+  type PseudoForecastCube,
+  type ShiftPredictor,
+  type UpdatingModel,
+} from '../core/updating.ts';
+import { archiveMembers, type ArchiveSeries, type Period, type ResidualPredictor } from './residual-evaluation.ts';
+import { predictTrees, trainGradientBoosting, type TreeModel } from './trees/index.ts';
+
+export type UpdatingMode = 'auto' | 'on' | 'off';
+
+export interface UpdatingOptions {
+  mode: UpdatingMode;
+  /** Lead times (steps) the updater and its error archive cover. */
+  leads: number;
+  /** Lead bands for the per-band tree candidate, e.g. [[1, 2], [3, 5], [6, 10]]; null = derived from leads. */
+  leadBands: [number, number][] | null;
+  /** Earlier raw errors given to the tree candidates besides the one at issue time. */
+  history: number;
+  /** Fit and score the tree candidates (slower; they are measured, not served). */
+  trees: boolean;
+  seed: number;
+  maxTrainRows: number;
+}
+
+export interface CandidateScore {
+  name: 'none' | 'ar1' | 'phi-per-lead' | 'trees-lead-feature' | 'trees-lead-bands';
+  /** Whether the service can apply it to runs (the closed-form ones). */
+  servable: boolean;
+  /** Mean over leads of the per-lead CRPS on block C (m³/s). */
+  meanCrps: number | null;
+  byLead: LeadScore[];
+  phi?: number[];
+}
+
+export interface UpdatingFit {
+  mode: UpdatingMode;
+  /** The updater to store with the version, or null when updating is off (reason says why). */
+  model: UpdatingModel | null;
+  reason: string | null;
+  blocks: { fit: { from: string; to: string; issues: number }; earlyStopping: { from: string; to: string; issues: number }; heldOut: { from: string; to: string; issues: number } };
+  members: number;
+  candidates: CandidateScore[];
+  /** The candidate with the lowest mean CRPS on block C, and the one served (best closed-form). */
+  best: CandidateScore['name'];
+  served: CandidateScore['name'] | null;
+  /** Per lead: CRPS without updating minus with the served candidate on block C, its standard error, and whether the lead updates. */
+  leads: { lead: number; crpsGain: number | null; se: number | null; on: boolean }[];
+  note: string;
+  /**
+   * Error archive of the updated members (per lead, from blocks B and C: not used to fit φ),
+   * and each archive case's issue-time error ε0 = T(obs) − T(corrected) in the archive's
+   * transform, aligned with the archive's cases (archive.error[i] ↔ issueError[i]). null when off.
+   */
+  archive: { archive: ErrorArchive; issueError: Float64Array; summary: Record<string, unknown> } | null;
+}
+
+export const PSEUDO_FORECAST_NOTE =
+  'Pseudo-forecasts are the continuous simulations read as forecasts issued every step: they carry the model error but no forecast-forcing error, which real past runs also carry; so at longer leads they overstate what updating gains.';
+
+/** Default lead bands for the per-band tree candidate: 1–2, 3–5, 6–10, 11–20, … up to leads. */
+export function defaultLeadBands(leads: number): [number, number][] {
+  const edges = [1, 3, 6, 11, 21, 41, 81, 161];
+  const bands: [number, number][] = [];
+  for (let i = 0; i < edges.length && edges[i] <= leads; i++) bands.push([edges[i], Math.min(leads, (edges[i + 1] ?? Infinity) - 1)]);
+  return bands;
+}
+
+const iso = (ms: number) => new Date(ms).toISOString().replace('.000Z', 'Z');
+
+/** Residual-corrected continuous simulation of each member over the period (NaN outside it). */
+export async function correctedSeries(series: ArchiveSeries, spec: FeatureSpec, period: Period, predictors: ResidualPredictor[]): Promise<Float64Array[]> {
+  const out: Float64Array[] = [];
+  for (const member of series.members) {
+    const sim = member.values;
+    const all = continuousRows(spec, { times: series.times, sim, forcings: series.forcings, obs: sim });
+    const pick: number[] = [];
+    for (let r = 0; r < all.nRows; r++) {
+      const t = series.times[all.index[r]];
+      if (t >= period.fromMs && t < period.toMs) pick.push(r);
+    }
+    const cor = new Float64Array(series.times.length).fill(NaN);
+    if (pick.length) {
+      const nF = all.nFeatures;
+      const x = new Float32Array(pick.length * nF);
+      pick.forEach((r, j) => x.set(all.rows.subarray(r * nF, (r + 1) * nF), j * nF));
+      const sum = new Float64Array(pick.length);
+      for (const predict of predictors) {
+        const p = await predict(x, pick.length, nF);
+        for (let j = 0; j < pick.length; j++) sum[j] += p[j];
+      }
+      pick.forEach((r, j) => {
+        const t = all.index[r];
+        const v = sim[t] + sum[j] / predictors.length;
+        cor[t] = Number.isFinite(v) ? Math.max(0, v) : NaN;
+      });
+    }
+    out.push(cor);
+  }
+  return out;
+}
+
+/** Tree features of the cube rows: ε0, raw errors t … t − history, lead, simulated flow and T(corrected) − T(sim) at the lead. */
+function treeRows(cube: PseudoForecastCube, tr: ErrorTransform, issues: number[], leadFrom: number, leadTo: number): { x: Float32Array; y: Float64Array; n: number; nF: number; slot: Int32Array } {
+  const { nMembers: M, nLeads: L, history: hist } = cube;
+  const nF = 1 + (hist + 1) + 3;
+  const cap = issues.length * M * (leadTo - leadFrom + 1);
+  const x = new Float32Array(cap * nF);
+  const y = new Float64Array(cap);
+  const slot = new Int32Array(cap);
+  let r = 0;
+  issues.forEach((i, u) => {
+    for (let m = 0; m < M; m++) {
+      const e0 = cube.issueError[i * M + m];
+      if (!Number.isFinite(e0)) continue;
+      for (let k = leadFrom; k <= leadTo; k++) {
+        const c = (i * M + m) * L + k - 1;
+        const cor = cube.corrected[c];
+        const sim = cube.simulated[c];
+        if (!Number.isFinite(cor) || !Number.isFinite(sim)) continue;
+        let o = r * nF;
+        x[o++] = e0;
+        for (let j = 0; j <= hist; j++) x[o++] = cube.rawError[(i * M + m) * (hist + 1) + j];
+        x[o++] = k;
+        x[o++] = sim;
+        x[o++] = transformedError(tr, cor, sim);
+        y[r] = cube.target[c];
+        slot[r] = (u * M + m) * L + k - 1;
+        r++;
+      }
+    }
+  });
+  return { x: x.subarray(0, r * nF), y: y.subarray(0, r), n: r, nF, slot: slot.subarray(0, r) };
+}
+
+function finiteRows(t: ReturnType<typeof treeRows>): ReturnType<typeof treeRows> {
+  const keep: number[] = [];
+  for (let r = 0; r < t.n; r++) if (Number.isFinite(t.y[r])) keep.push(r);
+  const x = new Float32Array(keep.length * t.nF);
+  keep.forEach((r, j) => x.set(t.x.subarray(r * t.nF, (r + 1) * t.nF), j * t.nF));
+  return { x, y: Float64Array.from(keep, (r) => t.y[r]), n: keep.length, nF: t.nF, slot: Int32Array.from(keep, (r) => t.slot[r]) };
+}
+
+function sampleRows(t: ReturnType<typeof treeRows>, max: number, seed: number): ReturnType<typeof treeRows> {
+  if (t.n <= max) return t;
+  const prng = createPrng(seed, 11);
+  const idx = Int32Array.from({ length: t.n }, (_, i) => i);
+  for (let i = 0; i < max; i++) {
+    const j = i + Math.floor(prng.nextFloat() * (t.n - i));
+    [idx[i], idx[j]] = [idx[j], idx[i]];
+  }
+  const chosen = idx.subarray(0, max).sort();
+  const x = new Float32Array(max * t.nF);
+  chosen.forEach((r, j) => x.set(t.x.subarray(r * t.nF, (r + 1) * t.nF), j * t.nF));
+  return { x, y: Float64Array.from(chosen, (r) => t.y[r]), n: max, nF: t.nF, slot: Int32Array.from(chosen, (r) => t.slot[r]) };
+}
+
+const TREE_PARAMS = { nRounds: 300, learningRate: 0.08, maxDepth: 4, patience: 25, minChildWeight: 20 };
+
+/** A tree candidate over the given lead bands (one band = one model with lead as a feature). */
+function treePredictor(cube: PseudoForecastCube, tr: ErrorTransform, A: number[], B: number[], bands: [number, number][], o: UpdatingOptions, shouldStop: () => boolean): ShiftPredictor {
+  const models: { band: [number, number]; model: TreeModel }[] = [];
+  const perBand = Math.max(1000, Math.floor(o.maxTrainRows / bands.length));
+  bands.forEach((band, b) => {
+    if (shouldStop()) return;
+    const train = sampleRows(finiteRows(treeRows(cube, tr, A, band[0], band[1])), perBand, o.seed + b);
+    const valid = sampleRows(finiteRows(treeRows(cube, tr, B, band[0], band[1])), Math.max(1000, Math.floor(perBand / 2)), o.seed + 100 + b);
+    if (train.n < 50 || valid.n < 10) return;
+    models.push({ band, model: trainGradientBoosting({ x: train.x, nRows: train.n, nFeatures: train.nF, y: train.y, valid: { x: valid.x, nRows: valid.n, y: valid.y } }, TREE_PARAMS, o.seed + b, undefined, shouldStop) });
+  });
+  return (c, issues) => {
+    const out = new Float64Array(issues.length * c.nMembers * c.nLeads).fill(0);
+    for (const { band, model } of models) {
+      const rows = treeRows(c, tr, Array.from(issues), band[0], band[1]);
+      if (!rows.n) continue;
+      const p = predictTrees(model, rows.x, rows.n);
+      for (let r = 0; r < rows.n; r++) out[rows.slot[r]] = p[r];
+    }
+    return out;
+  };
+}
+
+const meanOf = (s: LeadScore[]) => {
+  const v = s.map((x) => x.crps).filter((x): x is number => x !== null);
+  return v.length ? v.reduce((a, b) => a + b, 0) / v.length : null;
+};
+
+/**
+ * The updater of a version. `transform` is the version's (resolved) error transform, so the
+ * updater, its archive and the lead-free archive share one error scale.
+ */
+export async function fitUpdating(
+  series: ArchiveSeries,
+  spec: FeatureSpec,
+  validation: Period,
+  predictors: ResidualPredictor[],
+  transform: ErrorTransform,
+  o: UpdatingOptions,
+  shouldStop: () => boolean = () => false,
+): Promise<UpdatingFit> {
+  const corrected = await correctedSeries(series, spec, validation, predictors);
+  return fitUpdatingFromSeries(series, corrected, validation, transform, o, shouldStop);
+}
+
+/** The same from the corrected series (tests pass synthetic ones). */
+export function fitUpdatingFromSeries(
+  series: Pick<ArchiveSeries, 'times' | 'observed' | 'members' | 'stepSeconds'>,
+  corrected: Float64Array[],
+  validation: Period,
+  transform: ErrorTransform,
+  o: UpdatingOptions,
+  shouldStop: () => boolean = () => false,
+): UpdatingFit {
+  const L = o.leads;
+  const { times, observed } = series;
+  const inPeriod: number[] = [];
+  for (let t = 0; t < times.length; t++) if (times[t] >= validation.fromMs && times[t] < validation.toMs && Number.isFinite(observed[t])) inPeriod.push(t);
+  if (inPeriod.length < 10 * L) throw new Error(`updating needs at least ${10 * L} observed steps in the validation period (10 per lead time); it holds ${inPeriod.length}`);
+  // Blocks by date: A fits, B stops the trees early, C scores. A gap of L steps after A and B keeps
+  // their targets out of the next block.
+  const cut1 = Math.floor(inPeriod.length * 0.5);
+  const cut2 = Math.floor(inPeriod.length * 0.7);
+  const lastT = times.length;
+  const before = (idx: number[], end: number) => idx.filter((t) => t + L < end);
+  const Aall = before(inPeriod.slice(0, cut1), inPeriod[cut1]);
+  const Ball = before(inPeriod.slice(cut1, cut2), inPeriod[cut2]);
+  const Call = inPeriod.slice(cut2).filter((t) => t < lastT);
+  // Bounded memory: members × issues × leads at most ~4 million cells per cube.
+  const M0 = series.members.length;
+  const budget = 4_000_000;
+  const issuesAll = Aall.length + Ball.length + Call.length;
+  const keepM = Math.min(M0, Math.max(8, Math.floor(budget / (issuesAll * L))));
+  const members = spreadIndices(M0, keepM);
+  const stride = Math.max(1, Math.ceil((issuesAll * keepM * L) / budget));
+  const thin = (a: number[]) => a.filter((_, j) => j % stride === 0);
+  const [A, B, C] = [thin(Aall), thin(Ball), thin(Call)];
+  const issueIndex = [...A, ...B, ...C];
+  const cube = buildPseudoForecasts({
+    transform,
+    observed,
+    simulated: members.map((m) => series.members[m].values),
+    corrected: members.map((m) => corrected[m]),
+    issueIndex,
+    nLeads: L,
+    history: o.history,
+  });
+  const idxA = A.map((_, j) => j);
+  const idxB = B.map((_, j) => A.length + j);
+  const idxC = C.map((_, j) => A.length + B.length + j);
+  const block = (ix: number[]) => ({ from: iso(times[issueIndex[ix[0]]]), to: iso(times[issueIndex[ix[ix.length - 1]]]), issues: ix.length });
+
+  // Candidates.
+  const errSeries = members.map((m) => Float64Array.from({ length: times.length }, (_, t) => transformedError(transform, observed[t], corrected[m][t])));
+  const ar1 = fitAr1(errSeries, A[0], A[A.length - 1] + 1);
+  const phiAr1 = ar1Multipliers(ar1, L);
+  const phiLs = fitPhiPerLead(cube, idxA);
+  const none = scoreShifts(cube, transform, idxC, null);
+  const candidates: (CandidateScore & { perCase: Float64Array })[] = [{ name: 'none', servable: true, meanCrps: meanOf(none.byLead), byLead: none.byLead, perCase: none.crps }];
+  const add = (name: CandidateScore['name'], servable: boolean, predict: ShiftPredictor, phi?: number[]) => {
+    const s = scoreShifts(cube, transform, idxC, predict(cube, idxC));
+    candidates.push({ name, servable, meanCrps: meanOf(s.byLead), byLead: s.byLead, perCase: s.crps, ...(phi ? { phi } : {}) });
+  };
+  add('ar1', true, multiplierPredictor(phiAr1), phiAr1);
+  add('phi-per-lead', true, multiplierPredictor(phiLs), phiLs);
+  if (o.trees && idxB.length > 0) {
+    add('trees-lead-feature', false, treePredictor(cube, transform, idxA, idxB, [[1, L]], o, shouldStop));
+    add('trees-lead-bands', false, treePredictor(cube, transform, idxA, idxB, o.leadBands ?? defaultLeadBands(L), o, shouldStop));
+  }
+  const ranked = [...candidates].filter((c) => c.meanCrps !== null).sort((a, b) => a.meanCrps! - b.meanCrps!);
+  const best = ranked[0]?.name ?? 'none';
+  const servedCandidate = ranked.find((c) => c.servable && c.name !== 'none') ?? null;
+  const gains = servedCandidate ? pairedLeadDifference(candidates[0].perCase, servedCandidate.perCase, idxC.length, L) : [];
+  const leads = gains.map((g, k) => ({
+    lead: k + 1,
+    crpsGain: g.mean,
+    se: g.se,
+    // auto: the held-out block must show a gain beyond twice its standard error.
+    on: o.mode === 'on' || (g.mean !== null && g.se !== null && g.mean > 2 * g.se),
+  }));
+  const blocks = { fit: block(idxA), earlyStopping: block(idxB), heldOut: block(idxC) };
+  const publicCandidates = candidates.map(({ perCase: _p, ...c }) => c);
+  const result = { mode: o.mode, blocks, members: members.length, candidates: publicCandidates, best, leads, note: PSEUDO_FORECAST_NOTE };
+  if (!servedCandidate) return { ...result, model: null, served: null, reason: 'no updating candidate could be scored', archive: null };
+  if (!leads.some((l) => l.on)) {
+    return { ...result, model: null, served: null, reason: 'updating: auto found no lead time where the held-out block shows a gain beyond twice its standard error', archive: null };
+  }
+  const phi = servedCandidate.phi!.map((p, k) => (leads[k].on ? p : 0));
+  const model: UpdatingModel = { method: servedCandidate.name as UpdatingModel['method'], transform, phi, ar1 };
+  const archive = updatedArchive(cube, transform, phi, [...idxB, ...idxC], times, series.stepSeconds);
+  return { ...result, model, served: servedCandidate.name, reason: null, archive };
+}
+
+function spreadIndices(n: number, k: number): number[] {
+  if (k >= n) return Array.from({ length: n }, (_, i) => i);
+  return Array.from({ length: k }, (_, i) => Math.round((i * (n - 1)) / Math.max(1, k - 1)));
+}
+
+/**
+ * The per-lead archive of the updated members' errors, and the issue-time error of each archived
+ * case in the archive's case order. The archive builder groups cases by lead and sorts each
+ * group by predictor (ties by input order); the same order is rebuilt here so issueError[i]
+ * belongs to case i, and checked against the archive's predictors.
+ */
+export function updatedArchive(
+  cube: PseudoForecastCube,
+  transform: ErrorTransform,
+  phi: number[],
+  issues: number[],
+  times: ArrayLike<number>,
+  stepSeconds: number,
+): { archive: ErrorArchive; issueError: Float64Array; summary: Record<string, unknown> } {
+  const { nMembers: M0, nLeads: L } = cube;
+  const keep = archiveMembers(M0);
+  const K = keep.length;
+  const rows = issues.length * K;
+  const updated = new Float64Array(rows * L).fill(NaN);
+  const observed = new Float64Array(rows * L).fill(NaN);
+  const dayOfYear = new Uint16Array(rows * L).fill(1);
+  const rowError = new Float64Array(rows).fill(NaN);
+  const stepMs = stepSeconds * 1000;
+  issues.forEach((i, u) => {
+    const t0 = times[cube.issueIndex[i]];
+    keep.forEach((m, j) => {
+      const row = u * K + j;
+      const e0 = cube.issueError[i * M0 + m];
+      rowError[row] = e0;
+      for (let k = 0; k < L; k++) {
+        const c = cube.corrected[(i * M0 + m) * L + k];
+        dayOfYear[row * L + k] = dayOfYearUtc(t0 + (k + 1) * stepMs);
+        if (!Number.isFinite(e0) || !Number.isFinite(c)) continue;
+        updated[row * L + k] = shiftInTransform(transform, c, phi[k] * e0);
+        observed[row * L + k] = cube.observed[i * L + k];
+      }
+    });
+  });
+  const archive = buildArchiveFromReforecasts({ nIssues: rows, nLeads: L, corrected: updated, observed, dayOfYear, transform });
+  // Rebuild the case order: input order is row-major (row, lead) over finite cases.
+  const group: number[] = [];
+  const pred: number[] = [];
+  const err: number[] = [];
+  for (let r = 0; r < rows; r++) {
+    for (let k = 0; k < L; k++) {
+      const v = updated[r * L + k];
+      const y = observed[r * L + k];
+      if (!Number.isFinite(v) || !Number.isFinite(y)) continue;
+      group.push(k);
+      pred.push(v);
+      err.push(rowError[r]);
+    }
+  }
+  const order = group.map((_, i) => i).sort((a, b) => group[a] - group[b] || pred[a] - pred[b] || a - b);
+  const issueError = Float64Array.from(order, (i) => err[i]);
+  for (let i = 0; i < order.length; i++) {
+    if (archive.predictor[i] !== pred[order[i]]) throw new Error('internal: issue errors out of step with the archive cases');
+  }
+  const summary = {
+    nLeads: L,
+    issues: issues.length,
+    members: K,
+    cases: archive.predictor.length,
+    templates: archive.templateStart.length,
+    templateLength: archive.templateLength,
+    transform: archive.transform,
+    source: 'pseudo-forecasts (continuous simulations after the residual model and the updater)',
+  };
+  return { archive, issueError, summary };
+}

@@ -1,0 +1,116 @@
+// Issue-time updating: the closed-form predictors against the AR(1) process they model.
+// Source for the checks: Box, Jenkins, Reinsel & Ljung, Time Series Analysis: Forecasting and
+// Control (5th ed., 2015): ch. 3.2 (AR(1): lag-k autocorrelation φ^k), ch. 5.4 (the k-step-ahead
+// minimum mean-square-error forecast of an AR(1) is φ^k·z_t), ch. 7 (least-squares estimation).
+import { describe, expect, it } from 'vitest';
+import { createPrng } from '../../src/core/prng.ts';
+import {
+  applyUpdating,
+  ar1Multipliers,
+  buildPseudoForecasts,
+  fitAr1,
+  fitPhiPerLead,
+  multiplierPredictor,
+  scoreShifts,
+  updatingWarmupProblem,
+  type UpdatingModel,
+} from '../../src/core/updating.ts';
+import { makeFeatureSpec } from '../../src/core/features.ts';
+import type { ErrorTransform } from '../../src/core/error-transform.ts';
+import { fitUpdatingFromSeries } from '../../src/models/updating-fit.ts';
+
+const LOG: ErrorTransform = { kind: 'log', offset: 1 };
+const DAY = 86_400_000;
+
+/** A zero-mean AR(1) series e_t = φ·e_{t−1} + a_t with a_t ~ N(0, σ²), seeded. */
+function ar1Series(n: number, phi: number, sigma: number, seed: number): Float64Array {
+  const g = createPrng(seed);
+  const e = new Float64Array(n);
+  e[0] = (sigma / Math.sqrt(1 - phi * phi)) * g.normal();
+  for (let t = 1; t < n; t++) e[t] = phi * e[t - 1] + sigma * g.normal();
+  return e;
+}
+
+/**
+ * A gauge whose corrected members are a constant 100 m³/s and whose observation is
+ * exp(ln(101) + e_t) − 1, so the log-space error (offset 1) of every member is exactly e_t plus a
+ * small member-specific white noise.
+ */
+function synthetic(n: number, phi: number, members: number, seed: number) {
+  const e = ar1Series(n, phi, 0.2, seed);
+  const g = createPrng(seed + 1);
+  const times = Float64Array.from({ length: n }, (_, t) => Date.UTC(2000, 0, 1) + t * DAY);
+  const observed = Float64Array.from(e, (x) => Math.exp(Math.log(101) + x) - 1);
+  const corrected = Array.from({ length: members }, () => Float64Array.from({ length: n }, () => Math.exp(Math.log(101) + 0.02 * g.normal()) - 1));
+  return { e, times, observed, corrected, series: { times, observed, stepSeconds: 86400, members: corrected.map((values, m) => ({ id: `m${m}`, values })) } };
+}
+
+describe('closed-form updating (Box & Jenkins)', () => {
+  it('least squares recovers the AR(1) coefficient of a known process', () => {
+    for (const phi of [0.3, 0.8, 0.95]) {
+      const e = ar1Series(20_000, phi, 1, 7);
+      // Standard error of the estimate ≈ √((1 − φ²)/n) (Box & Jenkins ch. 7.2): under 0.007 here.
+      expect(Math.abs(fitAr1([e]) - phi)).toBeLessThan(0.03);
+    }
+  });
+
+  it('the k-step predictor is φ^k·e_t', () => {
+    const m = ar1Multipliers(0.8, 5);
+    m.forEach((v, k) => expect(v).toBeCloseTo(0.8 ** (k + 1), 14));
+    const model: UpdatingModel = { method: 'ar1', transform: { kind: 'none' }, phi: m, ar1: 0.8 };
+    // Transform none: the corrected member 10 with observation 12 at issue (e_t = 2).
+    const values = new Float64Array([10, 10, 10, 10, 10]);
+    const e0 = applyUpdating(model, values, [10], 12, 0, 5);
+    expect(e0[0]).toBe(2);
+    values.forEach((v, k) => expect(v).toBeCloseTo(10 + 2 * 0.8 ** (k + 1), 12));
+    // An observation one step old: lead 1 of the run is lead 2 from it.
+    const stale = new Float64Array([10, 10]);
+    applyUpdating(model, stale, [10], 12, 1, 2);
+    expect(stale[0]).toBeCloseTo(10 + 2 * 0.8 ** 2, 12);
+  });
+
+  it('φ_k fitted per lead on pseudo-forecasts matches φ^k of the process', () => {
+    const s = synthetic(6000, 0.85, 4, 3);
+    const cube = buildPseudoForecasts({ transform: LOG, observed: s.observed, simulated: s.corrected, corrected: s.corrected, issueIndex: Array.from({ length: 5980 }, (_, i) => i + 5), nLeads: 6 });
+    const phi = fitPhiPerLead(cube, Array.from({ length: cube.nIssues }, (_, i) => i));
+    phi.forEach((p, k) => expect(Math.abs(p - 0.85 ** (k + 1))).toBeLessThan(0.05));
+    // Updating lowers the lead-1 CRPS of the members against not updating.
+    const issues = Array.from({ length: 2000 }, (_, i) => i);
+    const none = scoreShifts(cube, LOG, issues, null).byLead;
+    const upd = scoreShifts(cube, LOG, issues, multiplierPredictor(phi)(cube, issues)).byLead;
+    expect(upd[0].crps!).toBeLessThan(0.7 * none[0].crps!);
+  });
+});
+
+describe('choosing updating on a held-out block', () => {
+  const options = { mode: 'auto' as const, leads: 5, leadBands: null, history: 2, trees: false, seed: 1, maxTrainRows: 20_000 };
+  it('auto keeps updating for persistent (AR(1)) errors', () => {
+    const s = synthetic(3000, 0.9, 4, 11);
+    const fit = fitUpdatingFromSeries(s.series, s.corrected, { fromMs: s.times[0], toMs: s.times[2999] + 1 }, LOG, options);
+    expect(fit.model).not.toBeNull();
+    expect(fit.leads[0].on).toBe(true);
+    expect(Math.abs(fit.model!.ar1 - 0.9)).toBeLessThan(0.05);
+    // The archive's issue errors are aligned with its cases: each case's error is the observed
+    // error at its lead minus the update, so |error| is small where |ε0| is (lead 1, φ ≈ 0.9).
+    expect(fit.archive!.issueError.length).toBe(fit.archive!.archive.error.length);
+  });
+
+  it('auto switches updating off for white-noise errors', () => {
+    const s = synthetic(3000, 0, 4, 12);
+    const fit = fitUpdatingFromSeries(s.series, s.corrected, { fromMs: s.times[0], toMs: s.times[2999] + 1 }, LOG, options);
+    // With φ = 0 no lead gains beyond twice its standard error (or, where one does by chance,
+    // the gain is tiny: updating then does no harm).
+    const on = fit.leads.filter((l) => l.on);
+    if (fit.model === null) expect(fit.reason).toMatch(/auto found no lead time/);
+    else for (const l of on) expect(Math.abs(fit.model.phi[l.lead - 1])).toBeLessThan(0.1);
+    expect(on.length).toBeLessThanOrEqual(1);
+  });
+});
+
+describe('serving prerequisites', () => {
+  it('names the warm-up a stale observation needs', () => {
+    const spec = makeFeatureSpec({ stepSeconds: 86400, simLags: 9, forcings: [{ name: 'precipitation', lags: 3 }] });
+    expect(updatingWarmupProblem(spec, 10, 0)).toBeNull();
+    expect(updatingWarmupProblem(spec, 10, 1)).toMatch(/needs 11/);
+  });
+});
