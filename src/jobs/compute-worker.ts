@@ -6,6 +6,7 @@ import { checkFeatureSpec } from '../core/features.ts';
 import { createResidualSession, predictResiduals } from '../models/onnx-session.ts';
 import { computeHindcast, type HindcastTaskInput } from './hindcast-compute.ts';
 import { fitResidualModel, type FitOptions } from '../models/residual-fit.ts';
+import type { UpdatingFit } from '../models/updating-fit.ts';
 import { evaluateReforecasts, type ReforecastEvaluation, type ReforecastSet } from '../models/reforecast-evaluation.ts';
 import { archiveSummary, evaluateResidualModel, rawArchiveFromSeries, type ArchiveSeries, type ArchiveOptions, type Period } from '../models/residual-evaluation.ts';
 
@@ -31,6 +32,20 @@ function perLeadResult(e: ReforecastEvaluation | null) {
   };
 }
 
+/**
+ * The updater as stored: the model, its scores (what GET of the version shows) and its archive's
+ * bytes. The archive cases' issue-time errors stay with the fit (UpdatingFit.archive.issueError).
+ */
+function updatingResult(u: UpdatingFit | null, error: string | null) {
+  if (!u) return error ? { model: null, archive: null, scores: { status: 'off', reason: error } } : null;
+  const { archive, model, ...scores } = u;
+  return {
+    model,
+    archive: archive ? { bytes: archiveToBytes(archive.archive), summary: archive.summary } : null,
+    scores: { status: model ? 'on' : 'off', ...scores, method: model?.method ?? null, phi: model?.phi ?? null, ar1: model?.ar1 ?? null },
+  };
+}
+
 async function run(): Promise<unknown> {
   switch (task.kind) {
     case 'fit': {
@@ -45,6 +60,7 @@ async function run(): Promise<unknown> {
         correctedArchive: { bytes: archiveToBytes(r.evaluation.correctedArchive), summary: archiveSummary(r.evaluation.correctedArchive) },
         rawArchive: { bytes: archiveToBytes(r.evaluation.rawArchive), summary: archiveSummary(r.evaluation.rawArchive) },
         perLead: perLeadResult(r.perLead),
+        updating: updatingResult(r.updating, r.updatingError),
       };
     }
     case 'evaluate-upload': {

@@ -28,6 +28,13 @@ export interface FitJobParams {
   maxTrainRows: number;
   activate: boolean;
   label?: string;
+  /** Issue-time updating; absent on jobs queued before it existed (= off). */
+  updating?: { mode: 'auto' | 'on' | 'off'; leads?: number; leadBands?: [number, number][]; history: number; trees: boolean };
+}
+
+/** Default updater horizon: the archive's template length, at most ten days of steps. */
+export function defaultUpdatingLeads(stepSeconds: number, templateLength: number): number {
+  return Math.max(1, Math.min(templateLength, Math.round((10 * 86400) / stepSeconds)));
 }
 
 /**
@@ -56,6 +63,7 @@ interface FitOutput {
   correctedArchive: { bytes: Uint8Array; summary: Record<string, unknown> };
   rawArchive: { bytes: Uint8Array; summary: Record<string, unknown> };
   perLead: PerLeadOutput | null;
+  updating: { model: unknown; archive: StoredForm | null; scores: Record<string, unknown> } | null;
 }
 
 type StoredForm = { bytes: Uint8Array; summary: Record<string, unknown> };
@@ -109,6 +117,17 @@ export const fitJob: JobHandler = async (job, { db, progress, signal }) => {
     templateLength: p.templateLength,
     maxTrainRows: p.maxTrainRows,
     reforecasts,
+    updating: p.updating && p.updating.mode !== 'off'
+      ? {
+          mode: p.updating.mode,
+          leads: p.updating.leads ?? defaultUpdatingLeads(series.stepSeconds, p.templateLength),
+          leadBands: p.updating.leadBands ?? null,
+          history: p.updating.history,
+          trees: p.updating.trees,
+          seed: p.seed,
+          maxTrainRows: p.maxTrainRows,
+        }
+      : null,
   };
   const handle = runCompute<FitOutput>({ kind: 'fit', series, options }, (pr) => {
     void progress(pr.stage, pr.percent * 0.97);
@@ -116,7 +135,10 @@ export const fitJob: JobHandler = async (job, { db, progress, signal }) => {
   signal.addEventListener('abort', () => handle.cancel());
   const out = await handle.result;
   const perLead = perLeadParts(out.perLead);
-  const scores = perLead.scores ? { ...out.scores, reforecasts: perLead.scores } : out.scores;
+  const withPerLead = perLead.scores ? { ...out.scores, reforecasts: perLead.scores } : out.scores;
+  const updatingMode = p.updating?.mode ?? 'off';
+  const scores = { ...withPerLead, updating: out.updating?.scores ?? { status: 'off', reason: updatingMode === 'off' ? 'updating: off was asked for' : 'not fitted' } };
+  const updating = out.updating?.model && out.updating.archive ? { model: out.updating.model, archive: out.updating.archive } : null;
   await progress('storing the model version', 98);
   const versionId = await db.transaction(async (tx) => {
     const id = await insertModelVersion(tx, {
@@ -132,6 +154,7 @@ export const fitJob: JobHandler = async (job, { db, progress, signal }) => {
       correctedArchive: out.correctedArchive,
       rawArchive: out.rawArchive,
       perLeadArchives: perLead.archives,
+      updating,
     });
     if (p.activate) await activateModelVersion(tx, gauge.id, id);
     return id;

@@ -7,6 +7,7 @@ import { evaluateReforecasts, type ReforecastEvaluation, type ReforecastSet } fr
 import { evaluateResidualModel, type ArchiveSeries, type Evaluation, type Period } from './residual-evaluation.ts';
 import { predictTrees, trainGradientBoosting, trainRandomForest, type TreeModel } from './trees/index.ts';
 import { tune, type SearchParam } from './tuning/index.ts';
+import { fitUpdating, type UpdatingFit, type UpdatingOptions } from './updating-fit.ts';
 
 export interface FitOptions {
   calibration: Period;
@@ -28,6 +29,8 @@ export interface FitOptions {
   maxTrainRows: number;
   /** Past runs issued in the validation period; when given, per-lead error archives are built from them too. */
   reforecasts?: ReforecastSet | null;
+  /** Issue-time updating (src/models/updating-fit.ts); null or mode 'off' = none. */
+  updating?: UpdatingOptions | null;
 }
 
 export interface FitProgress {
@@ -50,6 +53,10 @@ export interface FitResult {
   evaluation: Evaluation;
   /** Per-lead archives of the past runs (null when no reforecasts were given). */
   perLead: ReforecastEvaluation | null;
+  /** The issue-time updater, its candidates' scores and archive; null when not asked for. */
+  updating: UpdatingFit | null;
+  /** Why updating was asked for but not fitted (auto only; `on` fails the fit instead). */
+  updatingError: string | null;
   rows: { calibration: number; validation: number };
   onnxCheck: { rows: number; mismatches: number };
 }
@@ -162,9 +169,21 @@ export async function fitResidualModel(
     // The lead-free archive's resolved transform, so both archives' errors share one scale.
     perLead = await evaluateReforecasts(series, options.reforecasts, spec, predictors, { transform: evaluation.correctedArchive.transform });
   }
+  let updating: UpdatingFit | null = null;
+  let updatingError: string | null = null;
+  if (options.updating && options.updating.mode !== 'off') {
+    onProgress({ stage: 'fitting issue-time updating on pseudo-forecasts', percent: 96 });
+    try {
+      updating = await fitUpdating(series, spec, options.validation, predictors, evaluation.correctedArchive.transform, options.updating, shouldStop);
+    } catch (err) {
+      if (options.updating.mode === 'on') throw err;
+      updatingError = (err as Error).message;
+    }
+  }
+  if (shouldStop()) throw new CancelledError();
   await Promise.all(sessions.map((s) => s.release()));
   onProgress({ stage: 'done', percent: 100 });
-  return { spec, parts, trials, evaluation, perLead, rows: { calibration: cal.nRows, validation: val.nRows }, onnxCheck: { rows: val.nRows * parts.length, mismatches } };
+  return { spec, parts, trials, evaluation, perLead, updating, updatingError, rows: { calibration: cal.nRows, validation: val.nRows }, onnxCheck: { rows: val.nRows * parts.length, mismatches } };
 }
 
 export class CancelledError extends Error {

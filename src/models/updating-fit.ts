@@ -177,6 +177,8 @@ const TREE_PARAMS = { nRounds: 300, learningRate: 0.08, maxDepth: 4, patience: 2
 
 /** A tree candidate over the given lead bands (one band = one model with lead as a feature). */
 function treePredictor(cube: PseudoForecastCube, tr: ErrorTransform, A: number[], B: number[], bands: [number, number][], o: UpdatingOptions, shouldStop: () => boolean): ShiftPredictor {
+  const L = cube.nLeads;
+  bands = bands.filter(([a]) => a <= L).map(([a, b]) => [a, Math.min(b, L)] as [number, number]);
   const models: { band: [number, number]; model: TreeModel }[] = [];
   const perBand = Math.max(1000, Math.floor(o.maxTrainRows / bands.length));
   bands.forEach((band, b) => {
