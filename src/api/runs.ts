@@ -9,6 +9,7 @@ import type { Gauge } from '../store/gauges-repo.ts';
 import { findRunByIdempotencyKey, findRunByKey, insertRun, type StoredRun } from '../store/forecasts-repo.ts';
 import { archiveBytes, getActiveModelVersion, latestRawArchiveInfo, modelParts, versionArchiveInfo, type ArchiveInfo } from '../store/models-repo.ts';
 import { archiveReach, chooseArchive } from '../models/archive-choice.ts';
+import { decideUpdating, type UpdatingDecision } from '../models/issue-updating.ts';
 import { GaugeParams, requireGauge } from './archive-common.ts';
 import { addRoute, type Services } from './context.ts';
 import { buildForecastView } from './forecast-view.ts';
@@ -34,7 +35,10 @@ export const RunBody = z.strictObject({
   members: z.array(z.strictObject({ id: MemberId, values: z.array(z.unknown()).min(1).max(5000) })).min(1).max(1000),
   /** Forecast forcings laid out like the members' values (warm-up then lead times). */
   forcings: z.record(z.string().regex(/^[a-z][a-z0-9_]{0,47}$/), z.array(z.unknown())).optional(),
-  /** Observed flow at issue time, for models that use the last known error. */
+  /**
+   * Observed flow at issue time: the run is updated on it (it wins over the stored observations)
+   * and it is stored with the run; also read by models that use the last known error.
+   */
   issueObservation: z.number().finite().nonnegative().nullable().optional(),
   quantiles: z
     .array(z.number().gt(0).lt(1))
@@ -93,6 +97,13 @@ function checkRun(body: RunBody, gauge: Gauge, known: Set<string>, horizonLimit:
   }
   errors.throwIfAny();
   return { issueTime: issueMs, nLeads, members, forcings, issueObservation: body.issueObservation ?? null };
+}
+
+/** What the answer says about updating: what was used, or why not (degraded runs are never updated). */
+function updatingAnswer(status: 'corrected' | 'degraded', u: UpdatingDecision | null, degradedReason: string | null) {
+  if (!u) return undefined;
+  if (status === 'degraded') return { status: 'off' as const, reason: `not updated: ${degradedReason}`, observation: null, method: null };
+  return u.answer;
 }
 
 /** The stored answer of an earlier identical request, or a conflict when the request differs. */
@@ -161,6 +172,8 @@ export async function runRoutes(app: FastifyInstance, { services }: { services: 
       const horizonLimit = Math.min(...reaches);
       const known = new Set(memberIds);
       const run = checkRun(body, gauge, known, horizonLimit, config.MAX_TRAJECTORIES);
+      // Issue-time updating: the latest observation at or before issue time (the run's own wins).
+      const updating: UpdatingDecision | null = active && correctedArchive ? await decideUpdating(db, gauge, active, run, body.warmupSteps, body.issueObservation) : null;
 
       const probs = body.quantiles ?? [...DEFAULT_QUANTILE_PROBS];
       const seed = body.seed ?? defaultSeed(gauge.id, isoUtc(run.issueTime), body.source);
@@ -189,8 +202,8 @@ export async function runRoutes(app: FastifyInstance, { services }: { services: 
       try {
         if (active && correctedArchive) {
           try {
-            used = correctedArchive;
-            result = await pool.correct(modelSource(active.id, active.featureSpec), archiveSource(correctedArchive), run, options);
+            used = updating?.archive ?? correctedArchive;
+            result = await pool.correct(modelSource(active.id, active.featureSpec), archiveSource(used), run, { ...options, updating: updating?.correct ?? null });
           } catch (err) {
             if (err instanceof CorrectionError && err.path) {
               throw invalid([{ path: `body.${err.path}`, message: `${err.message} (needed by model version ${active.id}'s feature spec)` }]);
@@ -244,6 +257,7 @@ export async function runRoutes(app: FastifyInstance, { services }: { services: 
         status,
         degradedReason,
         modelVersion: status === 'corrected' && active ? { id: active.id, label: active.label } : null,
+        updating: updatingAnswer(status, updating, degradedReason),
         errorArchive: { id: used!.id, kind: used!.kind, leadMode: used!.leadMode, leadTimes: archiveReach(used!), cases: Number(used!.summary.cases ?? 0), templates: Number(used!.summary.templates ?? 0) },
         seed,
         nDraws: result.nDraws,
@@ -282,6 +296,12 @@ export async function runRoutes(app: FastifyInstance, { services }: { services: 
             etag,
             summary,
             percentiles,
+            issueObservation:
+              updating?.stored && (status === 'corrected' || updating.stored.source === 'run')
+                ? updating.stored
+                : body.issueObservation != null
+                  ? { timeMs: run.issueTime, value: body.issueObservation, source: 'run' }
+                  : null,
           }),
         );
       } catch (err) {

@@ -4,6 +4,8 @@ import type { ErrorArchive } from '../core/error-archive.ts';
 import { servingRows, type FeatureSpec, type RunInput } from '../core/features.ts';
 import { runStochasticStage, type StochasticResult, type StochasticWorkspace } from '../core/stochastic-stage.ts';
 import { predictResiduals } from './onnx-session.ts';
+import { applyUpdating, type UpdatingModel } from '../core/updating.ts';
+import { observationTimeRows } from '../core/updating-rows.ts';
 
 export interface CorrectionOptions {
   stepSeconds: number;
@@ -12,6 +14,8 @@ export interface CorrectionOptions {
   probs: number[];
   thresholds: number[];
   seasonalWindowDays: number | null;
+  /** Issue-time updating on an observation ageSteps before issue; absent = not updated. */
+  updating?: { model: UpdatingModel; observation: number; ageSteps: number } | null;
 }
 
 export interface CorrectionOutput {
@@ -65,6 +69,19 @@ export async function correctRun(
         if (!Number.isFinite(v)) throw new Error(`the residual model returned a non-finite value for member ${Math.floor(i / H)} at lead ${(i % H) + 1}`);
         stageInput[s * nM * H + i] = v;
         corrected[i] += v / sessions.length;
+      }
+    }
+    if (options.updating) {
+      // Each (model, member)'s corrected value at the observation's time gives its issue-time error.
+      const u = options.updating;
+      const at = observationTimeRows(spec!, run, u.ageSteps);
+      corrected.fill(0);
+      for (let s = 0; s < sessions.length; s++) {
+        const residual = await predictResiduals(sessions[s], at.rows, at.nRows, at.nFeatures);
+        const atObs = Float64Array.from({ length: nM }, (_, m) => Math.max(0, at.simAt[m] + residual[m]));
+        const block = stageInput.subarray(s * nM * H, (s + 1) * nM * H);
+        applyUpdating(u.model, block, atObs, u.observation, u.ageSteps, H);
+        for (let i = 0; i < nM * H; i++) corrected[i] += block[i] / sessions.length;
       }
     }
     inferenceMs = performance.now() - t;
