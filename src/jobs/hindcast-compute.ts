@@ -19,6 +19,8 @@ import {
   type StochasticAdvice,
 } from '../core/verification/index.ts';
 import { createResidualSession, predictResiduals } from '../models/onnx-session.ts';
+import { applyUpdating, checkUpdatingModel } from '../core/updating.ts';
+import { updatingPassScores, type UpdatingByLead, type UpdatingPassCollector } from '../core/updating-verification.ts';
 import type { ArchiveSeries } from '../models/residual-evaluation.ts';
 
 export interface HindcastSettings {
@@ -58,6 +60,12 @@ export interface HindcastTaskInput {
   /** The version's corrected-member error archive (archive-codec bytes). */
   archive: Uint8Array;
   settings: HindcastSettings;
+  /**
+   * The version's issue-time updater and its per-lead archive of updated-member errors: the
+   * hindcast then also runs with updating (on the observation at each issue time) and reports
+   * raw, corrected, updated and both stochastic stages per lead.
+   */
+  updating?: { model: unknown; archive: Uint8Array } | null;
 }
 
 export interface HindcastOutput {
@@ -80,6 +88,8 @@ export interface HindcastOutput {
   report: ComparisonReport;
   advice: StochasticAdvice;
   driftReference: DriftReference | null;
+  /** Per lead: without and with issue-time updating (absent without an updater). */
+  updating?: UpdatingByLead | null;
   timings: { correctionMs: number; stageMs: number; verificationMs: number; reportMs: number; totalMs: number };
 }
 
@@ -228,6 +238,7 @@ export async function computeHindcast(input: HindcastTaskInput, progress: Progre
     progress({ stage: 'stochastic stage and verification', percent: 35 });
     let verificationMs = 0;
     let lastIssue = -1;
+    const withoutUpdating: UpdatingPassCollector | null = input.updating ? updatingPassScores(I, H) : null;
     const tStage = performance.now();
     const summary = runHindcast(
       {
@@ -252,11 +263,52 @@ export async function computeHindcast(input: HindcastTaskInput, progress: Progre
         }
         const a = performance.now();
         comparison.add(c);
+        withoutUpdating?.add(c, issue);
         verificationMs += performance.now() - a;
       },
       createStochasticWorkspace(),
     );
     const stageMs = performance.now() - tStage - verificationMs;
+    let updating: UpdatingByLead | null = null;
+    if (input.updating && withoutUpdating) {
+      // Second pass: the same issues updated on the observation at issue time, with the updated
+      // members' per-lead archive. Corrected values at the issue times come from the continuous rows.
+      progress({ stage: 'hindcast with issue-time updating', percent: 80 });
+      const model = checkUpdatingModel(input.updating.model);
+      const updArchive = archiveFromBytes(input.updating.archive);
+      const atIssue = await correctPerValidTime(spec, series, sessions, issues.map((i) => i - 1), 1, () => {}, check);
+      const withUpdating = updatingPassScores(I, H);
+      const atObs = new Float64Array(K * M);
+      let notUpdated = 0;
+      runHindcast(
+        {
+          nIssues: I,
+          nMembers: M,
+          nLeads: H,
+          nModels: K,
+          raw,
+          observed,
+          dayOfYear,
+          correct: (r, s, out) => {
+            correct(r, s, out);
+            const i = issues[s];
+            const y = series.observed[i];
+            let ok = Number.isFinite(y);
+            for (let km = 0; km < K * M && ok; km++) {
+              atObs[km] = atIssue[km * n + i];
+              if (!Number.isFinite(atObs[km])) ok = false;
+            }
+            if (ok) applyUpdatingInPlace(model, out, atObs, y, H);
+            else notUpdated++;
+          },
+          archive: updArchive,
+          stochastic: { seed: settings.seed, nDraws: settings.nDraws, seasonalWindowDays: settings.seasonalWindowDays },
+        },
+        (c, issue) => withUpdating.add(c, issue),
+        createStochasticWorkspace(),
+      );
+      updating = withoutUpdating.compare(withUpdating, { method: model.method, issuesWithoutObservation: notUpdated });
+    }
     check();
     progress({ stage: 'scores and advice', percent: 96 });
     const tReport = performance.now();
@@ -285,11 +337,16 @@ export async function computeHindcast(input: HindcastTaskInput, progress: Progre
       report,
       advice,
       driftReference,
+      updating,
       timings: { correctionMs, stageMs, verificationMs, reportMs, totalMs: performance.now() - t0 },
     };
   } finally {
     await Promise.all(sessions.map((s) => s.release()));
   }
+}
+
+function applyUpdatingInPlace(model: ReturnType<typeof checkUpdatingModel>, out: Float64Array, atObs: Float64Array, y: number, H: number): void {
+  applyUpdating(model, out, atObs, y, 0, H);
 }
 
 /** max(0, value + residual), or NaN when either is missing. */

@@ -5,7 +5,7 @@ import { readReforecasts } from '../store/archive-repo.ts';
 import { loadArchiveSeries } from '../store/archive-series.ts';
 import { saveDriftReference } from '../store/gauge-status-repo.ts';
 import { getGauge } from '../store/gauges-repo.ts';
-import { getModelVersion, modelParts } from '../store/models-repo.ts';
+import { getModelVersion, modelParts, versionArchive } from '../store/models-repo.ts';
 import { correctedArchiveFor, reforecastIssueTimes } from '../store/verification-repo.ts';
 import { refreshGaugeStatus } from './drift-refresh.ts';
 import type { HindcastOutput, HindcastSettings } from './hindcast-compute.ts';
@@ -161,8 +161,11 @@ export const hindcastJob: JobHandler = async (job, { db, progress, signal }) => 
     leadRange: p.minLead !== null || p.maxLead !== null ? { min: p.minLead !== null ? p.minLead - 1 : undefined, max: p.maxLead !== null ? p.maxLead - 1 : undefined } : null,
     sizeStudy: { ...p.sizeStudy, targetCases: 20_000 },
   };
+  // A version with an issue-time updater is also hindcast with updating, when its archive reaches H.
+  const updArchive = version.updating ? await versionArchive(db, version.id, 'corrected', 'updating') : null;
+  const updating = version.updating && updArchive && Number(updArchive.summary.nLeads ?? 0) >= H ? { model: version.updating, archive: updArchive.bytes } : null;
   await progress('starting the compute worker', 3);
-  const handle = runCompute<HindcastOutput>({ kind: 'hindcast', input: { series, issueIndex, reforecast, model: { spec: version.featureSpec, parts: await modelParts(db, version.id) }, archive: archive.bytes, settings } }, (pr) => {
+  const handle = runCompute<HindcastOutput>({ kind: 'hindcast', input: { series, issueIndex, reforecast, model: { spec: version.featureSpec, parts: await modelParts(db, version.id) }, archive: archive.bytes, settings, updating } }, (pr) => {
     void progress(pr.stage, 3 + pr.percent * 0.95);
   });
   if (signal.aborted) handle.cancel();
@@ -243,6 +246,9 @@ export const hindcastJob: JobHandler = async (job, { db, progress, signal }) => 
     comparison: { ...withLeadTimes(out.report, gauge.stepSeconds), sizeStudy: undefined },
     sizeStudy: out.report.sizeStudy,
     advice: out.advice,
+    updating: out.updating
+      ? { ...out.updating, note: `${out.updating.note} Updated on the observation at each issue time.` }
+      : { status: 'not run', reason: version.updating ? `the updated members' error archive does not reach ${H} lead times` : `model version ${version.id} has no issue-time updater` },
     driftReference,
     timings: Object.fromEntries(Object.entries(out.timings).map(([k, v]) => [k, Math.round(v)])),
   };
