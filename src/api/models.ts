@@ -77,7 +77,10 @@ export const FitBody = z.strictObject({
       history: z.number().int().min(0).max(24).default(2),
       trees: z.boolean().default(true),
     })
-    .default({ mode: 'auto', history: 2, trees: true }),
+    .default({ mode: 'auto', history: 2, trees: true })
+    .describe(
+      'Issue-time updating on the latest observation. mode auto (default): kept at the lead times where the held-out block shows a gain beyond twice its standard error; on: every lead time; off: none. leads: horizon of the updater in steps (default: templateLength, at most ten days of steps: 10 for a daily gauge, 240 for an hourly one). leadBands: [first, last] lead bands of the per-band tree candidate. history: earlier errors given to the tree candidates. trees: also fit and score the tree candidates (measured, not served).',
+    ),
 }).superRefine((body, ctx) => {
   const allowed = body.trainer === 'gradient-boosting' ? boostingParams : forestParams;
   for (const name of Object.keys(body.params ?? {})) {
