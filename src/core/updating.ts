@@ -137,13 +137,72 @@ export function ar1Multipliers(phi: number, nLeads: number): number[] {
 }
 
 /**
- * φ_k per lead by least squares without intercept, y_k ≈ φ_k·ε0, over the cube's issues in
- * `issues` (indices into the cube) and all members.
+ * Real past runs as a cube of the same layout: `raw` and `corrected` are the runs' members per
+ * lead, [(u·M + m)·nLeads + k − 1]; the issue-time error is that of the member's continuous
+ * corrected simulation at the issue time (what serving computes from the run's warm-up). Unlike
+ * pseudo-forecasts these carry the forecast-forcing error.
  */
-export function fitPhiPerLead(cube: PseudoForecastCube, issues: ArrayLike<number>): number[] {
-  const { nMembers: M, nLeads: L } = cube;
+export function buildPastRunCube(input: {
+  transform: ErrorTransform;
+  observed: ArrayLike<number>;
+  /** Continuous corrected simulation of each kept member (for the issue-time error). */
+  correctedContinuous: ArrayLike<number>[];
+  issueIndex: ArrayLike<number>;
+  runLeads: number;
+  raw: ArrayLike<number>;
+  corrected: ArrayLike<number>;
+  nLeads: number;
+}): PseudoForecastCube {
+  const { transform: tr, observed } = input;
+  const M = input.correctedContinuous.length;
+  const I = input.issueIndex.length;
+  const L = input.nLeads;
+  const H = input.runLeads;
+  const n = observed.length;
+  const cube: PseudoForecastCube = {
+    nIssues: I,
+    nMembers: M,
+    nLeads: L,
+    history: 0,
+    issueIndex: Int32Array.from(input.issueIndex),
+    issueError: new Float64Array(I * M).fill(NaN),
+    rawError: new Float64Array(I * M).fill(NaN),
+    corrected: new Float64Array(I * M * L).fill(NaN),
+    simulated: new Float64Array(I * M * L).fill(NaN),
+    observed: new Float64Array(I * L).fill(NaN),
+    target: new Float64Array(I * M * L).fill(NaN),
+  };
+  for (let i = 0; i < I; i++) {
+    const t = cube.issueIndex[i];
+    for (let k = 1; k <= Math.min(L, H); k++) if (t + k < n) cube.observed[i * L + k - 1] = observed[t + k];
+    for (let m = 0; m < M; m++) {
+      cube.issueError[i * M + m] = transformedError(tr, observed[t], input.correctedContinuous[m][t]);
+      for (let k = 1; k <= Math.min(L, H); k++) {
+        const src = (i * M + m) * H + k - 1;
+        const c = (i * M + m) * L + k - 1;
+        cube.corrected[c] = input.corrected[src];
+        cube.simulated[c] = input.raw[src];
+        cube.target[c] = t + k < n ? transformedError(tr, observed[t + k], input.corrected[src]) : NaN;
+      }
+    }
+  }
+  return cube;
+}
+
+/**
+ * φ_k per lead by least squares without intercept, y_k ≈ φ_k·ε0, over the cube's issues in
+ * `issues` (indices into the cube) and all members; further (cube, issues) parts are pooled in.
+ */
+export function fitPhiPerLead(cube: PseudoForecastCube, issues: ArrayLike<number>, ...more: { cube: PseudoForecastCube; issues: ArrayLike<number> }[]): number[] {
+  const L = cube.nLeads;
   const sxy = new Float64Array(L);
   const sxx = new Float64Array(L);
+  for (const part of [{ cube, issues }, ...more]) accumulatePhi(part.cube, part.issues, sxy, sxx);
+  return Array.from({ length: L }, (_, k) => (sxx[k] > 0 ? sxy[k] / sxx[k] : 0));
+}
+
+function accumulatePhi(cube: PseudoForecastCube, issues: ArrayLike<number>, sxy: Float64Array, sxx: Float64Array): void {
+  const { nMembers: M, nLeads: L } = cube;
   for (let u = 0; u < issues.length; u++) {
     const i = issues[u];
     for (let m = 0; m < M; m++) {
@@ -157,7 +216,6 @@ export function fitPhiPerLead(cube: PseudoForecastCube, issues: ArrayLike<number
       }
     }
   }
-  return Array.from({ length: L }, (_, k) => (sxx[k] > 0 ? sxy[k] / sxx[k] : 0));
 }
 
 /** The updated value of one corrected member value: T⁻¹(T(value) + shift). */

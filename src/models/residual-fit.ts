@@ -174,7 +174,7 @@ export async function fitResidualModel(
   if (options.updating && options.updating.mode !== 'off') {
     onProgress({ stage: 'fitting issue-time updating on pseudo-forecasts', percent: 96 });
     try {
-      updating = await fitUpdating(series, spec, options.validation, predictors, evaluation.correctedArchive.transform, options.updating, shouldStop);
+      updating = await fitUpdating(series, spec, options.validation, predictors, evaluation.correctedArchive.transform, options.updating, shouldStop, perLead?.values ?? null);
     } catch (err) {
       if (options.updating.mode === 'on') throw err;
       updatingError = (err as Error).message;

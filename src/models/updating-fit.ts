@@ -9,6 +9,7 @@ import { continuousRows, type FeatureSpec } from '../core/features.ts';
 import { createPrng } from '../core/prng.ts';
 import {
   ar1Multipliers,
+  buildPastRunCube,
   buildPseudoForecasts,
   fitAr1,
   fitPhiPerLead,
@@ -22,6 +23,7 @@ import {
   type ShiftPredictor,
   type UpdatingModel,
 } from '../core/updating.ts';
+import type { PastRunValues } from './reforecast-evaluation.ts';
 import { archiveMembers, type ArchiveSeries, type Period, type ResidualPredictor } from './residual-evaluation.ts';
 import { predictTrees, trainGradientBoosting, type TreeModel } from './trees/index.ts';
 
@@ -48,6 +50,8 @@ export interface CandidateScore {
   /** Mean over leads of the per-lead CRPS on block C (m³/s). */
   meanCrps: number | null;
   byLead: LeadScore[];
+  /** The same scores on the real past runs issued in block C (closed-form candidates; absent without past runs there). */
+  pastRuns?: { issues: number; meanCrps: number | null; byLead: LeadScore[] };
   phi?: number[];
 }
 
@@ -64,9 +68,13 @@ export interface UpdatingFit {
   served: CandidateScore['name'] | null;
   /** Per lead: CRPS without updating minus with the served candidate on block C, its standard error, and whether the lead updates. */
   leads: { lead: number; crpsGain: number | null; se: number | null; on: boolean }[];
+  /** Which cases auto decided on: block C's past runs when it holds at least 50, else its pseudo-forecasts. */
+  decidedOn: 'pseudo-forecasts' | 'past runs';
+  /** Training data by source: pseudo-forecast issues and real past runs (issues) in each block. */
+  sources: { pseudoForecasts: { fit: number; earlyStopping: number; heldOut: number }; pastRuns: { fit: number; earlyStopping: number; heldOut: number } };
   note: string;
   /**
-   * Error archive of the updated members (per lead, from blocks B and C: not used to fit φ),
+   * Error archive of the updated members (per lead, from the whole validation period),
    * and each archive case's issue-time error ε0 = T(obs) − T(corrected) in the archive's
    * transform, aligned with the archive's cases (archive.error[i] ↔ issueError[i]). null when off.
    */
@@ -217,10 +225,14 @@ export async function fitUpdating(
   transform: ErrorTransform,
   o: UpdatingOptions,
   shouldStop: () => boolean = () => false,
+  pastRuns: PastRunValues | null = null,
 ): Promise<UpdatingFit> {
   const corrected = await correctedSeries(series, spec, validation, predictors);
-  return fitUpdatingFromSeries(series, corrected, validation, transform, o, shouldStop);
+  return fitUpdatingFromSeries(series, corrected, validation, transform, o, shouldStop, pastRuns);
 }
+
+/** Past-run cases in blocks A, B, C must have their whole horizon inside the block (as the pseudo-forecasts). */
+const MIN_PAST_RUNS_TO_DECIDE = 50;
 
 /** The same from the corrected series (tests pass synthetic ones). */
 export function fitUpdatingFromSeries(
@@ -230,6 +242,7 @@ export function fitUpdatingFromSeries(
   transform: ErrorTransform,
   o: UpdatingOptions,
   shouldStop: () => boolean = () => false,
+  pastRuns: PastRunValues | null = null,
 ): UpdatingFit {
   const L = o.leads;
   const { times, observed } = series;
@@ -269,16 +282,44 @@ export function fitUpdatingFromSeries(
   const idxC = C.map((_, j) => A.length + B.length + j);
   const block = (ix: number[]) => ({ from: iso(times[issueIndex[ix[0]]]), to: iso(times[issueIndex[ix[ix.length - 1]]]), issues: ix.length });
 
+  // Real past runs issued in the validation period join, marked as such, in the block of their issue time.
+  let past: PseudoForecastCube | null = null;
+  const pastA: number[] = [];
+  const pastB: number[] = [];
+  const pastC: number[] = [];
+  if (pastRuns && pastRuns.issueIndex.length) {
+    past = buildPastRunCube({
+      transform,
+      observed,
+      correctedContinuous: pastRuns.members.map((m) => corrected[m]),
+      issueIndex: pastRuns.issueIndex,
+      runLeads: pastRuns.nLeads,
+      raw: pastRuns.raw,
+      corrected: pastRuns.corrected,
+      nLeads: L,
+    });
+    pastRuns.issueIndex.forEach((t, u) => {
+      if (times[t] < validation.fromMs || times[t] >= validation.toMs) return;
+      if (t + L < inPeriod[cut1]) pastA.push(u);
+      else if (t >= inPeriod[cut1] && t + L < inPeriod[cut2]) pastB.push(u);
+      else if (t >= inPeriod[cut2]) pastC.push(u);
+    });
+  }
+
   // Candidates.
   const errSeries = members.map((m) => Float64Array.from({ length: times.length }, (_, t) => transformedError(transform, observed[t], corrected[m][t])));
   const ar1 = fitAr1(errSeries, A[0], A[A.length - 1] + 1);
   const phiAr1 = ar1Multipliers(ar1, L);
-  const phiLs = fitPhiPerLead(cube, idxA);
+  const phiLs = past ? fitPhiPerLead(cube, idxA, { cube: past, issues: pastA }) : fitPhiPerLead(cube, idxA);
+  const pastNone = past && pastC.length ? scoreShifts(past, transform, pastC, null) : null;
   const none = scoreShifts(cube, transform, idxC, null);
-  const candidates: (CandidateScore & { perCase: Float64Array })[] = [{ name: 'none', servable: true, meanCrps: meanOf(none.byLead), byLead: none.byLead, perCase: none.crps }];
+  type Scored = CandidateScore & { perCase: Float64Array; pastPerCase?: Float64Array };
+  const pastPart = (s: ReturnType<typeof scoreShifts>) => ({ pastRuns: { issues: pastC.length, meanCrps: meanOf(s.byLead), byLead: s.byLead }, pastPerCase: s.crps });
+  const candidates: Scored[] = [{ name: 'none', servable: true, meanCrps: meanOf(none.byLead), byLead: none.byLead, perCase: none.crps, ...(pastNone ? pastPart(pastNone) : {}) }];
   const add = (name: CandidateScore['name'], servable: boolean, predict: ShiftPredictor, phi?: number[]) => {
     const s = scoreShifts(cube, transform, idxC, predict(cube, idxC));
-    candidates.push({ name, servable, meanCrps: meanOf(s.byLead), byLead: s.byLead, perCase: s.crps, ...(phi ? { phi } : {}) });
+    const onPast = past && pastC.length && phi ? scoreShifts(past, transform, pastC, multiplierPredictor(phi)(past, pastC)) : null;
+    candidates.push({ name, servable, meanCrps: meanOf(s.byLead), byLead: s.byLead, perCase: s.crps, ...(phi ? { phi } : {}), ...(onPast ? pastPart(onPast) : {}) });
   };
   add('ar1', true, multiplierPredictor(phiAr1), phiAr1);
   add('phi-per-lead', true, multiplierPredictor(phiLs), phiLs);
@@ -289,7 +330,12 @@ export function fitUpdatingFromSeries(
   const ranked = [...candidates].filter((c) => c.meanCrps !== null).sort((a, b) => a.meanCrps! - b.meanCrps!);
   const best = ranked[0]?.name ?? 'none';
   const servedCandidate = ranked.find((c) => c.servable && c.name !== 'none') ?? null;
-  const gains = servedCandidate ? pairedLeadDifference(candidates[0].perCase, servedCandidate.perCase, idxC.length, L) : [];
+  const decidedOn = pastC.length >= MIN_PAST_RUNS_TO_DECIDE && servedCandidate?.pastPerCase ? ('past runs' as const) : ('pseudo-forecasts' as const);
+  const gains = !servedCandidate
+    ? []
+    : decidedOn === 'past runs'
+      ? pairedLeadDifference(candidates[0].pastPerCase!, servedCandidate.pastPerCase!, pastC.length, L)
+      : pairedLeadDifference(candidates[0].perCase, servedCandidate.perCase, idxC.length, L);
   const leads = gains.map((g, k) => ({
     lead: k + 1,
     crpsGain: g.mean,
@@ -298,15 +344,23 @@ export function fitUpdatingFromSeries(
     on: o.mode === 'on' || (g.mean !== null && g.se !== null && g.mean > 2 * g.se),
   }));
   const blocks = { fit: block(idxA), earlyStopping: block(idxB), heldOut: block(idxC) };
-  const publicCandidates = candidates.map(({ perCase: _p, ...c }) => c);
-  const result = { mode: o.mode, blocks, members: members.length, candidates: publicCandidates, best, leads, note: PSEUDO_FORECAST_NOTE };
+  const publicCandidates = candidates.map(({ perCase: _p, pastPerCase: _q, ...c }) => c);
+  const sources = {
+    pseudoForecasts: { fit: idxA.length, earlyStopping: idxB.length, heldOut: idxC.length },
+    pastRuns: { fit: pastA.length, earlyStopping: pastB.length, heldOut: pastC.length },
+  };
+  const result = { mode: o.mode, blocks, members: members.length, candidates: publicCandidates, best, leads, decidedOn, sources, note: PSEUDO_FORECAST_NOTE };
   if (!servedCandidate) return { ...result, model: null, served: null, reason: 'no updating candidate could be scored', archive: null };
   if (!leads.some((l) => l.on)) {
     return { ...result, model: null, served: null, reason: 'updating: auto found no lead time where the held-out block shows a gain beyond twice its standard error', archive: null };
   }
   const phi = servedCandidate.phi!.map((p, k) => (leads[k].on ? p : 0));
   const model: UpdatingModel = { method: servedCandidate.name as UpdatingModel['method'], transform, phi, ar1 };
-  const archive = updatedArchive(cube, transform, phi, [...idxB, ...idxC], times, series.stepSeconds);
+  // The archive spans the whole validation period, as the lead-free one does: φ has one number per
+  // lead, fitted on tens of thousands of pairs, so its in-sample fit on block A is negligible.
+  const parts = [{ cube, issues: [...idxA, ...idxB, ...idxC] }];
+  if (past) parts.push({ cube: past, issues: [...pastA, ...pastB, ...pastC] });
+  const archive = updatedArchive(parts, transform, phi, times, series.stepSeconds);
   return { ...result, model, served: servedCandidate.name, reason: null, archive };
 }
 
@@ -322,37 +376,40 @@ function spreadIndices(n: number, k: number): number[] {
  * belongs to case i, and checked against the archive's predictors.
  */
 export function updatedArchive(
-  cube: PseudoForecastCube,
+  parts: { cube: PseudoForecastCube; issues: number[] }[],
   transform: ErrorTransform,
   phi: number[],
-  issues: number[],
   times: ArrayLike<number>,
   stepSeconds: number,
 ): { archive: ErrorArchive; issueError: Float64Array; summary: Record<string, unknown> } {
-  const { nMembers: M0, nLeads: L } = cube;
-  const keep = archiveMembers(M0);
-  const K = keep.length;
-  const rows = issues.length * K;
+  const L = parts[0].cube.nLeads;
+  let rows = 0;
+  for (const p of parts) rows += p.issues.length * archiveMembers(p.cube.nMembers).length;
   const updated = new Float64Array(rows * L).fill(NaN);
   const observed = new Float64Array(rows * L).fill(NaN);
   const dayOfYear = new Uint16Array(rows * L).fill(1);
   const rowError = new Float64Array(rows).fill(NaN);
   const stepMs = stepSeconds * 1000;
-  issues.forEach((i, u) => {
-    const t0 = times[cube.issueIndex[i]];
-    keep.forEach((m, j) => {
-      const row = u * K + j;
-      const e0 = cube.issueError[i * M0 + m];
-      rowError[row] = e0;
-      for (let k = 0; k < L; k++) {
-        const c = cube.corrected[(i * M0 + m) * L + k];
-        dayOfYear[row * L + k] = dayOfYearUtc(t0 + (k + 1) * stepMs);
-        if (!Number.isFinite(e0) || !Number.isFinite(c)) continue;
-        updated[row * L + k] = shiftInTransform(transform, c, phi[k] * e0);
-        observed[row * L + k] = cube.observed[i * L + k];
+  let row = 0;
+  for (const { cube, issues } of parts) {
+    const M0 = cube.nMembers;
+    const keep = archiveMembers(M0);
+    for (const i of issues) {
+      const t0 = times[cube.issueIndex[i]];
+      for (const m of keep) {
+        const e0 = cube.issueError[i * M0 + m];
+        rowError[row] = e0;
+        for (let k = 0; k < L; k++) {
+          const c = cube.corrected[(i * M0 + m) * L + k];
+          dayOfYear[row * L + k] = dayOfYearUtc(t0 + (k + 1) * stepMs);
+          if (!Number.isFinite(e0) || !Number.isFinite(c)) continue;
+          updated[row * L + k] = shiftInTransform(transform, c, phi[k] * e0);
+          observed[row * L + k] = cube.observed[i * L + k];
+        }
+        row++;
       }
-    });
-  });
+    }
+  }
   const archive = buildArchiveFromReforecasts({ nIssues: rows, nLeads: L, corrected: updated, observed, dayOfYear, transform });
   // Rebuild the case order: input order is row-major (row, lead) over finite cases.
   const group: number[] = [];
@@ -375,13 +432,15 @@ export function updatedArchive(
   }
   const summary = {
     nLeads: L,
-    issues: issues.length,
-    members: K,
+    issues: parts.reduce((a, p) => a + p.issues.length, 0),
+    pseudoForecastIssues: parts[0].issues.length,
+    pastRunIssues: parts[1]?.issues.length ?? 0,
+    members: archiveMembers(parts[0].cube.nMembers).length,
     cases: archive.predictor.length,
     templates: archive.templateStart.length,
     templateLength: archive.templateLength,
     transform: archive.transform,
-    source: 'pseudo-forecasts (continuous simulations after the residual model and the updater)',
+    source: 'pseudo-forecasts (continuous simulations after the residual model and the updater), and real past runs where stored',
   };
   return { archive, issueError, summary };
 }
