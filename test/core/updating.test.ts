@@ -114,3 +114,37 @@ describe('serving prerequisites', () => {
     expect(updatingWarmupProblem(spec, 10, 1)).toMatch(/needs 11/);
   });
 });
+
+describe('real past runs join the pseudo-forecasts', () => {
+  it('are counted by source, scored apart and decide auto when block C holds enough of them', () => {
+    const s = synthetic(3000, 0.9, 4, 21);
+    const g = createPrng(99);
+    const H = 5;
+    // Daily past runs over the whole period: the corrected members plus a forcing-like error
+    // growing with lead (so they differ from the pseudo-forecasts).
+    const issueIndex = Array.from({ length: 2980 }, (_, i) => i + 5);
+    const members = [0, 1, 2, 3];
+    const corrected = new Float64Array(issueIndex.length * members.length * H);
+    issueIndex.forEach((t, u) => members.forEach((m, j) => {
+      for (let k = 0; k < H; k++) corrected[(u * members.length + j) * H + k] = s.corrected[m][t + k + 1] * Math.exp(0.05 * (k + 1) * g.normal());
+    }));
+    const fit = fitUpdatingFromSeries(
+      s.series,
+      s.corrected,
+      { fromMs: s.times[0], toMs: s.times[2999] + 1 },
+      LOG,
+      { mode: 'auto', leads: H, leadBands: null, history: 2, trees: false, seed: 1, maxTrainRows: 20_000 },
+      () => false,
+      { nLeads: H, issueIndex, members, raw: corrected, corrected },
+    );
+    expect(fit.sources.pastRuns.heldOut).toBeGreaterThanOrEqual(50);
+    expect(fit.decidedOn).toBe('past runs');
+    const phiLs = fit.candidates.find((c) => c.name === 'phi-per-lead')!;
+    expect(phiLs.pastRuns!.byLead).toHaveLength(H);
+    // Persistent errors: updating helps at lead 1 on the past runs too.
+    const none = fit.candidates[0].pastRuns!.byLead[0].crps!;
+    expect(phiLs.pastRuns!.byLead[0].crps!).toBeLessThan(none);
+    expect(fit.archive!.summary.pastRunIssues).toBeGreaterThan(0);
+    expect(fit.archive!.issueError.length).toBe(fit.archive!.archive.error.length);
+  });
+});
