@@ -238,7 +238,26 @@ export async function computeHindcast(input: HindcastTaskInput, progress: Progre
     progress({ stage: 'stochastic stage and verification', percent: 35 });
     let verificationMs = 0;
     let lastIssue = -1;
-    const withoutUpdating: UpdatingPassCollector | null = input.updating ? updatingPassScores(I, H) : null;
+    // With an issue-time updater the comparison follows serving: each issue is updated on the
+    // observation at its issue time and the stage draws from the updated members' archive. A
+    // second pass without updating gives the per-lead comparison of the two.
+    const upd = input.updating ? { model: checkUpdatingModel(input.updating.model), archive: archiveFromBytes(input.updating.archive) } : null;
+    const atIssue = upd ? await correctPerValidTime(spec, series, sessions, issues.map((i) => i - 1), 1, () => {}, check) : null;
+    const atObs = new Float64Array(K * M);
+    let notUpdated = 0;
+    const correctUpdated = (r: Float64Array, s: number, out: Float64Array) => {
+      correct(r, s, out);
+      const i = issues[s];
+      const y = series.observed[i];
+      let ok = Number.isFinite(y);
+      for (let km = 0; km < K * M && ok; km++) {
+        atObs[km] = atIssue![km * n + i];
+        if (!Number.isFinite(atObs[km])) ok = false;
+      }
+      if (ok) applyUpdating(upd!.model, out, atObs, y, 0, H);
+      else notUpdated++;
+    };
+    const withUpdating: UpdatingPassCollector | null = upd ? updatingPassScores(I, H) : null;
     const tStage = performance.now();
     const summary = runHindcast(
       {
@@ -249,8 +268,8 @@ export async function computeHindcast(input: HindcastTaskInput, progress: Progre
         raw,
         observed,
         dayOfYear,
-        correct,
-        archive,
+        correct: upd ? correctUpdated : correct,
+        archive: upd ? upd.archive : archive,
         stochastic: { seed: settings.seed, nDraws: settings.nDraws, seasonalWindowDays: settings.seasonalWindowDays },
       },
       (c, issue) => {
@@ -258,28 +277,21 @@ export async function computeHindcast(input: HindcastTaskInput, progress: Progre
           lastIssue = issue;
           if ((issue & 63) === 0) {
             check();
-            progress({ stage: 'stochastic stage and verification', percent: 35 + (60 * issue) / I });
+            progress({ stage: 'stochastic stage and verification', percent: 35 + ((upd ? 40 : 60) * issue) / I });
           }
         }
         const a = performance.now();
         comparison.add(c);
-        withoutUpdating?.add(c, issue);
+        withUpdating?.add(c, issue);
         verificationMs += performance.now() - a;
       },
       createStochasticWorkspace(),
     );
     const stageMs = performance.now() - tStage - verificationMs;
     let updating: UpdatingByLead | null = null;
-    if (input.updating && withoutUpdating) {
-      // Second pass: the same issues updated on the observation at issue time, with the updated
-      // members' per-lead archive. Corrected values at the issue times come from the continuous rows.
-      progress({ stage: 'hindcast with issue-time updating', percent: 80 });
-      const model = checkUpdatingModel(input.updating.model);
-      const updArchive = archiveFromBytes(input.updating.archive);
-      const atIssue = await correctPerValidTime(spec, series, sessions, issues.map((i) => i - 1), 1, () => {}, check);
-      const withUpdating = updatingPassScores(I, H);
-      const atObs = new Float64Array(K * M);
-      let notUpdated = 0;
+    if (upd && withUpdating) {
+      progress({ stage: 'the same issues without issue-time updating', percent: 75 });
+      const withoutUpdating = updatingPassScores(I, H);
       runHindcast(
         {
           nIssues: I,
@@ -289,25 +301,17 @@ export async function computeHindcast(input: HindcastTaskInput, progress: Progre
           raw,
           observed,
           dayOfYear,
-          correct: (r, s, out) => {
-            correct(r, s, out);
-            const i = issues[s];
-            const y = series.observed[i];
-            let ok = Number.isFinite(y);
-            for (let km = 0; km < K * M && ok; km++) {
-              atObs[km] = atIssue[km * n + i];
-              if (!Number.isFinite(atObs[km])) ok = false;
-            }
-            if (ok) applyUpdatingInPlace(model, out, atObs, y, H);
-            else notUpdated++;
-          },
-          archive: updArchive,
+          correct,
+          archive,
           stochastic: { seed: settings.seed, nDraws: settings.nDraws, seasonalWindowDays: settings.seasonalWindowDays },
         },
-        (c, issue) => withUpdating.add(c, issue),
+        (c, issue) => {
+          if ((issue & 63) === 0) check();
+          withoutUpdating.add(c, issue);
+        },
         createStochasticWorkspace(),
       );
-      updating = withoutUpdating.compare(withUpdating, { method: model.method, issuesWithoutObservation: notUpdated });
+      updating = withoutUpdating.compare(withUpdating, { method: upd.model.method, issuesWithoutObservation: notUpdated });
     }
     check();
     progress({ stage: 'scores and advice', percent: 96 });
@@ -343,10 +347,6 @@ export async function computeHindcast(input: HindcastTaskInput, progress: Progre
   } finally {
     await Promise.all(sessions.map((s) => s.release()));
   }
-}
-
-function applyUpdatingInPlace(model: ReturnType<typeof checkUpdatingModel>, out: Float64Array, atObs: Float64Array, y: number, H: number): void {
-  applyUpdating(model, out, atObs, y, 0, H);
 }
 
 /** max(0, value + residual), or NaN when either is missing. */

@@ -239,7 +239,9 @@ export const hindcastJob: JobHandler = async (job, { db, progress, signal }) => 
     unit: 'm3/s',
     thresholds: gauge.thresholds,
     correction: out.correction,
-    errorArchive: { id: archive.id, leadMode: archive.leadMode, leadTimes: archive.reach, cases: Number(archive.summary.cases ?? 0) },
+    errorArchive: updating && updArchive
+      ? { id: updArchive.id, leadMode: updArchive.leadMode, leadTimes: Number(updArchive.summary.nLeads ?? 0), cases: Number(updArchive.summary.cases ?? 0) }
+      : { id: archive.id, leadMode: archive.leadMode, leadTimes: archive.reach, cases: Number(archive.summary.cases ?? 0) },
     overlap: { issues: usedTimes.length, calibration: inCalibration, validation: inValidation },
     warnings,
     cases: { verified: out.cases, unobserved: out.unobserved },

@@ -62,6 +62,26 @@ describe('fitting with updating', () => {
   });
 });
 
+describe('hindcasts per lead', () => {
+  it('report raw, corrected, updated and both stochastic stages per lead', async () => {
+    const from = scenario.times[lastIndex - 150];
+    const to = scenario.times[lastIndex - 90];
+    const started = await t.as('admin', { method: 'POST', url: `/gauges/${gaugeId}/hindcasts`, payload: { mode: 'simulation', from, to, trajectories: 200, seed: 3, sizeStudy: { sources: [] } } });
+    expect(started.statusCode, started.body).toBe(202);
+    await runner.drain();
+    const h = (await t.as('read', { method: 'GET', url: `/gauges/${gaugeId}/hindcasts/${started.json().id}` })).json();
+    expect(h.status, h.error).toBe('succeeded');
+    const u = h.result.updating;
+    expect(u.byLead).toHaveLength(10);
+    for (const r of u.byLead) {
+      for (const v of Object.values(r.crps)) expect(v).toBeGreaterThan(0);
+      expect(r.coverage95.stochasticUpdated).toBeGreaterThanOrEqual(0);
+      expect(r.cases).toBeGreaterThan(30);
+    }
+    expect(h.result.errorArchive.leadMode).toBe('updating');
+  });
+});
+
 describe('serving with updating', () => {
   it('updates on the latest stored observation at issue time and says which', async () => {
     const i = lastIndex - 40;
