@@ -22,6 +22,11 @@ export interface CorrectionOutput {
   /** Corrected members (mean over a bundle's models), [member·nLeads + lead]; null when degraded. */
   corrected: Float64Array | null;
   stage: StochasticResult;
+  /**
+   * With updating: each (model, member)'s issue-time error ε0 = T(observed) − T(corrected) in the
+   * updater's transform, [model·nMembers + member] (for a stage that conditions on it); else null.
+   */
+  issueError: Float64Array | null;
   timings: { featuresMs: number; inferenceMs: number; stochasticMs: number };
 }
 
@@ -56,6 +61,7 @@ export async function correctRun(
   let inferenceMs = 0;
   let stageInput = raw;
   let corrected: Float64Array | null = null;
+  let issueError: Float64Array | null = null;
   if (sessions.length) {
     const rows = servingRows(spec!, run);
     featuresMs = performance.now() - t;
@@ -76,11 +82,12 @@ export async function correctRun(
       const u = options.updating;
       const at = observationTimeRows(spec!, run, u.ageSteps);
       corrected.fill(0);
+      issueError = new Float64Array(sessions.length * nM);
       for (let s = 0; s < sessions.length; s++) {
         const residual = await predictResiduals(sessions[s], at.rows, at.nRows, at.nFeatures);
         const atObs = Float64Array.from({ length: nM }, (_, m) => Math.max(0, at.simAt[m] + residual[m]));
         const block = stageInput.subarray(s * nM * H, (s + 1) * nM * H);
-        applyUpdating(u.model, block, atObs, u.observation, u.ageSteps, H);
+        issueError.set(applyUpdating(u.model, block, atObs, u.observation, u.ageSteps, H), s * nM);
         for (let i = 0; i < nM * H; i++) corrected[i] += block[i] / sessions.length;
       }
     }
@@ -95,5 +102,5 @@ export async function correctRun(
     { seed: options.seed, nDraws: options.nDraws, probs: options.probs, thresholds: options.thresholds, seasonalWindowDays: options.seasonalWindowDays },
     workspace,
   );
-  return { corrected, stage, timings: { featuresMs, inferenceMs, stochasticMs: performance.now() - t } };
+  return { corrected, stage, issueError, timings: { featuresMs, inferenceMs, stochasticMs: performance.now() - t } };
 }
