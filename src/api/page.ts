@@ -1,5 +1,5 @@
 import { createHash } from 'node:crypto';
-import { readFileSync } from 'node:fs';
+import { readdirSync, readFileSync } from 'node:fs';
 import type { FastifyInstance, FastifyReply, FastifyRequest } from 'fastify';
 import { addRoute, type Services } from './context.ts';
 import { notFound } from './problem.ts';
@@ -12,11 +12,15 @@ interface Asset {
 }
 
 const ASSET_DIR = new URL('./page/', import.meta.url);
-const ASSETS: Record<string, string> = {
-  'index.html': 'text/html; charset=utf-8',
-  'app.js': 'text/javascript; charset=utf-8',
-  'style.css': 'text/css; charset=utf-8',
+// Every file of the page folder with one of these endings is served: the HTML, the style sheet and
+// the page's ES modules (app.js imports the others by relative path).
+const CONTENT_TYPES: Record<string, string> = {
+  '.html': 'text/html; charset=utf-8',
+  '.js': 'text/javascript; charset=utf-8',
+  '.css': 'text/css; charset=utf-8',
 };
+
+const contentType = (name: string): string | undefined => CONTENT_TYPES[name.slice(name.lastIndexOf('.'))];
 
 // Short, so a new deployment reaches open pages within a minute; ETags make the revalidation cheap.
 const CACHE_CONTROL = 'public, max-age=60';
@@ -33,7 +37,9 @@ const PAGE_HEADERS = {
 
 function loadAssets(): Map<string, Asset> {
   const out = new Map<string, Asset>();
-  for (const [name, type] of Object.entries(ASSETS)) {
+  for (const name of readdirSync(ASSET_DIR).sort()) {
+    const type = contentType(name);
+    if (!type) continue;
     const body = readFileSync(new URL(name, ASSET_DIR));
     const etag = `"${createHash('sha256').update(body).digest('base64url').slice(0, 22)}"`;
     out.set(name, { body, type, etag });
@@ -51,8 +57,8 @@ function send(request: FastifyRequest, reply: FastifyReply, asset: Asset): Buffe
 }
 
 /**
- * The forecast page: one small single-page app (plain HTML/CSS/JS, chart drawn as inline SVG)
- * served at `/` (overview of gauges) and `/view/:id` (one gauge), its files under `/page/…`.
+ * The forecast page: one small single-page app (plain HTML/CSS and JS modules, charts drawn as
+ * inline SVG) served at `/` (overview of gauges) and `/view/:id` (one gauge), its files under `/page/…`.
  * The page is open; the data it fetches needs a read token, which the page takes from the URL
  * fragment `#token=…` and keeps in sessionStorage.
  */

@@ -30,7 +30,7 @@ export async function loadScenarioArchive(
     timeStep: g.timeStep,
     timeZone: g.timeZone,
     flowUnit: g.flowUnit,
-    location: { latitude: g.location.lat, longitude: g.location.lon },
+    location: null,
     thresholds: g.thresholds.map((t) => ({ label: t.label, value: t.value })),
   };
   const existing = await send('GET', `/gauges/${g.id}`);

@@ -12,12 +12,16 @@ export const GAUGE_INFO = {
   timeStep: 'P1D',
   timeZone: 'UTC',
   flowUnit: 'm3/s',
-  location: { lat: 46.62, lon: 9.73 },
+  // No coordinates: the catchment is invented and must not be placeable on a real river.
+  location: null,
 } as const;
 
-/** Mid-latitude snowy upland: ≈ 1.1 m/yr precipitation, winter mean ≈ −3 °C, summer ≈ 14 °C. */
+/**
+ * Mid-latitude snowy upland: ≈ 1.1 m/yr precipitation, winter mean ≈ −3 °C, summer ≈ 14 °C.
+ * The latitude is only the input of the extraterrestrial radiation in the evaporation formula.
+ */
 export const CLIMATE: Climate = {
-  latitudeDeg: GAUGE_INFO.location.lat,
+  latitudeDeg: 46.6,
   wetAfterDry: { mean: 0.3, amplitude: 0.05, peakDay: 330 },
   wetAfterWet: { mean: 0.63, amplitude: 0.05, peakDay: 330 },
   wetDayMeanMm: { mean: 7, amplitude: 2, peakDay: 210 },
@@ -45,8 +49,9 @@ export const SCENARIO_START_MS = Date.UTC(2005, 0, 1);
 export const SPINUP_START_MS = Date.UTC(2004, 0, 1);
 export const HORIZON_STEPS = 10;
 export const WARMUP_STEPS = 10;
+/** Demo thresholds: return levels of the annual maximum flow, named by their return period. */
 export const RETURN_PERIODS = [
-  { label: 'high', years: 2 },
-  { label: 'very high', years: 10 },
-  { label: 'extreme', years: 50 },
+  { label: '2-year flow', years: 2 },
+  { label: '10-year flow', years: 10 },
+  { label: '50-year flow', years: 50 },
 ] as const;

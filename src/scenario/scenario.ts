@@ -49,7 +49,8 @@ export interface GaugeDefinition {
   readonly timeStep: 'P1D';
   readonly timeZone: 'UTC';
   readonly flowUnit: 'm3/s';
-  readonly location: { readonly lat: number; readonly lon: number };
+  /** Always null in the demo: an invented catchment has no place on a map. */
+  readonly location: null;
   /** Strictly increasing by value. */
   readonly thresholds: Threshold[];
 }
@@ -282,7 +283,7 @@ export function buildScenario(options: ScenarioOptions = {}): Scenario {
 
   return {
     seed,
-    gauge: { ...GAUGE_INFO, location: { ...GAUGE_INFO.location }, thresholds },
+    gauge: { ...GAUGE_INFO, thresholds },
     times,
     units: { flow: 'm3/s', precipitation: 'mm', air_temperature: 'degC' },
     observedFlow,

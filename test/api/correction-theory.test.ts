@@ -13,7 +13,9 @@ import { dailyTimes, makeTestApp, type TestApp } from '../helpers/test-app.ts';
  * truth. The best possible forecast given the member is N(member − bias, σ²) (the truth's spread is
  * so much wider than σ that shrinking towards its mean gains nothing: the factor is
  * σ²/(σ² + var(truth)) ≈ 0.001). So after correction:
- *  - the 5–95 % band should be member − bias ± 1.645 σ: width 3.29 σ, covering the truth 90 % of the time;
+ *  - the 5–95 % band should be member − bias ± 1.645 σ: width 3.29 σ, covering the truth 90 % of the time
+ *    (1.645 = scipy.stats.norm.ppf(0.95) = 1.6448536, Debian python3-scipy 1.10.1, printed by
+ *    test/fixtures/normal-table/print_values.py);
  *  - the mean CRPS should approach the mean of the Gaussian closed form (Gneiting et al. 2005,
  *    eq. 5) of N(member − bias, σ²) at the truth, within sampling error.
  */
@@ -35,7 +37,7 @@ beforeAll(async () => {
   truth = times.map(() => 100 + 400 * prng.nextFloat());
   member = truth.map((x) => Math.max(0, x + bias + prng.normal(0, sigma)));
   const as = (method: 'POST', url: string, payload: object) => t.as('admin', { method, url, payload });
-  expect((await as('POST', '/gauges', { id: 'theory', name: 'Theory gauge', catchmentAreaKm2: 1000, timeStep: 'P1D', flowUnit: 'm3/s', thresholds: [{ label: 'high', value: 450 }] })).statusCode).toBe(201);
+  expect((await as('POST', '/gauges', { id: 'theory', name: 'Theory gauge', catchmentAreaKm2: 1000, timeStep: 'P1D', flowUnit: 'm3/s', thresholds: [{ label: '10-year flow', value: 450 }] })).statusCode).toBe(201);
   await as('POST', '/gauges/theory/observations', { unit: 'm3/s', times: times.slice(0, archiveDays), values: truth.slice(0, archiveDays) });
   await as('POST', '/gauges/theory/simulations', { unit: 'm3/s', times: times.slice(0, archiveDays), members: [{ id: 'only', values: member.slice(0, archiveDays) }] });
   const fit = await as('POST', '/gauges/theory/models/fit', {

@@ -23,10 +23,10 @@ describe('gauges', () => {
     const patched = await t.as('admin', {
       method: 'PATCH',
       url: `/gauges/${riverGauge.id}`,
-      payload: { name: 'Sample Brook at Brennock Mill weir', thresholds: [{ label: 'minor', value: 42 }] },
+      payload: { name: 'Sample Brook at Brennock Mill weir', thresholds: [{ label: '2-year flow', value: 42 }] },
     });
     expect(patched.statusCode).toBe(200);
-    expect(patched.json()).toMatchObject({ name: 'Sample Brook at Brennock Mill weir', thresholds: [{ label: 'minor', value: 42 }], timeStep: 'P1D' });
+    expect(patched.json()).toMatchObject({ name: 'Sample Brook at Brennock Mill weir', thresholds: [{ label: '2-year flow', value: 42 }], timeStep: 'P1D' });
 
     const del = await t.as('admin', { method: 'DELETE', url: `/gauges/${riverGauge.id}` });
     expect(del.statusCode).toBe(204);

@@ -89,6 +89,7 @@ describe('hindcast jobs', () => {
     expect(bySource.stochastic.rows.map((x: { size: number }) => x.size)).toEqual([5, 6, 10, 25, 50, 100]);
     const rows = bySource.stochastic.rows as { size: number; crps: number; fairCrps: number; meanWidth: number; alphaIndex: number }[];
     for (let i = 1; i < rows.length; i++) expect(rows[i].crps).toBeLessThan(rows[i - 1].crps);
+    // 3 %: room for the subsampling of a few hundred cases (common practice).
     expect(Math.abs(rows[0].fairCrps / rows[rows.length - 1].fairCrps - 1)).toBeLessThan(0.03);
     for (const row of rows) expect(row.meanWidth).toBeGreaterThan(0);
 

@@ -97,7 +97,7 @@ describe('verification of stored runs: a hand-checked case', () => {
   const normal10 = mid100.map((p) => 10 + normalQuantile(p));
 
   beforeAll(async () => {
-    expect((await createGauge(g, [{ label: 'minor', value: 10.5 }])).statusCode).toBe(201);
+    expect((await createGauge(g, [{ label: '2-year flow', value: 10.5 }])).statusCode).toBe(201);
     // Run 1 (corrected), run 2 (degraded: no corrected ensemble), run 3 (never observed).
     await storeRun(g, t0, { raw: [[10, 10], [11, 11]], corrected: [[9, 9], [11, 11]], percentiles: [normal10, normal10] });
     await storeRun(g, t0 + DAY, { raw: [[10, 10], [11, 11]], corrected: null, percentiles: [normal10, normal10] });
@@ -124,11 +124,11 @@ describe('verification of stored runs: a hand-checked case', () => {
     expect(v.degraded.handling).toMatch(/left out of all three columns/);
     expect(v.comparison.stochasticFrom).toBe('quantiles');
     const { raw, corrected, stochastic } = v.comparison;
-    // CRPS: obs 0, members [0, 1] → 0.25 and [−1, 1] → 0.5 (properscoring tests/test_crps.py, CHECKS.md; shifted by 10).
+    // CRPS: obs 0, members [0, 1] → 0.25 and [−1, 1] → 0.5 (properscoring 0.1, properscoring/tests/test_crps.py, test_crps_toy_examples; shifted by 10).
     expect(raw.crps.crps).toBeCloseTo(0.25, 12);
     expect(corrected.crps.crps).toBeCloseTo(0.5, 12);
     // Stochastic: 100 midpoint quantiles of N(10, 1) against the Gaussian closed form at y = μ,
-    // 0.2336950 (Gneiting et al. 2005; CHECKS.md); the 100-point quantile ensemble is within 1e-3
+    // 0.2336950 (Gneiting et al. 2005 closed form; properscoring 0.1 README: crps_gaussian(0, 0, 1) = 0.23369497725510913); the 100-point quantile ensemble is within 1e-3
     // relative (scipy 1.10.1 / numpy 1.24.2 give 0.2337627 for it).
     expect(Math.abs(stochastic.crps.crps / crpsGaussian(10, 1, 10) - 1)).toBeLessThan(1e-3);
     expect(stochastic.crps.crps).toBeCloseTo(0.2337627, 4);
@@ -207,7 +207,7 @@ describe('verification of stored runs: calibrated, too narrow and too wide forec
   const mu = (day: number) => 100 + 30 * Math.sin((2 * Math.PI * day) / 365.25);
 
   beforeAll(async () => {
-    expect((await createGauge(g, [{ label: 'high', value: 130 }])).statusCode).toBe(201);
+    expect((await createGauge(g, [{ label: '10-year flow', value: 130 }])).statusCode).toBe(201);
     const rng = createPrng(11);
     const obsTimes: string[] = [];
     const obs: number[] = [];
@@ -223,26 +223,28 @@ describe('verification of stored runs: calibrated, too narrow and too wide forec
     expect((await postObservations(g, obsTimes, obs)).statusCode).toBe(200);
   });
 
-  it('shows the calibrated stage reliable, the narrow ensemble unreliable and the wide one conservative, and advises the stage', async () => {
+  it('classes the calibrated stage calibrated, the narrow ensemble under-dispersive and the wide one over-dispersive, and advises the stage', async () => {
     const v = (await verify(g)).json();
     const { raw, corrected, stochastic } = v.comparison;
     expect(v.comparison.cases.used).toBe(nRuns * H);
     // Calibrated: alpha near 1 and 90 % coverage near nominal (tolerances: common practice for 600 cases).
     expect(stochastic.alphaIndex).toBeGreaterThan(0.9);
     expect(Math.abs(stochastic.spread.coverage90 - 0.9)).toBeLessThan(0.05);
-    expect(stochastic.spread.class).toBe('reliable');
-    expect(raw.spread.class).toBe('too-narrow');
+    expect(stochastic.spread.class).toBe('calibrated');
+    expect(raw.spread.class).toBe('under-dispersive');
+    // Calibrated values are alpha 1 (Renard et al. 2010), 12·var(PIT) 1 (uniform PIT) and 90 % coverage 0.9;
+    // the bounds below sit well away from them for 0.3 σ and 3 σ ensembles (margins: common practice).
     expect(raw.alphaIndex).toBeLessThan(0.8);
     expect(raw.pit.varianceRatio).toBeGreaterThan(1.5);
     expect(corrected.pit.varianceRatio).toBeLessThan(0.5);
-    expect(corrected.spread.class).toBe('too-wide (conservative)');
+    expect(corrected.spread.class).toBe('over-dispersive');
     expect(corrected.spread.coverage90).toBeGreaterThan(0.97);
-    // The stage improves on the too-wide corrected ensemble: better reliability and CRPS.
+    // The stage improves on the over-dispersive corrected ensemble: better reliability and CRPS.
     expect(stochastic.crps.crps).toBeLessThan(corrected.crps.crps);
     expect(v.advice.recommendation).toBe('use-stochastic');
     expect(v.advice.evidence.alphaCorrected).toBe(corrected.alphaIndex);
     expect(v.advice.evidence.alphaStochastic).toBe(stochastic.alphaIndex);
-    expect(v.advice.evidence.spreadCorrected).toBe('too-wide (conservative)');
+    expect(v.advice.evidence.spreadCorrected).toBe('over-dispersive');
     expect(v.advice.reasons.some((r: string) => /Rule of thumb/.test(r))).toBe(true);
     // Reliability-diagram data for the threshold: bins of forecast probability with observed frequency.
     const diagram = stochastic.brier[0].diagram;

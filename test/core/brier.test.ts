@@ -3,7 +3,7 @@ import { brierDecomposition, brierScores } from '../../src/core/brier.ts';
 import { createPrng } from '../../src/core/prng.ts';
 
 describe('Brier score and Murphy (1973) decomposition', () => {
-  it('properscoring tests/test_brier.py values, with our event "value > threshold"', () => {
+  it('properscoring 0.1 tests/test_brier.py threshold examples, with our event "value > threshold"', () => {
     // properscoring uses the event "value ≤ threshold". Our event is its complement, so each
     // (p − o)² is unchanged and the published values carry over: obs 0, members [−1, 1],
     // thresholds [−2, 0, 2] → [0, 0.25, 0]; obs 0, members [0, 0, 0, 1], threshold 0 → 0.0625.
@@ -14,7 +14,7 @@ describe('Brier score and Murphy (1973) decomposition', () => {
     expect(brierScores([0, 0, 0, 1], [0], 4, [0])[0].brier).toBeCloseTo(0.0625, 15);
   });
 
-  it('probability 0.271 for an event that did not happen → 0.073441 (properscoring tests/test_brier.py)', () => {
+  it('probability 0.271 for an event that did not happen → 0.271² = 0.073441 (worked by hand from the Brier 1950 definition)', () => {
     expect(brierDecomposition([0.271], [0]).brier).toBeCloseTo(0.073441, 15);
   });
 

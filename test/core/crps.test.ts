@@ -8,7 +8,8 @@ import { normalQuantile } from '../../src/core/normal.ts';
 const ref = JSON.parse(readFileSync(new URL('../fixtures/scores/reference.json', import.meta.url), 'utf8'));
 
 describe('ensemble CRPS', () => {
-  // Source: properscoring test suite, tests/test_crps.py (toy examples), as listed in CHECKS.md.
+  // Source: properscoring 0.1 test suite, properscoring/tests/test_crps.py: test_crps_toy_examples; the
+  // last row is its equal-weight example of test_crps_weight_examples (1.5, [0, 1, 2] → 1/9 + 4/9·0.5 + 1/9·0.5).
   const table: [number, number[], number][] = [
     [0, [0, 1], 0.25],
     [2, [0, 1], 1.25],
@@ -25,11 +26,11 @@ describe('ensemble CRPS', () => {
     expect(crpsWeighted(members, members.map(() => 1), y)).toBeCloseTo(expected, 14);
   });
 
-  it('weighted example y=1, members [0, 2], weights [0.8, 0.2] → 0.68 (properscoring tests/test_crps.py)', () => {
+  it('weighted example y=1, members [0, 2], weights [0.8, 0.2] → 0.68 (properscoring 0.1, properscoring/tests/test_crps.py, test_crps_weight_examples)', () => {
     expect(crpsWeighted([0, 2], [0.8, 0.2], 1)).toBeCloseTo(0.68, 14);
   });
 
-  it('fair CRPS (Ferro 2014), worked by hand in CHECKS.md from the sorted formula', () => {
+  it('fair CRPS (Ferro 2014), worked by hand from the sorted formula', () => {
     expect(crpsEnsemble([0, 1], 2, true)).toBeCloseTo(1.0, 14);
     expect(crpsEnsemble([0, 0, 1], 1, true)).toBeCloseTo(1 / 3, 14);
     expect(crpsEnsemble([0, 1], 0, true)).toBeCloseTo(0, 14);
@@ -50,7 +51,7 @@ describe('ensemble CRPS', () => {
     }
   });
 
-  it('Gaussian closed form (Gneiting et al. 2005): N(0,1) at y=0 → 0.2336950, y=1 → 0.6024413 (CHECKS.md, from the formula)', () => {
+  it('Gaussian closed form (Gneiting et al. 2005): N(0,1) at y=0 → 0.2336950, y=1 → 0.6024413 (properscoring 0.1 README: crps_gaussian 0.23369498 and 0.60244136)', () => {
     expect(crpsGaussian(0, 1, 0)).toBeCloseTo(0.233695, 6);
     expect(crpsGaussian(0, 1, 1)).toBeCloseTo(0.6024413, 6);
     // Scaling: CRPS(N(μ,σ²), y) = σ·CRPS(N(0,1), (y−μ)/σ).
@@ -58,7 +59,7 @@ describe('ensemble CRPS', () => {
     expect(crpsGaussian(2, 0, 5)).toBe(3);
   });
 
-  it('1000-member ensemble at N(0,1) quantiles (i − 0.5)/1000 matches the closed form to relative 1e-4 (properscoring test_crps.py)', () => {
+  it('1000-member ensemble at N(0,1) quantiles (i − 0.5)/1000 matches the closed form to relative 1e-4 (properscoring 0.1, properscoring/tests/test_crps.py, test_crps_gaussian_consistent)', () => {
     const m = 1000;
     const members = new Float64Array(m);
     for (let i = 1; i <= m; i++) members[i - 1] = normalQuantile((i - 0.5) / m);

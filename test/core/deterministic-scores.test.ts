@@ -6,7 +6,7 @@ import { deterministicScores } from '../../src/core/deterministic-scores.ts';
 const ref = JSON.parse(readFileSync(new URL('../fixtures/scores/reference.json', import.meta.url), 'utf8'));
 
 describe('deterministic scores', () => {
-  it('KGE of sim = 1.1 × obs is 1 − √0.02 (r = 1, α = β = 1.1; worked by hand in CHECKS.md from Gupta et al. 2009)', () => {
+  it('KGE of sim = 1.1 × obs is 1 − √0.02 (r = 1, α = β = 1.1; worked by hand from Gupta et al. 2009)', () => {
     const obs = [3, 7, 1, 12, 5, 9, 2];
     const s = deterministicScores(obs.map((v) => 1.1 * v), obs);
     expect(s.r).toBeCloseTo(1, 12);

@@ -15,7 +15,7 @@ function randomCases(seed: number, nCases: number, m: number, bias: number, spre
 }
 
 describe('Hersbach (2000) CRPS decomposition', () => {
-  it('worked by hand from the CHECKS.md definitions: members [0,2], y = 1 and y = 3', () => {
+  it('worked by hand from the definitions of Hersbach (2000): members [0,2], y = 1 and y = 3', () => {
     // Bin 1: ᾱ = 1.5, β̄ = 0.5 → ḡ = 2, ō = 0.25; bin 2 (upper outlier): ᾱ = 0.5, ō_2 = 0.5 → ḡ = 1;
     // bin 0 empty. reliability = 2·(0.25−0.5)² + 1·(0.5−1)² = 0.375; potential = 2·0.25·0.75 + 1·0.5·0.5 = 0.625;
     // CRPS = (0.5 + 1.5)/2 = 1; uncertainty = |1 − 3|/2² = 0.5.
@@ -29,7 +29,7 @@ describe('Hersbach (2000) CRPS decomposition', () => {
     expect(Array.from(d.o)).toEqual([0, 0.25, 0.5]);
   });
 
-  it('lower outlier: ḡ_0 = β̄_0/ō_0 with ō_0 = mean 1{y ≤ x_1} (CHECKS.md)', () => {
+  it('lower outlier: ḡ_0 = β̄_0/ō_0 with ō_0 = mean 1{y ≤ x_1} (Hersbach 2000, outlier bins; worked by hand)', () => {
     // Cases: y = −1 below [0, 2] (β_0 = 1), y = 0 equal to x_1 (β_0 = 0, counts in ō_0), y = 1 inside.
     const d = hersbachDecomposition([0, 2, 0, 2, 0, 2], [-1, 0, 1], 2);
     expect(d.o[0]).toBeCloseTo(2 / 3, 14);

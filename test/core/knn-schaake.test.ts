@@ -6,7 +6,7 @@ import { radixOrder, sortNonNegative } from '../../src/core/radix-sort.ts';
 import { createPrng } from '../../src/core/prng.ts';
 
 describe('kNN (Lall & Sharma 1996)', () => {
-  it('kernel weights for k = 3 are 6/11, 3/11, 2/11 (CHECKS.md, Lall & Sharma 1996)', () => {
+  it('kernel weights for k = 3 are 6/11, 3/11, 2/11 (worked by hand from the Lall & Sharma 1996 kernel: (1/j)/(1 + 1/2 + 1/3))', () => {
     const w = lallSharmaWeights(3);
     expect(w[0]).toBeCloseTo(6 / 11, 15);
     expect(w[1]).toBeCloseTo(3 / 11, 15);
@@ -60,7 +60,7 @@ describe('kNN (Lall & Sharma 1996)', () => {
 });
 
 describe('Schaake shuffle (Clark et al. 2004)', () => {
-  it('worked example: members {10, 20, 30} with template {5, 1, 3} → [30, 10, 20] (CHECKS.md)', () => {
+  it('worked by hand: members {10, 20, 30} with template {5, 1, 3} → [30, 10, 20] (rank matching of Clark et al. 2004)', () => {
     expect(Array.from(schaakeShuffle([10, 20, 30], [5, 1, 3], 3, 1))).toEqual([30, 10, 20]);
     // Order of the samples does not matter, only their set.
     expect(Array.from(schaakeShuffle([20, 30, 10], [5, 1, 3], 3, 1))).toEqual([30, 10, 20]);

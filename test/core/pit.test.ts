@@ -7,7 +7,7 @@ import { intervalCoverage } from '../../src/core/interval-coverage.ts';
 import { createPrng } from '../../src/core/prng.ts';
 
 describe('PIT, alpha index, QQ data, rank histogram, interval coverage', () => {
-  it('alpha index: worked example PIT [0.1, 0.4, 0.6, 0.9] → 0.9 with u_t = t/(n+1) (CHECKS.md, Renard et al. 2010)', () => {
+  it('alpha index: worked example PIT [0.1, 0.4, 0.6, 0.9] → 0.9 with u_t = t/(n+1) (worked by hand from Renard et al. 2010)', () => {
     expect(alphaIndex([0.9, 0.1, 0.6, 0.4])).toBeCloseTo(0.9, 14);
     expect(alphaIndex([0.5, 0.5, 0.5, 0.5])).toBeLessThan(0.9);
   });
@@ -71,10 +71,12 @@ describe('PIT, alpha index, QQ data, rank histogram, interval coverage', () => {
     expect(r.n).toBe(1800);
     // Binomial SE sqrt(.9·.1/1800) = 0.007; sampling of the ends adds a little; 0.03 ≈ 4 SE.
     expect(Math.abs(r.coverage - 0.9)).toBeLessThan(0.03);
-    // Width of N(0,1) 90 % interval = 2·1.644854 (normal table).
+    // Width of N(0,1) 90 % interval = 2·1.644854: 2·scipy.stats.norm.ppf(0.95) = 3.2897073 (Debian
+    // python3-scipy 1.10.1, printed by test/fixtures/normal-table/print_values.py).
     expect(Math.abs(r.meanWidth - 2 * 1.644854)).toBeLessThan(0.05);
     const hand = intervalCoverage([0, 1, 2, 3, 4, 0, 1, 2, 3, 4], [4, 4.5], 5, 0.5);
-    // Quantiles 0.25, 0.75 of 0..4 = 1 and 3 (definition 7): neither 4 nor 4.5 inside; width 2.
+    // Quantiles 0.25, 0.75 of 0..4 = 1 and 3 (Hyndman & Fan 1996, definition 7; worked by hand):
+    // neither 4 nor 4.5 inside; width 2.
     expect(hand).toEqual({ n: 2, coverage: 0, meanWidth: 2 });
   });
 });

@@ -93,7 +93,9 @@ describe('xoshiro128** PRNG', () => {
     const sd = Math.sqrt(s2 / n - mean * mean);
     expect(Math.abs(mean - 3)).toBeLessThan(5 * (2 / Math.sqrt(n)));
     expect(Math.abs(sd - 2)).toBeLessThan(5 * (2 / Math.sqrt(2 * n)));
-    // P(Z > 1.959964) = 0.025 (standard normal table); binomial SE = sqrt(.025*.975/n).
+    // P(Z > 1.959964) = 0.025: scipy.stats.norm.ppf(0.975) = 1.959963985 and norm.sf(1.959964) =
+    // 0.0249999991 (Debian python3-scipy 1.10.1, test/fixtures/normal-table/print_values.py);
+    // binomial SE = sqrt(.025*.975/n).
     expect(Math.abs(tail / n - 0.025)).toBeLessThan(5 * Math.sqrt((0.025 * 0.975) / n));
   });
 });

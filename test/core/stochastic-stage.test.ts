@@ -107,7 +107,7 @@ describe('stochastic error stage', () => {
           if (tv[i] < tv[j]) expect(tr[i * H + h]).toBeLessThanOrEqual(tr[j * H + h]);
         }
       }
-      // Quantiles are the definition-7 quantiles of the lead's values.
+      // Quantiles are the Hyndman & Fan (1996) definition-7 quantiles of the lead's values.
       const q = quantiles(shuffled, r1.probs);
       for (let p = 0; p < q.length; p++) expect(r1.quantiles[h * r1.probs.length + p]).toBeCloseTo(q[p], 12);
       for (let p = 1; p < q.length; p++) expect(r1.quantiles[h * r1.probs.length + p]).toBeGreaterThanOrEqual(r1.quantiles[h * r1.probs.length + p - 1]);
@@ -163,7 +163,9 @@ describe('stochastic error stage', () => {
     const r = runStochasticStage(a, { members: [10, 100], nMembers: 1, nLeads: 2 }, { seed: 1, nDraws: 4000, probs: [0.05, 0.5, 0.95] });
     const w10 = r.quantiles[2] / r.quantiles[0];
     const w100 = r.quantiles[5] / r.quantiles[3];
-    // Multiplicative noise σ = 0.2 in log space: 5–95 % ratio ≈ exp(2·1.645·0.2) = 1.93 at both flows.
+    // Multiplicative noise σ = 0.2 in log space: 5–95 % ratio ≈ exp(2·1.645·0.2) = 1.93 at both flows
+    // (1.645 = scipy.stats.norm.ppf(0.95) = 1.6448536, exp(…) = 1.9308; Debian python3-scipy 1.10.1,
+    // test/fixtures/normal-table/print_values.py). Bounds 1.6–2.3: common practice for 4000 draws.
     expect(w10).toBeGreaterThan(1.6);
     expect(w10).toBeLessThan(2.3);
     expect(w100).toBeGreaterThan(1.6);
@@ -220,7 +222,8 @@ describe('stochastic error stage', () => {
 
   it('statistical check: member = truth + bias + N(0, σ²) gives a 5–95 % band → truth ± 1.645σ', () => {
     // Same process for archive and new cases. The predictive distribution given a member value c is
-    // N(c − bias, σ²) when truth varies widely, so the band is (c − bias) ± 1.645σ (normal table),
+    // N(c − bias, σ²) when truth varies widely, so the band is (c − bias) ± 1.645σ (1.645 =
+    // scipy.stats.norm.ppf(0.95) = 1.6448536, Debian python3-scipy 1.10.1, test/fixtures/normal-table/print_values.py),
     // and the band covers the truth 90 % of the time.
     const g = createPrng(2025);
     const bias = 4;

@@ -45,11 +45,12 @@ export const riverGauge = {
   timeStep: 'P1D',
   timeZone: 'UTC',
   flowUnit: 'm3/s',
-  location: { latitude: 47.1, longitude: 11.2 },
+  // A point in the open North Atlantic: it exercises the field and lies in no real catchment.
+  location: { latitude: 47.1, longitude: -35.2 },
   thresholds: [
-    { label: 'minor', value: 40 },
-    { label: 'moderate', value: 65 },
-    { label: 'severe', value: 90 },
+    { label: '2-year flow', value: 40 },
+    { label: '10-year flow', value: 65 },
+    { label: '50-year flow', value: 90 },
   ],
 };
 

@@ -3,7 +3,7 @@ import pg from 'pg';
 import { inject } from 'vitest';
 import type { Db } from '../../src/store/db.ts';
 import { openEmbedded } from '../../src/store/embedded-driver.ts';
-import { migrate } from '../../src/store/migrate.ts';
+import { migrate, readMigrations, type Migration } from '../../src/store/migrate.ts';
 import { openPostgres } from '../../src/store/postgres-driver.ts';
 
 export interface TestDb {
@@ -13,12 +13,15 @@ export interface TestDb {
   close(): Promise<void>;
 }
 
-/** The store this project tests, migrated. On a server each call gets its own fresh database. */
-export async function openTestDb(): Promise<TestDb> {
+/**
+ * The store this project tests, migrated (by default with every migration; a test of one migration
+ * passes the ones before it). On a server each call gets its own fresh database.
+ */
+export async function openTestDb(migrations: Migration[] = readMigrations()): Promise<TestDb> {
   const serverUrl = process.env.TEST_STORE === 'postgres' ? inject('postgresUrl') : '';
   if (!serverUrl) {
     const db = await openEmbedded(null);
-    await migrate(db);
+    await migrate(db, migrations);
     return { db, url: null, close: () => db.close() };
   }
   const name = `sft_test_${randomBytes(5).toString('hex')}`;
@@ -28,7 +31,7 @@ export async function openTestDb(): Promise<TestDb> {
   await admin.end();
   const url = withDatabase(serverUrl, name);
   const db = openPostgres(url, 5);
-  await migrate(db);
+  await migrate(db, migrations);
   return {
     db,
     url,

@@ -1,7 +1,7 @@
 // Browser test of the forecast page: Debian's chromium driven by playwright-core against a stand-in
 // service (test/page/fixture-server.ts) that answers in the forecast read contract's shape.
 // The checks compare what the page shows with the JSON it was given; no outside values are involved.
-import { existsSync, mkdirSync, mkdtempSync, rmSync } from 'node:fs';
+import { existsSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, rmSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { chromium, type BrowserContext, type Page } from 'playwright-core';
@@ -13,19 +13,20 @@ const CHROMIUM = '/usr/bin/chromium';
 const hasChromium = existsSync(CHROMIUM);
 if (!hasChromium) console.warn(`page test skipped: ${CHROMIUM} is missing (Debian: apt-get install chromium)`);
 
-const OUT = join(import.meta.dirname, '..', 'output');
+// Screenshots are test artefacts: test/output/screens/ (git-ignored), to look at after a run.
+const OUT = join(import.meta.dirname, '..', 'output', 'screens');
 const TOKEN = 'read-token-for-the-page-test';
 const RIVER = { id: 'corvane-stillmere-bridge', name: 'Corvane at Stillmere Bridge' };
 const BROOK = { id: 'pellow-brook-at-quillbrae', name: 'Pellow Brook at Quillbrae' };
 const FELL = { id: 'tarnwick-beck', name: 'Tarnwick Beck at Ostrevale' };
 const RIVER_THRESHOLDS = [
-  { label: 'high', value: 85.2 },
-  { label: 'very high', value: 121.5 },
-  { label: 'extreme', value: 164.8 },
+  { label: '2-year flow', value: 85.2 },
+  { label: '10-year flow', value: 121.5 },
+  { label: '50-year flow', value: 164.8 },
 ];
 const BROOK_THRESHOLDS = [
-  { label: 'high', value: 14.6 },
-  { label: 'very high', value: 22.3 },
+  { label: '2-year flow', value: 14.6 },
+  { label: '10-year flow', value: 22.3 },
 ];
 
 const riverRun = (issueTime: string, seed: number, peak: number) =>
@@ -110,7 +111,7 @@ describe.skipIf(!hasChromium)('forecast page in chromium', () => {
           degradedReason: 'no active residual model for this gauge',
         }),
       },
-      { ...FELL, status: 'no-forecast', thresholds: [{ label: 'high', value: 30 }], latest: null },
+      { ...FELL, status: 'no-forecast', thresholds: [{ label: '2-year flow', value: 30 }], latest: null },
     ];
     server = await startFixtureServer(TOKEN, gauges);
     userDataDir = mkdtempSync(join(tmpdir(), 'page-test-chromium-'));
@@ -159,6 +160,11 @@ describe.skipIf(!hasChromium)('forecast page in chromium', () => {
     expect(await svg.locator('.observed circle').count()).toBe(f.recent.observed.filter((v) => v !== null).length);
     const labels = await svg.locator('.threshold-label').allTextContents();
     for (const t of f.thresholds) expect(labels.some((l) => l.includes(t.label) && l.includes(String(t.value)))).toBe(true);
+    // Thresholds share one colour and differ by dash pattern: no colour ranks them.
+    const lines = await svg.locator('.threshold > line:first-child').evaluateAll((ls) => ls.map((l) => [l.getAttribute('stroke'), l.getAttribute('stroke-dasharray') ?? 'solid']));
+    expect(lines).toHaveLength(f.thresholds.length);
+    expect(new Set(lines.map(([stroke]) => stroke)).size).toBe(1);
+    expect(new Set(lines.map(([, dash]) => dash)).size).toBe(f.thresholds.length);
     const axisText = (await svg.locator('.axis.x text').allTextContents()).filter((t) => t !== 'valid time (UTC)');
     expect(axisText.length).toBeGreaterThanOrEqual(4);
     for (const t of axisText) expect(t).toMatch(/^\d{1,2} (Nov|Dec)$/); // daily steps: day and month labels
@@ -309,7 +315,7 @@ describe.skipIf(!hasChromium)('forecast page in chromium', () => {
       seed: 9,
       base: 18,
       peak: 1.8,
-      thresholds: [{ label: 'high', value: 30 }],
+      thresholds: [{ label: '2-year flow', value: 30 }],
     });
     server.gauges.get(FELL.id)!.status = 'ok';
     server.sendEvent('forecast', { gaugeId: FELL.id, runId: 'new', issueTime: '2024-12-02T06:00:00Z' });
@@ -362,6 +368,20 @@ describe('page files', () => {
       expect(again.body).toBe('');
     }
     expect((await server.app.inject({ method: 'GET', url: '/' })).body).toContain('<title>');
+
+    // Every module of the page is served as JavaScript, and every module another one imports exists.
+    const pageDir = join(import.meta.dirname, '..', '..', 'src', 'api', 'page');
+    const modules = readdirSync(pageDir).filter((n) => n.endsWith('.js'));
+    expect(modules.length).toBeGreaterThan(1);
+    for (const name of modules) {
+      const res = await server.app.inject({ method: 'GET', url: `/page/${name}` });
+      expect(res.statusCode, name).toBe(200);
+      expect(res.headers['content-type'], name).toContain('text/javascript');
+      expect(res.headers.etag, name).toBeTruthy();
+      for (const [, imported] of readFileSync(join(pageDir, name), 'utf8').matchAll(/from '\.\/([\w-]+\.js)'/g)) {
+        expect(modules, `${name} imports ${imported}`).toContain(imported);
+      }
+    }
     const missing = await server.app.inject({ method: 'GET', url: '/page/nothing.js' });
     expect(missing.statusCode).toBe(404);
     expect(missing.headers['content-type']).toContain('application/problem+json');

@@ -14,7 +14,8 @@ import { fitThroughApi, injectSend, scenarioRunBody } from '../helpers/scenario-
 
 const CHROMIUM = '/usr/bin/chromium';
 const hasChromium = existsSync(CHROMIUM);
-const OUT = join(import.meta.dirname, '..', 'output');
+// Screenshots are test artefacts: test/output/screens/ (git-ignored), to look at after a run.
+const OUT = join(import.meta.dirname, '..', 'output', 'screens');
 const scenario = buildScenario({ seed: 11, years: 4, members: 8 });
 const gaugeId = scenario.gauge.id;
 

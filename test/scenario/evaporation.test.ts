@@ -22,6 +22,9 @@ describe('Oudin et al. (2005) potential evaporation', () => {
     expect(oudinPe(30, -12)).toBe(0);
   });
   it('gives a plausible mid-latitude summer value', () => {
+    // Ra(46.6° N, J = 196) ≈ 40.5 MJ m⁻² d⁻¹ (FAO-56 eqs. 21–25 as above), so PE = 40.5/2.45 · 21/100
+    // ≈ 3.47 mm/d (by hand). The bounds 2.5–5 mm/d for potential evaporation on a mid-latitude July
+    // day are common practice (a rule of thumb, no single source).
     const pe = oudinPeAt(46.6, 196, 16);
     expect(pe).toBeGreaterThan(2.5);
     expect(pe).toBeLessThan(5);

@@ -7,6 +7,10 @@ function data(s: Scenario) {
   return JSON.stringify(rest);
 }
 
+// The bounds in this file are design targets of the invented demo scenario (snow, a biased and too
+// narrow raw ensemble, a few missing days), not outside values; they check the scenario does what
+// it was built to do.
+
 describe('demo scenario: layout and reproducibility', () => {
   it('the same seed gives identical data and forecasts, whatever order forecasts are asked in', () => {
     const a = buildScenario({ seed: 3, years: 4, members: 6 });
@@ -56,6 +60,9 @@ describe('demo scenario: 20 years, 40 members (default)', () => {
     expect(s.gauge.id).toMatch(/^[a-z0-9-]+$/);
     const th = s.gauge.thresholds.map((t) => t.value);
     expect(th.length).toBe(3);
+    // Thresholds named by their return period; the invented catchment has no coordinates.
+    expect(s.gauge.thresholds.map((t) => t.label)).toEqual(['2-year flow', '10-year flow', '50-year flow']);
+    expect(s.gauge.location).toBeNull();
     for (let k = 1; k < th.length; k++) expect(th[k]).toBeGreaterThan(th[k - 1]);
     expect(s.memberIds).toEqual(Array.from({ length: 40 }, (_, k) => `p${String(k + 1).padStart(2, '0')}`));
     for (const id of s.memberIds) expect(s.memberSimulations[id].length).toBe(n);

@@ -29,6 +29,10 @@ describe('CemaNeige (one layer)', () => {
   });
 
   it('refuses CTG outside [0, 1] and Kf outside [0, 12] mm/°C/d', () => {
+    // CTG is a weighting coefficient, in [0, 1] by definition (Valéry et al. 2014). Kf: snow
+    // degree-day factors compiled by Hock (2003, J. Hydrol. 282, "Temperature index melt modelling
+    // in mountain areas") span about 2.5–11.6 mm/°C/d (from memory); 12 is the upper bound
+    // we take from it, 15 lies outside.
     expect(() => createCemaNeige({ ctg: 1.2, kf: 3 }, 200)).toThrow(/CTG = 1.2/);
     expect(() => createCemaNeige({ ctg: 0.3, kf: -1 }, 200)).toThrow(/Kf = -1/);
     expect(() => createCemaNeige({ ctg: 0.3, kf: 15 }, 200)).toThrow(RangeError);

@@ -66,7 +66,7 @@ function width90(r: SourceReport | null): number | null {
  *  - one improves and the other does not worsen → use-stochastic;
  *  - one worsens and neither improves, or no clear change at all → corrected-ensemble-suffices
  *    (the stage adds cost and no measurable value);
- *  - they disagree → the forecast whose spread is classed reliable wins; if both or neither
+ *  - they disagree → the forecast whose spread is classed calibrated wins; if both or neither
  *    are, CRPS decides (a proper score that weighs reliability and sharpness together).
  * The rule of thumb — alpha of the corrected ensemble above about 0.85 → the stage tends not to
  * improve reliability; below, it tends to (common practice from published results, no single
@@ -158,10 +158,10 @@ export function adviseStochasticStage(report: ComparisonReport, options: AdviceO
     return done('use-stochastic');
   }
   if ((relBetter && crpsWorse) || (crpsBetter && relWorse)) {
-    const cOk = c.spread.class === 'reliable';
-    const sOk = s.spread.class === 'reliable';
+    const cOk = c.spread.class === 'calibrated';
+    const sOk = s.spread.class === 'calibrated';
     if (cOk !== sOk) {
-      reasons.push(`Reliability and CRPS disagree; only the ${sOk ? 'stochastic stage' : 'corrected ensemble'} has a reliable spread, so it is preferred.`);
+      reasons.push(`Reliability and CRPS disagree; only the ${sOk ? 'stochastic stage' : 'corrected ensemble'} has a calibrated spread, so it is preferred.`);
       return done(sOk ? 'use-stochastic' : 'corrected-ensemble-suffices');
     }
     reasons.push('Reliability and CRPS disagree and the spread classes do not separate them; CRPS (a proper score) decides.');

@@ -99,16 +99,16 @@ describe('verification building blocks', () => {
 
   it('spread class from PIT coverage of [0.05, 0.95], by hand with n = 100 (tolerance max(0.03, 2·0.03) = 0.06)', () => {
     const pits = (inside: number) => Array.from({ length: 100 }, (_, i) => (i < inside ? 0.5 : i % 2 ? 0.01 : 0.99));
-    expect(classifySpread(pits(80)).class).toBe('too-narrow');
-    expect(classifySpread(pits(95)).class).toBe('reliable');
-    expect(classifySpread(pits(85)).class).toBe('reliable');
-    expect(classifySpread(pits(83)).class).toBe('too-narrow');
-    expect(classifySpread(pits(100)).class).toBe('too-wide (conservative)');
+    expect(classifySpread(pits(80)).class).toBe('under-dispersive');
+    expect(classifySpread(pits(95)).class).toBe('calibrated');
+    expect(classifySpread(pits(85)).class).toBe('calibrated');
+    expect(classifySpread(pits(83)).class).toBe('under-dispersive');
+    expect(classifySpread(pits(100)).class).toBe('over-dispersive');
     expect(classifySpread(pits(100)).tolerance).toBeCloseTo(0.06, 12);
     expect(classifySpread([]).class).toBeNull();
   });
 
-  it('quantile ensemble: 1000 midpoint quantiles of N(μ, σ²) score like the Gaussian closed form (properscoring test, CHECKS.md; Gneiting et al. 2005)', () => {
+  it('quantile ensemble: 1000 midpoint quantiles of N(μ, σ²) score like the Gaussian closed form (properscoring 0.1 test_crps.py test_crps_gaussian_consistent; Gneiting et al. 2005)', () => {
     expect(isMidpointGrid(midpointProbs(4))).toBe(true);
     expect(Array.from(midpointProbs(4))).toEqual([0.125, 0.375, 0.625, 0.875]);
     expect(isMidpointGrid([0.05, 0.5, 0.95])).toBe(false);

@@ -26,7 +26,7 @@ function casesOf(
 }
 
 describe('compareForecasts', () => {
-  it('hand-checked scores on two cases (CRPS values from properscoring tests/test_crps.py, CHECKS.md)', () => {
+  it('hand-checked scores on two cases (CRPS values from properscoring 0.1, properscoring/tests/test_crps.py)', () => {
     const cases: VerificationCase[] = [
       { lead: 0, observation: 0, raw: [0, 1], corrected: [-1, 1], stochastic: [0, 0, 1] },
       { lead: 1, observation: 2, raw: [1, 0], corrected: [0, 1], stochastic: [1, 0, 0] },
@@ -38,12 +38,12 @@ describe('compareForecasts', () => {
     expect(r.cases).toEqual({ given: 5, used: 2, noObservation: 1, outsideLeadRange: 1, missingValues: 1 });
     expect(r.leadRange).toEqual({ min: null, max: 2 });
     expect(r.stochasticFrom).toBe('samples');
-    // CRPS(0, [0, 1]) = 0.25, CRPS(2, [0, 1]) = 1.25, CRPS(0, [−1, 1]) = 0.5, CRPS(0, [0, 0, 1]) = 1/9 (properscoring).
+    // CRPS(0, [0, 1]) = 0.25, CRPS(2, [0, 1]) = 1.25, CRPS(0, [−1, 1]) = 0.5, CRPS(0, [0, 0, 1]) = 1/9 (properscoring 0.1, properscoring/tests/test_crps.py, test_crps_toy_examples).
     expect(r.raw.crps.crps).toBeCloseTo((0.25 + 1.25) / 2, 14);
     expect(r.corrected.crps.crps).toBeCloseTo((0.5 + 1.25) / 2, 14);
     // CRPS(2, [0, 0, 1]) by hand from the sorted form: 5/3 − 2/9 = 13/9.
     expect(r.stochastic!.crps.crps).toBeCloseTo((1 / 9 + 13 / 9) / 2, 14);
-    // Fair CRPS(0, [0, 1]) = 0 and fair CRPS(2, [0, 1]) = 1 (worked by hand, CHECKS.md, Ferro 2014).
+    // Fair CRPS(0, [0, 1]) = 0 and fair CRPS(2, [0, 1]) = 1 (worked by hand from the fair CRPS of Ferro 2014).
     expect(r.raw.crps.fairCrps).toBeCloseTo(0.5, 14);
     expect(r.corrected.crps.skillVsRaw).toBeCloseTo(1 - 0.875 / 0.75, 14);
     // Medians 0.5, 0.5 vs 0, 2 → MAE 1; corrected medians 0, 0.5 → MAE 0.75.
@@ -67,7 +67,7 @@ describe('compareForecasts', () => {
     expect(r.raw.brier[1].skill).toBeNull();
   });
 
-  it('a perfectly calibrated sampler: alpha near 1, PIT coverage near nominal, reliable spread, small Hersbach reliability', () => {
+  it('a perfectly calibrated sampler: alpha near 1, PIT coverage near nominal, calibrated spread, small Hersbach reliability', () => {
     const I = 600;
     const H = 3;
     const M = 20;
@@ -82,7 +82,7 @@ describe('compareForecasts', () => {
         const se = Math.sqrt((iv.level * (1 - iv.level)) / n);
         expect(Math.abs(iv.pitCoverage! - iv.level)).toBeLessThan(3 * se); // binomial standard error
       }
-      expect(s.spread.class).toBe('reliable');
+      expect(s.spread.class).toBe('calibrated');
       expect(Math.abs(s.pit.mean! - 0.5)).toBeLessThan(0.03);
       // Hersbach (2000): reliability + potential = CRPS; reliability small for a calibrated forecast.
       expect(s.crps.hersbach.reliability! + s.crps.hersbach.potential!).toBeCloseTo(s.crps.crps!, 9);
@@ -98,8 +98,9 @@ describe('compareForecasts', () => {
       const p = b.meanForecast!;
       expect(Math.abs(b.observedFrequency! - p)).toBeLessThan(4 * Math.sqrt((p * (1 - p) + 0.01) / b.count));
     }
+    // Reliability part ≈ 0 for a calibrated ensemble (Hersbach 2000); 1 % of the CRPS: common practice.
     expect(r.stochastic!.crps.hersbach.reliability! / r.stochastic!.crps.crps!).toBeLessThan(0.01);
-    // The band between definition-7 quantiles of 20 members is too narrow even for a calibrated
+    // The band between Hyndman & Fan (1996) definition-7 quantiles of 20 members is too narrow even for a calibrated
     // ensemble: its 5 % end lies between the 1st and 2nd smallest member, below which the
     // observation falls with probability 1/21 and 2/21 (ranks of exchangeable values), so the
     // band covers between 1 − 4/21 ≈ 0.81 and 1 − 2/21 ≈ 0.90. PIT coverage has no such bias.
@@ -110,7 +111,7 @@ describe('compareForecasts', () => {
     expect(r.corrected.byLead.map((l) => l.n)).toEqual([I, I, I]);
   });
 
-  it('flags a too-narrow ensemble and a too-wide (conservative) one, and filters by lead range', () => {
+  it('flags an under-dispersive ensemble and an over-dispersive one, and filters by lead range', () => {
     const I = 400;
     const H = 3;
     const M = 20;
@@ -121,11 +122,13 @@ describe('compareForecasts', () => {
     expect(narrow.cases.outsideLeadRange).toBe(I);
     expect(narrow.corrected.byLead.map((l) => l.lead)).toEqual([1, 2]);
     expect(narrow.stochastic).toBeNull();
-    expect(narrow.corrected.spread.class).toBe('too-narrow');
+    expect(narrow.corrected.spread.class).toBe('under-dispersive');
+    // A uniform PIT has 12·var = 1 and alpha 1 (Renard et al. 2010); the bounds for 0.4× and 2.5×
+    // spread sit well away from those (margins: common practice).
     expect(narrow.corrected.pit.varianceRatio!).toBeGreaterThan(1.3); // U-shaped PIT
     expect(narrow.corrected.alphaIndex!).toBeLessThan(0.85);
     const wide = compareForecasts(casesOf(synthetic({ nIssues: I, nLeads: H, nMembers: M, seed: 6, spread: 2.5 }), I, H, M));
-    expect(wide.corrected.spread.class).toBe('too-wide (conservative)');
+    expect(wide.corrected.spread.class).toBe('over-dispersive');
     expect(wide.corrected.pit.varianceRatio!).toBeLessThan(0.7); // humped PIT
     expect(wide.corrected.alphaIndex!).toBeLessThan(0.85);
   });
@@ -135,7 +138,7 @@ describe('compareForecasts', () => {
     const run = synthetic({ nIssues: I, nLeads: 2, nMembers: 10, seed: 8, spread: 1, bias: 8 });
     const r = compareForecasts(casesOf(run, I, 2, 10, { bias: 8 }));
     expect(r.raw.median.bias!).toBeGreaterThan(6);
-    expect(Math.abs(r.corrected.median.bias!)).toBeLessThan(1.5);
+    expect(Math.abs(r.corrected.median.bias!)).toBeLessThan(1.5); // bias 8 removed; 1.5: sampling room (common practice)
     expect(r.corrected.mean.rmse!).toBeLessThan(r.raw.mean.rmse!);
     expect(r.corrected.median.nse!).toBeGreaterThan(r.raw.median.nse!);
     expect(r.corrected.median.kge!).toBeGreaterThan(r.raw.median.kge!);

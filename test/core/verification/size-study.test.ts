@@ -22,7 +22,8 @@ describe('ensemble-size study', () => {
     // Known answer for each size, from the full ensembles: fair CRPS is a U-statistic, so its mean
     // over random subsets of size m equals the full-ensemble fair CRPS F; the standard CRPS of a
     // subset exceeds it by D/(2m), D = mean |x_i − x_j| over member pairs (both from the sorted
-    // formula in CHECKS.md: CRPS = Σ|x − y|/m − S/m², fair uses S/(m(m − 1))).
+    // formula CRPS = Σ|x − y|/m − S/m², S = Σ_{i<j}|x_i − x_j| — the kernel form E|X − y| − ½E|X − X′|
+    // of Gneiting & Raftery 2007, from memory — and the fair one with S/(m(m − 1)) of Ferro 2014).
     let F = 0;
     let D = 0;
     for (const c of cases) {

@@ -30,13 +30,14 @@ function hindcastReport(spread: number, nIssues = 500): ComparisonReport {
 }
 
 describe('stochastic stage verification and advice', () => {
-  it('a too-narrow corrected ensemble is shown unreliable and the real stochastic stage improves it', () => {
+  it('an under-dispersive corrected ensemble is shown unreliable and the real stochastic stage improves it', () => {
     const r = hindcastReport(0.3);
     const c = r.corrected;
     const s = r.stochastic!;
-    expect(c.spread.class).toBe('too-narrow');
+    expect(c.spread.class).toBe('under-dispersive');
+    // Alpha is 1 for a calibrated forecast (Renard et al. 2010); 0.8 and 0.95: common practice.
     expect(c.alphaIndex!).toBeLessThan(0.8);
-    expect(s.spread.class).toBe('reliable');
+    expect(s.spread.class).toBe('calibrated');
     expect(s.alphaIndex!).toBeGreaterThan(0.95);
     expect(s.crps.fairCrps!).toBeLessThan(c.crps.fairCrps!);
     expect(s.crps.hersbach.reliability!).toBeLessThan(c.crps.hersbach.reliability! / 10);
@@ -52,19 +53,19 @@ describe('stochastic stage verification and advice', () => {
     expect(r.crpsDifferences.correctedVsRaw.t!).toBeLessThan(-2);
   });
 
-  it('a reliable corrected ensemble: the stage only widens the bands, so the corrected ensemble suffices', () => {
+  it('a calibrated corrected ensemble: the stage only widens the bands, so the corrected ensemble suffices', () => {
     const r = hindcastReport(1);
-    expect(r.corrected.spread.class).toBe('reliable');
-    expect(r.stochastic!.spread.class).toBe('too-wide (conservative)');
+    expect(r.corrected.spread.class).toBe('calibrated');
+    expect(r.stochastic!.spread.class).toBe('over-dispersive');
     const a = adviseStochasticStage(r);
     expect(a.recommendation).toBe('corrected-ensemble-suffices');
     expect(a.evidence.alphaChange!).toBeLessThan(0);
     expect(a.evidence.ruleOfThumb.agreesWithRecommendation).toBe(true);
   });
 
-  it('a too-wide corrected ensemble is flagged conservative; the evidence overrules the rule of thumb', () => {
+  it('an over-dispersive corrected ensemble is flagged as such; the evidence overrules the rule of thumb', () => {
     const r = hindcastReport(2.5);
-    expect(r.corrected.spread.class).toBe('too-wide (conservative)');
+    expect(r.corrected.spread.class).toBe('over-dispersive');
     expect(r.corrected.alphaIndex!).toBeLessThan(0.85);
     const a = adviseStochasticStage(r);
     // The rule of thumb (alpha < 0.85 → stage tends to help) would say use it; the stage makes
