@@ -141,6 +141,7 @@ describe('serving with updating', () => {
     const row = (await t.db.query<{ v: number; s: string }>('select issue_observation_value as v, issue_observation_source as s from forecast_runs where id = $1', [a.id])).rows[0];
     expect(row).toEqual({ v: 12.5, s: 'run' });
     const text = await t.as('read', { method: 'GET', url: `/forecasts/${a.id}?format=text` });
-    if (text.statusCode === 200) expect(text.body).toMatch(/updated on the observation of/);
+    expect(text.statusCode).toBe(200);
+    expect(text.body).toMatch(/updated on the observation of .* \(12\.5 m3\/s, from the run\)/);
   });
 });

@@ -17,7 +17,8 @@ import {
 } from '../../src/core/updating.ts';
 import { makeFeatureSpec } from '../../src/core/features.ts';
 import type { ErrorTransform } from '../../src/core/error-transform.ts';
-import { fitUpdatingFromSeries } from '../../src/models/updating-fit.ts';
+import { defaultLeadBands, fitUpdatingFromSeries } from '../../src/models/updating-fit.ts';
+import { defaultUpdatingLeads } from '../../src/jobs/fit-job.ts';
 
 const LOG: ErrorTransform = { kind: 'log', offset: 1 };
 const DAY = 86_400_000;
@@ -104,6 +105,16 @@ describe('choosing updating on a held-out block', () => {
     if (fit.model === null) expect(fit.reason).toMatch(/auto found no lead time/);
     else for (const l of on) expect(Math.abs(fit.model.phi[l.lead - 1])).toBeLessThan(0.1);
     expect(on.length).toBeLessThanOrEqual(1);
+  });
+});
+
+describe('defaults for a daily and an hourly gauge', () => {
+  it('cover ten days of lead times within the archive templates, banded for the trees', () => {
+    expect(defaultUpdatingLeads(86400, 240)).toBe(10);
+    expect(defaultUpdatingLeads(3600, 240)).toBe(240);
+    expect(defaultUpdatingLeads(3600, 72)).toBe(72);
+    expect(defaultLeadBands(10)).toEqual([[1, 2], [3, 5], [6, 10]]);
+    expect(defaultLeadBands(240).at(-1)).toEqual([161, 240]);
   });
 });
 
