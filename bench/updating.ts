@@ -76,13 +76,18 @@ const fit = await fitResidualModel(fitSeries, {
 const tFit = performance.now();
 const u = fit.updating;
 if (!u) throw new Error(`no updating fitted: ${fit.updatingError}`);
-console.log(`\nsources: pseudo-forecasts ${JSON.stringify(u.sources.pseudoForecasts)}, past runs ${JSON.stringify(u.sources.pastRuns)}; auto decided on ${u.decidedOn}`);
+console.log(`\nsources: pseudo-forecasts ${JSON.stringify(u.sources.pseudoForecasts)}, past runs ${JSON.stringify(u.sources.pastRuns)}; auto also checked on past runs: ${u.checkedOnPastRuns}`);
 console.log(`updater: ${u.model ? `${u.model.method}, AR(1) φ = ${u.model.ar1.toFixed(3)}` : `off (${u.reason})`}; best candidate on the held-out block: ${u.best}; served: ${u.served}`);
 console.log(`blocks: fit ${u.blocks.fit.from.slice(0, 10)}…${u.blocks.fit.to.slice(0, 10)}, early stopping ${u.blocks.earlyStopping.from.slice(0, 10)}…, held out ${u.blocks.heldOut.from.slice(0, 10)}…${u.blocks.heldOut.to.slice(0, 10)} (${u.blocks.heldOut.issues} issues, ${u.members} members)`);
 console.log('candidates, CRPS of the members per lead on the held-out block (m3/s):');
 console.table(
   u.candidates.map((c) => ({ candidate: c.name, mean: c.meanCrps?.toFixed(3), ...Object.fromEntries(c.byLead.map((l) => [`L${l.lead}`, l.crps?.toFixed(3)])) })),
 );
+if (u.sources.pastRuns.heldOut > 0) {
+  console.log('the same on the past runs issued in the held-out block:');
+  console.table(u.candidates.filter((c) => c.pastRuns).map((c) => ({ candidate: c.name, mean: c.pastRuns!.meanCrps?.toFixed(3), ...Object.fromEntries(c.pastRuns!.byLead.map((l) => [`L${l.lead}`, l.crps?.toFixed(3)])) })));
+}
+console.log(`lead times updated: ${u.leads.filter((l) => l.on).map((l) => l.lead).join(', ') || 'none'}`);
 if (!u.model || !u.archive) {
   console.log('updating is off for this version: nothing to hindcast with it');
   process.exit(0);

@@ -67,9 +67,9 @@ export interface UpdatingFit {
   best: CandidateScore['name'];
   served: CandidateScore['name'] | null;
   /** Per lead: CRPS without updating minus with the served candidate on block C, its standard error, and whether the lead updates. */
-  leads: { lead: number; crpsGain: number | null; se: number | null; on: boolean }[];
-  /** Which cases auto decided on: block C's past runs when it holds at least 50, else its pseudo-forecasts. */
-  decidedOn: 'pseudo-forecasts' | 'past runs';
+  leads: { lead: number; crpsGain: number | null; se: number | null; pastRunGain?: number | null; pastRunSe?: number | null; on: boolean }[];
+  /** Whether auto also checked the leads on block C's past runs (at least 50 of them): a loss beyond 2 SE there switches a lead off. */
+  checkedOnPastRuns: boolean;
   /** Training data by source: pseudo-forecast issues and real past runs (issues) in each block. */
   sources: { pseudoForecasts: { fit: number; earlyStopping: number; heldOut: number }; pastRuns: { fit: number; earlyStopping: number; heldOut: number } };
   note: string;
@@ -231,8 +231,8 @@ export async function fitUpdating(
   return fitUpdatingFromSeries(series, corrected, validation, transform, o, shouldStop, pastRuns);
 }
 
-/** Past-run cases in blocks A, B, C must have their whole horizon inside the block (as the pseudo-forecasts). */
-const MIN_PAST_RUNS_TO_DECIDE = 50;
+/** Past runs block C needs before auto also checks updating on them (common practice, our rule of thumb). */
+const MIN_PAST_RUNS_TO_CHECK = 50;
 
 /** The same from the corrected series (tests pass synthetic ones). */
 export function fitUpdatingFromSeries(
@@ -330,26 +330,30 @@ export function fitUpdatingFromSeries(
   const ranked = [...candidates].filter((c) => c.meanCrps !== null).sort((a, b) => a.meanCrps! - b.meanCrps!);
   const best = ranked[0]?.name ?? 'none';
   const servedCandidate = ranked.find((c) => c.servable && c.name !== 'none') ?? null;
-  const decidedOn = pastC.length >= MIN_PAST_RUNS_TO_DECIDE && servedCandidate?.pastPerCase ? ('past runs' as const) : ('pseudo-forecasts' as const);
-  const gains = !servedCandidate
-    ? []
-    : decidedOn === 'past runs'
-      ? pairedLeadDifference(candidates[0].pastPerCase!, servedCandidate.pastPerCase!, pastC.length, L)
-      : pairedLeadDifference(candidates[0].perCase, servedCandidate.perCase, idxC.length, L);
-  const leads = gains.map((g, k) => ({
-    lead: k + 1,
-    crpsGain: g.mean,
-    se: g.se,
-    // auto: the held-out block must show a gain beyond twice its standard error.
-    on: o.mode === 'on' || (g.mean !== null && g.se !== null && g.mean > 2 * g.se),
-  }));
+  // auto: the pseudo-forecasts of block C must show a gain beyond twice its standard error, and
+  // where block C holds enough past runs they must not show a loss beyond twice theirs (they carry
+  // the forecast-forcing error; there are usually too few of them to show a gain on their own).
+  const gains = servedCandidate ? pairedLeadDifference(candidates[0].perCase, servedCandidate.perCase, idxC.length, L) : [];
+  const checkedOnPastRuns = pastC.length >= MIN_PAST_RUNS_TO_CHECK && !!servedCandidate?.pastPerCase;
+  const pastGains = checkedOnPastRuns ? pairedLeadDifference(candidates[0].pastPerCase!, servedCandidate!.pastPerCase!, pastC.length, L) : null;
+  const leads = gains.map((g, k) => {
+    const p = pastGains?.[k];
+    const pastHarm = !!p && p.mean !== null && p.se !== null && p.mean < -2 * p.se;
+    return {
+      lead: k + 1,
+      crpsGain: g.mean,
+      se: g.se,
+      ...(p ? { pastRunGain: p.mean, pastRunSe: p.se } : {}),
+      on: o.mode === 'on' || (g.mean !== null && g.se !== null && g.mean > 2 * g.se && !pastHarm),
+    };
+  });
   const blocks = { fit: block(idxA), earlyStopping: block(idxB), heldOut: block(idxC) };
   const publicCandidates = candidates.map(({ perCase: _p, pastPerCase: _q, ...c }) => c);
   const sources = {
     pseudoForecasts: { fit: idxA.length, earlyStopping: idxB.length, heldOut: idxC.length },
     pastRuns: { fit: pastA.length, earlyStopping: pastB.length, heldOut: pastC.length },
   };
-  const result = { mode: o.mode, blocks, members: members.length, candidates: publicCandidates, best, leads, decidedOn, sources, note: PSEUDO_FORECAST_NOTE };
+  const result = { mode: o.mode, blocks, members: members.length, candidates: publicCandidates, best, leads, checkedOnPastRuns, sources, note: PSEUDO_FORECAST_NOTE };
   if (!servedCandidate) return { ...result, model: null, served: null, reason: 'no updating candidate could be scored', archive: null };
   if (!leads.some((l) => l.on)) {
     return { ...result, model: null, served: null, reason: 'updating: auto found no lead time where the held-out block shows a gain beyond twice its standard error', archive: null };

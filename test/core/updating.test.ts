@@ -127,7 +127,7 @@ describe('serving prerequisites', () => {
 });
 
 describe('real past runs join the pseudo-forecasts', () => {
-  it('are counted by source, scored apart and decide auto when block C holds enough of them', () => {
+  it('are counted by source, scored apart, and checked by auto when block C holds enough of them', () => {
     const s = synthetic(3000, 0.9, 4, 21);
     const g = createPrng(99);
     const H = 5;
@@ -149,7 +149,9 @@ describe('real past runs join the pseudo-forecasts', () => {
       { nLeads: H, issueIndex, members, raw: corrected, corrected },
     );
     expect(fit.sources.pastRuns.heldOut).toBeGreaterThanOrEqual(50);
-    expect(fit.decidedOn).toBe('past runs');
+    expect(fit.checkedOnPastRuns).toBe(true);
+    expect(fit.leads[0].on).toBe(true);
+    expect(fit.leads[0].pastRunGain).toBeGreaterThan(0);
     const phiLs = fit.candidates.find((c) => c.name === 'phi-per-lead')!;
     expect(phiLs.pastRuns!.byLead).toHaveLength(H);
     // Persistent errors: updating helps at lead 1 on the past runs too.
