@@ -79,7 +79,7 @@ export const FitBody = z.strictObject({
     })
     .default({ mode: 'auto', history: 2, trees: true })
     .describe(
-      'Issue-time updating on the latest observation. mode auto (default): kept at the lead times where the held-out block shows a gain beyond twice its standard error; on: every lead time; off: none. leads: horizon of the updater in steps (default: templateLength, at most ten days of steps: 10 for a daily gauge, 240 for an hourly one). leadBands: [first, last] lead bands of the per-band tree candidate. history: earlier errors given to the tree candidates. trees: also fit and score the tree candidates (measured, not served).',
+      'Issue-time updating on the latest observation. mode auto (default): kept at the lead times where the held-out block shows a gain beyond twice its standard error (and, where it holds at least 50 past runs, no loss beyond twice its standard error on them); on: every lead time; off: none. leads: horizon of the updater in steps (default: templateLength, at most ten days of steps: 10 for a daily gauge, 240 for an hourly one). leadBands: [first, last] lead bands of the per-band tree candidate. history: earlier errors given to the tree candidates. trees: also fit and score the tree candidates (measured, not served).',
     ),
 }).superRefine((body, ctx) => {
   const allowed = body.trainer === 'gradient-boosting' ? boostingParams : forestParams;
