@@ -234,6 +234,9 @@ export async function fitUpdating(
 /** Past runs block C needs before auto also checks updating on them (common practice, our rule of thumb). */
 const MIN_PAST_RUNS_TO_CHECK = 50;
 
+/** Bound on the updated archive's cases (size in the store and in each correction worker). */
+const MAX_ARCHIVE_CASES = 1_000_000;
+
 /** The same from the corrected series (tests pass synthetic ones). */
 export function fitUpdatingFromSeries(
   series: Pick<ArchiveSeries, 'times' | 'observed' | 'members' | 'stepSeconds'>,
@@ -362,7 +365,11 @@ export function fitUpdatingFromSeries(
   const model: UpdatingModel = { method: servedCandidate.name as UpdatingModel['method'], transform, phi, ar1 };
   // The archive spans the whole validation period, as the lead-free one does: φ has one number per
   // lead, fitted on tens of thousands of pairs, so its in-sample fit on block A is negligible.
-  const parts = [{ cube, issues: [...idxA, ...idxB, ...idxC] }];
+  // At most ~1 million archived cases (an hourly gauge's 240 leads would give several million):
+  // every n-th issue is kept, evenly over the period.
+  const allIssues = [...idxA, ...idxB, ...idxC];
+  const archiveStride = Math.max(1, Math.ceil((allIssues.length * archiveMembers(cube.nMembers).length * L) / MAX_ARCHIVE_CASES));
+  const parts = [{ cube, issues: allIssues.filter((_, j) => j % archiveStride === 0) }];
   if (past) parts.push({ cube: past, issues: [...pastA, ...pastB, ...pastC] });
   const archive = updatedArchive(parts, transform, phi, times, series.stepSeconds);
   return { ...result, model, served: servedCandidate.name, reason: null, archive };

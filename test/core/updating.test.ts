@@ -161,3 +161,28 @@ describe('real past runs join the pseudo-forecasts', () => {
     expect(fit.archive!.issueError.length).toBe(fit.archive!.archive.error.length);
   });
 });
+
+describe('an hourly gauge with the default horizon', () => {
+  it('fits 240 lead times within bounded memory and a bounded archive', () => {
+    // Hourly errors with a memory of about four days (φ = 0.99 per hour).
+    const n = 8760;
+    const HOUR = 3_600_000;
+    const e = ar1Series(n, 0.99, 0.03, 5);
+    const g = createPrng(6);
+    const times = Float64Array.from({ length: n }, (_, t) => Date.UTC(2020, 0, 1) + t * HOUR);
+    const observed = Float64Array.from(e, (x) => Math.exp(Math.log(101) + x) - 1);
+    const corrected = Array.from({ length: 3 }, () => Float64Array.from({ length: n }, () => Math.exp(Math.log(101) + 0.01 * g.normal()) - 1));
+    const leads = defaultUpdatingLeads(3600, 240);
+    const fit = fitUpdatingFromSeries(
+      { times, observed, stepSeconds: 3600, members: corrected.map((values, m) => ({ id: `m${m}`, values })) },
+      corrected,
+      { fromMs: times[0], toMs: times[n - 1] + 1 },
+      LOG,
+      { mode: 'auto', leads, leadBands: null, history: 2, trees: false, seed: 1, maxTrainRows: 20_000 },
+    );
+    expect(fit.model!.phi).toHaveLength(240);
+    expect(Math.abs(fit.model!.ar1 - 0.99)).toBeLessThan(0.01);
+    expect(fit.leads[0].on).toBe(true);
+    expect(fit.archive!.archive.predictor.length).toBeLessThanOrEqual(1_000_000);
+  });
+});
