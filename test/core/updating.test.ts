@@ -16,6 +16,7 @@ import {
   type UpdatingModel,
 } from '../../src/core/updating.ts';
 import { makeFeatureSpec } from '../../src/core/features.ts';
+import { chooseIssueObservation } from '../../src/core/issue-observation.ts';
 import type { ErrorTransform } from '../../src/core/error-transform.ts';
 import { defaultLeadBands, fitUpdatingFromSeries } from '../../src/models/updating-fit.ts';
 import { defaultUpdatingLeads } from '../../src/jobs/fit-job.ts';
@@ -184,5 +185,29 @@ describe('an hourly gauge with the default horizon', () => {
     expect(Math.abs(fit.model!.ar1 - 0.99)).toBeLessThan(0.01);
     expect(fit.leads[0].on).toBe(true);
     expect(fit.archive!.archive.predictor.length).toBeLessThanOrEqual(1_000_000);
+  });
+});
+
+describe('the observation a run is updated on', () => {
+  const DAY_S = 86400;
+  const issue = Date.UTC(2024, 4, 10);
+  const at = (days: number, value: number | null) => ({ t: issue + days * DAY, value });
+  it("takes the run's own observation first, else the latest stored one at or before issue time", () => {
+    const stored = [at(-2, 5), at(-1, 6), at(0, null), at(1, 99)];
+    expect(chooseIssueObservation(issue, DAY_S, 2, 7.5, stored).observation).toEqual({ timeMs: issue, value: 7.5, source: 'run', ageSteps: 0 });
+    expect(chooseIssueObservation(issue, DAY_S, 2, null, stored).observation).toEqual({ timeMs: issue - DAY, value: 6, source: 'archive', ageSteps: 1 });
+  });
+  it('leakage: observations after the issue time never change the choice', () => {
+    const before = [at(-3, 4), at(-1, 6)];
+    const a = chooseIssueObservation(issue, DAY_S, 2, null, before);
+    for (const later of [[at(1, 1)], [at(0.5, 2), at(2, 1e6)], [at(1, null)]]) {
+      expect(chooseIssueObservation(issue, DAY_S, 2, null, [...before, ...later])).toEqual(a);
+    }
+  });
+  it('says why when none is recent enough', () => {
+    const r = chooseIssueObservation(issue, DAY_S, 2, undefined, [at(-3, 4)]);
+    expect(r.observation).toBeNull();
+    expect(r.reason).toMatch(/latest observation \(2024-05-07T00:00:00Z\) is older than the gauge's maximum age \(2 steps\)/);
+    expect(chooseIssueObservation(issue, DAY_S, 2, undefined, []).reason).toMatch(/no observation at or before the issue time/);
   });
 });
