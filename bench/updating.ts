@@ -10,7 +10,8 @@
  * within 0.93–0.97 at every lead. Printed, never asserted; nothing here is tuned to it.
  * With --past-runs, weekly past runs of the validation period are given to the fit as stored
  * reforecasts would be (they join the updater's training, scoring and archive).
- * Run: npx tsx bench/updating.ts [hindcastYears=3] [--past-runs]
+ * With --on, the fit asks for updating at every lead time instead of auto (for comparison).
+ * Run: npx tsx bench/updating.ts [hindcastYears=3] [--past-runs] [--on]
  */
 import { archiveToBytes } from '../src/core/archive-codec.ts';
 import { computeHindcast } from '../src/jobs/hindcast-compute.ts';
@@ -22,6 +23,7 @@ import { buildScenario } from '../src/scenario/scenario.ts';
 
 const args = process.argv.slice(2).filter((a) => !a.startsWith('--'));
 const withPastRuns = process.argv.includes('--past-runs');
+const mode = process.argv.includes('--on') ? ('on' as const) : ('auto' as const);
 const hindcastYears = Number(args[0] ?? 3);
 const H = 10;
 const t0 = performance.now();
@@ -39,6 +41,7 @@ const toSeries = (end: number): ArchiveSeries => ({
 const fitSeries = toSeries(cut);
 const periods = defaultPeriods(fitSeries);
 const day = (ms: number) => new Date(ms).toISOString().slice(0, 10);
+console.log(`updating: ${mode}${withPastRuns ? ', with past runs' : ''}`);
 console.log(`scenario: ${n} days, ${s.memberIds.length} members; fit on ${s.times[0].slice(0, 10)} … ${s.times[cut - 1].slice(0, 10)} (validation from ${day(periods.validation.fromMs)})`);
 
 let reforecasts: ReforecastSet | null = null;
@@ -71,7 +74,7 @@ const fit = await fitResidualModel(fitSeries, {
   transform: { kind: 'log' },
   templateLength: 30,
   maxTrainRows: 40_000,
-  updating: { mode: 'auto', leads: H, leadBands: null, history: 2, trees: true, seed: 1, maxTrainRows: 40_000 },
+  updating: { mode, leads: H, leadBands: null, history: 2, trees: true, seed: 1, maxTrainRows: 40_000 },
 });
 const tFit = performance.now();
 const u = fit.updating;
