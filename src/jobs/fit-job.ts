@@ -125,7 +125,8 @@ export const fitJob: JobHandler = async (job, { db, progress, signal }) => {
           history: p.updating.history,
           trees: p.updating.trees,
           seed: p.seed,
-          maxTrainRows: p.maxTrainRows,
+          // The tree candidates are measured, not served: a smaller sample keeps the fit's time in bounds.
+          maxTrainRows: Math.min(p.maxTrainRows, 50_000),
         }
       : null,
   };
