@@ -9,7 +9,7 @@ import type { Gauge } from '../store/gauges-repo.ts';
 import { findRunByIdempotencyKey, findRunByKey, insertRun, type StoredRun } from '../store/forecasts-repo.ts';
 import { archiveBytes, getActiveModelVersion, latestRawArchiveInfo, modelParts, versionArchiveInfo, type ArchiveInfo } from '../store/models-repo.ts';
 import { archiveReach, chooseArchive } from '../models/archive-choice.ts';
-import { decideUpdating, type UpdatingDecision } from '../models/issue-updating.ts';
+import { decideUpdating, type UpdatingDecision } from '../services/issue-updating.ts';
 import { GaugeParams, requireGauge } from './archive-common.ts';
 import { addRoute, type Services } from './context.ts';
 import { buildForecastView } from './forecast-view.ts';

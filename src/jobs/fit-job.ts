@@ -8,6 +8,7 @@ import { loadArchiveSeries, loadReforecastSet } from '../store/archive-series.ts
 import { getGauge } from '../store/gauges-repo.ts';
 import { activateModelVersion, insertArchive, insertModelVersion } from '../store/models-repo.ts';
 import type { JobHandler } from './runner.ts';
+import { defaultUpdatingLeads } from '../models/updating-fit.ts';
 import { runCompute } from './run-compute.ts';
 
 /** Parameters of a fit job, as accepted by the API (already validated there). */
@@ -32,10 +33,6 @@ export interface FitJobParams {
   updating?: { mode: 'auto' | 'on' | 'off'; leads?: number; leadBands?: [number, number][]; history: number; trees: boolean };
 }
 
-/** Default updater horizon: the archive's template length, at most ten days of steps. */
-export function defaultUpdatingLeads(stepSeconds: number, templateLength: number): number {
-  return Math.max(1, Math.min(templateLength, Math.round((10 * 86400) / stepSeconds)));
-}
 
 /**
  * Default periods: of the steps with an observation, the first 70 % calibrate and the rest

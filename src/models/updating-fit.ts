@@ -84,6 +84,11 @@ export interface UpdatingFit {
 export const PSEUDO_FORECAST_NOTE =
   'Pseudo-forecasts are the continuous simulations read as forecasts issued every step: they carry the model error but no forecast-forcing error, which real past runs also carry; so at longer leads they overstate what updating gains.';
 
+/** Default updater horizon: the archive's template length, at most ten days of steps (10 daily, 240 hourly). */
+export function defaultUpdatingLeads(stepSeconds: number, templateLength: number): number {
+  return Math.max(1, Math.min(templateLength, Math.round((10 * 86400) / stepSeconds)));
+}
+
 /** Default lead bands for the per-band tree candidate: 1–2, 3–5, 6–10, 11–20, … up to leads. */
 export function defaultLeadBands(leads: number): [number, number][] {
   const edges = [1, 3, 6, 11, 21, 41, 81, 161];

@@ -18,8 +18,7 @@ import {
 import { makeFeatureSpec } from '../../src/core/features.ts';
 import { chooseIssueObservation } from '../../src/core/issue-observation.ts';
 import type { ErrorTransform } from '../../src/core/error-transform.ts';
-import { defaultLeadBands, fitUpdatingFromSeries } from '../../src/models/updating-fit.ts';
-import { defaultUpdatingLeads } from '../../src/jobs/fit-job.ts';
+import { defaultLeadBands, defaultUpdatingLeads, fitUpdatingFromSeries } from '../../src/models/updating-fit.ts';
 
 const LOG: ErrorTransform = { kind: 'log', offset: 1 };
 const DAY = 86_400_000;
