@@ -8,6 +8,10 @@ alter table model_versions add column updating jsonb;
 alter table error_archives drop constraint if exists error_archives_lead_mode_check;
 alter table error_archives add constraint error_archives_lead_mode_check check (lead_mode in ('lead-free', 'per-lead', 'updating'));
 
+-- Per case of an 'updating' archive (in the archive's case order), the issue-time error
+-- T(observed) − T(corrected) at the case's issue time: float64 little-endian; null for other archives.
+alter table error_archives add column issue_error bytea;
+
 -- A run uses the latest observation at most this many steps older than its issue time.
 alter table gauges add column updating_max_age_steps integer not null default 2 check (updating_max_age_steps between 0 and 1000);
 

@@ -33,15 +33,16 @@ function perLeadResult(e: ReforecastEvaluation | null) {
 }
 
 /**
- * The updater as stored: the model, its scores (what GET of the version shows) and its archive's
- * bytes. The archive cases' issue-time errors stay with the fit (UpdatingFit.archive.issueError).
+ * The updater as stored: the model, its scores (what GET of the version shows), its archive's
+ * bytes and the archive cases' issue-time errors (UpdatingFit.archive.issueError).
  */
 function updatingResult(u: UpdatingFit | null, error: string | null) {
   if (!u) return error ? { model: null, archive: null, scores: { status: 'off', reason: error } } : null;
   const { archive, model, ...scores } = u;
   return {
     model,
-    archive: archive ? { bytes: archiveToBytes(archive.archive), summary: archive.summary } : null,
+    // issueError: float64 bytes aligned with the archive's cases (stored beside it for the stage).
+    archive: archive ? { bytes: archiveToBytes(archive.archive), summary: archive.summary, issueError: new Uint8Array(archive.issueError.buffer, archive.issueError.byteOffset, archive.issueError.byteLength) } : null,
     scores: { status: model ? 'on' : 'off', ...scores, method: model?.method ?? null, phi: model?.phi ?? null, ar1: model?.ar1 ?? null },
   };
 }

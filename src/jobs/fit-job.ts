@@ -60,7 +60,7 @@ interface FitOutput {
   correctedArchive: { bytes: Uint8Array; summary: Record<string, unknown> };
   rawArchive: { bytes: Uint8Array; summary: Record<string, unknown> };
   perLead: PerLeadOutput | null;
-  updating: { model: unknown; archive: StoredForm | null; scores: Record<string, unknown> } | null;
+  updating: { model: unknown; archive: (StoredForm & { issueError: Uint8Array }) | null; scores: Record<string, unknown> } | null;
 }
 
 type StoredForm = { bytes: Uint8Array; summary: Record<string, unknown> };

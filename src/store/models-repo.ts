@@ -69,7 +69,7 @@ export interface NewModelVersion {
   /** Per-lead archives built from past runs (reforecasts), when there were enough. */
   perLeadArchives?: { corrected: { bytes: Uint8Array; summary: Record<string, unknown> }; raw: { bytes: Uint8Array; summary: Record<string, unknown> } | null } | null;
   /** The issue-time updater and its per-lead archive of updated-member errors. */
-  updating?: { model: unknown; archive: { bytes: Uint8Array; summary: Record<string, unknown> } } | null;
+  updating?: { model: unknown; archive: { bytes: Uint8Array; summary: Record<string, unknown>; issueError?: Uint8Array | null } } | null;
 }
 
 export type LeadMode = 'lead-free' | 'per-lead' | 'updating';
@@ -100,13 +100,25 @@ export async function insertArchive(
   gaugeId: string,
   versionId: string | null,
   kind: 'corrected' | 'raw',
-  a: { bytes: Uint8Array; summary: Record<string, unknown> },
+  a: { bytes: Uint8Array; summary: Record<string, unknown>; issueError?: Uint8Array | null },
   leadMode: LeadMode = 'lead-free',
 ): Promise<void> {
   await tx.query(
-    `insert into error_archives (gauge_id, version_id, kind, lead_mode, cases, summary, bytes) values ($1, $2, $3, $4, $5, $6::jsonb, $7)`,
-    [gaugeId, versionId, kind, leadMode, Number(a.summary.cases ?? 0), JSON.stringify(a.summary), Buffer.from(a.bytes)],
+    `insert into error_archives (gauge_id, version_id, kind, lead_mode, cases, summary, bytes, issue_error) values ($1, $2, $3, $4, $5, $6::jsonb, $7, $8)`,
+    [gaugeId, versionId, kind, leadMode, Number(a.summary.cases ?? 0), JSON.stringify(a.summary), Buffer.from(a.bytes), a.issueError ? Buffer.from(a.issueError) : null],
   );
+}
+
+/**
+ * The issue-time error of each case of an 'updating' archive, aligned with its cases; null for
+ * archives that do not keep it.
+ */
+export async function archiveIssueError(db: Queryable, id: string): Promise<Float64Array | null> {
+  const { rows } = await db.query<{ issue_error: Uint8Array | null }>('select issue_error from error_archives where id = $1', [id]);
+  const b = rows[0]?.issue_error;
+  if (!b) return null;
+  const copy = new Uint8Array(b);
+  return new Float64Array(copy.buffer, copy.byteOffset, copy.byteLength / 8);
 }
 
 export async function listModelVersions(db: Queryable, gaugeId: string): Promise<ModelVersion[]> {

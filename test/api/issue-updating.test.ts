@@ -6,6 +6,7 @@ import { jobHandlers } from '../../src/jobs/handlers.ts';
 import { JobRunner } from '../../src/jobs/runner.ts';
 import { loadScenarioArchive } from '../../src/scenario/load-archive.ts';
 import { buildScenario } from '../../src/scenario/scenario.ts';
+import { archiveIssueError, versionArchiveInfo } from '../../src/store/models-repo.ts';
 import { makeTestApp, type TestApp } from '../helpers/test-app.ts';
 import { fitThroughApi, injectSend, scenarioRunBody, smallFit } from '../helpers/scenario-send.ts';
 
@@ -50,6 +51,11 @@ describe('fitting with updating', () => {
     expect(u.blocks.fit.to < u.blocks.earlyStopping.from).toBe(true);
     expect(u.blocks.earlyStopping.to < u.blocks.heldOut.from).toBe(true);
     expect(v.archives.some((a: { leadMode: string; nLeads: number }) => a.leadMode === 'updating' && a.nLeads === 10)).toBe(true);
+    // Each case of the updated members' archive keeps its issue-time error, aligned with the cases.
+    const info = (await versionArchiveInfo(t.db, versionId, 'corrected', 'updating'))!;
+    const issueError = (await archiveIssueError(t.db, info.id))!;
+    expect(issueError.length).toBe(info.summary.cases);
+    expect(issueError.every(Number.isFinite)).toBe(true);
   });
 
   it('refuses bad updating options, naming the field', async () => {
