@@ -245,6 +245,7 @@ export async function computeHindcast(input: HindcastTaskInput, progress: Progre
     const atIssue = upd ? await correctPerValidTime(spec, series, sessions, issues.map((i) => i - 1), 1, () => {}, check) : null;
     const atObs = new Float64Array(K * M);
     let notUpdated = 0;
+    let lastIssueError: Float64Array | undefined;
     const correctUpdated = (r: Float64Array, s: number, out: Float64Array) => {
       correct(r, s, out);
       const i = issues[s];
@@ -254,8 +255,8 @@ export async function computeHindcast(input: HindcastTaskInput, progress: Progre
         atObs[km] = atIssue![km * n + i];
         if (!Number.isFinite(atObs[km])) ok = false;
       }
-      if (ok) applyUpdating(upd!.model, out, atObs, y, 0, H);
-      else notUpdated++;
+      lastIssueError = ok ? applyUpdating(upd!.model, out, atObs, y, 0, H) : undefined;
+      if (!ok) notUpdated++;
     };
     const withUpdating: UpdatingPassCollector | null = upd ? updatingPassScores(I, H) : null;
     const tStage = performance.now();
@@ -269,6 +270,7 @@ export async function computeHindcast(input: HindcastTaskInput, progress: Progre
         observed,
         dayOfYear,
         correct: upd ? correctUpdated : correct,
+        ...(upd ? { issueError: () => lastIssueError } : {}),
         archive: upd ? upd.archive : archive,
         stochastic: { seed: settings.seed, nDraws: settings.nDraws, seasonalWindowDays: settings.seasonalWindowDays },
       },

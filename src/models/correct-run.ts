@@ -98,7 +98,8 @@ export async function correctRun(
   const doy = Int32Array.from({ length: H }, (_, k) => dayOfYearUtc(run.issueTime + (k + 1) * stepMs));
   const stage = runStochasticStage(
     archive,
-    { members: stageInput, nModels: sessions.length || 1, nMembers: nM, nLeads: H, dayOfYear: doy },
+    // With updating, each member draws from the archive's stratum of its own issue-time error.
+    { members: stageInput, nModels: sessions.length || 1, nMembers: nM, nLeads: H, dayOfYear: doy, ...(issueError ? { issueError } : {}) },
     { seed: options.seed, nDraws: options.nDraws, probs: options.probs, thresholds: options.thresholds, seasonalWindowDays: options.seasonalWindowDays },
     workspace,
   );

@@ -210,7 +210,9 @@ export async function fitResidualModel(
   if (options.updating && options.updating.mode !== 'off') {
     onProgress({ stage: 'fitting issue-time updating on pseudo-forecasts', percent: 96 });
     try {
-      updating = await fitUpdating(series, spec, options.validation, predictors, evaluation.correctedArchive.transform, options.updating, shouldStop, perLead?.values ?? null);
+      updating = await fitUpdating(series, spec, options.validation, predictors, evaluation.correctedArchive.transform, options.updating, shouldStop, perLead?.values ?? null, blocks.archive);
+      // The stage's kernel and k as chosen on the lead-free archive's held-out errors.
+      if (updating.archive && evaluation.correctedArchive.neighbours) updating.archive.archive.neighbours = evaluation.correctedArchive.neighbours;
     } catch (err) {
       if (options.updating.mode === 'on') throw err;
       updatingError = (err as Error).message;

@@ -3,7 +3,7 @@
 // with lead in their structure are fitted on block A, tree candidates stop early on block B, and
 // all are scored per lead on block C, which neither fitting nor early stopping saw.
 import { dayOfYearUtc } from '../core/day-of-year.ts';
-import { buildArchiveFromReforecasts, type ErrorArchive } from '../core/error-archive.ts';
+import { archiveFromErrorMatrix, archiveStrata, stratumOf, type ErrorArchive } from '../core/error-archive.ts';
 import type { ErrorTransform } from '../core/error-transform.ts';
 import { continuousRows, type FeatureSpec } from '../core/features.ts';
 import { createPrng } from '../core/prng.ts';
@@ -74,7 +74,7 @@ export interface UpdatingFit {
   sources: { pseudoForecasts: { fit: number; earlyStopping: number; heldOut: number }; pastRuns: { fit: number; earlyStopping: number; heldOut: number } };
   note: string;
   /**
-   * Error archive of the updated members (per lead, from the whole validation period),
+   * Error archive of the updated members (per lead, from the residual fit's archive block),
    * and each archive case's issue-time error ε0 = T(obs) − T(corrected) in the archive's
    * transform, aligned with the archive's cases (archive.error[i] ↔ issueError[i]). null when off.
    */
@@ -231,9 +231,10 @@ export async function fitUpdating(
   o: UpdatingOptions,
   shouldStop: () => boolean = () => false,
   pastRuns: PastRunValues | null = null,
+  archivePeriod: Period = validation,
 ): Promise<UpdatingFit> {
   const corrected = await correctedSeries(series, spec, validation, predictors);
-  return fitUpdatingFromSeries(series, corrected, validation, transform, o, shouldStop, pastRuns);
+  return fitUpdatingFromSeries(series, corrected, validation, transform, o, shouldStop, pastRuns, archivePeriod);
 }
 
 /** Past runs block C needs before auto also checks updating on them (common practice, our rule of thumb). */
@@ -251,6 +252,8 @@ export function fitUpdatingFromSeries(
   o: UpdatingOptions,
   shouldStop: () => boolean = () => false,
   pastRuns: PastRunValues | null = null,
+  /** Issues in this period make the updated archive (the residual fit's held-out archive block). */
+  archivePeriod: Period = validation,
 ): UpdatingFit {
   const L = o.leads;
   const { times, observed } = series;
@@ -368,14 +371,16 @@ export function fitUpdatingFromSeries(
   }
   const phi = servedCandidate.phi!.map((p, k) => (leads[k].on ? p : 0));
   const model: UpdatingModel = { method: servedCandidate.name as UpdatingModel['method'], transform, phi, ar1 };
-  // The archive spans the whole validation period, as the lead-free one does: φ has one number per
-  // lead, fitted on tens of thousands of pairs, so its in-sample fit on block A is negligible.
+  // The archive spans the residual fit's archive block (held out from its early stopping), as the
+  // lead-free one does: φ has one number per lead, fitted on tens of thousands of pairs, so its
+  // in-sample fit on the part of block A inside it is negligible.
   // At most ~1 million archived cases (an hourly gauge's 240 leads would give several million):
   // every n-th issue is kept, evenly over the period.
-  const allIssues = [...idxA, ...idxB, ...idxC];
+  const inArchive = (t: number) => times[t] >= archivePeriod.fromMs && times[t] < archivePeriod.toMs;
+  const allIssues = [...idxA, ...idxB, ...idxC].filter((i) => inArchive(issueIndex[i]));
   const archiveStride = Math.max(1, Math.ceil((allIssues.length * archiveMembers(cube.nMembers).length * L) / MAX_ARCHIVE_CASES));
   const parts = [{ cube, issues: allIssues.filter((_, j) => j % archiveStride === 0) }];
-  if (past) parts.push({ cube: past, issues: [...pastA, ...pastB, ...pastC] });
+  if (past) parts.push({ cube: past, issues: [...pastA, ...pastB, ...pastC].filter((u) => inArchive(past!.issueIndex[u])) });
   const archive = updatedArchive(parts, transform, phi, times, series.stepSeconds);
   return { ...result, model, served: servedCandidate.name, reason: null, archive };
 }
@@ -426,19 +431,26 @@ export function updatedArchive(
       }
     }
   }
-  const archive = buildArchiveFromReforecasts({ nIssues: rows, nLeads: L, corrected: updated, observed, dayOfYear, transform });
-  // Rebuild the case order: input order is row-major (row, lead) over finite cases.
+  // Errors in the transform; each issue row keeps its issue-time error, so the archive splits every
+  // lead into strata of it (src/core/error-archive.ts) and a run draws from its own stratum.
+  const errorMatrix = new Float64Array(rows * L).fill(NaN);
+  for (let i = 0; i < rows * L; i++) errorMatrix[i] = transformedError(transform, observed[i], updated[i]);
+  // (a copy: the builder fills template gaps in the matrix it is given)
+  const archive = archiveFromErrorMatrix({ nIssues: rows, nLeads: L, predictor: updated, error: errorMatrix.slice(), dayOfYear, transform, issueError: rowError });
+  // Rebuild the case order: input order is row-major (row, lead) over finite cases, grouped by
+  // lead × stratum and sorted by predictor within a group (ties by input order).
+  const S = archiveStrata(archive);
   const group: number[] = [];
   const pred: number[] = [];
   const err: number[] = [];
   for (let r = 0; r < rows; r++) {
+    const ie = rowError[r];
+    const stratum = Number.isNaN(ie) ? S >> 1 : stratumOf(archive.issueErrorEdges, ie);
     for (let k = 0; k < L; k++) {
-      const v = updated[r * L + k];
-      const y = observed[r * L + k];
-      if (!Number.isFinite(v) || !Number.isFinite(y)) continue;
-      group.push(k);
-      pred.push(v);
-      err.push(rowError[r]);
+      if (Number.isNaN(errorMatrix[r * L + k])) continue;
+      group.push(k * S + stratum);
+      pred.push(updated[r * L + k]);
+      err.push(ie);
     }
   }
   const order = group.map((_, i) => i).sort((a, b) => group[a] - group[b] || pred[a] - pred[b] || a - b);
@@ -457,6 +469,7 @@ export function updatedArchive(
     templateLength: archive.templateLength,
     transform: archive.transform,
     source: 'pseudo-forecasts (continuous simulations after the residual model and the updater), and real past runs where stored',
+    issueErrorStrata: S,
   };
   return { archive, issueError, summary };
 }

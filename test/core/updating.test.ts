@@ -17,6 +17,7 @@ import {
 } from '../../src/core/updating.ts';
 import { makeFeatureSpec } from '../../src/core/features.ts';
 import { chooseIssueObservation } from '../../src/core/issue-observation.ts';
+import { archiveStrata, stratumOf } from '../../src/core/error-archive.ts';
 import type { ErrorTransform } from '../../src/core/error-transform.ts';
 import { defaultLeadBands, defaultUpdatingLeads, fitUpdatingFromSeries } from '../../src/models/updating-fit.ts';
 
@@ -93,7 +94,15 @@ describe('choosing updating on a held-out block', () => {
     expect(Math.abs(fit.model!.ar1 - 0.9)).toBeLessThan(0.05);
     // The archive's issue errors are aligned with its cases: each case's error is the observed
     // error at its lead minus the update, so |error| is small where |ε0| is (lead 1, φ ≈ 0.9).
-    expect(fit.archive!.issueError.length).toBe(fit.archive!.archive.error.length);
+    const { archive, issueError } = fit.archive!;
+    expect(issueError.length).toBe(archive.error.length);
+    // The archive splits each lead into strata of the issue error; every case's issue error lies in
+    // the stratum of the group that holds it (group = lead × S + stratum).
+    const S = archiveStrata(archive);
+    expect(S).toBe(5);
+    for (let g = 0; g < archive.nLeads * S; g++) {
+      for (let i = archive.groupStart[g]; i < archive.groupStart[g + 1]; i++) expect(stratumOf(archive.issueErrorEdges, issueError[i])).toBe(g % S);
+    }
   });
 
   it('auto switches updating off for white-noise errors', () => {
