@@ -207,10 +207,17 @@ export async function fitResidualModel(
   }
   let updating: UpdatingFit | null = null;
   let updatingError: string | null = null;
+  // The forecast-forcing error variance per lead the past runs show (τ² of leadGrowthScale), for the
+  // updated archive: its pseudo-forecast errors lack it as the lead-free archive's do.
+  let forcingErrorVariance: Float64Array | null = null;
+  if (perLead?.archives) {
+    const v = evaluation.scores.errorVariances;
+    if (Number.isFinite(v.meanErrorVariance)) forcingErrorVariance = Float64Array.from(perLead.archives.correctedSummary.dressing.byLead, (l) => Math.max(0, l.errorVariance - v.meanErrorVariance));
+  }
   if (options.updating && options.updating.mode !== 'off') {
     onProgress({ stage: 'fitting issue-time updating on pseudo-forecasts', percent: 96 });
     try {
-      updating = await fitUpdating(series, spec, options.validation, predictors, evaluation.correctedArchive.transform, options.updating, shouldStop, perLead?.values ?? null, blocks.archive);
+      updating = await fitUpdating(series, spec, options.validation, predictors, evaluation.correctedArchive.transform, options.updating, shouldStop, perLead?.values ?? null, blocks.archive, forcingErrorVariance);
       // The stage's kernel and k as chosen on the lead-free archive's held-out errors.
       if (updating.archive && evaluation.correctedArchive.neighbours) updating.archive.archive.neighbours = evaluation.correctedArchive.neighbours;
     } catch (err) {

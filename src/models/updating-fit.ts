@@ -232,9 +232,10 @@ export async function fitUpdating(
   shouldStop: () => boolean = () => false,
   pastRuns: PastRunValues | null = null,
   archivePeriod: Period = validation,
+  forcingErrorVariance: ArrayLike<number> | null = null,
 ): Promise<UpdatingFit> {
   const corrected = await correctedSeries(series, spec, validation, predictors);
-  return fitUpdatingFromSeries(series, corrected, validation, transform, o, shouldStop, pastRuns, archivePeriod);
+  return fitUpdatingFromSeries(series, corrected, validation, transform, o, shouldStop, pastRuns, archivePeriod, forcingErrorVariance);
 }
 
 /** Past runs block C needs before auto also checks updating on them (common practice, our rule of thumb). */
@@ -254,6 +255,8 @@ export function fitUpdatingFromSeries(
   pastRuns: PastRunValues | null = null,
   /** Issues in this period make the updated archive (the residual fit's held-out archive block). */
   archivePeriod: Period = validation,
+  /** Per lead, the forecast-forcing error variance τ² past runs show (transform space); null = none known. */
+  forcingErrorVariance: ArrayLike<number> | null = null,
 ): UpdatingFit {
   const L = o.leads;
   const { times, observed } = series;
@@ -381,13 +384,35 @@ export function fitUpdatingFromSeries(
   const archiveStride = Math.max(1, Math.ceil((allIssues.length * archiveMembers(cube.nMembers).length * L) / MAX_ARCHIVE_CASES));
   const parts = [{ cube, issues: allIssues.filter((_, j) => j % archiveStride === 0) }];
   if (past) parts.push({ cube: past, issues: [...pastA, ...pastB, ...pastC].filter((u) => inArchive(past!.issueIndex[u])) });
-  const archive = updatedArchive(parts, transform, phi, times, series.stepSeconds);
+  const archive = updatedArchive(parts, transform, phi, times, series.stepSeconds, forcingErrorVariance);
   return { ...result, model, served: servedCandidate.name, reason: null, archive };
 }
 
 function spreadIndices(n: number, k: number): number[] {
   if (k >= n) return Array.from({ length: n }, (_, i) => i);
   return Array.from({ length: k }, (_, i) => Math.round((i * (n - 1)) / Math.max(1, k - 1)));
+}
+
+/** Scales each lead's errors in place by √(1 + τ_h²/V_h); returns the factors (τ² past its length: its last value). */
+function errorGrowth(errors: Float64Array, rows: number, L: number, tau2: ArrayLike<number>): Float64Array {
+  const g = new Float64Array(L).fill(1);
+  for (let k = 0; k < L; k++) {
+    let s = 0;
+    let ss = 0;
+    let n = 0;
+    for (let r = 0; r < rows; r++) {
+      const e = errors[r * L + k];
+      if (Number.isNaN(e)) continue;
+      s += e;
+      ss += e * e;
+      n++;
+    }
+    const v = n > 1 ? (ss - (s * s) / n) / (n - 1) : 0;
+    const t = tau2[Math.min(k, tau2.length - 1)];
+    if (v > 0 && t > 0) g[k] = Math.sqrt(1 + t / v);
+    for (let r = 0; r < rows; r++) errors[r * L + k] *= g[k];
+  }
+  return g;
 }
 
 /**
@@ -402,6 +427,7 @@ export function updatedArchive(
   phi: number[],
   times: ArrayLike<number>,
   stepSeconds: number,
+  forcingErrorVariance: ArrayLike<number> | null = null,
 ): { archive: ErrorArchive; issueError: Float64Array; summary: Record<string, unknown> } {
   const L = parts[0].cube.nLeads;
   let rows = 0;
@@ -435,6 +461,11 @@ export function updatedArchive(
   // lead into strata of it (src/core/error-archive.ts) and a run draws from its own stratum.
   const errorMatrix = new Float64Array(rows * L).fill(NaN);
   for (let i = 0; i < rows * L; i++) errorMatrix[i] = transformedError(transform, observed[i], updated[i]);
+  // Pseudo-forecast errors lack the forecast-forcing error. Where past runs measured its variance
+  // τ_h², each lead's errors are scaled by g_h = √(1 + τ_h²/V_h), V_h their own variance, so their
+  // variance becomes V_h + τ_h² (the lead-free archive's lead growth, src/core/lead-growth.ts, applied
+  // here to the updated errors because the stage applies it to lead-free archives only).
+  const growth = forcingErrorVariance && forcingErrorVariance.length ? errorGrowth(errorMatrix, rows, L, forcingErrorVariance) : null;
   // (a copy: the builder fills template gaps in the matrix it is given)
   const archive = archiveFromErrorMatrix({ nIssues: rows, nLeads: L, predictor: updated, error: errorMatrix.slice(), dayOfYear, transform, issueError: rowError });
   // Rebuild the case order: input order is row-major (row, lead) over finite cases, grouped by
@@ -470,6 +501,7 @@ export function updatedArchive(
     transform: archive.transform,
     source: 'pseudo-forecasts (continuous simulations after the residual model and the updater), and real past runs where stored',
     issueErrorStrata: S,
+    leadGrowth: growth ? Array.from(growth) : null,
   };
   return { archive, issueError, summary };
 }

@@ -219,3 +219,24 @@ describe('the observation a run is updated on', () => {
     expect(chooseIssueObservation(issue, DAY_S, 2, undefined, []).reason).toMatch(/no observation at or before the issue time/);
   });
 });
+
+describe('forecast-forcing error in the updated archive', () => {
+  it('adds the past runs\' τ² to each lead\'s error variance (g = √(1 + τ²/V), derived in src/core/lead-growth.ts)', () => {
+    const s = synthetic(3000, 0.9, 4, 31);
+    const o = { mode: 'on' as const, leads: 3, leadBands: null, history: 2, trees: false, seed: 1, maxTrainRows: 20_000 };
+    const period = { fromMs: s.times[0], toMs: s.times[2999] + 1 };
+    const plain = fitUpdatingFromSeries(s.series, s.corrected, period, LOG, o).archive!;
+    const tau2 = [0.001, 0.004, 0.009];
+    const grown = fitUpdatingFromSeries(s.series, s.corrected, period, LOG, o, () => false, null, period, tau2).archive!;
+    const leadVariance = (a: typeof plain.archive, k: number) => {
+      const S = archiveStrata(a);
+      const e = Array.from(a.error.subarray(a.groupStart[k * S], a.groupStart[(k + 1) * S]));
+      const m = e.reduce((x, y) => x + y, 0) / e.length;
+      return e.reduce((x, y) => x + (y - m) ** 2, 0) / (e.length - 1);
+    };
+    for (let k = 0; k < 3; k++) {
+      expect(leadVariance(grown.archive, k)).toBeCloseTo(leadVariance(plain.archive, k) + tau2[k], 10);
+    }
+    expect((grown.summary.leadGrowth as number[]).every((g) => g > 1)).toBe(true);
+  });
+});
