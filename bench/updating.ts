@@ -16,11 +16,10 @@
  * Run: npx tsx bench/updating.ts [hindcastYears=3] [--past-runs] [--on]
  */
 import { archiveToBytes } from '../src/core/archive-codec.ts';
-import { computeHindcast } from '../src/jobs/hindcast-compute.ts';
-import { defaultPeriods } from '../src/jobs/fit-job.ts';
+import { computeHindcast } from '../src/models/hindcast-compute.ts';
+import { defaultPeriods } from '../src/services/fit.ts';
 import { fitResidualModel } from '../src/models/residual-fit.ts';
-import type { ReforecastSet } from '../src/models/reforecast-evaluation.ts';
-import type { ArchiveSeries } from '../src/models/residual-evaluation.ts';
+import type { ArchiveSeries, ReforecastSet } from '../src/core/archive-types.ts';
 import { buildScenario } from '../src/scenario/scenario.ts';
 
 const args = process.argv.slice(2).filter((a) => !a.startsWith('--'));

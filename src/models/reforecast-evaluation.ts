@@ -1,21 +1,11 @@
+import { correctedMember } from '../core/corrected-member.ts';
 import { dayOfYearUtc } from '../core/day-of-year.ts';
 import { dressedArchiveFromRuns, type DressingSummary } from '../core/ensemble-dressing.ts';
 import { casesInLeadGroup, type ErrorArchive } from '../core/error-archive.ts';
 import type { ErrorTransformSpec } from '../core/error-transform.ts';
 import { reforecastRows, requiredInputs, type FeatureSpec, type ReforecastIssue } from '../core/features.ts';
-import { archiveSummary, type ArchiveSeries, type ResidualPredictor } from './residual-evaluation.ts';
-
-/** Stored past runs of a gauge on one layout: what the per-lead error archives are built from. */
-export interface ReforecastSet {
-  /** Issue times, epoch ms, ascending. */
-  issueTimes: Float64Array;
-  /** Longest lead stored (steps). */
-  nLeads: number;
-  /** Members with stored runs, sorted by id. */
-  memberIds: string[];
-  /** [(issue·memberIds.length + member)·nLeads + lead]; lead 0 is one step after issue time; NaN = missing. */
-  values: Float64Array;
-}
+import type { ArchiveSeries, ReforecastSet } from '../core/archive-types.ts';
+import { archiveSummary, type ResidualPredictor } from './residual-evaluation.ts';
 
 /** Fewer usable past runs than this and no per-lead archive is built (common practice, like the hindcast's reference minimum). */
 export const MIN_PER_LEAD_ISSUES = 20;
@@ -68,7 +58,11 @@ export interface PastRunValues {
 
 /** Said wherever reforecast-based results are shown: the archive stores no forecast forcings. */
 export const PAST_FORCINGS_NOTE =
-  "The reforecasts' feature rows use the archived (observed) forcings at the lead times, not the forecast forcings available when each run was issued (those are not stored); warm-up values come from the members' continuous simulations before issue time.";
+  "Some past runs have no stored forecast forcings (post them with the runs): their feature rows use the archived (observed) forcings at the lead times, which the runs did not have when issued, so those errors lack the forecast-forcing part; warm-up values come from the members' continuous simulations before issue time.";
+
+/** Said when every past run came with the forecast forcings it was driven by. */
+export const FORECAST_FORCINGS_NOTE =
+  "The past runs' feature rows use the forecast forcings each run was driven by at its lead times; warm-up values come from the members' continuous simulations and the archived forcings before issue time.";
 
 /**
  * The horizon of the per-lead archive: the longest lead that at least half of the past runs reach
@@ -207,12 +201,15 @@ function unusable(a: ErrorArchive, issues: number): string | null {
 /**
  * Per-lead error archives from the gauge's stored past runs (reforecasts): each issue is laid out
  * like a served run — the members' continuous simulations up to issue time as warm-up, then the
- * stored value per lead — corrected by the residual model(s) (a bundle's mean, never negative, as
- * the lead-free archive), and compared with the observations at the valid times. Each issue is
+ * stored value per lead — corrected by the residual model(s) (src/core/corrected-member.ts: each
+ * model's value clipped at zero, a bundle's mean over models, as serving and the lead-free archive),
+ * and compared with the observations at the valid times. Each issue is
  * one row of the issue × lead matrix: its case at a lead is the ensemble mean's error, shrunk so
  * the members' own spread is not counted twice (ensemble-dressing.ts); each (nearly) complete row
- * is a Schaake template. The raw members dressed the same way make the degraded-mode archive. Forcings at the lead times are the archived
- * (observed) ones: see PAST_FORCINGS_NOTE.
+ * is a Schaake template. The raw members dressed the same way make the degraded-mode archive.
+ * Forcings at the lead times are the forecast forcings the run was driven by when they were
+ * posted with it, else the archived
+ * (observed) ones, and the scores' note says which (PAST_FORCINGS_NOTE).
  */
 export async function evaluateReforecasts(
   series: ArchiveSeries,
@@ -237,6 +234,7 @@ export async function evaluateReforecasts(
     }
     return out;
   };
+  let observedForcingsUsed = false;
   // Issues in batches, so the feature rows stay a few MB whatever the archive's size.
   const perBatch = Math.max(1, Math.floor(50_000 / (nK * L.H)));
   for (let u0 = 0; u0 < L.issue.length; u0 += perBatch) {
@@ -244,7 +242,19 @@ export async function evaluateReforecasts(
     for (let u = u0; u < Math.min(L.issue.length, u0 + perBatch); u++) {
       const i = L.at[u];
       const forcings: Record<string, Float64Array> = {};
-      for (const f of spec.forcings) if (series.forcings[f.name]) forcings[f.name] = window(series.forcings[f.name], i, W + L.H);
+      for (const f of spec.forcings) {
+        if (!series.forcings[f.name]) continue;
+        forcings[f.name] = window(series.forcings[f.name], i, W + L.H);
+        // At the lead times, the forcing the run was driven by when stored (never one observed later).
+        const forecast = set.forcings?.[f.name];
+        if (forecast) {
+          for (let h = 0; h < L.H; h++) {
+            const v = forecast[L.issue[u] * set.nLeads + h];
+            if (Number.isFinite(v)) forcings[f.name][W + h] = v;
+            else observedForcingsUsed = true;
+          }
+        } else observedForcingsUsed = true;
+      }
       batch.push({
         issueTime: set.issueTimes[L.issue[u]],
         nLeads: L.H,
@@ -260,23 +270,22 @@ export async function evaluateReforecasts(
     }
     const rows = reforecastRows(spec, batch);
     if (!rows.nRows) continue;
+    const cells = Int32Array.from({ length: rows.nRows }, (_, r) => ((u0 + rows.issue[r]) * nK + rows.member[r]) * L.H + rows.lead[r] - 1);
+    // A bundle's member: the mean of each model's clipped corrected value (src/core/corrected-member.ts).
     const sum = new Float64Array(rows.nRows);
     for (const predict of predictors) {
       const out = await predict(rows.rows, rows.nRows, rows.nFeatures);
       for (let r = 0; r < rows.nRows; r++) {
         if (!Number.isFinite(out[r])) throw new Error(`the residual model returned a non-finite value on a past run (issued ${new Date(batch[rows.issue[r]].issueTime).toISOString()}, lead ${rows.lead[r]})`);
-        sum[r] += out[r];
+        sum[r] += correctedMember(raw[cells[r]], out[r]);
       }
     }
-    for (let r = 0; r < rows.nRows; r++) {
-      const cell = ((u0 + rows.issue[r]) * nK + rows.member[r]) * L.H + rows.lead[r] - 1;
-      corrected[cell] = Math.max(0, raw[cell] + sum[r] / predictors.length);
-    }
+    for (let r = 0; r < rows.nRows; r++) corrected[cells[r]] = sum[r] / predictors.length;
   }
   // Raw errors on the same cases as the corrected ones, as in the lead-free archives.
   const rawMasked = raw.map((v, i) => (Number.isFinite(corrected[i]) ? v : NaN));
   const issues = issuesWithCases(corrected, observed, L);
-  const scores = scoreReforecasts(rawMasked, corrected, observed, L, issues);
+  const scores = scoreReforecasts(rawMasked, corrected, observed, L, issues, observedForcingsUsed ? PAST_FORCINGS_NOTE : FORECAST_FORCINGS_NOTE);
   if (scores.cases === 0) return { archives: null, reason: 'no past run has a corrected value with an observation', scores: null };
   const values: PastRunValues = { nLeads: L.H, issueIndex: L.at, members: L.seriesMember, raw: rawMasked, corrected };
   const cor = dressedArchive(corrected, observed, dayOfYear, L, options.transform);
@@ -314,7 +323,7 @@ export function rawArchiveFromReforecasts(
 
 const rmse = (sumSq: number, n: number): number | null => (n ? Math.sqrt(sumSq / n) : null);
 
-function scoreReforecasts(raw: Float64Array, corrected: Float64Array, observed: Float64Array, L: Layout, issues: number): ReforecastScores {
+function scoreReforecasts(raw: Float64Array, corrected: Float64Array, observed: Float64Array, L: Layout, issues: number, note: string): ReforecastScores {
   const H = L.H;
   const before = new Float64Array(H);
   const after = new Float64Array(H);
@@ -336,5 +345,5 @@ function scoreReforecasts(raw: Float64Array, corrected: Float64Array, observed: 
     n += count[h];
     return { lead: h + 1, cases: count[h], rmseBefore: rmse(before[h], count[h]), rmseAfter: rmse(after[h], count[h]) };
   });
-  return { issues, members: L.setMember.length, cases: n, residualRmse: { before: rmse(b, n), after: rmse(a, n) }, byLead, note: PAST_FORCINGS_NOTE };
+  return { issues, members: L.setMember.length, cases: n, residualRmse: { before: rmse(b, n), after: rmse(a, n) }, byLead, note };
 }

@@ -2,6 +2,7 @@
 // the residual-corrected continuous simulations read as forecasts issued every step. Candidates
 // with lead in their structure are fitted on block A, tree candidates stop early on block B, and
 // all are scored per lead on block C, which neither fitting nor early stopping saw.
+import { correctedMember } from '../core/corrected-member.ts';
 import { dayOfYearUtc } from '../core/day-of-year.ts';
 import { archiveFromErrorMatrix, archiveStrata, stratumOf, type ErrorArchive } from '../core/error-archive.ts';
 import type { ErrorTransform } from '../core/error-transform.ts';
@@ -24,7 +25,8 @@ import {
   type UpdatingModel,
 } from '../core/updating.ts';
 import type { PastRunValues } from './reforecast-evaluation.ts';
-import { archiveMembers, type ArchiveSeries, type Period, type ResidualPredictor } from './residual-evaluation.ts';
+import type { ArchiveSeries, Period } from '../core/archive-types.ts';
+import { archiveMembers, type ResidualPredictor } from './residual-evaluation.ts';
 import { predictTrees, trainGradientBoosting, type TreeModel } from './trees/index.ts';
 
 export type UpdatingMode = 'auto' | 'on' | 'off';
@@ -115,15 +117,17 @@ export async function correctedSeries(series: ArchiveSeries, spec: FeatureSpec, 
       const nF = all.nFeatures;
       const x = new Float32Array(pick.length * nF);
       pick.forEach((r, j) => x.set(all.rows.subarray(r * nF, (r + 1) * nF), j * nF));
+      // The corrected member as everywhere else: each model's value clipped, a bundle's the mean.
       const sum = new Float64Array(pick.length);
       for (const predict of predictors) {
         const p = await predict(x, pick.length, nF);
-        for (let j = 0; j < pick.length; j++) sum[j] += p[j];
+        pick.forEach((r, j) => {
+          sum[j] += correctedMember(sim[all.index[r]], p[j]);
+        });
       }
       pick.forEach((r, j) => {
-        const t = all.index[r];
-        const v = sim[t] + sum[j] / predictors.length;
-        cor[t] = Number.isFinite(v) ? Math.max(0, v) : NaN;
+        const v = sum[j] / predictors.length;
+        cor[all.index[r]] = Number.isFinite(v) ? v : NaN;
       });
     }
     out.push(cor);

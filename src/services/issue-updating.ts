@@ -8,7 +8,7 @@ import { observationTimeRows } from '../core/updating-rows.ts';
 import type { Queryable } from '../store/db.ts';
 import { readObservations } from '../store/archive-repo.ts';
 import { versionArchiveInfo, type ArchiveInfo } from '../store/models-repo.ts';
-import { archiveReach } from '../models/archive-choice.ts';
+import { archiveReach } from '../core/archive-choice.ts';
 
 export interface UpdatingAnswer {
   status: 'on' | 'off';
