@@ -9,6 +9,7 @@ import type { ErrorTransform } from '../core/error-transform.ts';
 import { defaultLstmSpace, type LstmFitOptions } from '../models/lstm-fit.ts';
 import { rawArchiveFromReforecasts, type ReforecastScores } from '../models/reforecast-evaluation.ts';
 import { defaultBoostingSpace, defaultForestSpace, splitValidation, type FitOptions } from '../models/residual-fit.ts';
+import { defaultUpdatingLeads } from '../models/updating-fit.ts';
 import { loadArchiveSeries, loadReforecastSet } from '../store/archive-series.ts';
 import type { Db } from '../store/db.ts';
 import { getGauge } from '../store/gauges-repo.ts';
@@ -41,6 +42,16 @@ export const FitJobParams = z.object({
   maxTrainRows: z.number().int(),
   activate: z.boolean(),
   label: z.string().optional(),
+  /** Issue-time updating; absent on jobs queued before it existed (= off). */
+  updating: z
+    .object({
+      mode: z.enum(['auto', 'on', 'off']),
+      leads: z.number().int().optional(),
+      leadBands: z.array(z.tuple([z.number().int(), z.number().int()])).optional(),
+      history: z.number().int(),
+      trees: z.boolean(),
+    })
+    .optional(),
 });
 export type FitJobParams = z.output<typeof FitJobParams>;
 
@@ -82,6 +93,7 @@ interface FitOutput {
   correctedArchive: { bytes: Uint8Array; summary: Record<string, unknown> };
   rawArchive: { bytes: Uint8Array; summary: Record<string, unknown> };
   perLead: PerLeadOutput | null;
+  updating: { model: unknown; archive: (StoredForm & { issueError: Uint8Array }) | null; scores: Record<string, unknown> } | null;
 }
 
 type StoredForm = { bytes: Uint8Array; summary: Record<string, unknown> };
@@ -125,12 +137,12 @@ export async function fitModel(db: Db, job: { gaugeId: string; createdBy: string
     void progress(pr.stage, pr.percent * 0.97);
   };
   const out = p.trainer === 'lstm' ? await fitLstm() : await fitTrees(p.trainer);
-  const trainer =
-    p.trainer === 'lstm'
-      ? { kind: 'lstm', params: out.parts[0].params, model: out.parts[0].info, trials: out.trials, seed: p.seed, rows: out.rows, onnxCheck: out.onnxCheck }
-      : { kind: p.trainer, bundle: out.parts.map((part) => ({ params: part.params, validationRmse: part.validationRmse, trees: part.trees })), trials: out.trials, seed: p.seed, rows: out.rows, onnxCheck: out.onnxCheck };
   const perLead = perLeadParts(out.perLead);
-  const scores = perLead.scores ? { ...out.scores, reforecasts: perLead.scores } : out.scores;
+  const withPerLead = perLead.scores ? { ...out.scores, reforecasts: perLead.scores } : out.scores;
+  const updatingMode = p.updating?.mode ?? 'off';
+  const notFitted = updatingMode === 'off' ? 'updating: off was asked for' : p.trainer === 'lstm' ? 'issue-time updating is fitted with the trees only, not with the lstm trainer' : 'not fitted';
+  const scores = { ...withPerLead, updating: out.updating?.scores ?? { status: 'off', reason: notFitted } };
+  const updating = out.updating?.model && out.updating.archive ? { model: out.updating.model, archive: out.updating.archive } : null;
   await progress('storing the model version', 98);
   const versionId = await db.transaction(async (tx) => {
     const id = await insertModelVersion(tx, {
@@ -138,7 +150,10 @@ export async function fitModel(db: Db, job: { gaugeId: string; createdBy: string
       origin: 'fitted',
       label: p.label ?? `${p.trainer}${p.tuning ? ' tuned' : ''} ${iso(Date.now()).slice(0, 16)}Z`,
       featureSpec: out.spec,
-      trainer,
+      trainer:
+        p.trainer === 'lstm'
+          ? { kind: 'lstm', params: out.parts[0].params, model: out.parts[0].info, trials: out.trials, seed: p.seed, rows: out.rows, onnxCheck: out.onnxCheck }
+          : { kind: p.trainer, bundle: out.parts.map((part) => ({ params: part.params, validationRmse: part.validationRmse, trees: part.trees })), trials: out.trials, seed: p.seed, rows: out.rows, onnxCheck: out.onnxCheck },
       periods: {
         calibration: { from: iso(calibration.fromMs), to: iso(calibration.toMs) },
         validation: { from: iso(validation.fromMs), to: iso(validation.toMs) },
@@ -153,6 +168,7 @@ export async function fitModel(db: Db, job: { gaugeId: string; createdBy: string
       correctedArchive: out.correctedArchive,
       rawArchive: out.rawArchive,
       perLeadArchives: perLead.archives,
+      updating,
     });
     if (p.activate) await activateModelVersion(tx, gauge.id, id);
     return id;
@@ -165,7 +181,7 @@ export async function fitModel(db: Db, job: { gaugeId: string; createdBy: string
     archives: { leadFree: out.correctedArchive.summary, perLead: perLead.archives?.corrected.summary ?? null, perLeadNote: out.perLead ? out.perLead.reason : 'no past runs (reforecasts) issued in the held-out archive block of the validation period' },
   };
 
-  // Trees (boosting or forest), bundled and tuned as asked.
+  // Trees (boosting or forest), bundled, tuned and with issue-time updating as asked.
   async function fitTrees(trainer: FitOptions['trainer']): Promise<FitOutput> {
     const options: FitOptions = {
       calibration,
@@ -182,13 +198,25 @@ export async function fitModel(db: Db, job: { gaugeId: string; createdBy: string
       templateLength: p.templateLength,
       maxTrainRows: p.maxTrainRows,
       reforecasts,
+      updating: p.updating && p.updating.mode !== 'off'
+        ? {
+            mode: p.updating.mode,
+            leads: p.updating.leads ?? defaultUpdatingLeads(series.stepSeconds, p.templateLength),
+            leadBands: p.updating.leadBands ?? null,
+            history: p.updating.history,
+            trees: p.updating.trees,
+            seed: p.seed,
+            // The tree candidates are measured, not served: a smaller sample keeps the fit's time in bounds.
+            maxTrainRows: Math.min(p.maxTrainRows, 50_000),
+          }
+        : null,
     };
     const handle = runCompute<FitOutput>({ kind: 'fit', series, options }, onProgress);
     signal.addEventListener('abort', () => handle.cancel());
     return handle.result;
   }
 
-  // The same periods and blocks; its own worker task.
+  // The in-house LSTM: the same periods and blocks, its own worker task.
   async function fitLstm(): Promise<FitOutput> {
     const options: LstmFitOptions = {
       calibration,
