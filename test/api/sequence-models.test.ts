@@ -116,6 +116,9 @@ describe('the in-house LSTM as a fit job', () => {
     expect(v.featureSpec.steps.map((s: { name: string }) => s.name)).toEqual(['sim', 'air_temperature', 'precipitation', 'day_of_year_sin', 'day_of_year_cos']);
     expect(v.trainer).toMatchObject({ kind: 'lstm' });
     expect(v.trainer.model.epochs).toBeGreaterThan(0);
+    // Issue-time updating is fitted with flat-row models only; the version says so rather than staying silent.
+    expect(v.scores.updating).toMatchObject({ status: 'off' });
+    expect(v.scores.updating.reason).toMatch(/trees only/);
     // The scenario's raw members are biased, so the residual stage must improve them on the held-out period.
     expect(v.scores.residualRmse.after).toBeLessThan(v.scores.residualRmse.before);
 
