@@ -1,0 +1,543 @@
+import { crpsSorted } from '../crps.ts';
+import { quantileSorted } from '../quantile.ts';
+import { blockBootstrap, blockLengthFor, prefixSums, type Interval, type Replicate } from './block-bootstrap.ts';
+import type { SourceName } from './case.ts';
+import type { ClimatologicalRate } from './climatological-rates.ts';
+import { COST_LOSS_RATIOS, valueCurve, type ValuePoint } from './economic-value.ts';
+import { exceedanceBrier } from './exceedance-brier.ts';
+import { scoresByForecastClass, type FlowClassScores } from './forecast-flow-classes.ts';
+import { GrowableF64 } from './growable.ts';
+import { jsonNumber } from './json-number.ts';
+import type { SeasonalClimatology } from './reference-forecasts.ts';
+import { reliabilityDiagram } from './reliability-diagram.ts';
+import { rocAreaSorted, rocCurve, rocOrder, thinRocPoints, type RocPoint } from './roc.ts';
+import { thresholdWeightedCrpsSorted } from './threshold-weighted-crps.ts';
+import { ValueSorter } from './value-sorter.ts';
+import { contingencyScores, type WarningContingency } from './warning-contingency.ts';
+
+/**
+ * Verification of the warnings: per flood threshold, for the exceedance at each lead time and for
+ * "above at any time in the horizon", the Brier score with its decomposition and skill against
+ * the fitting period's base rate, the reliability diagram with consistency bars, the ROC, the
+ * relative economic value and the attention flag's 2 × 2 scores; the CRPS with its skill against
+ * a seasonal climatology and persistence (overall and per lead), the threshold-weighted CRPS of
+ * the flood range, scores by forecast flow class, and paired differences between stages — each
+ * headline number with a moving-block bootstrap interval over issue times.
+ *
+ * Fed one run at a time (addRun); each run is reduced to per-case numbers at once (CRPS,
+ * probabilities, median), so the runs themselves are not kept. result() aggregates.
+ */
+export interface WarningSourceRun {
+  /** Member or trajectory j at lead k at [j·nLeads + k] (m³/s); NaN = missing. */
+  values: ArrayLike<number>;
+  count: number;
+  /** Each j is one coherent path over the leads (members, stage trajectories): gives any-time probabilities. */
+  trajectories: boolean;
+  /** The values at each lead are already ascending (stored quantiles). */
+  sortedPerLead?: boolean;
+  /** Exceedance probabilities as issued, [threshold·nLeads + lead]; else the share of values above. */
+  exceedance?: ArrayLike<number> | null;
+  /** Any-time probabilities as issued, per threshold; else from the trajectories (NaN without). */
+  anyTime?: ArrayLike<number> | null;
+}
+
+export interface WarningRun {
+  issueMs: number;
+  nLeads: number;
+  validMs: ArrayLike<number>;
+  /** Observation at each lead's valid time; NaN = not observed. */
+  observed: ArrayLike<number>;
+  /** Last observation at issue time (persistence); NaN = none. */
+  persistence: number;
+  /** In the order of the options' sources. */
+  sources: WarningSourceRun[];
+}
+
+export interface WarningOptions {
+  sources: SourceName[];
+  thresholds: readonly { label: string; value: number }[];
+  /** Attention level of the forecast (probability at or above it raises the flag). */
+  attentionLevel: number;
+  /** Seasonal climatology for CRPS skill (null = not available). */
+  climatology: SeasonalClimatology | null;
+  /** Fitting-period rates per threshold (same order), the Brier-skill reference; null = none. */
+  climatologicalRates: ClimatologicalRate[] | null;
+  /** Lead indices kept for the lead-time scores (any-time events always use the whole horizon). */
+  leadRange?: { min?: number; max?: number } | null;
+  /** Step length (ms), for the block length: ⌈horizon·step / issue spacing⌉. */
+  stepMs: number;
+  reliabilityBins?: number;
+  diagramResamples?: number;
+  replicates?: number;
+  /** Central level of every interval (default 0.9). */
+  level?: number;
+  seed?: number;
+  costLossRatios?: readonly number[];
+  /** Most ROC points in the output (the area uses all). */
+  rocPoints?: number;
+}
+
+export interface Scored {
+  value: number | null;
+  low: number | null;
+  high: number | null;
+}
+
+export interface EventSourceReport {
+  n: number;
+  events: number;
+  brier: Scored;
+  reliability: number | null;
+  resolution: number | null;
+  uncertainty: number | null;
+  withinBinVariance: number | null;
+  withinBinCovariance: number | null;
+  baseRate: number | null;
+  /** 1 − BS/BS of the fitting period's base rate. */
+  brierSkill: Scored;
+  diagram: { lower: number; upper: number; count: number; meanForecast: number | null; observedFrequency: number | null; consistencyLow: number | null; consistencyHigh: number | null }[];
+  roc: { points: { level: number | null; hitRate: number | null; falseAlarmRate: number | null }[]; area: Scored };
+  value: { costLoss: number; value: number | null; level: number | null }[];
+  /** Attention flag (probability ≥ attention level). */
+  attention: Omit<WarningContingency, 'hitRate' | 'falseAlarmRatio' | 'criticalSuccessIndex' | 'falseAlarmRate' | 'peirceSkill' | 'frequencyBias'> & {
+    hitRate: Scored;
+    falseAlarmRatio: Scored;
+    criticalSuccessIndex: Scored;
+    falseAlarmRate: number | null;
+    peirceSkill: number | null;
+    frequencyBias: number | null;
+  };
+}
+
+export interface EventReport {
+  threshold: string;
+  value: number;
+  event: 'lead-time' | 'any-time';
+  climatologicalRate: number | null;
+  sources: Partial<Record<SourceName, EventSourceReport>>;
+}
+
+export interface SkillRow {
+  n: number;
+  crps: Scored;
+  crpsSkillClimatology: Scored;
+  crpsSkillPersistence: Scored;
+}
+
+export interface SourceSkill extends SkillRow {
+  floodRange: { crps: Scored; skillClimatology: Scored };
+  byLead: (SkillRow & { lead: number })[];
+  byForecastClass: (Omit<FlowClassScores, 'crps' | 'crpsSkillClimatology' | 'medianBias' | 'from' | 'to'> & { from: number | null; to: number | null; crps: number | null; crpsSkillClimatology: number | null; medianBias: number | null })[];
+}
+
+export interface StageDifference {
+  first: SourceName;
+  second: SourceName;
+  /** Mean CRPS of first minus second (negative = first better). */
+  crps: Scored;
+  floodRangeCrps: Scored;
+  /** Brier score difference of the any-time event per threshold. */
+  anyTimeBrier: { threshold: string; difference: Scored }[];
+}
+
+export interface WarningReport {
+  settings: {
+    attentionLevel: number;
+    level: number;
+    replicates: number;
+    blockLength: number;
+    reliabilityBins: number;
+    diagramResamples: number;
+    seed: number;
+    floodRangeFrom: { label: string; value: number } | null;
+    climatology: { observations: number } | null;
+  };
+  runs: number;
+  cases: number;
+  anyTimeRuns: number;
+  referenceCases: { climatology: number; persistence: number };
+  events: EventReport[];
+  skill: Partial<Record<SourceName, SourceSkill>>;
+  differences: StageDifference[];
+}
+
+export interface WarningVerification {
+  addRun(run: WarningRun): void;
+  result(): WarningReport;
+}
+
+const j = jsonNumber;
+const scored = (value: number, iv?: Interval): Scored => ({ value: j(value), low: iv ? j(iv.low) : null, high: iv ? j(iv.high) : null });
+
+export function createWarningVerification(options: WarningOptions): WarningVerification {
+  const S = options.sources.length;
+  const T = options.thresholds.length;
+  const thr = options.thresholds.map((t) => t.value);
+  if (!(options.attentionLevel >= 0 && options.attentionLevel <= 1)) throw new RangeError('attentionLevel must be in [0, 1]');
+  if (options.climatologicalRates && options.climatologicalRates.length !== T) throw new RangeError('climatologicalRates must match thresholds');
+  const minLead = options.leadRange?.min ?? 0;
+  const maxLead = options.leadRange?.max ?? Infinity;
+  // The flood range starts at the lowest threshold.
+  const flood = T ? options.thresholds.reduce((a, b) => (b.value < a.value ? b : a)) : null;
+  const r = flood ? flood.value : NaN;
+
+  // Per run.
+  const runIssue = new GrowableF64();
+  let maxLeads = 0;
+  const obsAny = Array.from({ length: T }, () => new GrowableF64());
+  const probAny = Array.from({ length: S }, () => Array.from({ length: T }, () => new GrowableF64()));
+  // Per case.
+  const caseRun = new GrowableF64();
+  const caseLead = new GrowableF64();
+  const caseObs = new GrowableF64();
+  const climCrps = new GrowableF64();
+  const climTw = new GrowableF64();
+  const persCrps = new GrowableF64();
+  const crps = Array.from({ length: S }, () => new GrowableF64());
+  const tw = Array.from({ length: S }, () => new GrowableF64());
+  const median = Array.from({ length: S }, () => new GrowableF64());
+  const prob = Array.from({ length: S }, () => Array.from({ length: T }, () => new GrowableF64()));
+  const rows = Array.from({ length: S }, () => new Float64Array(128));
+  const sorters = Array.from({ length: S }, () => new ValueSorter());
+  const sortedCols: Float64Array[] = [];
+
+  function addRun(run: WarningRun): void {
+    if (run.sources.length !== S) throw new RangeError(`a run needs ${S} sources`);
+    const H = run.nLeads;
+    if (run.observed.length < H || run.validMs.length < H) throw new RangeError('observed and validMs must hold nLeads values');
+    const ri = runIssue.length;
+    runIssue.push(run.issueMs);
+    maxLeads = Math.max(maxLeads, H);
+    let all = H > 0;
+    let maxY = -Infinity;
+    for (let k = 0; k < H; k++) {
+      const y = run.observed[k];
+      if (!Number.isFinite(y)) all = false;
+      else if (y > maxY) maxY = y;
+    }
+    for (let t = 0; t < T; t++) obsAny[t].push(all ? (maxY > thr[t] ? 1 : 0) : NaN);
+    for (let s = 0; s < S; s++) {
+      const f = run.sources[s];
+      for (let t = 0; t < T; t++) probAny[s][t].push(f.anyTime ? f.anyTime[t] : f.trajectories ? anyTimeShare(f, H, thr[t]) : NaN);
+    }
+    for (let k = Math.max(0, minLead); k < H && k <= maxLead; k++) {
+      const y = run.observed[k];
+      if (!Number.isFinite(y)) continue;
+      // Every source needs a value at this lead, so all are scored on the same cases.
+      let ok = true;
+      for (let s = 0; s < S && ok; s++) {
+        const col = column(run.sources[s], H, k, s);
+        if (col.length === 0) ok = false;
+        else sortedCols[s] = col;
+      }
+      if (!ok) continue;
+      caseRun.push(ri);
+      caseLead.push(k);
+      caseObs.push(y);
+      const clim = options.climatology?.valuesAt(run.validMs[k]);
+      climCrps.push(clim && clim.length ? crpsSorted(clim, y) : NaN);
+      climTw.push(clim && clim.length && flood ? thresholdWeightedCrpsSorted(clim, y, r) : NaN);
+      persCrps.push(Number.isFinite(run.persistence) ? Math.abs(run.persistence - y) : NaN);
+      for (let s = 0; s < S; s++) {
+        const col = sortedCols[s];
+        const f = run.sources[s];
+        crps[s].push(crpsSorted(col, y));
+        tw[s].push(flood ? thresholdWeightedCrpsSorted(col, y, r) : NaN);
+        median[s].push(quantileSorted(col, 0.5));
+        for (let t = 0; t < T; t++) prob[s][t].push(f.exceedance ? f.exceedance[t * H + k] : shareAbove(col, thr[t]));
+      }
+    }
+  }
+
+  /** Finite values of one source at lead k, sorted (in that source's own reusable buffer). */
+  function column(f: WarningSourceRun, H: number, k: number, s: number): Float64Array {
+    if (rows[s].length < f.count) rows[s] = new Float64Array(f.count);
+    const row = rows[s];
+    let m = 0;
+    let nonNeg = true;
+    for (let i = 0; i < f.count; i++) {
+      const x = f.values[i * H + k];
+      if (Number.isFinite(x)) {
+        row[m++] = x + 0;
+        if (x < 0) nonNeg = false;
+      }
+    }
+    if (f.sortedPerLead) return row.subarray(0, m);
+    return sorters[s].sort(row, m, nonNeg);
+  }
+
+  function result(): WarningReport {
+    const nRuns = runIssue.length;
+    const nCases = caseRun.length;
+    const issueMs = runIssue.view();
+    const cRun = caseRun.view();
+    const cLead = caseLead.view();
+    const cObs = caseObs.view();
+    const level = options.level ?? 0.9;
+    const R = options.replicates ?? 500;
+    const seed = options.seed ?? 1;
+    const bins = options.reliabilityBins ?? 10;
+    const resamples = options.diagramResamples ?? 200;
+    const L = Math.min(Math.max(1, nRuns), blockLengthFor(issueMs, maxLeads * options.stepMs));
+    const stats: ((rep: Replicate) => number)[] = [];
+    const register = (f: (rep: Replicate) => number): number => stats.push(f) - 1;
+    /** Prefix sums over runs of per-case values (cases where keep(c) and the value is finite). */
+    const perRun = (v: (c: number) => number): Float64Array => {
+      const a = new Float64Array(nRuns);
+      for (let c = 0; c < nCases; c++) {
+        const x = v(c);
+        if (Number.isFinite(x)) a[cRun[c]] += x;
+      }
+      return prefixSums(a);
+    };
+    const total = (p: Float64Array) => p[p.length - 1];
+    const ratio = (a: Float64Array, b: Float64Array) => (rep: Replicate) => rep.sum(a) / rep.sum(b);
+    const skill = (a: Float64Array, b: Float64Array) => (rep: Replicate) => 1 - rep.sum(a) / rep.sum(b);
+    // Deferred outputs: built once the bootstrap intervals are known.
+    const finish: ((iv: Interval[]) => void)[] = [];
+
+    // ---- events ----
+    const events: EventReport[] = [];
+    const eventInputs = (t: number, kind: 'lead-time' | 'any-time', s: number) =>
+      kind === 'lead-time'
+        ? { p: prob[s][t].view(), o: Float64Array.from(cObs, (y) => (y > thr[t] ? 1 : 0)), group: cRun }
+        : { p: probAny[s][t].view(), o: obsAny[t].view(), group: null as Float64Array | null };
+    const anyTimeBrierPrefix: Float64Array[][] = Array.from({ length: S }, () => []);
+    let anyTimeRuns = 0;
+    for (let t = 0; t < T; t++) {
+      for (const kind of ['lead-time', 'any-time'] as const) {
+        const rate = options.climatologicalRates?.[t];
+        const c = rate ? (kind === 'lead-time' ? rate.atLead : rate.anyTime) : NaN;
+        const ev: EventReport = { threshold: options.thresholds[t].label, value: thr[t], event: kind, climatologicalRate: j(c), sources: {} };
+        events.push(ev);
+        for (let s = 0; s < S; s++) {
+          const { p, o, group } = eventInputs(t, kind, s);
+          // Keep cases with both a probability and an outcome.
+          const n = p.length;
+          const valid = (i: number) => !Number.isNaN(p[i]) && !Number.isNaN(o[i]);
+          const byRun = (v: (i: number) => number): Float64Array => {
+            const a = new Float64Array(nRuns);
+            for (let i = 0; i < n; i++) if (valid(i)) a[group ? group[i] : i] += v(i);
+            return prefixSums(a);
+          };
+          const pBs = byRun((i) => (p[i] - o[i]) ** 2);
+          const pRef = byRun((i) => (c - o[i]) ** 2);
+          const pN = byRun(() => 1);
+          if (kind === 'any-time') {
+            anyTimeBrierPrefix[s][t] = pBs;
+            anyTimeBrierPrefix[s][t + T] = pN;
+            if (s === 0) anyTimeRuns = total(pN);
+          }
+          const b = exceedanceBrier(p, o, c, bins);
+          const diagram = reliabilityDiagram(p, o, { bins, resamples, level, seed });
+          const roc = rocCurve(p, o);
+          const order = rocOrder(p, o);
+          const vc = valueCurve(p, o, options.costLossRatios ?? COST_LOSS_RATIOS);
+          const lvl = options.attentionLevel;
+          const pA = byRun((i) => (p[i] >= lvl && o[i] > 0 ? 1 : 0));
+          const pB = byRun((i) => (p[i] >= lvl && o[i] === 0 ? 1 : 0));
+          const pC = byRun((i) => (p[i] < lvl && o[i] > 0 ? 1 : 0));
+          const ct = contingencyScores(lvl, total(pA), total(pB), total(pC), total(pN) - total(pA) - total(pB) - total(pC));
+          const ids = {
+            brier: register(ratio(pBs, pN)),
+            skill: Number.isFinite(c) ? register(skill(pBs, pRef)) : -1,
+            area: register((rep) => rocAreaSorted(order, p, o, rep.weights(), group ?? undefined)),
+            hit: register((rep) => {
+              const a = rep.sum(pA);
+              return a / (a + rep.sum(pC));
+            }),
+            far: register((rep) => {
+              const b2 = rep.sum(pB);
+              return b2 / (rep.sum(pA) + b2);
+            }),
+            csi: register((rep) => {
+              const a = rep.sum(pA);
+              return a / (a + rep.sum(pB) + rep.sum(pC));
+            }),
+          };
+          const name = options.sources[s];
+          finish.push((iv) => {
+            ev.sources[name] = {
+              n: b.n,
+              events: b.events,
+              brier: scored(b.brier, iv[ids.brier]),
+              reliability: j(b.reliability),
+              resolution: j(b.resolution),
+              uncertainty: j(b.uncertainty),
+              withinBinVariance: j(b.withinBinVariance),
+              withinBinCovariance: j(b.withinBinCovariance),
+              baseRate: j(b.baseRate),
+              brierSkill: scored(b.skill, ids.skill >= 0 ? iv[ids.skill] : undefined),
+              diagram: diagram.map((d) => ({
+                lower: d.lower,
+                upper: d.upper,
+                count: d.count,
+                meanForecast: j(d.meanForecast),
+                observedFrequency: j(d.observedFrequency),
+                consistencyLow: j(d.consistencyLow),
+                consistencyHigh: j(d.consistencyHigh),
+              })),
+              roc: { points: thinRocPoints(roc.points, options.rocPoints ?? 60).map(rocJson), area: scored(roc.area, iv[ids.area]) },
+              value: vc.points.map(valueJson),
+              attention: {
+                ...ct,
+                hitRate: scored(ct.hitRate, iv[ids.hit]),
+                falseAlarmRatio: scored(ct.falseAlarmRatio, iv[ids.far]),
+                criticalSuccessIndex: scored(ct.criticalSuccessIndex, iv[ids.csi]),
+                falseAlarmRate: j(ct.falseAlarmRate),
+                peirceSkill: j(ct.peirceSkill),
+                frequencyBias: j(ct.frequencyBias),
+              },
+            };
+          });
+        }
+      }
+    }
+
+    // ---- CRPS skill ----
+    const climV = climCrps.view();
+    const climTwV = climTw.view();
+    const persV = persCrps.view();
+    let climCases = 0;
+    let persCases = 0;
+    for (let c = 0; c < nCases; c++) {
+      if (Number.isFinite(climV[c])) climCases++;
+      if (Number.isFinite(persV[c])) persCases++;
+    }
+    const leads = [...new Set(cLead)].sort((a, b) => a - b);
+    const skillOut: Partial<Record<SourceName, SourceSkill>> = {};
+    const crpsPrefix: Float64Array[] = [];
+    const twPrefix: Float64Array[] = [];
+    const pCount = perRun(() => 1);
+    const skillRow = (s: number, keep: (c: number) => boolean) => {
+      const cr = crps[s].view();
+      const pCr = perRun((c) => (keep(c) ? cr[c] : NaN));
+      const pN = perRun((c) => (keep(c) ? 1 : NaN));
+      const pCrC = perRun((c) => (keep(c) && Number.isFinite(climV[c]) ? cr[c] : NaN));
+      const pClim = perRun((c) => (keep(c) ? climV[c] : NaN));
+      const pCrP = perRun((c) => (keep(c) && Number.isFinite(persV[c]) ? cr[c] : NaN));
+      const pPers = perRun((c) => (keep(c) ? persV[c] : NaN));
+      const ids = [register(ratio(pCr, pN)), register(skill(pCrC, pClim)), register(skill(pCrP, pPers))];
+      const est = [total(pCr) / total(pN), 1 - total(pCrC) / total(pClim), 1 - total(pCrP) / total(pPers)];
+      return { pCr, n: total(pN), ids, est };
+    };
+    for (let s = 0; s < S; s++) {
+      const name = options.sources[s];
+      const all = skillRow(s, () => true);
+      crpsPrefix[s] = all.pCr;
+      const twV = tw[s].view();
+      const pTw = perRun((c) => twV[c]);
+      twPrefix[s] = pTw;
+      const pTwC = perRun((c) => (Number.isFinite(climTwV[c]) ? twV[c] : NaN));
+      const pClimTw = perRun((c) => climTwV[c]);
+      const twIds = [register(ratio(pTw, pCount)), register(skill(pTwC, pClimTw))];
+      const twEst = [total(pTw) / total(pCount), 1 - total(pTwC) / total(pClimTw)];
+      const byLead = leads.map((k) => ({ k, row: skillRow(s, (c) => cLead[c] === k) }));
+      const classes = scoresByForecastClass(median[s].view(), cObs, crps[s].view(), climV, options.thresholds);
+      finish.push((iv) => {
+        const rowJson = (x: ReturnType<typeof skillRow>): SkillRow => ({
+          n: x.n,
+          crps: scored(x.est[0], iv[x.ids[0]]),
+          crpsSkillClimatology: scored(x.est[1], iv[x.ids[1]]),
+          crpsSkillPersistence: scored(x.est[2], iv[x.ids[2]]),
+        });
+        skillOut[name] = {
+          ...rowJson(all),
+          floodRange: { crps: scored(twEst[0], iv[twIds[0]]), skillClimatology: scored(twEst[1], iv[twIds[1]]) },
+          byLead: byLead.map(({ k, row: x }) => ({ lead: k, ...rowJson(x) })),
+          byForecastClass: classes.map((c) => ({ ...c, from: c.from === null ? null : j(c.from), to: c.to === null ? null : j(c.to), crps: j(c.crps), crpsSkillClimatology: j(c.crpsSkillClimatology), medianBias: j(c.medianBias) })),
+        };
+      });
+    }
+
+    // ---- paired differences between stages ----
+    const differences: StageDifference[] = [];
+    const pairs: [number, number][] = [];
+    for (let a = 1; a < S; a++) for (let b = 0; b < a; b++) pairs.push([a, b]);
+    for (const [a, b] of pairs) {
+      const diff = (pa: Float64Array, pb: Float64Array, pn: Float64Array) => ({
+        est: (total(pa) - total(pb)) / total(pn),
+        id: register((rep) => (rep.sum(pa) - rep.sum(pb)) / rep.sum(pn)),
+      });
+      const dC = diff(crpsPrefix[a], crpsPrefix[b], pCount);
+      const dT = diff(twPrefix[a], twPrefix[b], pCount);
+      const dB = Array.from({ length: T }, (_, t) => diff(anyTimeBrierPrefix[a][t], anyTimeBrierPrefix[b][t], anyTimeBrierPrefix[a][t + T]));
+      finish.push((iv) => {
+        differences.push({
+          first: options.sources[a],
+          second: options.sources[b],
+          crps: scored(dC.est, iv[dC.id]),
+          floodRangeCrps: scored(dT.est, iv[dT.id]),
+          anyTimeBrier: dB.map((d, t) => ({ threshold: options.thresholds[t].label, difference: scored(d.est, iv[d.id]) })),
+        });
+      });
+    }
+
+    const iv = blockBootstrap(nRuns, stats, { blockLength: L, replicates: R, level, seed });
+    for (const f of finish) f(iv);
+    return {
+      settings: {
+        attentionLevel: options.attentionLevel,
+        level,
+        replicates: R,
+        blockLength: L,
+        reliabilityBins: bins,
+        diagramResamples: resamples,
+        seed,
+        floodRangeFrom: flood ? { label: flood.label, value: flood.value } : null,
+        climatology: options.climatology ? { observations: options.climatology.size } : null,
+      },
+      runs: nRuns,
+      cases: nCases,
+      anyTimeRuns,
+      referenceCases: { climatology: climCases, persistence: persCases },
+      events,
+      skill: skillOut,
+      differences,
+    };
+  }
+
+  return { addRun, result };
+}
+
+function rocJson(p: RocPoint) {
+  return { level: j(p.level), hitRate: j(p.hitRate), falseAlarmRate: j(p.falseAlarmRate) };
+}
+
+function valueJson(v: ValuePoint) {
+  return { costLoss: v.costLoss, value: j(v.value), level: v.level === null ? null : j(v.level) };
+}
+
+/** Share of sorted values above thr. */
+function shareAbove(sorted: Float64Array, thr: number): number {
+  let lo = 0;
+  let hi = sorted.length;
+  while (lo < hi) {
+    const mid = (lo + hi) >> 1;
+    if (sorted[mid] > thr) hi = mid;
+    else lo = mid + 1;
+  }
+  return (sorted.length - lo) / sorted.length;
+}
+
+/** Share of paths with a value above thr at some lead (paths with a missing value left out). */
+function anyTimeShare(f: WarningSourceRun, H: number, thr: number): number {
+  let n = 0;
+  let above = 0;
+  for (let i = 0; i < f.count; i++) {
+    let ok = true;
+    let hit = false;
+    for (let k = 0; k < H; k++) {
+      const x = f.values[i * H + k];
+      if (!Number.isFinite(x)) {
+        ok = false;
+        break;
+      }
+      if (x > thr) hit = true;
+    }
+    if (!ok) continue;
+    n++;
+    if (hit) above++;
+  }
+  return n ? above / n : NaN;
+}
