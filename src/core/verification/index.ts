@@ -24,3 +24,5 @@ export * from './block-bootstrap.ts';
 export * from './forecast-flow-classes.ts';
 export * from './two-sided-drift.ts';
 export * from './warning-verification.ts';
+export * from './stored-run-warnings.ts';
+export * from './warning-references.ts';

@@ -12,6 +12,8 @@ import {
   scoresByForecastClass,
   seasonalClimatology,
   twoSidedDriftChecks,
+  warningReferences,
+  warningRunFromStored,
   type WarningRun,
 } from '../../../src/core/verification/index.ts';
 
@@ -287,5 +289,51 @@ describe('warning verification of runs', () => {
     expect(sk.crps.value).toBeCloseTo((c[0] + c[1] + c[2]) / 3, 14);
     expect(sk.crpsSkillPersistence.value).toBeCloseTo(1 - (c[0] + c[1] + c[2]) / (1 + 7 + 1), 14);
     expect(sk.crpsSkillClimatology.value).toBeNull();
+  });
+});
+
+describe('stored runs and references for the warning verification', () => {
+  it('a stored run keeps its issued probabilities and its quantiles per lead', () => {
+    const run = warningRunFromStored(
+      {
+        issueMs: 0,
+        validMs: [DAY, 2 * DAY],
+        raw: [{ values: [1, 2] }, { values: [3, 4] }],
+        corrected: [{ values: [1.5, 2.5] }],
+        percentiles: [
+          [1, 2, 3],
+          [4, 5, 6],
+        ],
+        thresholds: [{ exceedance: [0.1, 0.7], anyTime: 0.75 }],
+      },
+      (t) => (t === DAY ? 2 : NaN),
+      1.2,
+    );
+    expect(Array.from(run.observed)).toEqual([2, NaN]);
+    expect(run.persistence).toBe(1.2);
+    expect(Array.from(run.sources[0].values)).toEqual([1, 2, 3, 4]);
+    expect(Array.from(run.sources[2].values)).toEqual([1, 4, 2, 5, 3, 6]);
+    expect(Array.from(run.sources[2].exceedance!)).toEqual([0.1, 0.7]);
+    expect(Array.from(run.sources[2].anyTime!)).toEqual([0.75]);
+    expect(run.sources[2].trajectories).toBe(false);
+  });
+
+  it('references: climatology before the first issue, rates of the fitting period on the step grid', () => {
+    // Daily values 0, 10, 0, 10 … over 20 days, one day missing; fitting period the first 10 days.
+    const times: number[] = [];
+    const values: number[] = [];
+    for (let d = 0; d < 20; d++) {
+      if (d === 3) continue;
+      times.push(d * DAY);
+      values.push(d % 2 ? 10 : 0);
+    }
+    const ref = warningReferences(times, values, { cutoffMs: 15 * DAY, fitting: { fromMs: 0, toMs: 10 * DAY }, thresholds: [5], horizon: 2, stepMs: DAY });
+    expect(ref.ratesFrom).toBe('fitting period');
+    // Fitting: days 0–9 without day 3: 9 steps, 4 above (1, 5, 7, 9). Windows of 2 fully observed:
+    // (0,1) (1,2) (4,5) (5,6) (6,7) (7,8) (8,9) = 7, all contain an odd day.
+    expect(ref.climatologicalRates![0].atLead).toBeCloseTo(4 / 9, 15);
+    expect(ref.climatologicalRates![0].windows).toBe(7);
+    expect(ref.climatologicalRates![0].anyTime).toBe(1);
+    expect(ref.climatology!.size).toBe(14);
   });
 });
