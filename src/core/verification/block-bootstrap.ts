@@ -44,6 +44,7 @@ export class Replicate {
   readonly starts: Int32Array;
   readonly lengths: Int32Array;
   private w: Float64Array | null = null;
+  private readonly sums = new Map<Float64Array, number>();
 
   constructor(
     readonly n: number,
@@ -60,10 +61,13 @@ export class Replicate {
     }
   }
 
-  /** Σ w[i]·a[i] from prefix = prefixSums(a). */
+  /** Σ w[i]·a[i] from prefix = prefixSums(a); kept per array, as statistics share their sums. */
   sum(prefix: Float64Array): number {
+    const known = this.sums.get(prefix);
+    if (known !== undefined) return known;
     let s = 0;
     for (let b = 0; b < this.starts.length; b++) s += prefix[this.starts[b] + this.lengths[b]] - prefix[this.starts[b]];
+    this.sums.set(prefix, s);
     return s;
   }
 

@@ -1,4 +1,4 @@
-import { rocCurve } from './roc.ts';
+import { rocCurve, type RocCurve } from './roc.ts';
 
 /**
  * Relative economic value (Richardson 2000) of warnings for a user who can protect at cost C
@@ -33,7 +33,11 @@ export interface ValuePoint {
 export const COST_LOSS_RATIOS: readonly number[] = [0.01, 0.02, 0.03, 0.05, 0.07, 0.1, 0.15, 0.2, 0.25, 0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9, 0.95, 0.99];
 
 export function valueCurve(prob: ArrayLike<number>, outcome: ArrayLike<number>, costLoss: readonly number[] = COST_LOSS_RATIOS): { baseRate: number; points: ValuePoint[] } {
-  const roc = rocCurve(prob, outcome);
+  return valueCurveFromRoc(rocCurve(prob, outcome), costLoss);
+}
+
+/** The same from a ROC curve already computed. */
+export function valueCurveFromRoc(roc: RocCurve, costLoss: readonly number[] = COST_LOSS_RATIOS): { baseRate: number; points: ValuePoint[] } {
   const s = roc.n ? roc.events / roc.n : NaN;
   // The end points (0, 0) and (1, 1) are "never" and "always" protect: climatology's own choices.
   const levels = roc.points.slice(1);

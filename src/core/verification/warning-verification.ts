@@ -3,14 +3,14 @@ import { quantileSorted } from '../quantile.ts';
 import { blockBootstrap, blockLengthFor, prefixSums, type Interval, type Replicate } from './block-bootstrap.ts';
 import type { SourceName } from './case.ts';
 import type { ClimatologicalRate } from './climatological-rates.ts';
-import { COST_LOSS_RATIOS, valueCurve, type ValuePoint } from './economic-value.ts';
+import { COST_LOSS_RATIOS, valueCurveFromRoc, type ValuePoint } from './economic-value.ts';
 import { exceedanceBrier } from './exceedance-brier.ts';
 import { scoresByForecastClass, type FlowClassScores } from './forecast-flow-classes.ts';
 import { GrowableF64 } from './growable.ts';
 import { jsonNumber } from './json-number.ts';
 import type { SeasonalClimatology } from './reference-forecasts.ts';
 import { reliabilityDiagram } from './reliability-diagram.ts';
-import { rocAreaSorted, rocCurve, rocOrder, thinRocPoints, type RocPoint } from './roc.ts';
+import { rocFromTable, rocPlacementSums, rocTable, thinRocPoints, type RocPoint } from './roc.ts';
 import { thresholdWeightedCrpsSorted } from './threshold-weighted-crps.ts';
 import { ValueSorter } from './value-sorter.ts';
 import { contingencyScores, type WarningContingency } from './warning-contingency.ts';
@@ -330,9 +330,11 @@ export function createWarningVerification(options: WarningOptions): WarningVerif
           }
           const b = exceedanceBrier(p, o, c, bins);
           const diagram = reliabilityDiagram(p, o, { bins, resamples, level, seed });
-          const roc = rocCurve(p, o);
-          const order = rocOrder(p, o);
-          const vc = valueCurve(p, o, options.costLossRatios ?? COST_LOSS_RATIOS);
+          const table = rocTable(p, o, group ?? undefined);
+          const roc = rocFromTable(table);
+          const place = rocPlacementSums(table, nRuns);
+          const [pV10, pEv, pV01, pNon] = [place.v10, place.events, place.v01, place.nonEvents].map(prefixSums);
+          const vc = valueCurveFromRoc(roc, options.costLossRatios ?? COST_LOSS_RATIOS);
           const lvl = options.attentionLevel;
           const pA = byRun((i) => (p[i] >= lvl && o[i] > 0 ? 1 : 0));
           const pB = byRun((i) => (p[i] >= lvl && o[i] === 0 ? 1 : 0));
@@ -341,7 +343,8 @@ export function createWarningVerification(options: WarningOptions): WarningVerif
           const ids = {
             brier: register(ratio(pBs, pN)),
             skill: Number.isFinite(c) ? register(skill(pBs, pRef)) : -1,
-            area: register((rep) => rocAreaSorted(order, p, o, rep.weights(), group ?? undefined)),
+            // Linearised (DeLong placements): see rocPlacementSums.
+            area: register((rep) => rep.sum(pV10) / rep.sum(pEv) + rep.sum(pV01) / rep.sum(pNon) - place.area),
             hit: register((rep) => {
               const a = rep.sum(pA);
               return a / (a + rep.sum(pC));

@@ -1,8 +1,14 @@
 import { readFileSync } from 'node:fs';
 import { describe, expect, it } from 'vitest';
 import { crpsEnsemble } from '../../../src/core/crps.ts';
+import { createPrng } from '../../../src/core/prng.ts';
 import {
+  blockBootstrap,
   exceedanceBrier,
+  prefixSums,
+  rocAreaWeighted,
+  rocPlacementSums,
+  rocTable,
   probabilityBin,
   reliabilityDiagram,
   relativeValue,
@@ -119,5 +125,52 @@ describe('threshold-weighted CRPS', () => {
 describe('probability bins', () => {
   it('are closed on the right, as numpy.searchsorted on the inner edges (what calibration_curve uses)', () => {
     expect([0, 0.1, 0.1000001, 0.7, 0.70001, 1].map((p) => probabilityBin(p, 10))).toEqual([0, 0, 1, 6, 7, 9]);
+  });
+});
+
+describe('consistency bars (Bröcker & Smith 2007)', () => {
+  it('the normal limit used for large bins agrees with case-by-case resampling', () => {
+    const g = createPrng(4);
+    const p = Array.from({ length: 3000 }, () => g.nextFloat());
+    const o = p.map((x) => (g.nextFloat() < x ? 1 : 0));
+    const exact = reliabilityDiagram(p, o, { resamples: 2000, exactUpTo: 10_000, seed: 2 });
+    const approx = reliabilityDiagram(p, o, { resamples: 2000, exactUpTo: 0 });
+    exact.forEach((b, k) => {
+      const width = b.consistencyHigh - b.consistencyLow;
+      expect(Math.abs(approx[k].consistencyHigh - approx[k].consistencyLow - width)).toBeLessThan(0.1 * width);
+      expect(Math.abs(approx[k].consistencyLow - b.consistencyLow)).toBeLessThan(0.1 * width);
+    });
+  });
+});
+
+describe('ROC area intervals', () => {
+  it('the linearised replicate area (DeLong et al. 1988 placements) follows the exact reweighted area closely', () => {
+    const g = createPrng(8);
+    const nRuns = 400;
+    const H = 5;
+    const prob: number[] = [];
+    const outcome: number[] = [];
+    const group: number[] = [];
+    for (let r = 0; r < nRuns; r++) {
+      for (let k = 0; k < H; k++) {
+        const x = g.normal();
+        prob.push(Math.round(100 / (1 + Math.exp(-1.5 * x))) / 100);
+        outcome.push(g.nextFloat() < 1 / (1 + Math.exp(-(x - 0.8))) ? 1 : 0);
+        group.push(r);
+      }
+    }
+    const t = rocTable(prob, outcome, group);
+    const place = rocPlacementSums(t, nRuns);
+    expect(place.area).toBeCloseTo(rocCurve(prob, outcome).area, 14);
+    const [a, b, c, d] = [place.v10, place.events, place.v01, place.nonEvents].map(prefixSums);
+    const scratch = { ev: new Float64Array(t.levels.length), non: new Float64Array(t.levels.length) };
+    const [exact, linear] = blockBootstrap(
+      nRuns,
+      [(rep) => rocAreaWeighted(t, rep.weights(), scratch), (rep) => rep.sum(a) / rep.sum(b) + rep.sum(c) / rep.sum(d) - place.area],
+      { blockLength: H, replicates: 400, seed: 3 },
+    );
+    expect(Math.abs(linear.low - exact.low)).toBeLessThan(0.005);
+    expect(Math.abs(linear.high - exact.high)).toBeLessThan(0.005);
+    expect(exact.high - exact.low).toBeGreaterThan(0.02);
   });
 });
