@@ -1,6 +1,6 @@
 import { crpsSorted } from '../crps.ts';
 import { quantileSorted } from '../quantile.ts';
-import { blockBootstrap, blockLengthFor, prefixSums, type Interval, type Replicate } from './block-bootstrap.ts';
+import { blockBootstrapColumns, blockLengthFor, type Interval } from './block-bootstrap.ts';
 import type { SourceName } from './case.ts';
 import type { ClimatologicalRate } from './climatological-rates.ts';
 import { COST_LOSS_RATIOS, valueCurveFromRoc, type ValuePoint } from './economic-value.ts';
@@ -279,20 +279,30 @@ export function createWarningVerification(options: WarningOptions): WarningVerif
     const bins = options.reliabilityBins ?? 10;
     const resamples = options.diagramResamples ?? 200;
     const L = Math.min(Math.max(1, nRuns), blockLengthFor(issueMs, maxLeads * options.stepMs));
-    const stats: ((rep: Replicate) => number)[] = [];
-    const register = (f: (rep: Replicate) => number): number => stats.push(f) - 1;
-    /** Prefix sums over runs of per-case values (cases where keep(c) and the value is finite). */
-    const perRun = (v: (c: number) => number): Float64Array => {
+    // Statistics are functions of per-run sums ("columns"); the bootstrap re-sums the columns per replicate.
+    const stats: ((sums: Float64Array) => number)[] = [];
+    const register = (f: (sums: Float64Array) => number): number => stats.push(f) - 1;
+    const columns: Float64Array[] = [];
+    const totals: number[] = [];
+    /** A column of per-run sums; returns its index. */
+    const addColumn = (a: Float64Array): number => {
+      let t = 0;
+      for (let i = 0; i < a.length; i++) if (!Number.isNaN(a[i])) t += a[i];
+      totals.push(t);
+      return columns.push(a) - 1;
+    };
+    /** Per-run sums of per-case values (finite ones only). */
+    const perRun = (v: (c: number) => number): number => {
       const a = new Float64Array(nRuns);
       for (let c = 0; c < nCases; c++) {
         const x = v(c);
         if (Number.isFinite(x)) a[cRun[c]] += x;
       }
-      return prefixSums(a);
+      return addColumn(a);
     };
-    const total = (p: Float64Array) => p[p.length - 1];
-    const ratio = (a: Float64Array, b: Float64Array) => (rep: Replicate) => rep.sum(a) / rep.sum(b);
-    const skill = (a: Float64Array, b: Float64Array) => (rep: Replicate) => 1 - rep.sum(a) / rep.sum(b);
+    const total = (col: number) => totals[col];
+    const ratio = (a: number, b: number) => (S: Float64Array) => S[a] / S[b];
+    const skill = (a: number, b: number) => (S: Float64Array) => 1 - S[a] / S[b];
     // Deferred outputs: built once the bootstrap intervals are known.
     const finish: ((iv: Interval[]) => void)[] = [];
 
@@ -302,7 +312,7 @@ export function createWarningVerification(options: WarningOptions): WarningVerif
       kind === 'lead-time'
         ? { p: prob[s][t].view(), o: Float64Array.from(cObs, (y) => (y > thr[t] ? 1 : 0)), group: cRun }
         : { p: probAny[s][t].view(), o: obsAny[t].view(), group: null as Float64Array | null };
-    const anyTimeBrierPrefix: Float64Array[][] = Array.from({ length: S }, () => []);
+    const anyTimeBrierPrefix: number[][] = Array.from({ length: S }, () => []);
     let anyTimeRuns = 0;
     for (let t = 0; t < T; t++) {
       for (const kind of ['lead-time', 'any-time'] as const) {
@@ -315,10 +325,10 @@ export function createWarningVerification(options: WarningOptions): WarningVerif
           // Keep cases with both a probability and an outcome.
           const n = p.length;
           const valid = (i: number) => !Number.isNaN(p[i]) && !Number.isNaN(o[i]);
-          const byRun = (v: (i: number) => number): Float64Array => {
+          const byRun = (v: (i: number) => number): number => {
             const a = new Float64Array(nRuns);
             for (let i = 0; i < n; i++) if (valid(i)) a[group ? group[i] : i] += v(i);
-            return prefixSums(a);
+            return addColumn(a);
           };
           const pBs = byRun((i) => (p[i] - o[i]) ** 2);
           const pRef = byRun((i) => (c - o[i]) ** 2);
@@ -333,7 +343,7 @@ export function createWarningVerification(options: WarningOptions): WarningVerif
           const table = rocTable(p, o, group ?? undefined);
           const roc = rocFromTable(table);
           const place = rocPlacementSums(table, nRuns);
-          const [pV10, pEv, pV01, pNon] = [place.v10, place.events, place.v01, place.nonEvents].map(prefixSums);
+          const [pV10, pEv, pV01, pNon] = [place.v10, place.events, place.v01, place.nonEvents].map(addColumn);
           const vc = valueCurveFromRoc(roc, options.costLossRatios ?? COST_LOSS_RATIOS);
           const lvl = options.attentionLevel;
           const pA = byRun((i) => (p[i] >= lvl && o[i] > 0 ? 1 : 0));
@@ -344,19 +354,10 @@ export function createWarningVerification(options: WarningOptions): WarningVerif
             brier: register(ratio(pBs, pN)),
             skill: Number.isFinite(c) ? register(skill(pBs, pRef)) : -1,
             // Linearised (DeLong placements): see rocPlacementSums.
-            area: register((rep) => rep.sum(pV10) / rep.sum(pEv) + rep.sum(pV01) / rep.sum(pNon) - place.area),
-            hit: register((rep) => {
-              const a = rep.sum(pA);
-              return a / (a + rep.sum(pC));
-            }),
-            far: register((rep) => {
-              const b2 = rep.sum(pB);
-              return b2 / (rep.sum(pA) + b2);
-            }),
-            csi: register((rep) => {
-              const a = rep.sum(pA);
-              return a / (a + rep.sum(pB) + rep.sum(pC));
-            }),
+            area: register((S) => S[pV10] / S[pEv] + S[pV01] / S[pNon] - place.area),
+            hit: register((S) => S[pA] / (S[pA] + S[pC])),
+            far: register((S) => S[pB] / (S[pA] + S[pB])),
+            csi: register((S) => S[pA] / (S[pA] + S[pB] + S[pC])),
           };
           const name = options.sources[s];
           finish.push((iv) => {
@@ -409,24 +410,48 @@ export function createWarningVerification(options: WarningOptions): WarningVerif
     }
     const leads = [...new Set(cLead)].sort((a, b) => a - b);
     const skillOut: Partial<Record<SourceName, SourceSkill>> = {};
-    const crpsPrefix: Float64Array[] = [];
-    const twPrefix: Float64Array[] = [];
+    const crpsPrefix: number[] = [];
+    const twPrefix: number[] = [];
     const pCount = perRun(() => 1);
-    const skillRow = (s: number, keep: (c: number) => boolean) => {
+    const leadIndex = new Map(leads.map((k, i) => [k, i]));
+    /**
+     * CRPS rows of source s, overall (row 0) and per lead (row 1 + lead index), from one pass over
+     * the cases: per-run sums of CRPS, cases, CRPS where the climatology exists and its CRPS, the
+     * same for persistence.
+     */
+    const skillRows = (s: number) => {
       const cr = crps[s].view();
-      const pCr = perRun((c) => (keep(c) ? cr[c] : NaN));
-      const pN = perRun((c) => (keep(c) ? 1 : NaN));
-      const pCrC = perRun((c) => (keep(c) && Number.isFinite(climV[c]) ? cr[c] : NaN));
-      const pClim = perRun((c) => (keep(c) ? climV[c] : NaN));
-      const pCrP = perRun((c) => (keep(c) && Number.isFinite(persV[c]) ? cr[c] : NaN));
-      const pPers = perRun((c) => (keep(c) ? persV[c] : NaN));
-      const ids = [register(ratio(pCr, pN)), register(skill(pCrC, pClim)), register(skill(pCrP, pPers))];
-      const est = [total(pCr) / total(pN), 1 - total(pCrC) / total(pClim), 1 - total(pCrP) / total(pPers)];
-      return { pCr, n: total(pN), ids, est };
+      const nRows = 1 + leads.length;
+      const cols = Array.from({ length: nRows * 6 }, () => new Float64Array(nRuns));
+      for (let c = 0; c < nCases; c++) {
+        const r = cRun[c];
+        const x = cr[c];
+        for (const row of [0, 1 + leadIndex.get(cLead[c])!]) {
+          const o = row * 6;
+          cols[o][r] += x;
+          cols[o + 1][r] += 1;
+          if (Number.isFinite(climV[c])) {
+            cols[o + 2][r] += x;
+            cols[o + 3][r] += climV[c];
+          }
+          if (Number.isFinite(persV[c])) {
+            cols[o + 4][r] += x;
+            cols[o + 5][r] += persV[c];
+          }
+        }
+      }
+      return Array.from({ length: nRows }, (_, row) => {
+        const [pCr, pN, pCrC, pClim, pCrP, pPers] = cols.slice(row * 6, row * 6 + 6).map(addColumn);
+        const ids = [register(ratio(pCr, pN)), register(skill(pCrC, pClim)), register(skill(pCrP, pPers))];
+        const est = [total(pCr) / total(pN), 1 - total(pCrC) / total(pClim), 1 - total(pCrP) / total(pPers)];
+        return { pCr, n: total(pN), ids, est };
+      });
     };
+    type SkillCols = ReturnType<typeof skillRows>[number];
     for (let s = 0; s < S; s++) {
       const name = options.sources[s];
-      const all = skillRow(s, () => true);
+      const rowsOfSource = skillRows(s);
+      const all = rowsOfSource[0];
       crpsPrefix[s] = all.pCr;
       const twV = tw[s].view();
       const pTw = perRun((c) => twV[c]);
@@ -435,10 +460,10 @@ export function createWarningVerification(options: WarningOptions): WarningVerif
       const pClimTw = perRun((c) => climTwV[c]);
       const twIds = [register(ratio(pTw, pCount)), register(skill(pTwC, pClimTw))];
       const twEst = [total(pTw) / total(pCount), 1 - total(pTwC) / total(pClimTw)];
-      const byLead = leads.map((k) => ({ k, row: skillRow(s, (c) => cLead[c] === k) }));
+      const byLead = leads.map((k, i) => ({ k, row: rowsOfSource[1 + i] }));
       const classes = scoresByForecastClass(median[s].view(), cObs, crps[s].view(), climV, options.thresholds);
       finish.push((iv) => {
-        const rowJson = (x: ReturnType<typeof skillRow>): SkillRow => ({
+        const rowJson = (x: SkillCols): SkillRow => ({
           n: x.n,
           crps: scored(x.est[0], iv[x.ids[0]]),
           crpsSkillClimatology: scored(x.est[1], iv[x.ids[1]]),
@@ -458,9 +483,9 @@ export function createWarningVerification(options: WarningOptions): WarningVerif
     const pairs: [number, number][] = [];
     for (let a = 1; a < S; a++) for (let b = 0; b < a; b++) pairs.push([a, b]);
     for (const [a, b] of pairs) {
-      const diff = (pa: Float64Array, pb: Float64Array, pn: Float64Array) => ({
+      const diff = (pa: number, pb: number, pn: number) => ({
         est: (total(pa) - total(pb)) / total(pn),
-        id: register((rep) => (rep.sum(pa) - rep.sum(pb)) / rep.sum(pn)),
+        id: register((S) => (S[pa] - S[pb]) / S[pn]),
       });
       const dC = diff(crpsPrefix[a], crpsPrefix[b], pCount);
       const dT = diff(twPrefix[a], twPrefix[b], pCount);
@@ -476,7 +501,7 @@ export function createWarningVerification(options: WarningOptions): WarningVerif
       });
     }
 
-    const iv = blockBootstrap(nRuns, stats, { blockLength: L, replicates: R, level, seed });
+    const iv = nRuns ? blockBootstrapColumns(columns, stats, { blockLength: L, replicates: R, level, seed }) : stats.map(() => ({ low: NaN, high: NaN }));
     for (const f of finish) f(iv);
     return {
       settings: {
