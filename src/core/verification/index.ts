@@ -26,3 +26,4 @@ export * from './two-sided-drift.ts';
 export * from './warning-verification.ts';
 export * from './stored-run-warnings.ts';
 export * from './warning-references.ts';
+export * from './hindcast-warnings.ts';

@@ -7,8 +7,10 @@ import {
   climatologicalRates,
   createWarningVerification,
   exceedanceBrier,
+  HindcastWarningCollector,
   persistenceValue,
   prefixSums,
+  runHindcast,
   scoresByForecastClass,
   seasonalClimatology,
   twoSidedDriftChecks,
@@ -335,5 +337,24 @@ describe('stored runs and references for the warning verification', () => {
     expect(ref.climatologicalRates![0].windows).toBe(7);
     expect(ref.climatologicalRates![0].anyTime).toBe(1);
     expect(ref.climatology!.size).toBe(14);
+  });
+});
+
+describe('hindcast cases gathered back into runs', () => {
+  it('rebuilds each issue’s member paths, with unobserved leads missing', () => {
+    const nIssues = 3;
+    const M = 2;
+    const H = 3;
+    const raw = Float64Array.from({ length: nIssues * M * H }, (_, i) => i);
+    const observed = [1, 2, 3, 4, null, 6, 7, 8, 9];
+    const runs: WarningRun[] = [];
+    const collect = new HindcastWarningCollector(H, (i) => ({ issueMs: i * DAY, validMs: [1, 2, 3].map((k) => (i + k) * DAY), persistence: i }), (r) => runs.push(r));
+    runHindcast({ nIssues, nMembers: M, nLeads: H, raw, observed, archive: null, correct: (r, _i, out) => out.set(r.map((v) => v + 100)) }, (c, issue) => collect.add(c, issue));
+    collect.finish();
+    expect(runs.length).toBe(3);
+    expect(Array.from(runs[1].observed)).toEqual([4, NaN, 6]);
+    expect(Array.from(runs[1].sources[0].values)).toEqual([6, NaN, 8, 9, NaN, 11]);
+    expect(Array.from(runs[1].sources[1].values)).toEqual([106, NaN, 108, 109, NaN, 111]);
+    expect(runs[2].persistence).toBe(2);
   });
 });
