@@ -1,4 +1,5 @@
 import { formatDurationSeconds } from '../core/iso-duration.ts';
+import { COARSE_TRAJECTORIES, monteCarloStandardError } from '../core/stochastic-stage.ts';
 import { CAUTION } from './caution.ts';
 import { isoUtc } from './series-input.ts';
 
@@ -28,7 +29,23 @@ export interface ForecastView {
   leadTimes: string[];
   validTimes: string[];
   quantiles: { probabilities: number[]; values: number[][] };
-  thresholds: { label: string; value: number; exceedance: number[]; anyTime: number; firstLikelyLeadTime: string | null; attention: boolean }[];
+  /**
+   * Per threshold: P(flow > value) per lead and at any time in the horizon, each with its
+   * Monte-Carlo standard error √(p(1 − p)/trajectories) (binomial; an upper bound with several members,
+   * whose draws are stratified). Absent on runs stored before it was recorded.
+   */
+  thresholds: {
+    label: string;
+    value: number;
+    exceedance: number[];
+    exceedanceStandardError?: number[];
+    anyTime: number;
+    anyTimeStandardError?: number;
+    firstLikelyLeadTime: string | null;
+    attention: boolean;
+  }[];
+  /** Present when the run has fewer than COARSE_TRAJECTORIES trajectories: the probabilities are coarse. */
+  probabilityNote?: string;
   ensemble: { raw: { id: string; values: number[] }[]; corrected: { id: string; values: number[] }[] | null };
   recent: { times: string[]; observed: (number | null)[] };
   timings: { featuresMs: number; inferenceMs: number; stochasticMs: number; totalMs: number };
@@ -106,19 +123,27 @@ export function buildForecastView(v: ViewInput): ForecastView {
     thresholds: v.gauge.thresholds.map((t, j) => {
       const anyTime = round(v.anyTime[j]);
       const first = v.firstLikelyLead[j];
+      const exceedance = Array.from({ length: H }, (_, k) => round(v.exceedance[j * H + k]));
       return {
         label: t.label,
         value: t.value,
-        exceedance: Array.from({ length: H }, (_, k) => round(v.exceedance[j * H + k])),
+        exceedance,
+        exceedanceStandardError: exceedance.map((p) => round(monteCarloStandardError(p, v.nDraws))),
         anyTime,
+        anyTimeStandardError: round(monteCarloStandardError(anyTime, v.nDraws)),
         firstLikelyLeadTime: first === null || first === undefined ? null : formatDurationSeconds((first + 1) * v.gauge.stepSeconds),
         attention: anyTime >= v.attentionLevel,
       };
     }),
+    ...(v.nDraws < COARSE_TRAJECTORIES ? { probabilityNote: coarseNote(v.nDraws) } : {}),
     ensemble: { raw: members(v.raw), corrected: v.corrected ? members(v.corrected) : null },
     recent: v.recent,
     timings: v.timings,
   };
+}
+
+function coarseNote(n: number): string {
+  return `Only ${n} trajectories: the probabilities are coarse (steps of ${round(100 / n, 1)} points, standard error up to ${round(50 / Math.sqrt(n), 1)} points); ask for at least ${COARSE_TRAJECTORIES}.`;
 }
 
 const pct = (p: number) => (p >= 0.995 ? '>99%' : p > 0 && p < 0.005 ? '<1%' : `${Math.round(p * 100)}%`);
@@ -156,6 +181,8 @@ export function forecastText(f: ForecastView): string {
     ...rows.map(line),
     '',
     f.thresholds.some((t) => t.attention) ? `! = probability at or above the attention level (${pct(f.attentionLevel)})` : `no threshold reaches the attention level (${pct(f.attentionLevel)})`,
+    `sampling error of each probability: at most ±${round(50 / Math.sqrt(f.trajectories), 1)} points (one standard error, ${f.trajectories} trajectories)`,
+    ...(f.probabilityNote ? [`NOTE: ${f.probabilityNote}`] : []),
     '',
   ].join('\n');
 }

@@ -29,7 +29,8 @@ const PeriodBody = z.strictObject({ from: Rfc3339, to: Rfc3339 }).refine((p) => 
 const Transform = z.discriminatedUnion('kind', [
   z.strictObject({ kind: z.literal('none') }),
   z.strictObject({ kind: z.literal('log'), offset: z.number().positive().optional() }),
-  z.strictObject({ kind: z.literal('boxcox'), lambda: z.number().min(-2).max(2), offset: z.number().positive().optional() }),
+  // λ < 0 is refused here, before any training: its back-transform runs to infinite flow for large errors.
+  z.strictObject({ kind: z.literal('boxcox'), lambda: z.number().min(0, 'Box–Cox needs λ ≥ 0 (λ = 0 is the log); λ < 0 back-transforms large errors to infinite flow').max(2), offset: z.number().positive().optional() }),
 ]);
 
 const TrainerParams = z.record(z.string(), z.number().finite());
@@ -171,7 +172,8 @@ export async function modelRoutes(app: FastifyInstance, { services }: { services
         label: body.label,
         featureSpec: spec,
         trainer: { kind: 'uploaded', description: body.description ?? null, producer: summary.producer, opsets: summary.opsets, bytes: onnx.length },
-        periods: { validation: out.scores.period },
+        // Trained elsewhere: whether the validation period was seen in training is not known here.
+        periods: { validation: out.scores.period, archive: out.scores.period, archiveSource: 'unknown (trained elsewhere)' },
         scores,
         createdBy: req.principal?.tokenId ?? null,
         parts: [onnx],

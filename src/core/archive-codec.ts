@@ -1,4 +1,4 @@
-import { rankTemplateValues, validateArchive, type ErrorArchive } from './error-archive.ts';
+import { archiveStrata, rankTemplateValues, validateArchive, type ErrorArchive, type NeighbourSettings } from './error-archive.ts';
 import type { ErrorTransform } from './error-transform.ts';
 
 /**
@@ -9,9 +9,10 @@ import type { ErrorTransform } from './error-transform.ts';
  *   0   4 bytes  ASCII "ERRA"
  *   4   uint32   layout version (1)
  *   8   uint32   byte length J of the JSON header
- *   12  J bytes  UTF-8 JSON {format, transform, nLeads, templateLength, nCases, nTemplates, seriesLength}
+ *   12  J bytes  UTF-8 JSON {format, transform, nLeads, templateLength, nCases, nTemplates, seriesLength,
+ *                neighbours?, issueErrorEdges?, leadScale?}
  *   then, each starting at a multiple of 8 bytes (zero padding):
- *       groupStart Int32[max(nLeads,1)+1], predictor Float64[nCases], error Float64[nCases],
+ *       groupStart Int32[max(nLeads,1)·strata+1], predictor Float64[nCases], error Float64[nCases],
  *       dayOfYear Uint16[nCases], templateValues Float64[seriesLength] (NaN = missing),
  *       templateStart Int32[nTemplates], templateDayOfYear Uint16[nTemplates]
  * Size ≈ 18 bytes per case + 8 per template series value + 6 per template.
@@ -30,6 +31,9 @@ interface Header {
   nCases: number;
   nTemplates: number;
   seriesLength: number;
+  neighbours?: NeighbourSettings;
+  issueErrorEdges?: number[];
+  leadScale?: number[];
 }
 
 function assertLittleEndian(): void {
@@ -50,6 +54,9 @@ export function archiveToBytes(a: ErrorArchive): Uint8Array {
     nCases: a.predictor.length,
     nTemplates: a.templateStart.length,
     seriesLength: a.templateValues.length,
+    ...(a.neighbours ? { neighbours: a.neighbours } : {}),
+    ...(a.issueErrorEdges ? { issueErrorEdges: Array.from(a.issueErrorEdges) } : {}),
+    ...(a.leadScale ? { leadScale: Array.from(a.leadScale) } : {}),
   };
   const json = new TextEncoder().encode(JSON.stringify(header));
   const sections: ArrayBufferView[] = [
@@ -96,7 +103,8 @@ export function archiveFromBytes(bytes: Uint8Array): ErrorArchive {
     off += pad8(len);
     return make(buf);
   };
-  const groupStart = take(Math.max(h.nLeads, 1) + 1, 4, (b) => new Int32Array(b));
+  const issueErrorEdges = h.issueErrorEdges ? Float64Array.from(h.issueErrorEdges) : undefined;
+  const groupStart = take(Math.max(h.nLeads, 1) * archiveStrata({ issueErrorEdges }) + 1, 4, (b) => new Int32Array(b));
   const predictor = take(h.nCases, 8, (b) => new Float64Array(b));
   const error = take(h.nCases, 8, (b) => new Float64Array(b));
   const dayOfYear = take(h.nCases, 2, (b) => new Uint16Array(b));
@@ -116,6 +124,9 @@ export function archiveFromBytes(bytes: Uint8Array): ErrorArchive {
     templateStart,
     templateDayOfYear,
     templateRank: rankTemplateValues(templateValues, h.nLeads),
+    ...(h.neighbours ? { neighbours: h.neighbours } : {}),
+    ...(issueErrorEdges ? { issueErrorEdges } : {}),
+    ...(h.leadScale ? { leadScale: Float64Array.from(h.leadScale) } : {}),
   };
   validateArchive(a);
   return a;
@@ -134,6 +145,9 @@ export interface ErrorArchiveJson {
   templateValues: (number | null)[];
   templateStart: number[];
   templateDayOfYear: number[];
+  neighbours?: NeighbourSettings;
+  issueErrorEdges?: number[];
+  leadScale?: number[];
 }
 
 export function archiveToJSON(a: ErrorArchive): ErrorArchiveJson {
@@ -149,6 +163,9 @@ export function archiveToJSON(a: ErrorArchive): ErrorArchiveJson {
     templateValues: Array.from(a.templateValues, (v) => (Number.isNaN(v) ? null : v)),
     templateStart: Array.from(a.templateStart),
     templateDayOfYear: Array.from(a.templateDayOfYear),
+    ...(a.neighbours ? { neighbours: a.neighbours } : {}),
+    ...(a.issueErrorEdges ? { issueErrorEdges: Array.from(a.issueErrorEdges) } : {}),
+    ...(a.leadScale ? { leadScale: Array.from(a.leadScale) } : {}),
   };
 }
 
@@ -167,6 +184,9 @@ export function archiveFromJSON(j: ErrorArchiveJson): ErrorArchive {
     templateStart: Int32Array.from(j.templateStart),
     templateDayOfYear: Uint16Array.from(j.templateDayOfYear),
     templateRank: rankTemplateValues(templateValues, j.nLeads),
+    ...(j.neighbours ? { neighbours: j.neighbours } : {}),
+    ...(j.issueErrorEdges ? { issueErrorEdges: Float64Array.from(j.issueErrorEdges) } : {}),
+    ...(j.leadScale ? { leadScale: Float64Array.from(j.leadScale) } : {}),
   };
   validateArchive(a);
   return a;

@@ -5,6 +5,7 @@ import {
   type ErrorTransform,
   type ErrorTransformSpec,
 } from './error-transform.ts';
+import { NEIGHBOUR_KERNELS, type NeighbourKernel } from './knn.ts';
 
 /**
  * Error archive for the stochastic error stage: past cases of (predictor = corrected flow,
@@ -14,19 +15,24 @@ import {
  * bytes (archive-codec.ts).
  *
  * Cases are grouped by lead index; a lead-free archive (nLeads = 0, from a continuous
- * simulation) has one group serving every lead. Within a group, cases are sorted ascending by
+ * simulation) has one group serving every lead. Archives whose cases know the error at their
+ * issue time (past runs, pseudo-forecasts) may also split each lead into strata of that issue
+ * error (issueErrorEdges, ascending; S = edges + 1 strata), so a run issued while the model is far
+ * off draws errors from similar situations. Within a group, cases are sorted ascending by
  * predictor so the nearest neighbours of a value are found by binary search.
  *
- *   group g (0 … max(nLeads, 1) − 1) = cases groupStart[g] … groupStart[g + 1] − 1
+ *   group g = lead group · S + stratum (lead group 0 … max(nLeads, 1) − 1)
+ *           = cases groupStart[g] … groupStart[g + 1] − 1
  *   predictor[i]  corrected flow of case i (m³/s)
  *   error[i]      T(observed) − T(corrected) in the archive's transform space
  *   dayOfYear[i]  day of year (1 … 366) of the case's valid time
  *
  * Templates: templateValues is one series of historical errors (transform space, NaN where the
- * observation was missing). Template t at lead h is templateValues[templateStart[t] + h],
- * h < templateLength. Lead-free archives store the error series itself and templates are
- * windows starting on consecutive (or every `templateStride`-th) days with no gap; reforecast
- * archives store the issue × lead error matrix row-major and each complete issue row is a
+ * observation was missing and no template covers it). Template t at lead h is
+ * templateValues[templateStart[t] + h], h < templateLength. Lead-free archives store the error
+ * series itself and templates are windows starting on consecutive (or every `templateStride`-th)
+ * days with at most TEMPLATE_MAX_MISSING missing, filled by interpolation; reforecast archives
+ * store the issue × lead error matrix row-major and each issue row as nearly complete is a
  * template. templateDayOfYear[t] is the day of year of the template's first value (lead 0).
  * templateRank is derived, not stored: the rank of each series value (ties broken by position,
  * missing = 0xffffffff) among all finite values (lead-free) or within its lead column
@@ -47,7 +53,43 @@ export interface ErrorArchive {
   templateStart: Int32Array;
   templateDayOfYear: Uint16Array;
   templateRank: Uint32Array;
+  /** Neighbour kernel and k = round(kScale·√n) chosen on held-out data at fit time (absent: 1/j, √n). */
+  neighbours?: NeighbourSettings;
+  /** Edges of the issue-error strata (transform space, ascending); absent = one stratum. */
+  issueErrorEdges?: Float64Array;
+  /**
+   * Lead-free archives: factor per lead (index h; leads past the end use the last) by which the
+   * stage scales the drawn errors, so bands grow with lead as forecast errors do (see
+   * lead-growth.ts); absent = errors do not grow with lead.
+   */
+  leadScale?: Float64Array;
 }
+
+/** Number of issue-error strata of an archive. */
+export function archiveStrata(a: Pick<ErrorArchive, 'issueErrorEdges'>): number {
+  return (a.issueErrorEdges?.length ?? 0) + 1;
+}
+
+/** The stratum (0 … edges.length) of an issue error: how many edges lie at or below it. */
+export function stratumOf(edges: ArrayLike<number> | undefined, e: number): number {
+  let s = 0;
+  if (edges) while (s < edges.length && edges[s] <= e) s++;
+  return s;
+}
+
+/** Cases of lead group g over all its strata. */
+export function casesInLeadGroup(a: Pick<ErrorArchive, 'groupStart' | 'issueErrorEdges'>, g: number): number {
+  const S = archiveStrata(a);
+  return a.groupStart[(g + 1) * S] - a.groupStart[g * S];
+}
+
+export interface NeighbourSettings {
+  kernel: NeighbourKernel;
+  kScale: number;
+}
+
+/** Largest share of a template window that may be missing (filled from its neighbours). */
+export const TEMPLATE_MAX_MISSING = 0.1;
 
 export const MISSING_RANK = 0xffffffff;
 
@@ -105,24 +147,96 @@ function packCases(
   return { groupStart, predictor, error, dayOfYear };
 }
 
+/**
+ * Starts of the template windows [s, s + L) of an error series: every `stride`-th window whose
+ * missing values are at most TEMPLATE_MAX_MISSING of its length (real series have scattered gaps;
+ * demanding complete windows leaves none of a long horizon). With segmentLength, the series is
+ * equal segments laid end to end (members' series concatenated) and no window crosses from one
+ * segment into the next.
+ */
+export function templateWindowStarts(series: Float64Array, L: number, stride = 1, segmentLength = series.length): number[] {
+  const maxMissing = Math.floor(TEMPLATE_MAX_MISSING * L);
+  const starts: number[] = [];
+  let missing = 0;
+  let eligible = 0;
+  for (let e = 0; e < series.length; e++) {
+    if (Number.isNaN(series[e])) missing++;
+    const s = e - L + 1;
+    if (s > 0 && Number.isNaN(series[s - 1])) missing--;
+    const oneSegment = Math.floor(s / segmentLength) === Math.floor(e / segmentLength);
+    if (s >= 0 && oneSegment && missing <= maxMissing && missing < L) {
+      if (eligible % stride === 0) starts.push(s);
+      eligible++;
+    }
+  }
+  return starts;
+}
+
+/**
+ * Fills the missing values inside the template windows by linear interpolation between the
+ * nearest present values of the same segment (the nearest one at an edge). Only the templates'
+ * rank order uses the filled values; the kNN cases never do.
+ */
+export function fillTemplateGaps(series: Float64Array, starts: ArrayLike<number>, L: number, segmentLength = series.length): void {
+  const covered = new Int32Array(series.length + 1);
+  for (let t = 0; t < starts.length; t++) {
+    covered[starts[t]]++;
+    covered[starts[t] + L]--;
+  }
+  let depth = 0;
+  for (let i = 0; i < series.length; i++) {
+    depth += covered[i];
+    if (depth === 0 || !Number.isNaN(series[i])) continue;
+    const lo = Math.floor(i / segmentLength) * segmentLength;
+    const hi = Math.min(series.length, lo + segmentLength);
+    let a = i - 1;
+    while (a >= lo && Number.isNaN(series[a])) a--;
+    let b = i + 1;
+    while (b < hi && Number.isNaN(series[b])) b++;
+    const va = a >= lo ? series[a] : NaN;
+    const vb = b < hi ? series[b] : NaN;
+    series[i] = Number.isNaN(va) ? vb : Number.isNaN(vb) ? va : va + ((vb - va) * (i - a)) / (b - a);
+  }
+}
+
+/**
+ * Why an archive cannot serve runs of `horizon` steps with a Schaake shuffle, or null when it can:
+ * a lead without cases, or fewer than `minTemplates` templates of that length.
+ */
+export function templateShortfall(a: ErrorArchive, horizon: number, minTemplates = MIN_TEMPLATES): string | null {
+  for (let g = 0; g < Math.max(a.nLeads, 1); g++) {
+    if (casesInLeadGroup(a, g) === 0) return a.nLeads ? `no case at lead ${g + 1}` : 'no case (no step has both a simulated and an observed flow)';
+  }
+  if (a.templateLength < horizon) return `Schaake templates cover ${a.templateLength} steps; runs need ${horizon}`;
+  if (a.templateStart.length < minTemplates) {
+    return `only ${a.templateStart.length} Schaake templates of ${a.templateLength} steps (each may miss at most ${Math.round(TEMPLATE_MAX_MISSING * 100)} % of its observations); at least ${minTemplates} are needed: shorten templateLength or fill the observation gaps`;
+  }
+  return null;
+}
+
+/** Fewest templates an archive needs to serve runs (common practice here: fewer make the shuffle's dependence rest on a handful of past situations). */
+export const MIN_TEMPLATES = 20;
+
 export interface SeriesArchiveInput {
   /** Corrected (or raw) simulated flow per time step. */
   corrected: ArrayLike<number | null>;
-  /** Observed flow per time step; null/NaN = missing (case skipped, breaks template windows). */
+  /** Observed flow per time step; null/NaN = missing (case skipped; filled in template windows). */
   observed: ArrayLike<number | null>;
   /** Day of year (1 … 366) of each time step. */
   dayOfYear: ArrayLike<number>;
   transform?: ErrorTransformSpec;
   /** Length of each template window in steps: the longest horizon the archive can shuffle. */
   templateLength: number;
-  /** Keep every n-th complete window as a template (default 1: every start). */
+  /** Keep every n-th eligible window as a template (default 1: every start). */
   templateStride?: number;
+  /** The series is equal segments of this length end to end (members); windows stay in one. */
+  segmentLength?: number;
 }
 
 /**
  * Lead-free archive from a continuous series (e.g. a validation-period simulation after the
  * residual model): every step with both values is a case; templates are windows of
- * `templateLength` consecutive errors with no missing value.
+ * `templateLength` consecutive errors with at most TEMPLATE_MAX_MISSING of them missing.
  */
 export function buildArchiveFromSeries(input: SeriesArchiveInput): ErrorArchive {
   const { corrected, observed, dayOfYear } = input;
@@ -156,18 +270,10 @@ export function buildArchiveFromSeries(input: SeriesArchiveInput): ErrorArchive 
     doy[k] = dayOfYear[i];
     k++;
   }
-  // Window [s, s + L) is complete when it holds no missing value: track the last gap seen.
-  const starts: number[] = [];
-  let lastGap = -1;
-  let complete = 0;
-  for (let e = 0; e < S; e++) {
-    if (Number.isNaN(series[e])) lastGap = e;
-    const s = e - L + 1;
-    if (s >= 0 && lastGap < s) {
-      if (complete % stride === 0) starts.push(s);
-      complete++;
-    }
-  }
+  const segment = input.segmentLength ?? S;
+  if (!Number.isInteger(segment) || segment < 1) throw new RangeError('segmentLength must be a positive integer');
+  const starts = templateWindowStarts(series, L, stride, segment);
+  fillTemplateGaps(series, starts, L, segment);
   const templateStart = Int32Array.from(starts);
   const templateDayOfYear = Uint16Array.from(starts, (s) => dayOfYear[s]);
   return {
@@ -197,7 +303,8 @@ export interface ReforecastArchiveInput {
 
 /**
  * Archive from reforecasts: the case of (issue, lead) goes to the group of its lead; each issue
- * whose errors are complete over all leads is a template (its historical error trajectory).
+ * whose errors miss at most TEMPLATE_MAX_MISSING of its leads is a template (its historical error
+ * trajectory, gaps filled).
  */
 export function buildArchiveFromReforecasts(input: ReforecastArchiveInput): ErrorArchive {
   const { nIssues, nLeads, corrected, observed, dayOfYear } = input;
@@ -210,42 +317,88 @@ export function buildArchiveFromReforecasts(input: ReforecastArchiveInput): Erro
   }
   const transform = resolveTransform(input.transform ?? { kind: 'none' }, observed);
   const matrix = new Float64Array(size).fill(NaN);
-  let n = 0;
   for (let i = 0; i < size; i++) {
-    checkDayOfYear(dayOfYear[i], `dayOfYear[${i}]`);
     const c = corrected[i];
     const o = observed[i];
     if (!finite(c) || !finite(o)) continue;
     matrix[i] = forwardTransform(transform, o) - forwardTransform(transform, c);
-    n++;
+  }
+  return archiveFromErrorMatrix({ nIssues, nLeads, predictor: corrected, error: matrix, dayOfYear, transform });
+}
+
+/** Edges at the j/S quantiles (j = 1 … S − 1) of the finite issue errors, repeats dropped. */
+function issueErrorEdges(issueError: ArrayLike<number>, S: number): Float64Array | undefined {
+  if (!Number.isInteger(S) || S < 1) throw new RangeError('strata must be a positive integer');
+  const v = Float64Array.from(issueError).filter((x) => Number.isFinite(x)).sort();
+  if (S === 1 || v.length < 2 * S) return undefined;
+  const edges: number[] = [];
+  for (let j = 1; j < S; j++) {
+    const e = v[Math.floor((j * v.length) / S)];
+    if (!edges.length || e > edges[edges.length - 1]) edges.push(e);
+  }
+  return edges.length ? Float64Array.from(edges) : undefined;
+}
+
+/**
+ * Per-lead archive from an issue × lead matrix of predictors and errors (transform space, NaN =
+ * no case), laid out row-major; see buildArchiveFromReforecasts.
+ */
+export function archiveFromErrorMatrix(input: {
+  nIssues: number;
+  nLeads: number;
+  predictor: ArrayLike<number | null>;
+  error: Float64Array;
+  dayOfYear: ArrayLike<number>;
+  transform: ErrorTransform;
+  /** Error at each issue row's issue time (transform space; NaN = unknown): cases are split into strata of it. */
+  issueError?: ArrayLike<number>;
+  /** Strata of the issue error (default 5 when issueError is given). */
+  strata?: number;
+}): ErrorArchive {
+  const { nIssues, nLeads, predictor, error: matrix, dayOfYear, transform } = input;
+  if (input.issueError && input.issueError.length !== nIssues) throw new RangeError('issueError must hold one value per issue row');
+  const edges = input.issueError ? issueErrorEdges(input.issueError, input.strata ?? 5) : undefined;
+  const S = (edges?.length ?? 0) + 1;
+  let n = 0;
+  for (let i = 0; i < matrix.length; i++) {
+    checkDayOfYear(dayOfYear[i], `dayOfYear[${i}]`);
+    if (!Number.isNaN(matrix[i])) {
+      if (!finite(predictor[i])) throw new RangeError(`case ${i} has an error but no predictor`);
+      n++;
+    }
   }
   const group = new Int32Array(n);
   const pred = new Float64Array(n);
   const err = new Float64Array(n);
   const doy = new Uint16Array(n);
   const starts: number[] = [];
+  const maxMissing = Math.floor(TEMPLATE_MAX_MISSING * nLeads);
   let k = 0;
   for (let is = 0; is < nIssues; is++) {
-    let completeRow = true;
+    let missing = 0;
     for (let h = 0; h < nLeads; h++) {
       const i = is * nLeads + h;
       if (Number.isNaN(matrix[i])) {
-        completeRow = false;
+        missing++;
         continue;
       }
-      group[k] = h;
-      pred[k] = corrected[i] as number;
+      // A row with an unknown issue error joins the middle stratum.
+      const ie = input.issueError ? input.issueError[is] : NaN;
+      group[k] = h * S + (Number.isNaN(ie) ? S >> 1 : stratumOf(edges, ie));
+      pred[k] = predictor[i] as number;
       err[k] = matrix[i];
       doy[k] = dayOfYear[i];
       k++;
     }
-    if (completeRow) starts.push(is * nLeads);
+    if (missing <= maxMissing && missing < nLeads) starts.push(is * nLeads);
   }
+  fillTemplateGaps(matrix, starts, nLeads, nLeads);
   return {
     format: 1,
     transform,
     nLeads,
-    ...packCases(nLeads, group, pred, err, doy),
+    ...(edges ? { issueErrorEdges: edges } : {}),
+    ...packCases(nLeads * S, group, pred, err, doy),
     templateLength: nLeads,
     templateValues: matrix,
     templateStart: Int32Array.from(starts),
@@ -258,7 +411,23 @@ export function buildArchiveFromReforecasts(input: ReforecastArchiveInput): Erro
 export function validateArchive(a: ErrorArchive): void {
   if (a.format !== 1) throw new RangeError(`unsupported archive format ${String(a.format)}`);
   checkTransform(a.transform);
-  const nGroups = Math.max(a.nLeads, 1);
+  if (a.neighbours !== undefined) {
+    const { kernel, kScale } = a.neighbours;
+    if (!NEIGHBOUR_KERNELS.includes(kernel)) throw new RangeError(`unknown neighbour kernel ${String(kernel)}`);
+    if (!(typeof kScale === 'number' && kScale > 0 && Number.isFinite(kScale))) throw new RangeError('neighbour kScale must be a positive number');
+  }
+  if (a.leadScale !== undefined) {
+    if (a.nLeads !== 0) throw new RangeError('a lead scale is for lead-free archives');
+    if (a.leadScale.length === 0) throw new RangeError('leadScale must not be empty');
+    for (const g of a.leadScale) if (!(Number.isFinite(g) && g > 0)) throw new RangeError('leadScale factors must be positive and finite');
+  }
+  if (a.issueErrorEdges !== undefined) {
+    if (a.nLeads === 0) throw new RangeError('issue-error strata need a per-lead archive');
+    for (let j = 0; j < a.issueErrorEdges.length; j++) {
+      if (!Number.isFinite(a.issueErrorEdges[j]) || (j > 0 && !(a.issueErrorEdges[j] > a.issueErrorEdges[j - 1]))) throw new RangeError('issueErrorEdges must be finite and increasing');
+    }
+  }
+  const nGroups = Math.max(a.nLeads, 1) * archiveStrata(a);
   if (!Number.isInteger(a.nLeads) || a.nLeads < 0) throw new RangeError('nLeads must be an integer ≥ 0');
   if (a.groupStart.length !== nGroups + 1 || a.groupStart[0] !== 0 || a.groupStart[nGroups] !== a.predictor.length) {
     throw new RangeError('groupStart does not match the cases');

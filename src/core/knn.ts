@@ -84,3 +84,32 @@ export function circularDayDistance(a: number, b: number): number {
   if (!(d < 365.25)) d %= 365.25;
   return Math.min(d, 365.25 - d);
 }
+
+/** Neighbour kernels the stochastic stage can use to weight the k nearest cases by rank. */
+export type NeighbourKernel = 'lall-sharma' | 'uniform' | 'rank-gaussian';
+export const NEIGHBOUR_KERNELS: readonly NeighbourKernel[] = ['lall-sharma', 'uniform', 'rank-gaussian'];
+
+/**
+ * Cumulative kernel weights c[j] = Σ_{i ≤ j} w_i for the ranks j = 0 … k−1 (0 = nearest):
+ *  - 'lall-sharma': w_j = 1/(j + 1) (Lall & Sharma 1996);
+ *  - 'uniform':     w_j = 1 (every one of the k nearest equally likely);
+ *  - 'rank-gaussian': w_j = exp(−½ (j / (k/2))²), a Gaussian in rank with half of k as its
+ *    width (our own choice: between the two above in how much it leans on the nearest).
+ */
+export function kernelCumulative(kernel: NeighbourKernel, k: number, out: Float64Array = new Float64Array(k)): Float64Array {
+  let s = 0;
+  const width = k / 2;
+  for (let j = 0; j < k; j++) {
+    s += kernel === 'lall-sharma' ? 1 / (j + 1) : kernel === 'uniform' ? 1 : Math.exp(-0.5 * (j / width) ** 2);
+    out[j] = s;
+  }
+  return out;
+}
+
+/** Effective number of cases 1/Σp_j² of a kernel over k neighbours. */
+export function kernelEffectiveSize(kernel: NeighbourKernel, k: number): number {
+  const c = kernelCumulative(kernel, k);
+  let s2 = 0;
+  for (let j = 0; j < k; j++) s2 += ((c[j] - (j ? c[j - 1] : 0)) / c[k - 1]) ** 2;
+  return 1 / s2;
+}

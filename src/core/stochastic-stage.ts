@@ -1,47 +1,55 @@
-import type { ErrorArchive } from './error-archive.ts';
+import { archiveStrata, MISSING_RANK, stratumOf, type ErrorArchive } from './error-archive.ts';
 import { countAboveSorted } from './exceedance.ts';
-import { circularDayDistance, defaultK, harmonicCumulative } from './knn.ts';
-import { createPrng } from './prng.ts';
+import { circularDayDistance, defaultK, kernelCumulative, type NeighbourKernel } from './knn.ts';
+import { createPrng, type Prng } from './prng.ts';
 import { quantileSorted } from './quantile.ts';
-import { radixOrder, sortNonNegative, sortPackedKeys } from './radix-sort.ts';
+import { sortNonNegative } from './radix-sort.ts';
 import { forwardTransform } from './error-transform.ts';
 
 /**
- * Stochastic error stage: turns corrected members into N coherent trajectories carrying the
- * total predictive uncertainty (kNN error resampling, Lall & Sharma 1996; Schaake shuffle,
- * Clark et al. 2004). The same function serves raw members with an archive of raw errors.
+ * Stochastic error stage: turns corrected members into N member-coherent trajectories carrying
+ * the total predictive uncertainty (kNN error resampling, Lall & Sharma 1996; Schaake shuffle,
+ * Clark et al. 2004, applied to the errors as in ensemble copula coupling, Schefzik et al. 2013).
+ * The same function serves raw members with an archive of raw errors.
  *
  * Per call:
- *  1. For every (model, member, lead), the k archived cases nearest in predictor value (same
- *     lead group; optionally within ±seasonalWindowDays of the lead's valid day of year,
- *     circular) are looked up once; k = round(√n) of the candidates unless given.
- *  2. Each draw j picks one (model, member) uniformly; at each lead it picks one of that
- *     member's k neighbours with the 1/j kernel and adds its error in the archive's transform
- *     space: value = max(0, T⁻¹(T(member) + error)).
- *  3. Per lead the N values are sorted (quantiles and exceedance come from these marginals),
- *     then reordered across draws so their ranks follow N historical error trajectories
- *     (Schaake shuffle). Templates: those whose first day of year is within the seasonal window
- *     of lead 0's day of year (all templates if the window is unset or holds none); N distinct
- *     ones are drawn at random when there are at least N, otherwise all are used in a random
- *     order and reused cyclically (draw j follows template j mod E; ties between copies are
- *     broken by draw index). Template choice uses its own random stream, so switching the
- *     shuffle off leaves the marginals unchanged.
- *  Any-time exceedance comes from the maxima of the shuffled trajectories. Note the shuffle
- *  imposes the templates' rank dependence on the final values; each lead's values are unchanged.
+ *  1. Each draw j is given one (model, member) for the whole horizon: members are dealt out in
+ *     turn and the deal shuffled, so every member carries N / (models × members) draws (±1).
+ *  2. For every (model, member, lead), the k archived cases nearest in predictor value (same
+ *     lead group and, for archives split by issue error, the member's issue-error stratum;
+ *     optionally within ±seasonalWindowDays of the lead's valid day of year, circular) are found; cases at equal distance (tied predictors, zero flows) are taken in a
+ *     random (seeded) order, never by their position in the archive. k = round(kScale·√n) of the
+ *     candidates unless given.
+ *  3. At each lead every draw picks one of its member's k neighbours with the kernel (default
+ *     the Lall & Sharma 1/j weights) and adds its error in the archive's transform space:
+ *     value = max(0, T⁻¹(T(member) + g_h·error)), g_h the archive's lead scale (1 without one).
+ *  4. Schaake shuffle of the errors, member by member: the draws of one member are reordered
+ *     so that, at each lead, the rank of their values among that member's draws follows the
+ *     rank of their historical error templates. Each trajectory therefore stays on its member
+ *     (its level and shape) and only its error path follows a historical one; reordering the
+ *     totals across members instead would make trajectories jump between members and inflate
+ *     the "exceeded at any time" probability. The per-lead values (the marginals) are the
+ *     unshuffled draws exactly. Templates: those whose first day of year is within the seasonal
+ *     window of lead 0's day of year (all templates if the window is unset or holds none); N
+ *     distinct ones are drawn at random when there are at least N, otherwise all are reused in
+ *     turn. Ties between template values (reused templates) and template gaps are broken at
+ *     random. Template choice uses its own random stream, so switching the shuffle off leaves
+ *     the marginals unchanged.
+ *  Quantiles and per-lead exceedance come from the marginals; "exceeded at any time in the
+ *  horizon" from the maxima of the trajectories. Each probability p carries its Monte-Carlo
+ *  standard error √(p(1 − p)/N) (binomial).
  *
- * Everything is determined by the seed. Large buffers live in a reusable workspace; nothing is
- * allocated per sample.
+ * Everything is determined by the seed. Large buffers live in a reusable workspace.
  *
  * Caller's side of the contract: lead index h of the forecast uses the archive's lead h
- * (reforecast archives); the archive's time step equals the forecast's (lead-free templates are
+ * (per-lead archives); the archive's time step equals the forecast's (lead-free templates are
  * windows of consecutive archive steps); a workspace serves one call at a time (one per worker).
- * Known property of the method: the 1/j kernel leans on the nearest few cases (effective sample
- * 1/Σw_j² ≈ 16 at k = 100), so single-case bands come out slightly narrow and central-interval
- * coverage a few points under nominal (tests: ~0.83 for a nominal 0.90 at k = 100); a larger k
- * moves it towards nominal at the cost of locality.
  */
 
 export const DEFAULT_QUANTILE_PROBS: readonly number[] = [0.05, 0.1, 0.25, 0.5, 0.75, 0.9, 0.95];
+
+/** Below this many trajectories the exceedance probabilities are coarse (a 1/N grid, wide sampling error). */
+export const COARSE_TRAJECTORIES = 200;
 
 export interface StochasticInput {
   /** Corrected members, layout [(model·nMembers + member)·nLeads + lead], m³/s. */
@@ -52,14 +60,24 @@ export interface StochasticInput {
   nLeads: number;
   /** Valid-time day of year (1 … 366) per lead, or one value for all leads. Needed for seasonal windows. */
   dayOfYear?: ArrayLike<number> | number;
+  /**
+   * Error at issue time per (model·nMembers + member), in the archive's transform space
+   * (T(observed) − T(member)); NaN = unknown. With an archive split into issue-error strata each
+   * member draws from the stratum of its own issue error (unknown: the middle one).
+   */
+  issueError?: ArrayLike<number>;
 }
 
 export interface StochasticOptions {
   seed: number;
   /** Trajectories to draw (default 1000). */
   nDraws?: number;
-  /** Fixed neighbour count; default round(√n) of the candidate cases at each lead. */
+  /** Fixed neighbour count; default round(kScale·√n) of the candidate cases at each lead. */
   k?: number;
+  /** Multiplier of √n for the default k (default: the archive's chosen one, else 1). */
+  kScale?: number;
+  /** Weights of the k neighbours by rank (default: the archive's chosen kernel, else 'lall-sharma'). */
+  kernel?: NeighbourKernel;
   /** Use only archived cases (and templates) within ± this many days of year; unset = all. */
   seasonalWindowDays?: number | null;
   /** Quantile probabilities (default 0.05, 0.1, 0.25, 0.5, 0.75, 0.9, 0.95). */
@@ -81,16 +99,29 @@ export interface StochasticResult {
   thresholds: Float64Array;
   /** P(value > threshold) per lead: [threshold·nLeads + lead]. */
   exceedance: Float64Array;
-  /** P(threshold exceeded at any lead of the horizon), from the shuffled trajectories. */
+  /** Monte-Carlo standard error of each exceedance probability, √(p(1 − p)/N); same layout. */
+  exceedanceStandardError: Float64Array;
+  /** P(threshold exceeded at any lead of the horizon), from the trajectories' maxima. */
   exceedanceAnyTime: Float64Array;
+  /** Monte-Carlo standard error of each any-time probability. */
+  exceedanceAnyTimeStandardError: Float64Array;
   /** Per threshold, the first lead index with exceedance > 0.5, or null. */
   firstLikelyLead: (number | null)[];
   /** Neighbour count used at each lead. */
   kPerLead: Int32Array;
+  /** The kernel the neighbours were weighted with. */
+  kernel: NeighbourKernel;
+  /** The (model·nMembers + member) each trajectory follows. */
+  memberIndex: Int32Array;
   /** Trajectories [draw·nLeads + lead] when keepTrajectories, else null. */
   trajectories: Float64Array | null;
   /** Archive template index each trajectory followed (null without shuffle). */
   templateIndex: Int32Array | null;
+}
+
+/** Binomial Monte-Carlo standard error of a probability estimated from n draws. */
+export function monteCarloStandardError(p: number, n: number): number {
+  return Math.sqrt((p * (1 - p)) / n);
 }
 
 type TypedArray = Float64Array | Int32Array | Uint32Array | Uint16Array;
@@ -135,6 +166,9 @@ function positiveInt(v: number, name: string): number {
   return v;
 }
 
+/** Tie-breaking keys hold a draw's position in a random permutation in their low 24 bits. */
+const TIE_SPAN = 2 ** 24;
+
 export function runStochasticStage(
   archive: ErrorArchive,
   input: StochasticInput,
@@ -146,7 +180,7 @@ export function runStochasticStage(
   const nMembers = positiveInt(input.nMembers, 'nMembers');
   const H = positiveInt(input.nLeads, 'nLeads');
   const N = positiveInt(options.nDraws ?? 1000, 'nDraws');
-  if (N > 1 << 24) throw new RangeError('nDraws must be at most 2^24');
+  if (N > TIE_SPAN) throw new RangeError('nDraws must be at most 2^24');
   const nMM = nModels * nMembers;
   const members = input.members;
   if (members.length !== nMM * H) throw new RangeError(`members must hold nModels × nMembers × nLeads = ${nMM * H} values, got ${members.length}`);
@@ -180,18 +214,42 @@ export function runStochasticStage(
   const thresholds = Float64Array.from(options.thresholds ?? []);
   for (const t of thresholds) if (!Number.isFinite(t)) throw new RangeError('thresholds must be finite');
   if (options.k !== undefined) positiveInt(options.k, 'k');
+  const kernel: NeighbourKernel = options.kernel ?? archive.neighbours?.kernel ?? 'lall-sharma';
+  const kScale = options.kScale ?? archive.neighbours?.kScale ?? 1;
+  if (!(kScale > 0 && Number.isFinite(kScale))) throw new RangeError('kScale must be a positive number');
+  const kFor = (n: number): number => Math.min(n, options.k ?? Math.max(1, Math.round(kScale * defaultK(n))));
 
   const { predictor, dayOfYear: caseDoy, groupStart } = archive;
+  // Issue-error strata: each member searches the stratum of its own issue error (the middle one
+  // when the run gives none). Strata are fixed over the horizon.
+  const S = archiveStrata(archive);
+  const memberStratum = workspace.i32('memberStratum', nMM);
+  const stratumUsed = new Uint8Array(S);
+  if (input.issueError !== undefined && input.issueError.length !== nMM) throw new RangeError(`issueError must hold one value per model and member (${nMM})`);
+  for (let mm = 0; mm < nMM; mm++) {
+    const ie = input.issueError ? input.issueError[mm] : NaN;
+    memberStratum[mm] = S === 1 ? 0 : Number.isFinite(ie) ? stratumOf(archive.issueErrorEdges, ie) : S >> 1;
+    stratumUsed[memberStratum[mm]] = 1;
+  }
   let maxGroup = 0;
-  const nGroups = leadFree ? 1 : archive.nLeads;
+  const nGroups = (leadFree ? 1 : archive.nLeads) * S;
   for (let g = 0; g < nGroups; g++) maxGroup = Math.max(maxGroup, groupStart[g + 1] - groupStart[g]);
-  const kStride = Math.max(1, options.k !== undefined ? Math.min(options.k, maxGroup) : defaultK(maxGroup));
+  const kStride = Math.max(1, kFor(maxGroup));
+  for (let h = 0; h < H; h++) {
+    const lg = leadFree ? 0 : h;
+    for (let st = 0; st < S; st++) {
+      if (stratumUsed[st] && groupStart[lg * S + st + 1] === groupStart[lg * S + st]) {
+        throw new RangeError(S > 1 ? `the archive has no cases for lead ${h} in issue-error stratum ${st}` : `the archive has no cases for lead ${h}`);
+      }
+    }
+  }
 
   // ---- transform of the members ------------------------------------------------------------
   const t = archive.transform;
   const kind = t.kind === 'none' ? 0 : t.kind === 'log' || t.lambda === 0 ? 1 : 2;
   const offset = t.kind === 'none' ? 0 : t.offset;
   const lambda = t.kind === 'boxcox' ? t.lambda : 1;
+  if (kind === 2 && !(lambda > 0)) throw new RangeError('the stage supports Box–Cox with λ ≥ 0 only');
   // Transcendental work moved out of the per-sample loop: in log space the draw
   // exp(T(x) + e) − offset is computed as (x + offset)·exp(e) − offset, with exp(e) taken once per
   // archived case; tx holds x + offset and the candidate "errors" are the factors exp(e).
@@ -203,9 +261,11 @@ export function runStochasticStage(
       tx[h * nMM + mm] = kind === 1 ? (x > 0 ? x : 0) + offset : kind === 2 ? lambda * forwardTransform(t, x) + 1 : forwardTransform(t, x);
     }
   }
-
   let error = archive.error;
-  if (kind !== 0) {
+  // With a lead scale the drawn errors are scaled per lead, so their terms are made per lead from
+  // the neighbours' raw errors (scaleTerms) instead of once per case here.
+  const leadScale = leadFree ? archive.leadScale : undefined;
+  if (kind !== 0 && !leadScale) {
     // Per-case terms prepared once per call: exp(e) in log space, λ·e in Box–Cox space.
     const terms = workspace.f64('errorTerm', error.length);
     if (kind === 1) for (let i = 0; i < error.length; i++) terms[i] = Math.exp(error[i]);
@@ -213,18 +273,19 @@ export function runStochasticStage(
     error = terms;
   }
 
-  // ---- neighbours: once per (lead, model·member), searched lead by lead in the draw loop ------
+  // ---- candidates per (group, day of year) --------------------------------------------------
   // Candidates of the current (group, day) are copied between sentinels (−∞ first, +∞ last) so
-  // the nearest-first walk needs no bounds checks. One lead's neighbours at a time: they are read
-  // right after they are written, so they stay in cache (a whole horizon's table runs to MBs).
-  for (let h = 0; h < H; h++) {
-    const g = leadFree ? 0 : h;
-    if (groupStart[g + 1] === groupStart[g]) throw new RangeError(`the archive has no cases for lead ${h}`);
-  }
+  // the nearest-first walk needs no bounds checks.
+  // With strata, each used stratum's candidates live in their own slice of cP/cE (stride maxGroup + 2).
   const nbErr = workspace.f64('nbErr', nMM * kStride); // [mm·kStride + rank], current lead
   const kPerLead = new Int32Array(H);
-  const cP = workspace.f64('candPred', maxGroup + 2);
-  const cE = workspace.f64('candErr', maxGroup + 2);
+  const cStride = maxGroup + 2;
+  const cPAll = workspace.f64('candPred', S * cStride);
+  const cEAll = workspace.f64('candErr', S * cStride);
+  const nCandOf = new Int32Array(S);
+  const cP = cPAll.subarray(0, cStride);
+  const cE = cEAll.subarray(0, cStride);
+  const tieIdx = workspace.i32('tieIdx', maxGroup + 2);
   let lastGroup = -1;
   let lastDoy = -1;
   let nCand = 0;
@@ -243,19 +304,37 @@ export function runStochasticStage(
   const sD = useSuperset ? workspace.u16('superDoy', maxGroup) : caseDoy;
   let superDoy = -1;
   let nSuper = 0;
-  const cum: Float64Array = harmonicCumulative(kStride, workspace.f64('cum', kStride));
+  const cum = workspace.f64('cum', kStride);
+  let cumK = -1;
   // Guide table (Chen & Asau 1974) for the kernel draw: guide[b] = first index whose cumulative
   // weight exceeds b/G of the total, G = 16k, so a draw rarely needs more than one comparison.
   const guide = workspace.i32('guide', 16 * kStride);
-  let guideK = -1;
 
-  // ---- random streams, member per draw, templates ------------------------------------------------
+  // ---- random streams: members per draw, templates, ties -------------------------------------
   const rng = createPrng(options.seed, 0);
+  const rngTies = createPrng(options.seed, 2);
   const slot = workspace.i32('slot', N);
-  for (let j = 0; j < N; j++) slot[j] = Math.floor(rng.nextUniform32() * nMM);
+  for (let j = 0; j < N; j++) slot[j] = j % nMM;
+  for (let j = N - 1; j > 0; j--) {
+    const r = rng.nextInt(j + 1);
+    const s = slot[j];
+    slot[j] = slot[r];
+    slot[r] = s;
+  }
+  // Draws grouped by member (counting sort): the shuffle works within each member's draws.
+  const memberStart = workspace.i32('memberStart', nMM + 1).fill(0, 0, nMM + 1);
+  for (let j = 0; j < N; j++) memberStart[slot[j] + 1]++;
+  for (let m = 0; m < nMM; m++) memberStart[m + 1] += memberStart[m];
+  const byMember = workspace.i32('byMember', N);
+  const fillPos = workspace.i32('fillPos', nMM);
+  fillPos.set(memberStart.subarray(0, nMM));
+  for (let j = 0; j < N; j++) byMember[fillPos[slot[j]]++] = j;
 
   const tBase = workspace.i32('tBase', N);
   let templateIndex: Int32Array | null = null;
+  // A random permutation of the draws breaks ties between template ranks (tieOf[j] < 2^24).
+  const tieOf = workspace.i32('tieOf', N);
+  const drawOfTie = workspace.i32('drawOfTie', N);
   if (shuffle) {
     const rngT = createPrng(options.seed, 1);
     const elig = workspace.i32('elig', nTemplates);
@@ -281,7 +360,15 @@ export function runStochasticStage(
     for (let j = 0; j < N; j++) {
       templateIndex[j] = elig[j % M];
       tBase[j] = archive.templateStart[templateIndex[j]];
+      drawOfTie[j] = j;
     }
+    for (let j = N - 1; j > 0; j--) {
+      const r = rngT.nextInt(j + 1);
+      const s = drawOfTie[j];
+      drawOfTie[j] = drawOfTie[r];
+      drawOfTie[r] = s;
+    }
+    for (let p = 0; p < N; p++) tieOf[drawOfTie[p]] = p;
   }
 
   // ---- draws, marginals, shuffle --------------------------------------------------------------------
@@ -293,85 +380,97 @@ export function runStochasticStage(
   const trajMax = workspace.f64('trajMax', N).fill(-Infinity, 0, N);
   // Box–Cox draws stay in the working space b = (x + offset)^λ + λe, floored at offset^λ (flow 0):
   // the back-transform is increasing there, so sorting, ranks, maxima and threshold tests can all
-  // be done on b, and only the values actually reported are back-transformed (no exp/log per
-  // sample). Other spaces work on flows directly. invLambdaOut = 0 marks flow space.
+  // be done on b, and only the values actually reported are back-transformed. Other spaces work on
+  // flows directly. invLambdaOut = 0 marks flow space.
   const invLambdaOut = kind === 2 ? 1 / lambda : 0;
   const boxCoxFloor = kind === 2 ? Math.exp(Math.log(offset) * lambda) : 0; // offset^λ (0 when offset = 0)
-  const workThresholds = Float64Array.from(thresholds, (t) =>
-    kind !== 2 ? t : t < 0 ? -Infinity : Math.exp(Math.log(t + offset) * lambda),
+  const workThresholds = Float64Array.from(thresholds, (th) =>
+    kind !== 2 ? th : th < 0 ? -Infinity : Math.exp(Math.log(th + offset) * lambda),
   );
   const vals = workspace.f64('vals', N);
   const valsTmp = workspace.f64('valsTmp', N);
   const valsWords = new Uint32Array(vals.buffer, vals.byteOffset, 2 * vals.length);
   const tmpWords = new Uint32Array(valsTmp.buffer, valsTmp.byteOffset, 2 * valsTmp.length);
   const counts = workspace.i32('counts', 1024);
-  const keys = workspace.u32('keys', N);
-  const keysTmp = workspace.u32('keysTmp', N);
-  const order = workspace.i32('order', N);
-  const orderTmp = workspace.i32('orderTmp', N);
-  // The draw stream continues in sampleLead on a copy of its state (rng is not used after this).
+  const groupVals = workspace.f64('groupVals', N);
+  const rankKeys = workspace.f64('rankKeys', N);
+  // The draw stream continues in sampleLead on a copy of its state.
   const rngState = workspace.i32('rngState', 4);
   rngState.set(rng.state());
   const rank = archive.templateRank;
   // Largest possible rank: series length (lead-free) or number of issue rows (per-lead ranks).
   const maxRank = leadFree ? archive.templateValues.length : Math.ceil(archive.templateValues.length / archive.nLeads);
-  const rankBits = 32 - Math.clz32(Math.max(1, maxRank));
-  // When rank and draw index fit in 32 bits together, sort (rank << drawBits | draw) directly.
-  const drawBits = 32 - Math.clz32(Math.max(1, N - 1));
-  const packed = rankBits + drawBits <= 32;
+  if (maxRank * TIE_SPAN > Number.MAX_SAFE_INTEGER) throw new RangeError('archive template series too long for the shuffle keys');
   for (let h = 0; h < H; h++) {
-    const g = leadFree ? 0 : h;
-    const gs = groupStart[g];
-    const ge = groupStart[g + 1];
-    // The window's centre follows the lead's day of year in steps of a tenth of the window (at
-    // least a day): rescanning the group for every day of a long daily horizon costs more than
-    // the rest of the stage, and a shift of a few days in a ±60-day window changes little.
-    if (g !== lastGroup || (window !== null && circularDayDistance(doy[h], lastDoy) >= Math.max(1, window / 10))) {
-      nCand = 0;
-      if (window !== null) {
-        // Which days of year are inside the window, looked up per case instead of computed:
-        // the scan runs over every case of the group for each new day.
-        for (let d = 1; d <= 366; d++) inWindow[d] = circularDayDistance(d, doy[h]) <= window ? 1 : 0;
-        if (useSuperset) {
-          if (superDoy < 0 || circularDayDistance(doy[h], superDoy) > margin) {
-            for (let d = 1; d <= 366; d++) inSuper[d] = circularDayDistance(d, doy[h]) <= window + margin ? 1 : 0;
-            nSuper = gatherSuperset(predictor, error, caseDoy, gs, ge, inSuper, sP, sE, sD);
-            superDoy = doy[h];
+    let k = kStride;
+    if (S === 1) {
+      const g = leadFree ? 0 : h;
+      const gs = groupStart[g];
+      const ge = groupStart[g + 1];
+      // The window's centre follows the lead's day of year in steps of a tenth of the window (at
+      // least a day): rescanning the group for every day of a long daily horizon costs more than
+      // the rest of the stage, and a shift of a few days in a ±60-day window changes little.
+      if (g !== lastGroup || (window !== null && circularDayDistance(doy[h], lastDoy) >= Math.max(1, window / 10))) {
+        nCand = 0;
+        if (window !== null) {
+          for (let d = 1; d <= 366; d++) inWindow[d] = circularDayDistance(d, doy[h]) <= window ? 1 : 0;
+          if (useSuperset) {
+            if (superDoy < 0 || circularDayDistance(doy[h], superDoy) > margin) {
+              for (let d = 1; d <= 366; d++) inSuper[d] = circularDayDistance(d, doy[h]) <= window + margin ? 1 : 0;
+              nSuper = gatherSuperset(predictor, error, caseDoy, gs, ge, inSuper, sP, sE, sD);
+              superDoy = doy[h];
+            }
+            nCand = gatherInWindow(sP, sE, sD, 0, nSuper, inWindow, cP, cE);
+          } else {
+            nCand = gatherInWindow(predictor, error, caseDoy, gs, ge, inWindow, cP, cE);
           }
-          nCand = gatherInWindow(sP, sE, sD, 0, nSuper, inWindow, cP, cE);
-        } else {
-          nCand = gatherInWindow(predictor, error, caseDoy, gs, ge, inWindow, cP, cE);
         }
+        nCand = nCand || gatherAll(predictor, error, gs, ge, cP, cE);
+        lastGroup = g;
+        lastDoy = doy[h];
       }
-      // No window, or an empty one: the whole lead group.
-      if (nCand === 0) {
-        for (let i = gs; i < ge; i++) {
-          nCand++;
-          cP[nCand] = predictor[i];
-          cE[nCand] = error[i];
-        }
+      k = Math.min(kFor(nCand), kStride);
+      for (let mm = 0; mm < nMM; mm++) {
+        nearestWithRandomTies(members[mm * H + h], cP, cE, nCand, k, nbErr, mm * kStride, tieIdx, rngTies);
       }
-      cP[0] = -Infinity;
-      cP[nCand + 1] = Infinity;
-      lastGroup = g;
-      lastDoy = doy[h];
+    } else {
+      // Per stratum: the window's cases of this lead and stratum (all of them when the window holds none).
+      if (window !== null) for (let d = 1; d <= 366; d++) inWindow[d] = circularDayDistance(d, doy[h]) <= window ? 1 : 0;
+      for (let st = 0; st < S; st++) {
+        if (!stratumUsed[st]) continue;
+        const gs = groupStart[h * S + st];
+        const ge = groupStart[h * S + st + 1];
+        const p = cPAll.subarray(st * cStride, (st + 1) * cStride);
+        const e = cEAll.subarray(st * cStride, (st + 1) * cStride);
+        const nc = window !== null ? gatherInWindow(predictor, error, caseDoy, gs, ge, inWindow, p, e) : 0;
+        nCandOf[st] = nc || gatherAll(predictor, error, gs, ge, p, e);
+        k = Math.min(k, kFor(nCandOf[st]));
+      }
+      for (let mm = 0; mm < nMM; mm++) {
+        const st = memberStratum[mm];
+        const p = cPAll.subarray(st * cStride, (st + 1) * cStride);
+        const e = cEAll.subarray(st * cStride, (st + 1) * cStride);
+        nearestWithRandomTies(members[mm * H + h], p, e, nCandOf[st], k, nbErr, mm * kStride, tieIdx, rngTies);
+      }
     }
-    const k = Math.min(options.k ?? defaultK(nCand), nCand, kStride);
     kPerLead[h] = k;
-    nearestPerMember(members, H, h, nMM, cP, cE, nCand, k, nbErr, 0, kStride);
-    const cTop = cum[k - 1];
-    const G = 16 * k;
-    if (k !== guideK) {
+    if (leadScale) scaleTerms(kind, lambda, leadScale[Math.min(h, leadScale.length - 1)], nbErr, nMM, kStride, k);
+    if (k !== cumK) {
+      kernelCumulative(kernel, k, cum);
+      const cTop = cum[k - 1];
+      const G = 16 * k;
       let j = 0;
       for (let bIdx = 0; bIdx < G; bIdx++) {
         // A hair below b/G so rounding can only start the search early, never late.
         while (cum[j] <= (bIdx / G) * cTop * (1 - 1e-12)) j++;
         guide[bIdx] = j;
       }
-      guideK = k;
+      cumK = k;
     }
-    sampleLead(kind, rngState, N, slot, G, cTop, cum, guide, tx, h * nMM, nbErr, kStride, vals, offset, boxCoxFloor);
-    if (!shuffle) {
+    sampleLead(kind, rngState, N, slot, 16 * k, cum[k - 1], cum, guide, tx, h * nMM, nbErr, kStride, vals, offset, boxCoxFloor);
+    if (shuffle) {
+      shuffleWithinMembers(nMM, memberStart, byMember, vals, rank, tBase, h, tieOf, drawOfTie, maxRank, rngTies, groupVals, rankKeys, trajMax, trajectories, H, invLambdaOut, offset);
+    } else {
       for (let j = 0; j < N; j++) {
         const v = vals[j];
         if (v > trajMax[j]) trajMax[j] = v;
@@ -379,23 +478,10 @@ export function runStochasticStage(
       }
     }
     sortNonNegative(vals, N, valsTmp, valsWords, tmpWords, counts);
-    const sorted = vals;
     for (let q = 0; q < nP; q++) {
-      quantiles[h * nP + q] = invLambdaOut ? boxCoxQuantile(sorted, probs[q], N, invLambdaOut, offset) : quantileSorted(sorted, probs[q], 0, N);
+      quantiles[h * nP + q] = invLambdaOut ? boxCoxQuantile(vals, probs[q], N, invLambdaOut, offset) : quantileSorted(vals, probs[q], 0, N);
     }
-    for (let ti = 0; ti < nT; ti++) exceedance[ti * H + h] = countAboveSorted(sorted, workThresholds[ti], 0, N) / N;
-    if (shuffle) {
-      // Rank order of this lead's template values (ties by draw index).
-      if (packed) {
-        for (let j = 0; j < N; j++) keys[j] = ((rank[tBase[j] + h] << drawBits) | j) >>> 0;
-        sortPackedKeys(keys, N, drawBits, drawBits + rankBits, keysTmp, counts);
-        assignByPackedRank(N, keys, (1 << drawBits) - 1, vals, trajMax, trajectories, H, h, invLambdaOut, offset);
-      } else {
-        for (let j = 0; j < N; j++) keys[j] = rank[tBase[j] + h];
-        radixOrder(keys, N, rankBits, order, keysTmp, orderTmp, counts);
-        assignByRank(N, order, vals, trajMax, trajectories, H, h, invLambdaOut, offset);
-      }
-    }
+    for (let ti = 0; ti < nT; ti++) exceedance[ti * H + h] = countAboveSorted(vals, workThresholds[ti], 0, N) / N;
   }
 
   const exceedanceAnyTime = new Float64Array(nT);
@@ -421,19 +507,175 @@ export function runStochasticStage(
     quantiles,
     thresholds,
     exceedance,
+    exceedanceStandardError: Float64Array.from(exceedance, (p) => monteCarloStandardError(p, N)),
     exceedanceAnyTime,
+    exceedanceAnyTimeStandardError: Float64Array.from(exceedanceAnyTime, (p) => monteCarloStandardError(p, N)),
     firstLikelyLead,
     kPerLead,
+    kernel,
+    memberIndex: Int32Array.from(slot.subarray(0, N)),
     trajectories,
     templateIndex,
   };
 }
 
 /**
+ * The errors of the k cases nearest to x among cP[1 … nCand] (ascending, with sentinels
+ * cP[0] = −∞ and cP[nCand + 1] = +∞), nearest first, into out[outBase …]. Cases at equal
+ * distance are ordered at random: the nearest-first walk takes an interval of the sorted
+ * candidates; when the k-th distance is shared by cases outside it, or distances repeat inside
+ * it, the cases at each repeated distance are chosen and ordered by a seeded random shuffle.
+ */
+function nearestWithRandomTies(
+  x: number,
+  cP: Float64Array,
+  cE: Float64Array,
+  nCand: number,
+  k: number,
+  out: Float64Array,
+  outBase: number,
+  scratch: Int32Array,
+  rng: Prng,
+): void {
+  // Branch-free binary search: b ends on the last candidate below x.
+  let b = 0;
+  let len = nCand + 2;
+  while (len > 1) {
+    const half = len >>> 1;
+    b += +(cP[b + half] < x) * half;
+    len -= half;
+  }
+  let l = b;
+  let r = b + 1;
+  let prev = -1;
+  let repeated = false;
+  for (let j = 0; j < k; j++) {
+    const dl = x - cP[l];
+    const dr = cP[r] - x;
+    const takeLeft = dl <= dr;
+    const d = takeLeft ? dl : dr;
+    if (d === prev) repeated = true;
+    prev = d;
+    out[outBase + j] = cE[takeLeft ? l-- : r++];
+  }
+  // prev is now the k-th distance; a tie beyond the interval or within it needs the slow path.
+  if (!repeated && x - cP[l] !== prev && cP[r] - x !== prev) return;
+  // Widen the interval to every case at the k-th distance, then write the cases in order of
+  // distance, each run of equal distance shuffled and cut to what is left of k.
+  while (x - cP[l] === prev) l--;
+  while (cP[r] - x === prev) r++;
+  // Cases l+1 … r−1 sorted by distance: a two-way merge from b outwards.
+  let n = 0;
+  let a = b;
+  let c = b + 1;
+  while (a > l || c < r) {
+    const da = a > l ? x - cP[a] : Infinity;
+    const dc = c < r ? cP[c] - x : Infinity;
+    scratch[n++] = da <= dc ? a-- : c++;
+  }
+  let written = 0;
+  let s = 0;
+  while (written < k) {
+    const d = Math.abs(cP[scratch[s]] - x);
+    let e = s + 1;
+    while (e < n && Math.abs(cP[scratch[e]] - x) === d) e++;
+    // Fisher–Yates on the run s … e−1, only as far as needed.
+    const take = Math.min(e - s, k - written);
+    for (let i = 0; i < take; i++) {
+      const p = s + i + rng.nextInt(e - s - i);
+      const tmp = scratch[s + i];
+      scratch[s + i] = scratch[p];
+      scratch[p] = tmp;
+      out[outBase + written++] = cE[scratch[s + i]];
+    }
+    s = e;
+  }
+}
+
+/**
+ * Schaake shuffle of one lead's draws within each member: the draws of member m (byMember
+ * memberStart[m] … memberStart[m+1]−1) take that member's values in the rank order of their
+ * templates' values at lead h. Keys are rank·2^24 + the draw's place in a random permutation, so
+ * equal ranks (reused templates) fall in random order; a missing template value gets a random rank.
+ */
+function shuffleWithinMembers(
+  nMM: number,
+  memberStart: Int32Array,
+  byMember: Int32Array,
+  vals: Float64Array,
+  rank: Uint32Array,
+  tBase: Int32Array,
+  h: number,
+  tieOf: Int32Array,
+  drawOfTie: Int32Array,
+  maxRank: number,
+  rng: Prng,
+  groupVals: Float64Array,
+  rankKeys: Float64Array,
+  trajMax: Float64Array,
+  trajectories: Float64Array | null,
+  H: number,
+  invLambdaOut: number,
+  offset: number,
+): void {
+  for (let m = 0; m < nMM; m++) {
+    const s = memberStart[m];
+    const e = memberStart[m + 1];
+    if (e === s) continue;
+    for (let p = s; p < e; p++) {
+      const j = byMember[p];
+      groupVals[p] = vals[j];
+      const rk = rank[tBase[j] + h];
+      rankKeys[p] = (rk === MISSING_RANK ? rng.nextInt(maxRank) : rk) * TIE_SPAN + tieOf[j];
+    }
+    const gv = groupVals.subarray(s, e).sort();
+    const keys = rankKeys.subarray(s, e).sort();
+    for (let i = 0; i < e - s; i++) {
+      const j = drawOfTie[keys[i] % TIE_SPAN];
+      const v = gv[i];
+      if (v > trajMax[j]) trajMax[j] = v;
+      if (trajectories !== null) trajectories[j * H + h] = invLambdaOut ? boxCoxFlow(v, invLambdaOut, offset) : v;
+    }
+  }
+}
+
+/**
+ * Turns one lead's neighbour errors e (transform space) into the terms sampleLead adds, scaled by
+ * the lead's factor g: g·e (additive), exp(g·e) (log), λ·g·e (Box–Cox).
+ */
+function scaleTerms(kind: number, lambda: number, g: number, nbErr: Float64Array, nMM: number, kStride: number, k: number): void {
+  for (let mm = 0; mm < nMM; mm++) {
+    const base = mm * kStride;
+    for (let j = 0; j < k; j++) {
+      const e = g * nbErr[base + j];
+      nbErr[base + j] = kind === 1 ? Math.exp(e) : kind === 2 ? lambda * e : e;
+    }
+  }
+}
+
+/** Copies every case gs … ge−1 to cP/cE[1 …] and sets the sentinels; returns how many. */
+function gatherAll(predictor: Float64Array, error: Float64Array, gs: number, ge: number, cP: Float64Array, cE: Float64Array): number {
+  let n = 0;
+  for (let i = gs; i < ge; i++) {
+    n++;
+    cP[n] = predictor[i];
+    cE[n] = error[i];
+  }
+  return withSentinels(cP, n);
+}
+
+/** Puts −∞ before and +∞ after the n candidates in cP[1 … n]; returns n. */
+function withSentinels(cP: Float64Array, n: number): number {
+  cP[0] = -Infinity;
+  cP[n + 1] = Infinity;
+  return n;
+}
+
+/**
  * Copies the cases gs … ge−1 whose day of year is marked in inWindow to cP/cE[1 …], keeping
- * their order; returns how many. Without a branch: every case is written to the next free slot
- * and the count moves only when it is inside (inside or not is unpredictable in predictor order).
- * cP/cE need room for ge − gs + 2 values.
+ * their order, and sets the sentinels; returns how many. Without a branch: every case is written to
+ * the next free slot and the count moves only when it is inside (inside or not is unpredictable in
+ * predictor order). cP/cE need room for ge − gs + 2 values.
  */
 function gatherInWindow(
   predictor: Float64Array,
@@ -451,7 +693,7 @@ function gatherInWindow(
     cE[n + 1] = error[i];
     n += inWindow[caseDoy[i]];
   }
-  return n;
+  return withSentinels(cP, n);
 }
 
 /**
@@ -478,78 +720,6 @@ function gatherSuperset(
     n += inSuper[d];
   }
   return n;
-}
-
-/**
- * Nearest-first neighbour errors of every member at lead h. Candidates sit between sentinels
- * (cP[0] = −∞, cP[nCand + 1] = +∞), so the walk needs no bounds checks. Members are walked in
- * pairs: the two independent dependency chains overlap in the CPU (≈ 25 % faster).
- */
-function nearestPerMember(
-  members: ArrayLike<number>,
-  H: number,
-  h: number,
-  nMM: number,
-  cP: Float64Array,
-  cE: Float64Array,
-  nCand: number,
-  k: number,
-  out: Float64Array,
-  outBase: number,
-  kStride: number,
-): void {
-  let mm = 0;
-  for (; mm + 1 < nMM; mm += 2) {
-    const x = members[mm * H + h];
-    const y = members[(mm + 1) * H + h];
-    // Branch-free binary searches: each base ends on the last candidate below its value.
-    let bx = 0;
-    let by = 0;
-    let len = nCand + 2;
-    while (len > 1) {
-      const half = len >>> 1;
-      bx += +(cP[bx + half] < x) * half;
-      by += +(cP[by + half] < y) * half;
-      len -= half;
-    }
-    // Walk outwards, nearest first, equal distances taking the lower predictor. Written without
-    // branches: the left/right choice is unpredictable and mispredictions cost more.
-    let lx = bx;
-    let rx = bx + 1;
-    let ly = by;
-    let ry = by + 1;
-    const ox = outBase + mm * kStride;
-    const oy = ox + kStride;
-    for (let j = 0; j < k; j++) {
-      const tx = +(x - cP[lx] <= cP[rx] - x);
-      const ty = +(y - cP[ly] <= cP[ry] - y);
-      out[ox + j] = cE[rx + tx * (lx - rx)];
-      out[oy + j] = cE[ry + ty * (ly - ry)];
-      lx -= tx;
-      rx += 1 - tx;
-      ly -= ty;
-      ry += 1 - ty;
-    }
-  }
-  if (mm < nMM) {
-    const x = members[mm * H + h];
-    let bx = 0;
-    let len = nCand + 2;
-    while (len > 1) {
-      const half = len >>> 1;
-      bx += +(cP[bx + half] < x) * half;
-      len -= half;
-    }
-    let lx = bx;
-    let rx = bx + 1;
-    const ox = outBase + mm * kStride;
-    for (let j = 0; j < k; j++) {
-      const tx = +(x - cP[lx] <= cP[rx] - x);
-      out[ox + j] = cE[rx + tx * (lx - rx)];
-      lx -= tx;
-      rx += 1 - tx;
-    }
-  }
 }
 
 /**
@@ -632,45 +802,4 @@ function boxCoxQuantile(sorted: Float64Array, p: number, n: number, invLambda: n
   if (lo >= n - 1) return a;
   const f = hq - lo;
   return f === 0 ? a : a + f * (boxCoxFlow(sorted[lo + 1], invLambda, offset) - a);
-}
-
-/** Schaake assignment: the draw whose template ranks p-th receives the p-th smallest value. */
-function assignByRank(
-  N: number,
-  order: Int32Array,
-  sorted: Float64Array,
-  trajMax: Float64Array,
-  trajectories: Float64Array | null,
-  H: number,
-  h: number,
-  invLambdaOut: number,
-  offset: number,
-): void {
-  for (let p = 0; p < N; p++) {
-    const j = order[p];
-    const v = sorted[p];
-    if (v > trajMax[j]) trajMax[j] = v;
-    if (trajectories !== null) trajectories[j * H + h] = invLambdaOut ? boxCoxFlow(v, invLambdaOut, offset) : v;
-  }
-}
-
-/** As assignByRank, reading the draw index from the low bits of the sorted packed keys. */
-function assignByPackedRank(
-  N: number,
-  keys: Uint32Array,
-  mask: number,
-  sorted: Float64Array,
-  trajMax: Float64Array,
-  trajectories: Float64Array | null,
-  H: number,
-  h: number,
-  invLambdaOut: number,
-  offset: number,
-): void {
-  for (let p = 0; p < N; p++) {
-    const j = keys[p] & mask;
-    const v = sorted[p];
-    if (v > trajMax[j]) trajMax[j] = v;
-    if (trajectories !== null) trajectories[j * H + h] = invLambdaOut ? boxCoxFlow(v, invLambdaOut, offset) : v;
-  }
 }

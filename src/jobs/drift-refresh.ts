@@ -111,11 +111,13 @@ export async function computeGaugeStatus(db: Queryable, gaugeId: string): Promis
     // A run's lead times share its errors: each run counts once in the coverage test.
     testUnits: 'issues',
   });
-  const validation = active.periods.validation as { from?: string; to?: string } | undefined;
+  // The block the archives were built from: the held-out archive block, or (older versions and
+  // uploads) the whole validation period.
+  const archiveBlock = (active.periods.archive ?? active.periods.validation) as { from?: string; to?: string } | undefined;
   const p = reference.basis.period;
-  if (validation?.from && validation.to && p.from < validation.to && p.to > validation.from) {
+  if (archiveBlock?.from && archiveBlock.to && p.from < archiveBlock.to && p.to > archiveBlock.from) {
     d.reasons.push(
-      `The level was measured on the validation period, from which the stage's error archives were built, so it is optimistic; a level from reforecasts of a later period is fairer (POST /gauges/${gaugeId}/hindcasts with mode reforecast, from, to and setDriftLevel).`,
+      `The level was measured in-sample: on the period from which the stage's error archives were built (${archiveBlock.from} to ${archiveBlock.to}), so it is optimistic; a level from reforecasts of a later period is fairer (POST /gauges/${gaugeId}/hindcasts with mode reforecast, from, to and setDriftLevel).`,
     );
   }
   if (reference.basis.mode === 'simulation') {

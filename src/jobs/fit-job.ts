@@ -1,5 +1,5 @@
 import type { FitOptions } from '../models/residual-fit.ts';
-import { defaultBoostingSpace, defaultForestSpace } from '../models/residual-fit.ts';
+import { defaultBoostingSpace, defaultForestSpace, splitValidation } from '../models/residual-fit.ts';
 import { archiveToBytes } from '../core/archive-codec.ts';
 import type { ErrorTransform } from '../core/error-transform.ts';
 import { rawArchiveFromReforecasts, type ReforecastScores } from '../models/reforecast-evaluation.ts';
@@ -31,14 +31,15 @@ export interface FitJobParams {
 }
 
 /**
- * Default periods: of the steps with an observation, the first 70 % calibrate and the rest
- * validate (contiguous blocks by date).
+ * Default periods: of the steps with an observation, the first 60 % calibrate and the rest
+ * validate (contiguous blocks by date); the fit splits validation again into an early-stopping
+ * block and a held-out archive block (splitValidation).
  */
 export function defaultPeriods(series: ArchiveSeries): { calibration: Period; validation: Period } {
   const observedTimes: number[] = [];
   for (let i = 0; i < series.times.length; i++) if (Number.isFinite(series.observed[i])) observedTimes.push(series.times[i]);
   if (observedTimes.length < 100) throw new Error(`only ${observedTimes.length} steps have both simulations and observations; at least 100 are needed`);
-  const split = observedTimes[Math.floor(observedTimes.length * 0.7)];
+  const split = observedTimes[Math.floor(observedTimes.length * 0.6)];
   const end = observedTimes[observedTimes.length - 1] + series.stepSeconds * 1000;
   return { calibration: { fromMs: observedTimes[0], toMs: split }, validation: { fromMs: split, toMs: end } };
 }
@@ -92,8 +93,9 @@ export const fitJob: JobHandler = async (job, { db, progress, signal }) => {
   const validation = p.validation ? period(p.validation) : defaults.validation;
   if (calibration.toMs > validation.fromMs && calibration.fromMs < validation.toMs) throw new Error('the calibration and validation periods overlap');
   const forcingNames = (p.forcings ?? Object.keys(series.forcings)).filter((n) => n in series.forcings).sort();
-  // Past runs issued in the validation period give the per-lead archives.
-  const reforecasts = await loadReforecastSet(db, gauge.id, validation);
+  // Past runs issued in the held-out archive block give the per-lead archives.
+  const blocks = splitValidation(validation, series.stepSeconds * 1000);
+  const reforecasts = await loadReforecastSet(db, gauge.id, blocks.archive);
   const options: FitOptions = {
     calibration,
     validation,
@@ -125,7 +127,14 @@ export const fitJob: JobHandler = async (job, { db, progress, signal }) => {
       label: p.label ?? `${p.trainer}${p.tuning ? ' tuned' : ''} ${iso(Date.now()).slice(0, 16)}Z`,
       featureSpec: out.spec,
       trainer: { kind: p.trainer, bundle: out.parts.map((part) => ({ params: part.params, validationRmse: part.validationRmse, trees: part.trees })), trials: out.trials, seed: p.seed, rows: out.rows, onnxCheck: out.onnxCheck },
-      periods: { calibration: { from: iso(calibration.fromMs), to: iso(calibration.toMs) }, validation: { from: iso(validation.fromMs), to: iso(validation.toMs) } },
+      periods: {
+        calibration: { from: iso(calibration.fromMs), to: iso(calibration.toMs) },
+        validation: { from: iso(validation.fromMs), to: iso(validation.toMs) },
+        stopping: { from: iso(blocks.stopping.fromMs), to: iso(blocks.stopping.toMs) },
+        archive: { from: iso(blocks.archive.fromMs), to: iso(blocks.archive.toMs) },
+        // The archives' errors come from a block the trees did not train, stop or tune on.
+        archiveSource: 'held-out',
+      },
       scores,
       createdBy: job.createdBy,
       parts: out.parts.map((part) => part.onnx),
@@ -141,7 +150,7 @@ export const fitJob: JobHandler = async (job, { db, progress, signal }) => {
     activated: p.activate,
     scores,
     onnxCheck: out.onnxCheck,
-    archives: { leadFree: out.correctedArchive.summary, perLead: perLead.archives?.corrected.summary ?? null, perLeadNote: out.perLead ? out.perLead.reason : 'no past runs (reforecasts) issued in the validation period' },
+    archives: { leadFree: out.correctedArchive.summary, perLead: perLead.archives?.corrected.summary ?? null, perLeadNote: out.perLead ? out.perLead.reason : 'no past runs (reforecasts) issued in the held-out archive block of the validation period' },
   };
 };
 

@@ -1,8 +1,9 @@
 import { dayOfYearUtc } from '../core/day-of-year.ts';
-import { buildArchiveFromReforecasts, type ErrorArchive } from '../core/error-archive.ts';
+import { dressedArchiveFromRuns, type DressingSummary } from '../core/ensemble-dressing.ts';
+import { casesInLeadGroup, type ErrorArchive } from '../core/error-archive.ts';
 import type { ErrorTransformSpec } from '../core/error-transform.ts';
 import { reforecastRows, requiredInputs, type FeatureSpec, type ReforecastIssue } from '../core/features.ts';
-import { archiveMembers, archiveSummary, type ArchiveSeries, type ResidualPredictor } from './residual-evaluation.ts';
+import { archiveSummary, type ArchiveSeries, type ResidualPredictor } from './residual-evaluation.ts';
 
 /** Stored past runs of a gauge on one layout: what the per-lead error archives are built from. */
 export interface ReforecastSet {
@@ -29,6 +30,8 @@ export interface PerLeadSummary {
   templates: number;
   templateLength: number;
   transform: unknown;
+  /** How the ensemble-mean errors were shrunk so the spread is not counted twice. */
+  dressing: DressingSummary;
 }
 
 export interface ReforecastScores {
@@ -106,10 +109,9 @@ function layout(series: ArchiveSeries, set: ReforecastSet, needSimulation: boole
   const bySeries = new Map(series.members.map((m, k) => [m.id, k]));
   const usable = set.memberIds.map((id, m) => ({ m, k: bySeries.get(id) ?? -1 })).filter((x) => !needSimulation || x.k >= 0);
   if (!usable.length) return "no member of the past runs has a continuous simulation (needed for the warm-up)";
-  // Members share the observations, so their errors are near-duplicates: keep a few, evenly spread,
-  // as the lead-free archive does.
-  const keep = archiveMembers(usable.length).map((j) => usable[j]);
-  return { H, stepMs, issue, at, setMember: keep.map((x) => x.m), seriesMember: keep.map((x) => x.k) };
+  // Every member: the archive holds one case per issue and lead (the ensemble mean's error), and
+  // the mean and spread it is dressed by are best taken over the whole ensemble.
+  return { H, stepMs, issue, at, setMember: usable.map((x) => x.m), seriesMember: usable.map((x) => x.k) };
 }
 
 /** Observed flow and day of year at every (row, lead) valid time; rows = used issue × kept member. */
@@ -150,15 +152,40 @@ function issuesWithCases(values: Float64Array, observed: Float64Array, L: Layout
   return issues;
 }
 
-function summaryOf(a: ErrorArchive, L: Layout, given: number, issues: number): PerLeadSummary {
-  return { nLeads: a.nLeads, issues, issuesGiven: given, members: L.setMember.length, ...archiveSummary(a) };
+function summaryOf(a: ErrorArchive, dressing: DressingSummary, L: Layout, given: number, issues: number): PerLeadSummary {
+  return { nLeads: a.nLeads, issues, issuesGiven: given, members: L.setMember.length, ...archiveSummary(a), dressing };
+}
+
+/**
+ * The dressed per-lead archive of member values laid out as rows of (issue, member): one case per
+ * issue and lead, the ensemble mean's error shrunk to the spread the members lack (see
+ * ensemble-dressing.ts).
+ */
+function dressedArchive(values: Float64Array, observed: Float64Array, dayOfYear: Uint16Array, L: Layout, transform: ErrorTransformSpec) {
+  const nK = L.setMember.length;
+  const nIssues = L.issue.length;
+  // observed and dayOfYear repeat per member row: take each issue's first row.
+  const perIssue = <T extends Float64Array | Uint16Array>(a: T, make: (n: number) => T): T => {
+    const out = make(nIssues * L.H);
+    for (let u = 0; u < nIssues; u++) out.set(a.subarray(u * nK * L.H, u * nK * L.H + L.H), u * L.H);
+    return out;
+  };
+  return dressedArchiveFromRuns({
+    nIssues,
+    nMembers: nK,
+    nLeads: L.H,
+    members: values,
+    observed: perIssue(observed, (n) => new Float64Array(n)),
+    dayOfYear: perIssue(dayOfYear, (n) => new Uint16Array(n)),
+    transform,
+  });
 }
 
 /** Checks that an archive can serve any run up to its horizon: cases at every lead and a template. */
 function unusable(a: ErrorArchive, issues: number): string | null {
   if (issues < MIN_PER_LEAD_ISSUES) return `only ${issues} past runs have observed leads; at least ${MIN_PER_LEAD_ISSUES} are needed`;
-  for (let h = 0; h < a.nLeads; h++) if (a.groupStart[h + 1] === a.groupStart[h]) return `no case at lead ${h + 1}`;
-  if (!a.templateStart.length) return 'no past run is complete over all its leads (no Schaake template)';
+  for (let h = 0; h < a.nLeads; h++) if (casesInLeadGroup(a, h) === 0) return `no case at lead ${h + 1}`;
+  if (!a.templateStart.length) return 'no past run has its leads observed nearly completely (no Schaake template)';
   return null;
 }
 
@@ -166,10 +193,10 @@ function unusable(a: ErrorArchive, issues: number): string | null {
  * Per-lead error archives from the gauge's stored past runs (reforecasts): each issue is laid out
  * like a served run — the members' continuous simulations up to issue time as warm-up, then the
  * stored value per lead — corrected by the residual model(s) (a bundle's mean, never negative, as
- * the lead-free archive), and compared with the observations at the valid times. Each issue ×
- * member is one row of the issue × lead matrix (up to ARCHIVE_MEMBERS members, evenly spread), so
- * every complete row is a Schaake template and cases are grouped per lead. The raw members' errors
- * on the same cases make the degraded-mode archive. Forcings at the lead times are the archived
+ * the lead-free archive), and compared with the observations at the valid times. Each issue is
+ * one row of the issue × lead matrix: its case at a lead is the ensemble mean's error, shrunk so
+ * the members' own spread is not counted twice (ensemble-dressing.ts); each (nearly) complete row
+ * is a Schaake template. The raw members dressed the same way make the degraded-mode archive. Forcings at the lead times are the archived
  * (observed) ones: see PAST_FORCINGS_NOTE.
  */
 export async function evaluateReforecasts(
@@ -236,14 +263,18 @@ export async function evaluateReforecasts(
   const issues = issuesWithCases(corrected, observed, L);
   const scores = scoreReforecasts(rawMasked, corrected, observed, L, issues);
   if (scores.cases === 0) return { archives: null, reason: 'no past run has a corrected value with an observation', scores: null };
-  const input = { nIssues: nRows, nLeads: L.H, observed, dayOfYear, transform: options.transform };
-  const cor = buildArchiveFromReforecasts({ ...input, corrected });
-  const reason = unusable(cor, issues);
+  const cor = dressedArchive(corrected, observed, dayOfYear, L, options.transform);
+  const reason = unusable(cor.archive, issues);
   if (reason) return { archives: null, reason, scores };
-  const rawArchive = buildArchiveFromReforecasts({ ...input, corrected: rawMasked });
+  const rawArchive = dressedArchive(rawMasked, observed, dayOfYear, L, options.transform);
   const given = set.issueTimes.length;
   return {
-    archives: { corrected: cor, raw: rawArchive, correctedSummary: summaryOf(cor, L, given, issues), rawSummary: summaryOf(rawArchive, L, given, issues) },
+    archives: {
+      corrected: cor.archive,
+      raw: rawArchive.archive,
+      correctedSummary: summaryOf(cor.archive, cor.dressing, L, given, issues),
+      rawSummary: summaryOf(rawArchive.archive, rawArchive.dressing, L, given, issues),
+    },
     reason: null,
     scores,
   };
@@ -257,9 +288,9 @@ export function rawArchiveFromReforecasts(
 ): { archive: ErrorArchive; summary: PerLeadSummary } | { archive: null; reason: string } {
   const L = layout(series as ArchiveSeries, set, false);
   if (typeof L === 'string') return { archive: null, reason: L };
-  const { nRows, observed, dayOfYear, raw } = observedMatrix(series as ArchiveSeries, set, L);
-  const a = buildArchiveFromReforecasts({ nIssues: nRows, nLeads: L.H, corrected: raw, observed, dayOfYear, transform: options.transform });
-  const summary = summaryOf(a, L, set.issueTimes.length, issuesWithCases(raw, observed, L));
+  const { observed, dayOfYear, raw } = observedMatrix(series as ArchiveSeries, set, L);
+  const { archive: a, dressing } = dressedArchive(raw, observed, dayOfYear, L, options.transform);
+  const summary = summaryOf(a, dressing, L, set.issueTimes.length, issuesWithCases(raw, observed, L));
   const reason = unusable(a, summary.issues);
   return reason ? { archive: null, reason } : { archive: a, summary };
 }

@@ -1,7 +1,9 @@
 import { archiveToBytes } from '../core/archive-codec.ts';
 import { dayOfYearUtc } from '../core/day-of-year.ts';
 import { deterministicScores } from '../core/deterministic-scores.ts';
-import { buildArchiveFromSeries, type ErrorArchive } from '../core/error-archive.ts';
+import { buildArchiveFromSeries, templateShortfall, type ErrorArchive, type NeighbourSettings } from '../core/error-archive.ts';
+import { simulationErrorVariances } from '../core/lead-growth.ts';
+import { chooseNeighboursByHalves, type NeighbourScore } from '../core/neighbour-choice.ts';
 import type { ErrorTransformSpec } from '../core/error-transform.ts';
 import { continuousRows, type FeatureSpec } from '../core/features.ts';
 
@@ -39,6 +41,12 @@ export interface ValidationScores {
   memberMean: { nseBefore: number; nseAfter: number; kgeBefore: number; kgeAfter: number };
   /** Scores of the ensemble mean, before and after correction. */
   ensembleMean: { nseBefore: number; nseAfter: number; kgeBefore: number; kgeAfter: number };
+  /** The stochastic stage's neighbour kernel and k chosen on these errors, with every candidate's scores. */
+  neighbours: { chosen: NeighbourSettings; candidates: NeighbourScore[] };
+  /** Error variances of the corrected simulations (archive transform space): the baseline errors grow from with lead. */
+  errorVariances: { memberErrorVariance: number; meanErrorVariance: number };
+  /** Per lead, the factor the lead-free archive's errors are scaled by (from past runs); absent without them. */
+  leadGrowth?: number[];
 }
 
 export interface Evaluation {
@@ -152,7 +160,17 @@ export async function evaluateResidualModel(
   // so their errors are near-duplicates, and every extra case slows the neighbour search (k = √n).
   const keep = archiveMembers(nM);
   const pick = (a: Float64Array) => concatMembers(a, keep, stride);
-  const archiveInput = { observed: pick(obsCat), dayOfYear: pickDoy(doyCat, keep, stride), transform: options.transform, templateLength: options.templateLength };
+  const archiveInput = { observed: pick(obsCat), dayOfYear: pickDoy(doyCat, keep, stride), transform: options.transform, templateLength: options.templateLength, segmentLength: stride };
+  const correctedArchive = buildArchiveFromSeries({ ...archiveInput, corrected: pick(corCat) });
+  // A fit whose archive cannot shuffle runs of the horizon it was asked for fails here, with the
+  // reason, rather than succeed and have every run refused.
+  const shortfall = templateShortfall(correctedArchive, options.templateLength);
+  if (shortfall) throw new Error(`the validation period cannot make the error archive: ${shortfall}`);
+  const rawArchive = buildArchiveFromSeries({ ...archiveInput, corrected: pick(maskWhere(rawCat, corCat)) });
+  // The stage's kernel and k, chosen on these held-out errors (two folds by time) so the PIT is uniform.
+  const neighbours = chooseNeighboursByHalves({ corrected: pick(corCat), observed: archiveInput.observed, segmentLength: stride, transform: correctedArchive.transform });
+  correctedArchive.neighbours = neighbours.settings;
+  rawArchive.neighbours = chooseNeighboursByHalves({ corrected: pick(maskWhere(rawCat, corCat)), observed: archiveInput.observed, segmentLength: stride, transform: rawArchive.transform }).settings;
   return {
     scores: {
       period: { from: iso(validation.fromMs), to: iso(validation.toMs) },
@@ -161,9 +179,11 @@ export async function evaluateResidualModel(
       residualRmse: { before: Math.sqrt(residualSq.before / residualSq.n), after: Math.sqrt(residualSq.after / residualSq.n) },
       memberMean: memberScores,
       ensembleMean: { nseBefore: ensBefore.nse, nseAfter: ensAfter.nse, kgeBefore: ensBefore.kge, kgeAfter: ensAfter.kge },
+      neighbours: { chosen: neighbours.settings, candidates: neighbours.scores },
+      errorVariances: simulationErrorVariances({ corrected: corCat, observed: obsCat, nMembers: nM, segmentLength: stride, transform: correctedArchive.transform }),
     },
-    correctedArchive: buildArchiveFromSeries({ ...archiveInput, corrected: pick(corCat) }),
-    rawArchive: buildArchiveFromSeries({ ...archiveInput, corrected: pick(maskWhere(rawCat, corCat)) }),
+    correctedArchive,
+    rawArchive,
   };
 }
 
@@ -204,11 +224,22 @@ export function rawArchiveFromSeries(series: ArchiveSeries, period: Period, opti
       doy[k * stride + j] = dayOfYearUtc(series.times[i]);
     });
   });
-  return buildArchiveFromSeries({ corrected: raw, observed: obs, dayOfYear: doy, transform: options.transform, templateLength: options.templateLength });
+  const archive = buildArchiveFromSeries({ corrected: raw, observed: obs, dayOfYear: doy, transform: options.transform, templateLength: options.templateLength, segmentLength: stride });
+  const shortfall = templateShortfall(archive, options.templateLength);
+  if (shortfall) throw new Error(`the period cannot make the raw error archive: ${shortfall}`);
+  archive.neighbours = chooseNeighboursByHalves({ corrected: raw, observed: obs, segmentLength: stride, transform: archive.transform }).settings;
+  return archive;
 }
 
-export function archiveSummary(a: ErrorArchive): { cases: number; templates: number; templateLength: number; transform: unknown } {
-  return { cases: a.predictor.length, templates: a.templateStart.length, templateLength: a.templateLength, transform: a.transform };
+export function archiveSummary(a: ErrorArchive): { cases: number; templates: number; templateLength: number; transform: unknown; neighbours: NeighbourSettings | null; leadScale: number[] | null } {
+  return {
+    cases: a.predictor.length,
+    templates: a.templateStart.length,
+    templateLength: a.templateLength,
+    transform: a.transform,
+    neighbours: a.neighbours ?? null,
+    leadScale: a.leadScale ? Array.from(a.leadScale) : null,
+  };
 }
 
 export { archiveToBytes };

@@ -1,5 +1,6 @@
 import type { ErrorTransformSpec } from '../core/error-transform.ts';
 import { continuousRows, makeFeatureSpec, type FeatureSpec } from '../core/features.ts';
+import { leadGrowthScale } from '../core/lead-growth.ts';
 import { createPrng } from '../core/prng.ts';
 import { treeModelToOnnx } from './onnx-export.ts';
 import { createResidualSession, predictResiduals } from './onnx-session.ts';
@@ -10,6 +11,7 @@ import { tune, type SearchParam } from './tuning/index.ts';
 
 export interface FitOptions {
   calibration: Period;
+  /** Split by splitValidation into the early-stopping block and the held-out archive block. */
   validation: Period;
   trainer: 'gradient-boosting' | 'random-forest';
   /** Trainer parameters (fixed, or the starting point when tuning). */
@@ -26,7 +28,7 @@ export interface FitOptions {
   templateLength: number;
   /** Calibration rows are subsampled to at most this many (seeded), to bound fitting time. */
   maxTrainRows: number;
-  /** Past runs issued in the validation period; when given, per-lead error archives are built from them too. */
+  /** Past runs issued in the archive block; when given, per-lead error archives are built from them too. */
   reforecasts?: ReforecastSet | null;
 }
 
@@ -52,6 +54,29 @@ export interface FitResult {
   perLead: ReforecastEvaluation | null;
   rows: { calibration: number; validation: number };
   onnxCheck: { rows: number; mismatches: number };
+  /** The blocks the validation period was split into. */
+  blocks: ValidationBlocks;
+}
+
+export interface ValidationBlocks {
+  /** Early stopping and tuning look here. */
+  stopping: Period;
+  /** Held out from training, early stopping and tuning: scores and error archives come from here. */
+  archive: Period;
+}
+
+/** Share of the validation period (its first part, by time) used for early stopping and tuning. */
+export const STOPPING_SHARE = 0.4;
+
+/**
+ * Splits the validation period into an early-stopping block (the first STOPPING_SHARE of it) and
+ * the archive block after it, on a step boundary. Errors from the block the trees were stopped
+ * on are slightly optimistic, so the error archives use only data the model never saw.
+ */
+export function splitValidation(validation: Period, stepMs: number): ValidationBlocks {
+  const steps = Math.floor((validation.toMs - validation.fromMs) / stepMs);
+  const split = validation.fromMs + Math.max(1, Math.round(steps * STOPPING_SHARE)) * stepMs;
+  return { stopping: { fromMs: validation.fromMs, toMs: split }, archive: { fromMs: split, toMs: validation.toMs } };
 }
 
 /** Default search space for gradient boosting (ranges are common practice). */
@@ -72,7 +97,8 @@ export const defaultForestSpace: SearchParam[] = [
 /**
  * Fits the residual stage from a gauge's continuous member simulations: target = observed −
  * simulated, pooled over members; calibration and validation are contiguous date blocks (nothing
- * shuffled across time); early stopping and tuning look at the validation block. Exports each
+ * shuffled across time); early stopping and tuning look at the first part of the validation
+ * period, and the scores and error archives come from the rest, which the model never saw. Exports each
  * kept model to ONNX and checks that onnxruntime reproduces the in-process predictions exactly on
  * every validation row, then scores the correction and builds the error archives: the lead-free
  * one, and the per-lead ones when past runs issued in the validation period are given.
@@ -85,9 +111,10 @@ export async function fitResidualModel(
 ): Promise<FitResult> {
   const spec = makeFeatureSpec({ stepSeconds: series.stepSeconds, simLags: options.simLags, forcings: options.forcings, seasonal: options.seasonal });
   onProgress({ stage: 'building feature rows', percent: 1 });
-  const [cal, val] = collectRows(series, spec, [options.calibration, options.validation]);
+  const blocks = splitValidation(options.validation, series.stepSeconds * 1000);
+  const [cal, val] = collectRows(series, spec, [options.calibration, blocks.stopping]);
   if (cal.nRows < 50) throw new Error(`the calibration period gives ${cal.nRows} complete rows; at least 50 are needed`);
-  if (val.nRows < 20) throw new Error(`the validation period gives ${val.nRows} complete rows; at least 20 are needed`);
+  if (val.nRows < 20) throw new Error(`the early-stopping block (the first ${STOPPING_SHARE * 100} % of the validation period) gives ${val.nRows} complete rows; at least 20 are needed`);
   const train = subsample(cal, options.maxTrainRows, options.seed);
   const data = { x: train.rows, nRows: train.nRows, nFeatures: train.nFeatures, y: train.target, valid: { x: val.rows, nRows: val.nRows, y: val.target } };
 
@@ -155,16 +182,25 @@ export async function fitResidualModel(
 
   onProgress({ stage: 'scoring the validation period and building error archives', percent: 90 });
   const predictors = sessions.map((s) => (rows: Float32Array, n: number, nF: number) => predictResiduals(s, rows, n, nF));
-  const evaluation = await evaluateResidualModel(series, spec, options.validation, predictors, { transform: options.transform, templateLength: options.templateLength });
+  const evaluation = await evaluateResidualModel(series, spec, blocks.archive, predictors, { transform: options.transform, templateLength: options.templateLength });
   let perLead: ReforecastEvaluation | null = null;
   if (options.reforecasts) {
     onProgress({ stage: 'building the per-lead error archives from the past runs', percent: 95 });
     // The lead-free archive's resolved transform, so both archives' errors share one scale.
     perLead = await evaluateReforecasts(series, options.reforecasts, spec, predictors, { transform: evaluation.correctedArchive.transform });
+    // The past runs also say how the errors grow with lead: the lead-free archive learns it too,
+    // for runs it serves while the per-lead archive has too few past runs to serve them itself.
+    if (perLead.archives) {
+      const v = evaluation.scores.errorVariances;
+      if (v.memberErrorVariance > 0 && Number.isFinite(v.meanErrorVariance)) {
+        evaluation.correctedArchive.leadScale = leadGrowthScale({ ...v, forecastMeanErrorVariance: perLead.archives.correctedSummary.dressing.byLead.map((l) => l.errorVariance) });
+        evaluation.scores.leadGrowth = Array.from(evaluation.correctedArchive.leadScale);
+      }
+    }
   }
   await Promise.all(sessions.map((s) => s.release()));
   onProgress({ stage: 'done', percent: 100 });
-  return { spec, parts, trials, evaluation, perLead, rows: { calibration: cal.nRows, validation: val.nRows }, onnxCheck: { rows: val.nRows * parts.length, mismatches } };
+  return { spec, parts, trials, evaluation, perLead, rows: { calibration: cal.nRows, validation: val.nRows }, onnxCheck: { rows: val.nRows * parts.length, mismatches }, blocks };
 }
 
 export class CancelledError extends Error {

@@ -118,6 +118,11 @@ describe('fitting residual models as background jobs', () => {
     expect(wrongParam.statusCode).toBe(422);
     expect(wrongParam.json().errors[0]).toMatchObject({ path: 'body.params.learningRate' });
     expect(wrongParam.json().errors[0].message).toMatch(/not a random-forest parameter/);
+    // Box–Cox with λ < 0 is refused by the request, before any training.
+    const negativeLambda = await t.as('admin', { method: 'POST', url: `/gauges/${gaugeId}/models/fit`, payload: { transform: { kind: 'boxcox', lambda: -0.5 } } });
+    expect(negativeLambda.statusCode).toBe(422);
+    expect(negativeLambda.json().errors[0]).toMatchObject({ path: 'body.transform.lambda' });
+    expect(negativeLambda.json().errors[0].message).toMatch(/λ ≥ 0/);
   });
 });
 

@@ -1,7 +1,7 @@
 // Per-lead error archives from stored past runs (reforecasts), built after fitting and after an
 // upload, and chosen by POST /gauges/:id/runs when the run's lead times fit within them.
-// Expected sizes are counted here from the scenario itself (issues in the validation period,
-// observed leads), not taken from the service.
+// Expected sizes are counted here from the scenario itself (issues in the held-out archive block
+// of the validation period, observed leads), not taken from the service.
 import { readFileSync } from 'node:fs';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { archiveFromBytes } from '../../src/core/archive-codec.ts';
@@ -26,6 +26,8 @@ const fitBody = { params: { nRounds: 40, learningRate: 0.2, maxDepth: 3, patienc
 let versionId: string;
 let version: Record<string, any>;
 let inValidation: ForecastRun[];
+/** Past runs issued in the fit's held-out archive block (the last part of the validation period). */
+let inArchive: ForecastRun[];
 
 async function fit(body: object) {
   const started = await t.as('admin', { method: 'POST', url: `/gauges/${gaugeId}/models/fit`, payload: body });
@@ -36,18 +38,21 @@ async function fit(body: object) {
   return job.result;
 }
 
-/** What the per-lead archive must hold, counted from the scenario: cases per lead and complete rows. */
+/**
+ * What the per-lead archive must hold, counted from the scenario: one case per issue and observed
+ * lead (the ensemble mean's error), and templates: the issues missing at most 10 % of their leads
+ * (one of ten here).
+ */
 function expected(runs: ForecastRun[]) {
-  const M = scenario.memberIds.length;
   const perLead = new Array(LEADS).fill(0);
   let templates = 0;
   let issues = 0;
   for (const run of runs) {
     const obs = scenario.observedFlow.slice(run.issueTimeIndex + 1, run.issueTimeIndex + 1 + LEADS);
     obs.forEach((y, h) => {
-      if (y !== null) perLead[h] += M;
+      if (y !== null) perLead[h] += 1;
     });
-    if (obs.every((y) => y !== null)) templates += M;
+    if (obs.filter((y) => y === null).length <= Math.floor(0.1 * LEADS)) templates += 1;
     if (obs.some((y) => y !== null)) issues++;
   }
   return { perLead, cases: perLead.reduce((a, b) => a + b, 0), templates, issues };
@@ -89,6 +94,10 @@ beforeAll(async () => {
   version = (await t.as('read', { method: 'GET', url: `/gauges/${gaugeId}/models/${versionId}` })).json();
   const v = { from: Date.parse(version.periods.validation.from), to: Date.parse(version.periods.validation.to) };
   inValidation = scenario.reforecasts().filter((r) => Date.parse(r.issueTime) >= v.from && Date.parse(r.issueTime) < v.to);
+  const b = { from: Date.parse(version.periods.archive.from), to: Date.parse(version.periods.archive.to) };
+  expect(b.from).toBeGreaterThan(v.from);
+  expect(b.to).toBe(v.to);
+  inArchive = scenario.reforecasts().filter((r) => Date.parse(r.issueTime) >= b.from && Date.parse(r.issueTime) < b.to);
 });
 afterAll(async () => {
   await runner.stop();
@@ -96,9 +105,9 @@ afterAll(async () => {
 });
 
 describe('per-lead error archives after fitting', () => {
-  it('stores a corrected and a raw per-lead archive next to the lead-free ones, sized by the past runs in the validation period', async () => {
-    expect(inValidation.length).toBeGreaterThanOrEqual(20);
-    const want = expected(inValidation);
+  it('stores a corrected and a raw per-lead archive next to the lead-free ones, sized by the past runs in the held-out archive block', async () => {
+    expect(inArchive.length).toBeGreaterThanOrEqual(20);
+    const want = expected(inArchive);
     const { rows } = await t.db.query<{ kind: string; lead_mode: string; cases: number }>('select kind, lead_mode, cases from error_archives where version_id = $1 order by id', [versionId]);
     expect(rows.map((r) => `${r.kind}/${r.lead_mode}`)).toEqual(['corrected/lead-free', 'raw/lead-free', 'corrected/per-lead', 'raw/per-lead']);
 
@@ -109,11 +118,11 @@ describe('per-lead error archives after fitting', () => {
       expect(a.nLeads).toBe(LEADS);
       expect(a.templateLength).toBe(LEADS);
       expect(a.groupStart).toHaveLength(LEADS + 1);
-      // Every issue × member is one row of the issue × lead matrix: cases per lead and complete rows.
+      // Every issue is one row of the issue × lead matrix: cases per lead and (nearly) complete rows.
       expect(groupSizes(a)).toEqual(want.perLead);
       expect(a.templateStart).toHaveLength(want.templates);
-      expect(a.templateValues).toHaveLength(inValidation.length * scenario.memberIds.length * LEADS);
-      expect(stored.summary).toMatchObject({ nLeads: LEADS, issues: want.issues, issuesGiven: inValidation.length, members: 4, cases: want.cases, templates: want.templates });
+      expect(a.templateValues).toHaveLength(inArchive.length * LEADS);
+      expect(stored.summary).toMatchObject({ nLeads: LEADS, issues: want.issues, issuesGiven: inArchive.length, members: 4, cases: want.cases, templates: want.templates });
     }
     // The lead-free archive is unchanged: one group serving every lead, templates of the asked length.
     const leadFree = archiveFromBytes((await versionArchive(t.db, versionId, 'corrected'))!.bytes);
@@ -121,45 +130,48 @@ describe('per-lead error archives after fitting', () => {
     expect(leadFree.templateLength).toBe(30);
   });
 
-  it("the raw per-lead archive holds the stored runs' values and their errors against the observations", async () => {
+  it("the raw per-lead archive holds the stored runs' ensemble means and their errors against the observations", async () => {
     const a = archiveFromBytes((await versionArchive(t.db, versionId, 'raw', 'per-lead'))!.bytes);
     if (a.transform.kind !== 'log') throw new Error('the fit asked for the default log transform');
     const offset = a.transform.offset;
     for (const h of [0, LEADS - 1]) {
-      const values: number[] = [];
+      const means: number[] = [];
       let errorSum = 0;
-      for (const run of inValidation) {
+      for (const run of inArchive) {
         const y = scenario.observedFlow[run.issueTimeIndex + 1 + h];
         if (y === null) continue;
-        for (const m of run.members) {
-          const x = m.values[m.warmupSteps + h];
-          values.push(x);
-          errorSum += Math.log(y + offset) - Math.log(x + offset);
-        }
+        // The ensemble mean in the log space of the errors.
+        const logMean = run.members.reduce((sum, m) => sum + Math.log(m.values[m.warmupSteps + h] + offset), 0) / run.members.length;
+        means.push(Math.exp(logMean) - offset);
+        errorSum += Math.log(y + offset) - logMean;
       }
       const got = Array.from(a.predictor.subarray(a.groupStart[h], a.groupStart[h + 1]));
-      expect(got).toEqual(values.sort((p, q) => p - q));
-      const err = a.error.subarray(a.groupStart[h], a.groupStart[h + 1]).reduce((s, e) => s + e, 0);
+      means.sort((p, q) => p - q).forEach((m, i) => expect(got[i]).toBeCloseTo(m, 9));
+      // The dressing shrinks each error towards the lead's mean error, so their sum is unchanged.
+      const err = a.error.subarray(a.groupStart[h], a.groupStart[h + 1]).reduce((sum, e) => sum + e, 0);
       expect(err).toBeCloseTo(errorSum, 8);
     }
   });
 
   it("the corrected per-lead archive holds what the service serves for the same past run (one feature builder)", async () => {
-    const past = inValidation[inValidation.length - 3];
+    const past = inArchive[inArchive.length - 3];
     const i = past.issueTimeIndex;
     const res = await post(runBody(i, (m, k) => past.members[m].values[past.warmupSteps + k], LEADS, { source: 'past-run' }));
     expect(res.statusCode, res.body).toBe(201);
     const served = res.json();
     expect(served.status).toBe('corrected');
     const a = archiveFromBytes((await versionArchive(t.db, versionId, 'corrected', 'per-lead'))!.bytes);
+    if (a.transform.kind !== 'log') throw new Error('the fit asked for the default log transform');
+    const offset = a.transform.offset;
     for (let h = 0; h < LEADS; h++) {
       if (scenario.observedFlow[i + 1 + h] === null) continue;
       const group = a.predictor.subarray(a.groupStart[h], a.groupStart[h + 1]);
-      for (const member of served.ensemble.corrected as { values: number[] }[]) {
-        // Served values are rounded to 1e-4; the nearest archived case must be that value.
-        const nearest = group.reduce((best, x) => (Math.abs(x - member.values[h]) < Math.abs(best - member.values[h]) ? x : best), Infinity);
-        expect(Math.abs(nearest - member.values[h])).toBeLessThanOrEqual(5e-5 + 1e-9);
-      }
+      // The archived case of this issue is the served corrected members' mean (in log space).
+      const members = served.ensemble.corrected as { values: number[] }[];
+      const mean = Math.exp(members.reduce((sum, m) => sum + Math.log(m.values[h] + offset), 0) / members.length) - offset;
+      const nearest = group.reduce((best, x) => (Math.abs(x - mean) < Math.abs(best - mean) ? x : best), Infinity);
+      // Served values are rounded to 1e-4.
+      expect(Math.abs(nearest - mean)).toBeLessThanOrEqual(1e-4);
     }
   });
 
@@ -167,10 +179,17 @@ describe('per-lead error archives after fitting', () => {
     const modes = (version.archives as { kind: string; leadMode: string; nLeads?: number }[]).map((a) => `${a.kind}/${a.leadMode}`);
     expect(modes).toEqual(['corrected/lead-free', 'raw/lead-free', 'corrected/per-lead', 'raw/per-lead']);
     const r = version.scores.reforecasts;
-    expect(r.perLeadArchive).toMatchObject({ stored: true, nLeads: LEADS, issues: expected(inValidation).issues });
+    expect(r.perLeadArchive).toMatchObject({ stored: true, nLeads: LEADS, issues: expected(inArchive).issues });
     expect(r.byLead).toHaveLength(LEADS);
-    expect(r.cases).toBe(expected(inValidation).cases);
+    // The residual scores count every member at every observed lead; the archive one case per issue.
+    expect(r.cases).toBe(expected(inArchive).cases * scenario.memberIds.length);
     expect(r.note).toMatch(/observed\) forcings at the lead times/);
+    // The past runs also give the lead-free archive its growth of errors with lead (factors ≥ 1).
+    const growth = version.scores.leadGrowth as number[];
+    expect(growth).toHaveLength(LEADS);
+    for (const g of growth) expect(g).toBeGreaterThanOrEqual(1);
+    const leadFree = version.archives.find((a: { kind: string; leadMode: string }) => a.kind === 'corrected' && a.leadMode === 'lead-free');
+    expect(leadFree.leadScale).toEqual(growth);
   });
 });
 

@@ -90,6 +90,22 @@ describe('correcting a raw run', () => {
     expect(c.quantiles).not.toEqual(a.quantiles);
   });
 
+  it('gives each probability its Monte-Carlo standard error and says when the trajectories are too few', async () => {
+    const run = scenario.forecastRun(lastIndex - 41);
+    const coarse = (await post(runBody(run, { source: 'coarse', trajectories: 100 }))).json();
+    // Binomial standard error √(p(1 − p)/N) of a proportion from N independent draws.
+    for (const th of coarse.thresholds) {
+      expect(th.anyTimeStandardError).toBeCloseTo(Math.sqrt((th.anyTime * (1 - th.anyTime)) / 100), 4);
+      th.exceedance.forEach((p: number, k: number) => expect(th.exceedanceStandardError[k]).toBeCloseTo(Math.sqrt((p * (1 - p)) / 100), 4));
+    }
+    expect(coarse.probabilityNote).toMatch(/Only 100 trajectories: the probabilities are coarse/);
+    const fine = (await post(runBody(run, { source: 'fine', trajectories: 400 }))).json();
+    expect(fine.probabilityNote).toBeUndefined();
+    const text = await t.as('read', { method: 'GET', url: `/forecasts/${coarse.id}?format=text` });
+    expect(text.body).toMatch(/sampling error of each probability: at most ±5 points/);
+    expect(text.body).toMatch(/NOTE: Only 100 trajectories/);
+  });
+
   it.each([
     ['unknown member', (b: any) => (b.members[1].id = 'p99'), 'body.members[1].id', /unknown member/],
     ['negative flow', (b: any) => (b.members[0].values[12] = -1), 'body.members[0].values[12]', /negative/],

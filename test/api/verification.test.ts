@@ -317,10 +317,10 @@ describe('the scenario: stored runs, later observations, drift', () => {
     expect(ref.status, ref.error).toBe('succeeded');
     s = await status();
     // From the stored reforecasts of the validation period (real forecasts, with forcing errors);
-    // in-sample for the stage's archives, which the reasons say.
+    // it overlaps the held-out block the stage's archives came from, which the reasons say.
     expect(s.gauge.drift.evidence.reference).toMatchObject({ jobId: ref.id, mode: 'reforecast' });
     expect(['ok', 'drifting']).toContain(s.gauge.status);
-    expect(s.gauge.drift.reasons.join(' ')).toMatch(/measured on the validation period/);
+    expect(s.gauge.drift.reasons.join(' ')).toMatch(/measured in-sample: on the period from which the stage's error archives were built/);
     // Each run counts once in the coverage test (its lead times share their errors).
     expect(s.gauge.drift.evidence.testedUnits).toBe(lastIssue - firstIssue + 1);
   });

@@ -163,7 +163,9 @@ export interface ComparisonReport {
   /**
    * The same for the fair CRPS. Standard CRPS favours larger sets of values (its expectation
    * exceeds the fair one by E|X − X'|/(2m)), so 1000 stochastic samples would gain on 50
-   * members from their number alone; the fair CRPS compares the forecast distributions.
+   * members from their number alone; the fair CRPS compares the forecast distributions. It is
+   * for exchangeable members and samples only: a stage given as midpoint quantiles enters with
+   * its standard CRPS, which already estimates its distribution's CRPS.
    */
   fairCrpsDifferences: CrpsDifferences;
   sizeStudy: SizeStudyResult[] | null;
@@ -244,7 +246,7 @@ export function createComparison(options: CompareOptions = {}): Comparison {
     obs.push(y);
     leads.push(c.lead);
     for (let i = 0; i < accs.length; i++) {
-      const sorted = accs[i].commit(y);
+      const sorted = accs[i].commit(y, names![i] === 'stochastic' && !c.stochastic);
       for (const st of studies) if (st.source === names![i]) st.add(sorted, sorted.length, y);
     }
   }

@@ -62,14 +62,21 @@ export class SourceAccumulator {
     return m;
   }
 
-  /** Scores the loaded case against observation y; returns the sorted row (valid until the next load). */
-  commit(y: number): Float64Array {
+  /**
+   * Scores the loaded case against observation y; returns the sorted row (valid until the next
+   * load). quantileSet: the values are quantiles of a distribution (e.g. its 100 midpoint levels),
+   * not exchangeable draws. The fair CRPS (Ferro 2014) corrects for a finite sample of draws, so
+   * it applies to members and samples only; for a quantile set the standard CRPS already
+   * estimates the distribution's CRPS and is recorded as its "fair" value too.
+   */
+  commit(y: number, quantileSet = false): Float64Array {
     const m = this.m;
     const sorted = this.sorter.sort(this.row, m, this.nonNegative);
     if (m < this.minMembers) this.minMembers = m;
     if (m > this.maxMembers) this.maxMembers = m;
-    this.crps.push(crpsSorted(sorted, y));
-    this.fairCrps.push(m >= 2 ? crpsSorted(sorted, y, true) : NaN);
+    const crps = crpsSorted(sorted, y);
+    this.crps.push(crps);
+    this.fairCrps.push(quantileSet ? crps : m >= 2 ? crpsSorted(sorted, y, true) : NaN);
     // One uniform per case, always drawn, so results do not depend on where ties occur.
     this.pit.push(pitFromSorted(sorted, m, y, this.rng.nextFloat()));
     this.median.push(quantileSorted(sorted, 0.5));

@@ -145,4 +145,21 @@ describe('compareForecasts', () => {
     expect(r.crpsDifferences.correctedVsRaw.t!).toBeLessThan(-2);
     expect(r.corrected.crps.skillVsRaw!).toBeGreaterThan(0);
   });
+  it('the fair CRPS applies to exchangeable members and samples; a quantile set keeps its standard CRPS', () => {
+    // Quantiles at the midpoint levels (i − 0.5)/4 of U(0, 1): 0.125, 0.375, 0.625, 0.875. They are
+    // not draws, so no finite-sample correction: "fair" equals standard. As samples, the same values
+    // get Ferro's (2014) correction S/(m(m − 1)) in place of S/m², which lowers the CRPS.
+    const values = [0.125, 0.375, 0.625, 0.875];
+    const probs = [0.125, 0.375, 0.625, 0.875];
+    const base = { lead: 0, observation: 0.3, raw: [0, 1], corrected: [0.2, 0.8] };
+    const asQuantiles = compareForecasts([{ ...base, stochasticQuantiles: { probs, values } }]);
+    const asSamples = compareForecasts([{ ...base, stochastic: values }]);
+    expect(asQuantiles.stochasticFrom).toBe('quantiles');
+    expect(asQuantiles.stochastic!.crps.fairCrps).toBeCloseTo(asQuantiles.stochastic!.crps.crps!, 15);
+    // Standard CRPS of the 4 values at y = 0.3, by hand from the sorted form: mean |x − y| = 1.15/4 =
+    // 0.2875, S = Σ_{i<j}|x_i − x_j| = 2.5, so 0.2875 − 2.5/16 = 0.13125; fair: 0.2875 − 2.5/12.
+    expect(asSamples.stochastic!.crps.crps).toBeCloseTo(0.13125, 12);
+    expect(asSamples.stochastic!.crps.fairCrps).toBeCloseTo(0.2875 - 2.5 / 12, 12);
+    expect(asQuantiles.stochastic!.crps.crps).toBeCloseTo(0.13125, 12);
+  });
 });
