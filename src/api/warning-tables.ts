@@ -2,7 +2,7 @@ import type { Scored, SourceName, WarningReport } from '../core/verification/ind
 
 /**
  * The warning verification as rows for CSV (columns raw, corrected, stochastic; an interval as
- * two extra rows "…, low" and "…, high") and as text tables (each cell "value (low – high)").
+ * two extra rows "… [low]" and "… [high]") and as text tables (each cell "value (low – high)").
  */
 export interface WarningRow {
   score: string;
@@ -23,8 +23,8 @@ function rowsOf(score: string, unit: string, get: (s: SourceName) => Cell): Warn
   const pick = (k: keyof Scored) => cells.map((c) => (c && typeof c === 'object' ? c[k] : typeof c === 'number' && k === 'value' ? c : null));
   return [
     { score, unit, values: pick('value') },
-    { score: `${score}, low`, unit, values: pick('low') },
-    { score: `${score}, high`, unit, values: pick('high') },
+    { score: `${score} [low]`, unit, values: pick('low') },
+    { score: `${score} [high]`, unit, values: pick('high') },
   ];
 }
 
