@@ -14,6 +14,12 @@ import { yearFraction } from '../day-of-year.ts';
 export interface SeasonalClimatology {
   /** Sorted climatological values for a valid time (empty when none). */
   valuesAt(validMs: number): Float64Array;
+  /**
+   * CRPS of the climatological ensemble for observation y (NaN when empty); with r, the
+   * threshold-weighted CRPS above r (values and y cut at r from below, as
+   * thresholdWeightedCrpsSorted). O(log m) per call from prefix sums kept per day of the year.
+   */
+  crpsAt(validMs: number, y: number, r?: number): number;
   /** Observations used (before the cutoff). */
   readonly size: number;
 }
@@ -40,21 +46,58 @@ export function seasonalClimatology(
   const cache = new Map<number, Float64Array>();
   // The window in slots of 1/366 year (a day, within a fraction of a day).
   const w = Math.round(windowDays);
+  // Per slot (and cut level r): sorted values v, prefix sums P, and the spread term S/m².
+  const sums = new Map<string, { v: Float64Array; P: Float64Array; spread: number }>();
+  const sumsAt = (s: number, r: number | undefined) => {
+    const key = `${s}:${r ?? ''}`;
+    let e = sums.get(key);
+    if (!e) {
+      const base = valuesAtSlot(s);
+      const v = r === undefined ? base : Float64Array.from(base, (x) => (x > r ? x : r));
+      const m = v.length;
+      const P = new Float64Array(m + 1);
+      let spread = 0;
+      for (let j = 0; j < m; j++) {
+        P[j + 1] = P[j] + v[j];
+        spread += (2 * (j + 1) - m - 1) * v[j];
+      }
+      e = { v, P, spread: m ? spread / (m * m) : NaN };
+      sums.set(key, e);
+    }
+    return e;
+  };
+  const valuesAtSlot = (s: number): Float64Array => {
+    let out = cache.get(s);
+    if (!out) {
+      const all: number[] = [];
+      for (let d = -w; d <= w; d++) {
+        const bucket = bySlot[(((s + d) % DAYS) + DAYS) % DAYS];
+        for (const v of bucket) all.push(v);
+      }
+      out = Float64Array.from(all).sort();
+      cache.set(s, out);
+    }
+    return out;
+  };
   return {
     size,
-    valuesAt(validMs: number): Float64Array {
-      const s = slot(validMs);
-      let out = cache.get(s);
-      if (!out) {
-        const all: number[] = [];
-        for (let d = -w; d <= w; d++) {
-          const bucket = bySlot[(((s + d) % DAYS) + DAYS) % DAYS];
-          for (const v of bucket) all.push(v);
-        }
-        out = Float64Array.from(all).sort();
-        cache.set(s, out);
+    valuesAt: (validMs: number) => valuesAtSlot(slot(validMs)),
+    crpsAt(validMs: number, y: number, r?: number): number {
+      const { v, P, spread } = sumsAt(slot(validMs), r);
+      const m = v.length;
+      if (m === 0) return NaN;
+      const yy = r === undefined || y > r ? y : r;
+      // k values ≤ yy: Σ|x − yy| = yy·k − P[k] + (P[m] − P[k]) − yy·(m − k).
+      let lo = 0;
+      let hi = m;
+      while (lo < hi) {
+        const mid = (lo + hi) >> 1;
+        if (v[mid] <= yy) lo = mid + 1;
+        else hi = mid;
       }
-      return out;
+      const k = lo;
+      const abs = yy * k - P[k] + (P[m] - P[k]) - yy * (m - k);
+      return abs / m - spread;
     },
   };
 }

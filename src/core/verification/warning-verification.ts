@@ -234,9 +234,9 @@ export function createWarningVerification(options: WarningOptions): WarningVerif
       caseRun.push(ri);
       caseLead.push(k);
       caseObs.push(y);
-      const clim = options.climatology?.valuesAt(run.validMs[k]);
-      climCrps.push(clim && clim.length ? crpsSorted(clim, y) : NaN);
-      climTw.push(clim && clim.length && flood ? thresholdWeightedCrpsSorted(clim, y, r) : NaN);
+      const clim = options.climatology;
+      climCrps.push(clim ? clim.crpsAt(run.validMs[k], y) : NaN);
+      climTw.push(clim && flood ? clim.crpsAt(run.validMs[k], y, r) : NaN);
       persCrps.push(Number.isFinite(run.persistence) ? Math.abs(run.persistence - y) : NaN);
       for (let s = 0; s < S; s++) {
         const col = sortedCols[s];

@@ -13,6 +13,7 @@ import {
   runHindcast,
   scoresByForecastClass,
   seasonalClimatology,
+  thresholdWeightedCrpsSorted,
   twoSidedDriftChecks,
   warningReferences,
   warningRunFromStored,
@@ -356,5 +357,19 @@ describe('hindcast cases gathered back into runs', () => {
     expect(Array.from(runs[1].sources[0].values)).toEqual([6, NaN, 8, 9, NaN, 11]);
     expect(Array.from(runs[1].sources[1].values)).toEqual([106, NaN, 108, 109, NaN, 111]);
     expect(runs[2].persistence).toBe(2);
+  });
+});
+
+describe('climatology CRPS from prefix sums', () => {
+  it('equals the ensemble CRPS and threshold-weighted CRPS of the climatological values', () => {
+    const g = createPrng(12);
+    const times = Array.from({ length: 3 * 365 }, (_, i) => Date.UTC(2001, 0, 1) + i * DAY);
+    const values = times.map(() => 20 * Math.exp(0.5 * g.normal()));
+    const clim = seasonalClimatology(times, values, Date.UTC(2010, 0, 1), 10);
+    for (const [t, y] of [[Date.UTC(2011, 4, 3), 17], [Date.UTC(2011, 0, 2), 55], [Date.UTC(2011, 11, 30), 3]]) {
+      const v = clim.valuesAt(t);
+      expect(clim.crpsAt(t, y)).toBeCloseTo(crpsEnsemble(v, y), 10);
+      expect(clim.crpsAt(t, y, 25)).toBeCloseTo(thresholdWeightedCrpsSorted(v, y, 25), 10);
+    }
   });
 });
