@@ -308,9 +308,10 @@ export function createWarningVerification(options: WarningOptions): WarningVerif
 
     // ---- events ----
     const events: EventReport[] = [];
+    const leadOutcome = thr.map((x) => Float64Array.from(cObs, (y) => (y > x ? 1 : 0)));
     const eventInputs = (t: number, kind: 'lead-time' | 'any-time', s: number) =>
       kind === 'lead-time'
-        ? { p: prob[s][t].view(), o: Float64Array.from(cObs, (y) => (y > thr[t] ? 1 : 0)), group: cRun }
+        ? { p: prob[s][t].view(), o: leadOutcome[t], group: cRun }
         : { p: probAny[s][t].view(), o: obsAny[t].view(), group: null as Float64Array | null };
     const anyTimeBrierPrefix: number[][] = Array.from({ length: S }, () => []);
     let anyTimeRuns = 0;
@@ -322,17 +323,24 @@ export function createWarningVerification(options: WarningOptions): WarningVerif
         events.push(ev);
         for (let s = 0; s < S; s++) {
           const { p, o, group } = eventInputs(t, kind, s);
-          // Keep cases with both a probability and an outcome.
-          const n = p.length;
-          const valid = (i: number) => !Number.isNaN(p[i]) && !Number.isNaN(o[i]);
-          const byRun = (v: (i: number) => number): number => {
-            const a = new Float64Array(nRuns);
-            for (let i = 0; i < n; i++) if (valid(i)) a[group ? group[i] : i] += v(i);
-            return addColumn(a);
-          };
-          const pBs = byRun((i) => (p[i] - o[i]) ** 2);
-          const pRef = byRun((i) => (c - o[i]) ** 2);
-          const pN = byRun(() => 1);
+          const lvl = options.attentionLevel;
+          // Per-run sums, one pass: squared error, its climatological reference, cases, and the flag's table.
+          const cols = Array.from({ length: 6 }, () => new Float64Array(nRuns));
+          const [bsC, refC, nC, aC, bC, cC] = cols;
+          for (let i = 0; i < p.length; i++) {
+            const pi = p[i];
+            const oi = o[i];
+            if (Number.isNaN(pi) || Number.isNaN(oi)) continue;
+            const g = group ? group[i] : i;
+            bsC[g] += (pi - oi) * (pi - oi);
+            refC[g] += (c - oi) * (c - oi);
+            nC[g]++;
+            if (pi >= lvl) {
+              if (oi > 0) aC[g]++;
+              else bC[g]++;
+            } else if (oi > 0) cC[g]++;
+          }
+          const [pBs, pRef, pN, pA, pB, pC] = cols.map(addColumn);
           if (kind === 'any-time') {
             anyTimeBrierPrefix[s][t] = pBs;
             anyTimeBrierPrefix[s][t + T] = pN;
@@ -345,10 +353,6 @@ export function createWarningVerification(options: WarningOptions): WarningVerif
           const place = rocPlacementSums(table, nRuns);
           const [pV10, pEv, pV01, pNon] = [place.v10, place.events, place.v01, place.nonEvents].map(addColumn);
           const vc = valueCurveFromRoc(roc, options.costLossRatios ?? COST_LOSS_RATIOS);
-          const lvl = options.attentionLevel;
-          const pA = byRun((i) => (p[i] >= lvl && o[i] > 0 ? 1 : 0));
-          const pB = byRun((i) => (p[i] >= lvl && o[i] === 0 ? 1 : 0));
-          const pC = byRun((i) => (p[i] < lvl && o[i] > 0 ? 1 : 0));
           const ct = contingencyScores(lvl, total(pA), total(pB), total(pC), total(pN) - total(pA) - total(pB) - total(pC));
           const ids = {
             brier: register(ratio(pBs, pN)),
@@ -426,8 +430,9 @@ export function createWarningVerification(options: WarningOptions): WarningVerif
       for (let c = 0; c < nCases; c++) {
         const r = cRun[c];
         const x = cr[c];
-        for (const row of [0, 1 + leadIndex.get(cLead[c])!]) {
-          const o = row * 6;
+        const lr = 1 + leadIndex.get(cLead[c])!;
+        for (let pass = 0; pass < 2; pass++) {
+          const o = (pass === 0 ? 0 : lr) * 6;
           cols[o][r] += x;
           cols[o + 1][r] += 1;
           if (Number.isFinite(climV[c])) {
