@@ -16,7 +16,8 @@ import {
   type StochasticOptions,
 } from '../src/core/index.ts';
 import { makeFeatureSpec } from '../src/core/features.ts';
-import { evaluateResidualModel, type ArchiveSeries } from '../src/models/residual-evaluation.ts';
+import type { ArchiveSeries } from '../src/core/archive-types.ts';
+import { evaluateResidualModel } from '../src/models/residual-evaluation.ts';
 
 const runs = Number(process.argv[2] ?? 40);
 const nMembers = 51;

@@ -1,7 +1,7 @@
 import pino from 'pino';
 import type { FastifyInstance } from 'fastify';
 import { buildApp } from './api/app.ts';
-import { jobHandlers } from './jobs/handlers.ts';
+import { jobHandlers, jobSchedule } from './jobs/handlers.ts';
 import { JobRunner } from './jobs/runner.ts';
 import type { Config } from './config.ts';
 import type { Db } from './store/db.ts';
@@ -31,7 +31,7 @@ export async function startService(config: Config, logger = pino({ level: config
     }
     const app = await buildApp({ db, config, logger });
     await app.listen({ port: config.PORT, host: config.HOST });
-    const runner = new JobRunner(db, jobHandlers, app.log);
+    const runner = new JobRunner(db, jobHandlers, app.log, undefined, jobSchedule);
     await runner.start();
     const address = app.server.address();
     const port = typeof address === 'object' && address ? address.port : config.PORT;

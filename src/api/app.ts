@@ -1,7 +1,7 @@
 import Fastify, { type FastifyBaseLogger, type FastifyInstance } from 'fastify';
 import type { Config } from '../config.ts';
 import type { Db } from '../store/db.ts';
-import { CorrectionPool } from '../models/correction-pool.ts';
+import { CorrectionPool } from '../workers/correction-pool.ts';
 import { authHook } from './auth.ts';
 import { eventRoutes } from './events.ts';
 import { ForecastEvents } from './forecast-events.ts';
@@ -21,7 +21,7 @@ import { modelRoutes } from './models.ts';
 import { observationRoutes } from './observations.ts';
 import { ApiDocs } from './openapi.ts';
 import { docsRoutes } from './docs.ts';
-import { Problem } from './problem.ts';
+import { Problem } from '../services/problem.ts';
 import { reforecastRoutes } from './reforecasts.ts';
 import { simulationRoutes } from './simulations.ts';
 import { tokenRoutes } from './token-routes.ts';

@@ -3,14 +3,13 @@ import { z } from 'zod';
 import type { Queryable } from '../store/db.ts';
 import { getGauge, type Gauge } from '../store/gauges-repo.ts';
 import type { Window } from '../store/archive-repo.ts';
-import { badRequest, notFound } from './problem.ts';
-import { GaugeId, TimeWindowQuery } from './schemas.ts';
-import { parseWith } from './validate.ts';
+import { badRequest, notFound } from '../services/problem.ts';
+import { GaugeId } from './schemas.ts';
 
 export const GaugeParams = z.object({ id: GaugeId });
 
-export async function requireGauge(db: Queryable, params: unknown, forUpdate = false): Promise<Gauge> {
-  const { id } = parseWith(GaugeParams, params, 'params');
+/** The gauge the route's (already parsed) params name, or 404. */
+export async function requireGauge(db: Queryable, { id }: { id: string }, forUpdate = false): Promise<Gauge> {
   const gauge = await getGauge(db, id, forUpdate);
   if (!gauge) throw notFound(`no gauge ${id}`);
   return gauge;
@@ -33,8 +32,8 @@ export function wantsCsv(req: FastifyRequest, format?: string): boolean {
   return accept.includes('text/csv') && !accept.includes('application/json');
 }
 
-export function readWindow(query: unknown): { window: Window; format?: 'json' | 'csv' } {
-  const q = parseWith(TimeWindowQuery, query, 'query');
+/** The store's window for a parsed time-window query. */
+export function readWindow(q: { from?: string; to?: string; format?: 'json' | 'csv' }): { window: Window; format?: 'json' | 'csv' } {
   const window: Window = {
     fromMs: q.from ? Date.parse(q.from) : undefined,
     toMs: q.to ? Date.parse(q.to) : undefined,

@@ -1,7 +1,7 @@
 import type { FastifyRequest } from 'fastify';
 import { findTokenByHash, touchToken, type Role } from '../store/tokens-repo.ts';
 import type { Services } from './context.ts';
-import { Problem } from './problem.ts';
+import { Problem } from '../services/problem.ts';
 import { hashToken, roleRank } from './tokens.ts';
 
 const CACHE_MS = 30_000;

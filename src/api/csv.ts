@@ -1,4 +1,4 @@
-import { ErrorList } from './problem.ts';
+import { ErrorList } from '../services/problem.ts';
 
 export interface CsvTable {
   header: string[];

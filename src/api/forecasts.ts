@@ -3,11 +3,10 @@ import { z } from 'zod';
 import { getRun, latestRunTag, listRuns } from '../store/forecasts-repo.ts';
 import { GaugeParams, requireGauge } from './archive-common.ts';
 import { addRoute, type Services } from './context.ts';
-import { forecastCsv, forecastText, type ForecastView } from './forecast-view.ts';
+import { forecastCsv, forecastText, type ForecastView } from '../services/forecast-view.ts';
 import { chooseFormat, FormatOnly, type Format } from './formats.ts';
-import { notFound } from './problem.ts';
+import { notFound } from '../services/problem.ts';
 import { Rfc3339 } from './schemas.ts';
-import { parseWith } from './validate.ts';
 
 const FormatQuery = z.strictObject({ format: FormatOnly });
 const CACHE_MS = 5_000;
@@ -46,8 +45,8 @@ export async function forecastRoutes(app: FastifyInstance, { services }: { servi
     services,
     { method: 'GET', url: '/gauges/:id/forecasts/latest', summary: "The gauge's newest corrected forecast (JSON, CSV or a plain-text table; ETag and 304)", tag: 'forecasts', role: 'read', params: GaugeParams, query: FormatQuery, responseTypes: ['application/json', 'text/csv', 'text/plain'] },
     async (req, reply) => {
-      const { id } = parseWith(GaugeParams, req.params, 'params');
-      const { format } = parseWith(FormatQuery, req.query, 'query');
+      const { id } = req.params;
+      const { format } = req.query;
       let hit = latest.get(id);
       if (!hit || Date.now() - hit.at > CACHE_MS) {
         const tag = await latestRunTag(db, id);
@@ -73,8 +72,8 @@ export async function forecastRoutes(app: FastifyInstance, { services }: { servi
     services,
     { method: 'GET', url: '/forecasts/:runId', summary: 'One stored run by id (JSON, CSV or text)', tag: 'forecasts', role: 'read', params: RunParams, query: FormatQuery, responseTypes: ['application/json', 'text/csv', 'text/plain'] },
     async (req, reply) => {
-      const { runId } = parseWith(RunParams, req.params, 'params');
-      const { format } = parseWith(FormatQuery, req.query, 'query');
+      const { runId } = req.params;
+      const { format } = req.query;
       const run = await getRun(db, runId);
       if (!run) throw notFound(`no run ${runId}`);
       return sendRun(req, reply, run, chooseFormat(req, format), 'private, max-age=86400, immutable');
@@ -88,7 +87,7 @@ export async function forecastRoutes(app: FastifyInstance, { services }: { servi
     { method: 'GET', url: '/gauges/:id/forecasts', summary: 'Runs issued in a time window, newest first, with their threshold summaries', tag: 'forecasts', role: 'read', params: GaugeParams, query: WindowQuery },
     async (req) => {
       const gauge = await requireGauge(db, req.params);
-      const q = parseWith(WindowQuery, req.query, 'query');
+      const q = req.query;
       const runs = await listRuns(db, gauge.id, q.from ? Date.parse(q.from) : undefined, q.to ? Date.parse(q.to) : undefined, q.limit);
       return { gaugeId: gauge.id, runs };
     },

@@ -5,9 +5,8 @@ import { archiveCounts, dataCounts, deleteGauge, getGauge, insertGauge, listGaug
 import { getGaugeStatus } from '../store/gauge-status-repo.ts';
 import { hasRuns } from '../store/verification-repo.ts';
 import { addRoute, type Services } from './context.ts';
-import { conflict, notFound } from './problem.ts';
+import { conflict, notFound } from '../services/problem.ts';
 import { FlowUnit, GaugeId, IsoDuration, Location, Thresholds, TimeZone } from './schemas.ts';
-import { parseWith } from './validate.ts';
 
 const GaugeFields = {
   name: z.string().trim().min(1).max(200),
@@ -28,7 +27,7 @@ export async function gaugeRoutes(app: FastifyInstance, { services }: { services
   const { db } = services;
 
   addRoute(app, services, { method: 'POST', url: '/gauges', summary: 'Create a gauge', tag: 'gauges', role: 'admin', body: GaugeCreate }, async (req, reply) => {
-    const body = parseWith(GaugeCreate, req.body, 'body');
+    const body = req.body;
     const input: GaugeInput = {
       ...body,
       location: body.location ?? null,
@@ -47,7 +46,7 @@ export async function gaugeRoutes(app: FastifyInstance, { services }: { services
   }));
 
   addRoute(app, services, { method: 'GET', url: '/gauges/:id', summary: 'One gauge with the size of its archive', tag: 'gauges', role: 'read', params: Params }, async (req) => {
-    const { id } = parseWith(Params, req.params, 'params');
+    const { id } = req.params;
     const gauge = await getGauge(db, id);
     if (!gauge) throw notFound(`no gauge ${id}`);
     // status as in the overview: no-forecast, else the drift watch's ok / drifting / insufficient-data.
@@ -57,8 +56,8 @@ export async function gaugeRoutes(app: FastifyInstance, { services }: { services
   });
 
   addRoute(app, services, { method: 'PATCH', url: '/gauges/:id', summary: 'Change a gauge', tag: 'gauges', role: 'admin', params: Params, body: GaugePatch }, async (req) => {
-    const { id } = parseWith(Params, req.params, 'params');
-    const patch = parseWith(GaugePatch, req.body, 'body');
+    const { id } = req.params;
+    const patch = req.body;
     return db.transaction(async (tx) => {
       const gauge = await getGauge(tx, id, true);
       if (!gauge) throw notFound(`no gauge ${id}`);
@@ -75,8 +74,8 @@ export async function gaugeRoutes(app: FastifyInstance, { services }: { services
   });
 
   addRoute(app, services, { method: 'DELETE', url: '/gauges/:id', summary: 'Delete a gauge (refused while it holds data unless force=true)', tag: 'gauges', role: 'admin', params: Params, query: DeleteQuery }, async (req, reply) => {
-    const { id } = parseWith(Params, req.params, 'params');
-    const { force } = parseWith(DeleteQuery, req.query, 'query');
+    const { id } = req.params;
+    const { force } = req.query;
     await db.transaction(async (tx) => {
       if (!(await getGauge(tx, id, true))) throw notFound(`no gauge ${id}`);
       const counts = await dataCounts(tx, id);

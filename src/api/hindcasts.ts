@@ -1,18 +1,15 @@
 import type { FastifyInstance } from 'fastify';
 import { z } from 'zod';
 import type { ComparisonReport, SizeStudyResult, StochasticAdvice } from '../core/verification/index.ts';
-import { storedPeriod, type HindcastJobParams } from '../jobs/hindcast-job.ts';
-import { enqueueJob, getJob, listJobs, type Job } from '../store/jobs-repo.ts';
-import { getActiveModelVersion, getModelVersion } from '../store/models-repo.ts';
-import { correctedArchiveFor, reforecastIssueTimes } from '../store/verification-repo.ts';
+import { requestHindcast } from '../services/hindcast.ts';
+import { HindcastJobParams } from '../services/hindcast-params.ts';
+import { getJob, listJobs, type Job } from '../store/jobs-repo.ts';
 import { GaugeParams, requireGauge } from './archive-common.ts';
 import { addRoute, type Services } from './context.ts';
-import { conflict, invalid, notFound } from './problem.ts';
+import { conflict, notFound } from '../services/problem.ts';
 import { Rfc3339 } from './schemas.ts';
-import { isoUtc } from './series-input.ts';
-import { parseWith } from './validate.ts';
 import { chooseFormat, FormatOnly } from './formats.ts';
-import { scoresCsv, scoresText, sendReport, textTable } from './verification.ts';
+import { scoresCsv, scoresText, sendReport, sizeStudyText } from './report-formats.ts';
 
 const SourceEnum = z.enum(['raw', 'corrected', 'stochastic']);
 
@@ -57,7 +54,7 @@ const HindcastBody = z
 const HindcastParams = z.object({ id: GaugeParams.shape.id, jobId: z.string().regex(/^\d{1,18}$/, 'must be a job id') });
 const HindcastQuery = z.strictObject({ format: FormatOnly });
 
-/** What a finished hindcast job stores as its result (see src/jobs/hindcast-job.ts). */
+/** What a finished hindcast job stores as its result (see src/services/hindcast.ts). */
 interface HindcastResult {
   gaugeId: string;
   mode: string;
@@ -77,7 +74,7 @@ interface HindcastResult {
 const href = (gaugeId: string, jobId: string) => `/gauges/${gaugeId}/hindcasts/${jobId}`;
 
 function summary(job: Job) {
-  const p = job.params as unknown as HindcastJobParams;
+  const p = HindcastJobParams.parse(job.params);
   return {
     id: job.id,
     status: job.status,
@@ -95,22 +92,6 @@ function summary(job: Job) {
   };
 }
 
-function sizeStudyText(studies: SizeStudyResult[] | null): string[] {
-  if (!studies?.length) return [];
-  const out: string[] = [''];
-  for (const s of studies) {
-    out.push(`Ensemble-size study, ${s.source} (${s.members} available; ${s.repeats} random draws per case, ${Math.round(s.caseFraction * 1000) / 10} % of cases; band ${Math.round(s.level * 100)} %):`);
-    const f = (x: number | null, d = 3) => (x === null ? '–' : x.toFixed(d));
-    out.push(
-      ...textTable(
-        ['members', 'cases', 'CRPS', 'fair CRPS', 'band width', 'band coverage', 'PIT coverage', 'alpha', 'alpha sd'],
-        s.rows.map((r) => [String(r.size), String(r.cases), f(r.crps), f(r.fairCrps), f(r.meanWidth, 2), f(r.coverage), f(r.pitCoverage), f(r.alphaIndex), f(r.alphaIndexSd)]),
-      ),
-    );
-  }
-  return out;
-}
-
 export async function hindcastRoutes(app: FastifyInstance, { services }: { services: Services }) {
   const { db, config } = services;
 
@@ -125,46 +106,12 @@ export async function hindcastRoutes(app: FastifyInstance, { services }: { servi
       role: 'admin',
       params: GaugeParams,
       body: HindcastBody,
+      bodyOptional: true,
     },
     async (req, reply) => {
       const gauge = await requireGauge(db, req.params);
-      const body = parseWith(HindcastBody, req.body ?? {}, 'body');
-      const version = body.version ? await getModelVersion(db, gauge.id, body.version) : await getActiveModelVersion(db, gauge.id);
-      if (!version) {
-        if (body.version) throw invalid([{ path: 'body.version', message: `gauge ${gauge.id} has no model version ${body.version}` }]);
-        throw conflict(`gauge ${gauge.id} has no active residual model; fit one (POST /gauges/${gauge.id}/models/fit) or name a version`);
-      }
-      const errors: { path: string; message: string }[] = [];
-      const reach = (await correctedArchiveFor(db, version.id, 1)).maxReach;
-      if (!reach) throw conflict(`model version ${version.id} has no corrected-member error archive`);
-      if (body.horizon !== undefined && body.horizon > reach) errors.push({ path: 'body.horizon', message: `the error archives of version ${version.id} cover at most ${reach} lead times` });
-      if (body.trajectories > config.MAX_TRAJECTORIES) errors.push({ path: 'body.trajectories', message: `at most ${config.MAX_TRAJECTORIES}` });
-      const validation = storedPeriod(version.periods.validation);
-      if ((!body.from || !body.to) && !validation) errors.push({ path: body.from ? 'body.to' : 'body.from', message: `model version ${version.id} records no validation period; give from and to` });
-      const fromMs = body.from ? Date.parse(body.from) : validation?.fromMs;
-      const toMs = body.to ? Date.parse(body.to) : validation?.toMs;
-      if (fromMs !== undefined && toMs !== undefined && !(fromMs < toMs)) errors.push({ path: 'body.to', message: 'the period is empty (from must be before to)' });
-      if (!errors.length && body.mode === 'reforecast' && (await reforecastIssueTimes(db, gauge.id, fromMs!, toMs!)).length === 0) {
-        errors.push({ path: 'body.mode', message: `gauge ${gauge.id} has no reforecasts issued between ${isoUtc(fromMs!)} and ${isoUtc(toMs!)}` });
-      }
-      if (errors.length) throw invalid(errors);
-      const params: HindcastJobParams = {
-        mode: body.mode,
-        versionId: version.id,
-        from: isoUtc(fromMs!),
-        to: isoUtc(toMs!),
-        horizon: body.horizon ?? null,
-        everySteps: body.everySteps,
-        trajectories: body.trajectories,
-        seed: body.seed,
-        seasonalWindowDays: body.seasonalWindowDays,
-        minLead: body.minLead ?? null,
-        maxLead: body.maxLead ?? null,
-        sizeStudy: { sources: body.sizeStudy.sources, sizes: body.sizeStudy.sizes, repeats: body.sizeStudy.repeats, caseFraction: body.sizeStudy.caseFraction ?? null },
-        purpose: 'request',
-        setDriftLevel: body.setDriftLevel,
-      };
-      const job = await enqueueJob(db, 'hindcast', gauge.id, params, req.principal?.tokenId ?? null);
+      const body = req.body;
+      const job = await requestHindcast(db, gauge, body, { maxTrajectories: config.MAX_TRAJECTORIES }, req.principal?.tokenId ?? null);
       reply.code(202).header('location', href(gauge.id, job.id));
       return { ...job, href: href(gauge.id, job.id) };
     },
@@ -195,8 +142,8 @@ export async function hindcastRoutes(app: FastifyInstance, { services }: { servi
       responseTypes: ['application/json', 'text/csv', 'text/plain'],
     },
     async (req, reply) => {
-      const { id, jobId } = parseWith(HindcastParams, req.params, 'params');
-      const { format } = parseWith(HindcastQuery, req.query, 'query');
+      const { id, jobId } = req.params;
+      const { format } = req.query;
       await requireGauge(db, { id });
       const job = await getJob(db, jobId);
       if (!job || job.kind !== 'hindcast' || job.gaugeId !== id) throw notFound(`gauge ${id} has no hindcast ${jobId}`);
@@ -204,7 +151,7 @@ export async function hindcastRoutes(app: FastifyInstance, { services }: { servi
       const body = { ...summary(job), params: job.params, startedAt: job.startedAt, result: job.result };
       if (chosen === 'json') return body;
       if (job.status !== 'succeeded' || !job.result) throw conflict(`hindcast ${jobId} is ${job.status}${job.status === 'running' ? ` (${job.stage}, ${Math.round(job.percent)} %)` : ''}; its scores are available as JSON status until it succeeds`);
-      const r = job.result as unknown as HindcastResult;
+      const r = job.result as HindcastResult;
       const header = [
         `${r.gaugeId} — hindcast ${jobId} (${r.mode} mode), model version ${r.modelVersion.id} (${r.modelVersion.label}); flows in m3/s`,
         `issues ${r.issues.first} – ${r.issues.last} (${r.issues.used}), ${r.horizon} lead times, ${r.members.length} members, ${r.trajectories} trajectories; ${r.cases.verified} verified cases`,

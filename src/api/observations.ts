@@ -1,14 +1,13 @@
 import type { FastifyInstance } from 'fastify';
 import { z } from 'zod';
-import { scheduleGaugeStatusRefresh } from '../jobs/drift-refresh.ts';
+import { scheduleGaugeStatusRefresh } from '../services/drift.ts';
 import { readObservations, upsertObservations } from '../store/archive-repo.ts';
-import { bodyFormat, GaugeParams, readWindow, requireGauge, sendCsv, wantsCsv } from './archive-common.ts';
+import { GaugeParams, readWindow, requireGauge, sendCsv, wantsCsv } from './archive-common.ts';
+import { addIngestRoute, timeColumnsFromCsv, timeColumnsFromJson, type TimeColumns } from './archive-ingest.ts';
 import { addRoute, type Services } from './context.ts';
-import { csvCell, parseCsv, splitHeader } from './csv.ts';
-import { ErrorList } from './problem.ts';
+import { csvCell } from './csv.ts';
 import { TimeWindowQuery } from './schemas.ts';
-import { checkFlowUnit, checkTimes, checkValues, csvNumber, isoUtc } from './series-input.ts';
-import { parseWith } from './validate.ts';
+import { checkFlowUnit, checkTimes, checkValues, isoUtc } from '../services/series-input.ts';
 
 const ObservationsBody = z.strictObject({
   unit: z.string(),
@@ -17,70 +16,41 @@ const ObservationsBody = z.strictObject({
   quality: z.array(z.string().max(32).nullable()).optional(),
 });
 
-interface Batch {
-  times: unknown[];
-  values: unknown[];
-  quality: (string | null)[] | null;
-  where: (i: number, field: string) => string;
-}
-
-function fromJson(body: unknown, errors: ErrorList): Batch {
-  const b = parseWith(ObservationsBody, body, 'body');
-  checkFlowUnit(b.unit, 'body.unit', errors);
-  if (b.values.length !== b.times.length) {
-    errors.add('body.values', `has ${b.values.length} entries but body.times has ${b.times.length}`);
-  }
-  if (b.quality && b.quality.length !== b.times.length) {
-    errors.add('body.quality', `has ${b.quality.length} entries but body.times has ${b.times.length}`);
-  }
-  errors.throwIfAny();
-  return { times: b.times, values: b.values, quality: b.quality ?? null, where: (i, field) => `body.${field}[${i}]` };
-}
-
-/** CSV: `time,flow (m3/s)[,quality]`. */
-function fromCsv(text: string, errors: ErrorList): Batch {
-  const table = parseCsv(text, errors);
-  errors.throwIfAny();
-  const [timeCol, flowCol, qualityCol, ...rest] = table.header;
-  const flow = splitHeader(flowCol ?? '');
-  if (timeCol !== 'time') errors.add('line 1', `the first column must be "time", found ${JSON.stringify(timeCol)}`);
-  if (flow.name !== 'flow') errors.add('line 1', `the second column must be "flow (m3/s)", found ${JSON.stringify(flowCol)}`);
-  else checkFlowUnit(flow.unit, 'line 1, column flow', errors);
-  if (qualityCol !== undefined && qualityCol !== 'quality') errors.add('line 1', `the third column may only be "quality", found ${JSON.stringify(qualityCol)}`);
-  if (rest.length) errors.add('line 1', `unexpected columns: ${rest.join(', ')}`);
-  if (!table.rows.length) errors.add('line 2', 'no data rows');
-  errors.throwIfAny();
-  return {
-    times: table.rows.map((r) => r.cells[0].trim()),
-    values: table.rows.map((r) => csvNumber(r.cells[1])),
-    quality: qualityCol ? table.rows.map((r) => r.cells[2].trim() || null) : null,
-    where: (i, field) => `line ${table.rows[i].line}, column ${field === 'times' ? 'time' : 'flow'}`,
-  };
-}
-
 export async function observationRoutes(app: FastifyInstance, { services }: { services: Services }) {
   const { db } = services;
 
-  addRoute(
-    app,
-    services,
-    { method: 'POST', url: '/gauges/:id/observations', summary: 'Add or correct observed flow (upsert by time)', tag: 'archive', role: 'ingest', params: GaugeParams, body: ObservationsBody, bodyTypes: ['application/json', 'text/csv'] },
-    async (req) => {
-      const errors = new ErrorList();
-      const batch = bodyFormat(req) === 'csv' ? fromCsv(req.body as string, errors) : fromJson(req.body, errors);
-      const out = await db.transaction(async (tx) => {
-        const gauge = await requireGauge(tx, req.params, true);
-        const times = checkTimes(batch.times, gauge.stepSeconds, (i) => batch.where(i, 'times'), errors);
-        const values = checkValues(batch.values, { nonNegative: true, quantity: 'flow' }, (i) => batch.where(i, 'values'), errors);
-        errors.throwIfAny();
-        const written = await upsertObservations(tx, gauge.id, times, values, batch.quality);
-        return { gaugeId: gauge.id, received: times.length, written };
-      });
-      // New observations verify stored runs: refresh the drift status after the commit, off this request.
-      if (out.written > 0) scheduleGaugeStatusRefresh(db, out.gaugeId, req.log);
-      return out;
+  addIngestRoute(app, services, {
+    resource: 'observations',
+    summary: 'Add or correct observed flow (upsert by time)',
+    body: ObservationsBody,
+    decode: (input, _gauge, errors): TimeColumns => {
+      if ('json' in input) {
+        const b = input.json;
+        checkFlowUnit(b.unit, 'body.unit', errors);
+        const columns = [{ name: 'flow', unit: b.unit, values: b.values }, ...(b.quality ? [{ name: 'quality', unit: null, values: b.quality }] : [])];
+        const path = (k: number) => (k === 0 ? 'body.values' : 'body.quality');
+        return timeColumnsFromJson(b.times, columns, { values: path, name: path, unit: () => 'body.unit', duplicate: () => '' }, errors);
+      }
+      // CSV: `time,flow (m3/s)[,quality]`.
+      const batch = timeColumnsFromCsv(input.csv, errors, { noColumns: 'the second column must be "flow (m3/s)"', duplicate: (name) => `${name} appears twice`, textColumns: ['quality'] });
+      const [flow, quality, ...rest] = batch.columns;
+      if (flow && flow.name !== 'flow') errors.add('line 1', `the second column must be "flow (m3/s)", found ${JSON.stringify(batch.headers[0])}`);
+      else if (flow) checkFlowUnit(flow.unit, 'line 1, column flow', errors);
+      if (quality && (quality.name !== 'quality' || quality.unit !== null)) errors.add('line 1', `the third column may only be "quality", found ${JSON.stringify(batch.headers[1])}`);
+      if (rest.length) errors.add('line 1', `unexpected columns: ${batch.headers.slice(2).join(', ')}`);
+      return batch;
     },
-  );
+    check: (_tx, gauge, batch, errors) => ({
+      times: checkTimes(batch.times, gauge.stepSeconds, batch.timeWhere, errors),
+      values: checkValues(batch.columns[0].values, { nonNegative: true, quantity: 'flow' }, (i) => batch.valueWhere(0, i), errors),
+      quality: (batch.columns[1]?.values as (string | null)[] | undefined) ?? null,
+    }),
+    store: async (tx, gauge, c) => ({ received: c.times.length, written: await upsertObservations(tx, gauge.id, c.times, c.values, c.quality) }),
+    // New observations verify stored runs: refresh the drift status after the commit, off this request.
+    after: (r, log) => {
+      if (r.written > 0) scheduleGaugeStatusRefresh(db, r.gaugeId, log);
+    },
+  });
 
   addRoute(
     app,

@@ -10,6 +10,10 @@ export interface RouteDoc {
   params?: z.ZodObject;
   query?: z.ZodObject;
   body?: z.ZodType;
+  /** An empty body means {} (every field has a default). */
+  bodyOptional?: boolean;
+  /** The handler decodes the body itself (JSON or CSV), so addRoute leaves it as sent; the schema is for the document. */
+  bodyDecodedByHandler?: boolean;
   bodyTypes?: string[];
   response?: z.ZodType;
   responseTypes?: string[];

@@ -2,9 +2,9 @@ import type { FastifyInstance } from 'fastify';
 import { listGauges } from '../store/gauges-repo.ts';
 import { latestSummaries } from '../store/forecasts-repo.ts';
 import { listGaugeStatuses } from '../store/gauge-status-repo.ts';
-import { CAUTION } from './caution.ts';
+import { CAUTION } from '../services/caution.ts';
 import { addRoute, type Services } from './context.ts';
-import { isoUtc } from './series-input.ts';
+import { isoUtc } from '../services/series-input.ts';
 
 /** All gauges at a glance: each one's newest run and its highest probability per threshold. */
 export async function overviewRoutes(app: FastifyInstance, { services }: { services: Services }) {
@@ -12,14 +12,14 @@ export async function overviewRoutes(app: FastifyInstance, { services }: { servi
   addRoute(app, services, { method: 'GET', url: '/overview', summary: "Every gauge with its newest run's highest exceedance probability per threshold and its status", tag: 'forecasts', role: 'read' }, async () => {
     const gauges = new Map((await listGauges(db)).map((g) => [g.id, g]));
     const rows = await latestSummaries(db);
-    // Drift status as last stored by the drift watch (src/jobs/drift-refresh.ts).
+    // Drift status as last stored by the drift watch (src/services/drift.ts).
     const drift = await listGaugeStatuses(db);
     return {
       caution: CAUTION,
       attentionLevel: services.config.ATTENTION_LEVEL,
       gauges: rows.map((r) => {
         const g = gauges.get(r.gauge_id)!;
-        const summary = (r.summary ?? []) as { label: string; value: number; maxExceedance: number; anyTime: number; attention: boolean }[];
+        const summary = r.summary ?? [];
         return {
           id: g.id,
           name: g.name,

@@ -2,7 +2,7 @@ import { createHash } from 'node:crypto';
 import { readdirSync, readFileSync } from 'node:fs';
 import type { FastifyInstance, FastifyReply, FastifyRequest } from 'fastify';
 import { addRoute, type Services } from './context.ts';
-import { notFound } from './problem.ts';
+import { notFound } from '../services/problem.ts';
 
 /** One static file of the forecast page, read once when the plugin is registered. */
 interface Asset {

@@ -2,13 +2,13 @@ import type { FastifyInstance } from 'fastify';
 import { z } from 'zod';
 import { formatDurationSeconds, parseDurationSeconds } from '../core/iso-duration.ts';
 import { listMembers, readReforecasts, upsertReforecast } from '../store/archive-repo.ts';
-import { bodyFormat, GaugeParams, readWindow, requireGauge, sendCsv, wantsCsv } from './archive-common.ts';
+import { GaugeParams, readWindow, requireGauge, sendCsv, wantsCsv } from './archive-common.ts';
+import { addIngestRoute } from './archive-ingest.ts';
 import { addRoute, type Services } from './context.ts';
 import { parseCsv, splitHeader } from './csv.ts';
-import { ErrorList } from './problem.ts';
+import { ErrorList } from '../services/problem.ts';
 import { MemberId, TimeWindowQuery } from './schemas.ts';
-import { checkFlowUnit, checkTimes, checkValues, csvNumber, isoUtc } from './series-input.ts';
-import { parseWith } from './validate.ts';
+import { checkFlowUnit, checkTimes, checkValues, csvNumber, isoUtc } from '../services/series-input.ts';
 
 const ReforecastsBody = z.strictObject({
   unit: z.string(),
@@ -28,8 +28,7 @@ interface Run {
   members: { id: string; idWhere: string; values: unknown[]; valueWhere: (lead: number) => string }[];
 }
 
-function fromJson(body: unknown, errors: ErrorList): Run[] {
-  const b = parseWith(ReforecastsBody, body, 'body');
+function fromJson(b: z.output<typeof ReforecastsBody>, errors: ErrorList): Run[] {
   checkFlowUnit(b.unit, 'body.unit', errors);
   const runs = b.runs.map((run, r) => {
     const n = run.members[0].values.length;
@@ -99,37 +98,34 @@ function fromCsv(text: string, stepSeconds: number, errors: ErrorList): Run[] {
 export async function reforecastRoutes(app: FastifyInstance, { services }: { services: Services }) {
   const { db } = services;
 
-  addRoute(
-    app,
-    services,
-    { method: 'POST', url: '/gauges/:id/reforecasts', summary: 'Add past forecast runs (upsert by issue time, member and lead time); members must be known from simulations', tag: 'archive', role: 'ingest', params: GaugeParams, body: ReforecastsBody, bodyTypes: ['application/json', 'text/csv'] },
-    async (req) => {
-      const errors = new ErrorList();
-      const csv = bodyFormat(req) === 'csv';
-      return db.transaction(async (tx) => {
-        const gauge = await requireGauge(tx, req.params, true);
-        const runs = csv ? fromCsv(req.body as string, gauge.stepSeconds, errors) : fromJson(req.body, errors);
-        const known = new Set(await listMembers(tx, gauge.id));
-        const issueMs = checkTimes(runs.map((r) => r.issueTime), gauge.stepSeconds, (i) => runs[i].issueWhere, errors);
-        const checked = runs.map((run) =>
-          run.members.map((m) => {
-            if (!known.has(m.id)) errors.add(m.idWhere, `unknown member ${m.id}; members are declared by posting their simulations first`);
-            return { id: m.id, values: checkValues(m.values, { nonNegative: true, quantity: 'flow' }, m.valueWhere, errors) };
-          }),
-        );
-        errors.throwIfAny();
-        let written = 0;
-        let received = 0;
-        for (let r = 0; r < runs.length; r++) {
-          for (const m of checked[r]) {
-            received += m.values.length;
-            written += await upsertReforecast(tx, gauge.id, issueMs[r], m.id, m.values);
-          }
-        }
-        return { gaugeId: gauge.id, received, written };
-      });
+  addIngestRoute(app, services, {
+    resource: 'reforecasts',
+    summary: 'Add past forecast runs (upsert by issue time, member and lead time); members must be known from simulations',
+    body: ReforecastsBody,
+    decode: (input, gauge, errors) => ('json' in input ? fromJson(input.json, errors) : fromCsv(input.csv, gauge.stepSeconds, errors)),
+    check: async (tx, gauge, runs, errors) => {
+      const known = new Set(await listMembers(tx, gauge.id));
+      const issueMs = checkTimes(runs.map((r) => r.issueTime), gauge.stepSeconds, (i) => runs[i].issueWhere, errors);
+      const members = runs.map((run) =>
+        run.members.map((m) => {
+          if (!known.has(m.id)) errors.add(m.idWhere, `unknown member ${m.id}; members are declared by posting their simulations first`);
+          return { id: m.id, values: checkValues(m.values, { nonNegative: true, quantity: 'flow' }, m.valueWhere, errors) };
+        }),
+      );
+      return { issueMs, members };
     },
-  );
+    store: async (tx, gauge, { issueMs, members }) => {
+      let written = 0;
+      let received = 0;
+      for (let r = 0; r < issueMs.length; r++) {
+        for (const m of members[r]) {
+          received += m.values.length;
+          written += await upsertReforecast(tx, gauge.id, issueMs[r], m.id, m.values);
+        }
+      }
+      return { received, written };
+    },
+  });
 
   addRoute(
     app,

@@ -1,13 +1,11 @@
 import type { FastifyInstance } from 'fastify';
 import { z } from 'zod';
 import { ensureMembers, readSimulations, upsertSimulation } from '../store/archive-repo.ts';
-import { bodyFormat, GaugeParams, readWindow, requireGauge, sendCsv, wantsCsv } from './archive-common.ts';
+import { GaugeParams, readWindow, requireGauge, sendCsv, wantsCsv } from './archive-common.ts';
+import { addIngestRoute, timeColumnsFromCsv, timeColumnsFromJson, type TimeColumns } from './archive-ingest.ts';
 import { addRoute, type Services } from './context.ts';
-import { parseCsv, splitHeader } from './csv.ts';
-import { ErrorList } from './problem.ts';
 import { MemberId, TimeWindowQuery } from './schemas.ts';
-import { checkFlowUnit, checkTimes, checkValues, csvNumber, isoUtc } from './series-input.ts';
-import { parseWith } from './validate.ts';
+import { checkFlowUnit, checkTimes, checkValues, isoUtc } from '../services/series-input.ts';
 
 const SimulationsBody = z.strictObject({
   unit: z.string(),
@@ -15,73 +13,39 @@ const SimulationsBody = z.strictObject({
   members: z.array(z.strictObject({ id: MemberId, values: z.array(z.unknown()) })).min(1),
 });
 
-interface Batch {
-  times: unknown[];
-  members: { id: string; values: unknown[] }[];
-  timeWhere: (i: number) => string;
-  valueWhere: (m: number, i: number) => string;
-}
-
-function fromJson(body: unknown, errors: ErrorList): Batch {
-  const b = parseWith(SimulationsBody, body, 'body');
-  checkFlowUnit(b.unit, 'body.unit', errors);
-  b.members.forEach((m, k) => {
-    if (m.values.length !== b.times.length) errors.add(`body.members[${k}].values`, `has ${m.values.length} entries but body.times has ${b.times.length}`);
-    if (b.members.findIndex((o) => o.id === m.id) !== k) errors.add(`body.members[${k}].id`, `member ${m.id} appears twice`);
-  });
-  errors.throwIfAny();
-  return { times: b.times, members: b.members, timeWhere: (i) => `body.times[${i}]`, valueWhere: (m, i) => `body.members[${m}].values[${i}]` };
-}
-
-/** CSV: `time,<member> (m3/s),<member> (m3/s),...` — one column per member (parameter set). */
-function fromCsv(text: string, errors: ErrorList): Batch {
-  const table = parseCsv(text, errors);
-  errors.throwIfAny();
-  const [timeCol, ...memberCols] = table.header;
-  if (timeCol !== 'time') errors.add('line 1', `the first column must be "time", found ${JSON.stringify(timeCol)}`);
-  if (!memberCols.length) errors.add('line 1', 'no member columns; write them as member-id (m3/s)');
-  const members = memberCols.map((cell, k) => {
-    const { name, unit } = splitHeader(cell);
-    if (!MemberId.safeParse(name).success) errors.add(`line 1, column ${k + 2}`, `bad member id ${JSON.stringify(name)}`);
-    checkFlowUnit(unit, `line 1, column ${name}`, errors);
-    if (memberCols.findIndex((c) => splitHeader(c).name === name) !== k) errors.add(`line 1, column ${name}`, `member ${name} appears twice`);
-    return { id: name, values: table.rows.map((r) => csvNumber(r.cells[k + 1])) };
-  });
-  if (!table.rows.length) errors.add('line 2', 'no data rows');
-  errors.throwIfAny();
-  return {
-    times: table.rows.map((r) => r.cells[0].trim()),
-    members,
-    timeWhere: (i) => `line ${table.rows[i].line}, column time`,
-    valueWhere: (m, i) => `line ${table.rows[i].line}, column ${members[m].id}`,
-  };
-}
-
 export async function simulationRoutes(app: FastifyInstance, { services }: { services: Services }) {
   const { db } = services;
 
-  addRoute(
-    app,
-    services,
-    { method: 'POST', url: '/gauges/:id/simulations', summary: "Add the raw model's continuous simulation per member (upsert by member and time)", tag: 'archive', role: 'ingest', params: GaugeParams, body: SimulationsBody, bodyTypes: ['application/json', 'text/csv'] },
-    async (req) => {
-      const errors = new ErrorList();
-      const batch = bodyFormat(req) === 'csv' ? fromCsv(req.body as string, errors) : fromJson(req.body, errors);
-      return db.transaction(async (tx) => {
-        const gauge = await requireGauge(tx, req.params, true);
-        const times = checkTimes(batch.times, gauge.stepSeconds, batch.timeWhere, errors);
-        const columns = batch.members.map((m, k) => ({
-          id: m.id,
-          values: checkValues(m.values, { nonNegative: true, quantity: 'flow' }, (i) => batch.valueWhere(k, i), errors),
-        }));
-        errors.throwIfAny();
-        await ensureMembers(tx, gauge.id, columns.map((c) => c.id));
-        let written = 0;
-        for (const c of columns) written += await upsertSimulation(tx, gauge.id, c.id, times, c.values);
-        return { gaugeId: gauge.id, received: times.length * columns.length, written };
+  addIngestRoute(app, services, {
+    resource: 'simulations',
+    summary: "Add the raw model's continuous simulation per member (upsert by member and time)",
+    body: SimulationsBody,
+    decode: (input, _gauge, errors): TimeColumns => {
+      if ('json' in input) {
+        const b = input.json;
+        checkFlowUnit(b.unit, 'body.unit', errors);
+        const columns = b.members.map((m) => ({ name: m.id, unit: b.unit, values: m.values }));
+        return timeColumnsFromJson(b.times, columns, { values: (k) => `body.members[${k}].values`, name: (k) => `body.members[${k}].id`, unit: () => 'body.unit', duplicate: (id) => `member ${id} appears twice` }, errors);
+      }
+      // CSV: `time,<member> (m3/s),<member> (m3/s),...` — one column per member (parameter set).
+      const batch = timeColumnsFromCsv(input.csv, errors, { noColumns: 'no member columns; write them as member-id (m3/s)', duplicate: (id) => `member ${id} appears twice` });
+      batch.columns.forEach((c, k) => {
+        if (!MemberId.safeParse(c.name).success) errors.add(`line 1, column ${k + 2}`, `bad member id ${JSON.stringify(c.name)}`);
+        checkFlowUnit(c.unit, batch.columnWhere(k), errors);
       });
+      return batch;
     },
-  );
+    check: (_tx, gauge, batch, errors) => ({
+      times: checkTimes(batch.times, gauge.stepSeconds, batch.timeWhere, errors),
+      columns: batch.columns.map((c, k) => ({ id: c.name, values: checkValues(c.values, { nonNegative: true, quantity: 'flow' }, (i) => batch.valueWhere(k, i), errors) })),
+    }),
+    store: async (tx, gauge, { times, columns }) => {
+      await ensureMembers(tx, gauge.id, columns.map((c) => c.id));
+      let written = 0;
+      for (const c of columns) written += await upsertSimulation(tx, gauge.id, c.id, times, c.values);
+      return { received: times.length * columns.length, written };
+    },
+  });
 
   const SimulationsQuery = TimeWindowQuery.extend({ members: z.string().optional() });
   addRoute(
@@ -90,7 +54,7 @@ export async function simulationRoutes(app: FastifyInstance, { services }: { ser
     { method: 'GET', url: '/gauges/:id/simulations', summary: 'Member simulations in a time window (JSON or CSV); members=a,b to choose', tag: 'archive', role: 'read', params: GaugeParams, query: SimulationsQuery, responseTypes: ['application/json', 'text/csv'] },
     async (req, reply) => {
       const gauge = await requireGauge(db, req.params);
-      const q = parseWith(SimulationsQuery, req.query, 'query');
+      const q = req.query;
       const { window } = readWindow({ from: q.from, to: q.to });
       const rows = await readSimulations(db, gauge.id, window, q.members?.split(',').map((s) => s.trim()));
       const timeSet = [...new Set(rows.map((r) => r.t))].sort((a, b) => a - b);

@@ -1,5 +1,5 @@
 import type { z } from 'zod';
-import { invalid, type FieldError } from './problem.ts';
+import { invalid, type FieldError } from '../services/problem.ts';
 
 /** Formats a zod path as `body.members[2].values[7]`. */
 export function formatPath(prefix: string, path: readonly PropertyKey[]): string {

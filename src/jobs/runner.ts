@@ -1,11 +1,53 @@
 import { randomBytes } from 'node:crypto';
 import type { FastifyBaseLogger } from 'fastify';
+import type { z } from 'zod';
 import type { Db } from '../store/db.ts';
 import { claimJob, failStaleJobs, finishJob, reportProgress, type Job } from '../store/jobs-repo.ts';
-import { ComputeCancelled } from './run-compute.ts';
+import { CancelledError } from '../core/cancelled.ts';
 
-/** What a job kind does; `progress` records stage and percent and says whether to stop. */
-export type JobHandler = (job: Job, ctx: { db: Db; progress: (stage: string, percent: number) => Promise<boolean>; signal: AbortSignal }) => Promise<unknown>;
+export interface JobContext {
+  db: Db;
+  /** Records stage and percent; answers whether the job was asked to stop. */
+  progress: (stage: string, percent: number) => Promise<boolean>;
+  signal: AbortSignal;
+}
+
+/** What a job kind does. */
+export type JobHandler = (job: Job, ctx: JobContext) => Promise<unknown>;
+
+/** A job kind with the schema its stored params are read through. */
+export interface JobDefinition {
+  kind: string;
+  handler: JobHandler;
+}
+
+/**
+ * Registers a job kind: its stored params are parsed with `params` before the handler runs, so
+ * the handler gets them typed (a job whose params do not fit fails, naming the fields).
+ */
+export function defineJob<S extends z.ZodType>(kind: string, params: S, handler: (params: z.output<S>, job: Job, ctx: JobContext) => Promise<unknown>): JobDefinition {
+  return {
+    kind,
+    handler: async (job, ctx) => {
+      const parsed = params.safeParse(job.params);
+      if (!parsed.success) throw new Error(`job ${job.id} (${kind}) has invalid params: ${parsed.error.issues.map((i) => `${i.path.join('.') || 'params'}: ${i.message}`).join('; ')}`);
+      return handler(parsed.data, job, ctx);
+    },
+  };
+}
+
+/** The handlers of several job kinds, by kind. */
+export function jobTable(definitions: JobDefinition[]): Record<string, JobHandler> {
+  return Object.fromEntries(definitions.map((d) => [d.kind, d.handler]));
+}
+
+/** Work the runner repeats on a timer, next to the queued jobs (e.g. the drift status refresh). */
+export interface ScheduledTask {
+  name: string;
+  firstMs: number;
+  everyMs: number;
+  run: (db: Db, log: FastifyBaseLogger) => Promise<void>;
+}
 
 const HEARTBEAT_MS = 3_000;
 const STALE_SECONDS = 30;
@@ -21,18 +63,40 @@ export class JobRunner {
   private busy: Promise<void> | null = null;
   private stopped = false;
   private current: AbortController | null = null;
+  private readonly taskTimers = new Set<NodeJS.Timeout>();
+  private readonly taskRuns = new Set<Promise<void>>();
 
   constructor(
     private readonly db: Db,
     private readonly handlers: Record<string, JobHandler>,
     private readonly log: FastifyBaseLogger,
     private readonly pollMs = 500,
+    private readonly tasks: ScheduledTask[] = [],
   ) {}
 
   async start(): Promise<void> {
     const failed = await failStaleJobs(this.db, STALE_SECONDS);
     if (failed.length) this.log.warn({ jobs: failed }, 'jobs interrupted by a stopped instance were marked failed');
     this.schedule();
+    for (const task of this.tasks) this.repeat(task, task.firstMs);
+  }
+
+  /** Runs a scheduled task after a delay, then again every everyMs after each run ends. */
+  private repeat(task: ScheduledTask, delay: number): void {
+    if (this.stopped) return;
+    const timer = setTimeout(() => {
+      this.taskTimers.delete(timer);
+      const run = task
+        .run(this.db, this.log)
+        .catch((err: Error) => this.log.warn({ task: task.name, err: err.message }, 'scheduled task failed'))
+        .finally(() => {
+          this.taskRuns.delete(run);
+          this.repeat(task, task.everyMs);
+        });
+      this.taskRuns.add(run);
+    }, delay);
+    timer.unref();
+    this.taskTimers.add(timer);
   }
 
   /** Runs queued jobs now (tests use this instead of waiting for the poll). */
@@ -45,8 +109,10 @@ export class JobRunner {
   async stop(): Promise<void> {
     this.stopped = true;
     if (this.timer) clearTimeout(this.timer);
+    for (const t of this.taskTimers) clearTimeout(t);
     this.current?.abort();
     await this.busy;
+    await Promise.all(this.taskRuns);
   }
 
   private schedule(): void {
@@ -99,7 +165,7 @@ export class JobRunner {
       await finishJob(this.db, job.id, 'succeeded', result ?? null, null);
       this.log.info({ job: job.id, kind: job.kind }, 'job succeeded');
     } catch (err) {
-      const cancelled = err instanceof ComputeCancelled || abort.signal.aborted;
+      const cancelled = err instanceof CancelledError || abort.signal.aborted;
       await finishJob(this.db, job.id, cancelled ? 'cancelled' : 'failed', null, cancelled ? 'cancelled on request' : (err as Error).message);
       this.log[cancelled ? 'info' : 'warn']({ job: job.id, kind: job.kind, err: (err as Error).message }, cancelled ? 'job cancelled' : 'job failed');
     } finally {

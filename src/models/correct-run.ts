@@ -1,4 +1,5 @@
 import type { InferenceSession } from 'onnxruntime-node';
+import { correctedMember } from '../core/corrected-member.ts';
 import { dayOfYearUtc } from '../core/day-of-year.ts';
 import type { ErrorArchive } from '../core/error-archive.ts';
 import { servingRows, type FeatureSpec, type RunInput } from '../core/features.ts';
@@ -32,8 +33,8 @@ export function rawAtLeads(run: RunInput): Float64Array {
 
 /**
  * The correction pipeline for one run: feature rows for all members × lead times, one batched
- * inference per bundled residual model, corrected = max(0, raw + residual), then the stochastic
- * error stage over every (model, member) with the corrected-error archive. With no sessions the
+ * inference per bundled residual model, each model's corrected member (src/core/corrected-member.ts;
+ * the reported ensemble is their mean over models), then the stochastic error stage over every (model, member) with the corrected-error archive. With no sessions the
  * stage runs on the raw members (degraded mode; the archive must then be the raw-error one).
  */
 export async function correctRun(
@@ -61,7 +62,7 @@ export async function correctRun(
     for (let s = 0; s < sessions.length; s++) {
       const residual = await predictResiduals(sessions[s], rows.rows, rows.nRows, rows.nFeatures);
       for (let i = 0; i < nM * H; i++) {
-        const v = Math.max(0, raw[i] + residual[i]);
+        const v = correctedMember(raw[i], residual[i]);
         if (!Number.isFinite(v)) throw new Error(`the residual model returned a non-finite value for member ${Math.floor(i / H)} at lead ${(i % H) + 1}`);
         stageInput[s * nM * H + i] = v;
         corrected[i] += v / sessions.length;

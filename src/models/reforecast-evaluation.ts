@@ -1,21 +1,11 @@
+import { correctedMember } from '../core/corrected-member.ts';
 import { dayOfYearUtc } from '../core/day-of-year.ts';
 import { dressedArchiveFromRuns, type DressingSummary } from '../core/ensemble-dressing.ts';
 import { casesInLeadGroup, type ErrorArchive } from '../core/error-archive.ts';
 import type { ErrorTransformSpec } from '../core/error-transform.ts';
 import { reforecastRows, requiredInputs, type FeatureSpec, type ReforecastIssue } from '../core/features.ts';
-import { archiveSummary, type ArchiveSeries, type ResidualPredictor } from './residual-evaluation.ts';
-
-/** Stored past runs of a gauge on one layout: what the per-lead error archives are built from. */
-export interface ReforecastSet {
-  /** Issue times, epoch ms, ascending. */
-  issueTimes: Float64Array;
-  /** Longest lead stored (steps). */
-  nLeads: number;
-  /** Members with stored runs, sorted by id. */
-  memberIds: string[];
-  /** [(issue·memberIds.length + member)·nLeads + lead]; lead 0 is one step after issue time; NaN = missing. */
-  values: Float64Array;
-}
+import type { ArchiveSeries, ReforecastSet } from '../core/archive-types.ts';
+import { archiveSummary, type ResidualPredictor } from './residual-evaluation.ts';
 
 /** Fewer usable past runs than this and no per-lead archive is built (common practice, like the hindcast's reference minimum). */
 export const MIN_PER_LEAD_ISSUES = 20;
@@ -192,8 +182,9 @@ function unusable(a: ErrorArchive, issues: number): string | null {
 /**
  * Per-lead error archives from the gauge's stored past runs (reforecasts): each issue is laid out
  * like a served run — the members' continuous simulations up to issue time as warm-up, then the
- * stored value per lead — corrected by the residual model(s) (a bundle's mean, never negative, as
- * the lead-free archive), and compared with the observations at the valid times. Each issue is
+ * stored value per lead — corrected by the residual model(s) (src/core/corrected-member.ts: each
+ * model's value clipped at zero, a bundle's mean over models, as serving and the lead-free archive),
+ * and compared with the observations at the valid times. Each issue is
  * one row of the issue × lead matrix: its case at a lead is the ensemble mean's error, shrunk so
  * the members' own spread is not counted twice (ensemble-dressing.ts); each (nearly) complete row
  * is a Schaake template. The raw members dressed the same way make the degraded-mode archive. Forcings at the lead times are the archived
@@ -245,18 +236,17 @@ export async function evaluateReforecasts(
     }
     const rows = reforecastRows(spec, batch);
     if (!rows.nRows) continue;
+    const cells = Int32Array.from({ length: rows.nRows }, (_, r) => ((u0 + rows.issue[r]) * nK + rows.member[r]) * L.H + rows.lead[r] - 1);
+    // A bundle's member: the mean of each model's clipped corrected value (src/core/corrected-member.ts).
     const sum = new Float64Array(rows.nRows);
     for (const predict of predictors) {
       const out = await predict(rows.rows, rows.nRows, rows.nFeatures);
       for (let r = 0; r < rows.nRows; r++) {
         if (!Number.isFinite(out[r])) throw new Error(`the residual model returned a non-finite value on a past run (issued ${new Date(batch[rows.issue[r]].issueTime).toISOString()}, lead ${rows.lead[r]})`);
-        sum[r] += out[r];
+        sum[r] += correctedMember(raw[cells[r]], out[r]);
       }
     }
-    for (let r = 0; r < rows.nRows; r++) {
-      const cell = ((u0 + rows.issue[r]) * nK + rows.member[r]) * L.H + rows.lead[r] - 1;
-      corrected[cell] = Math.max(0, raw[cell] + sum[r] / predictors.length);
-    }
+    for (let r = 0; r < rows.nRows; r++) corrected[cells[r]] = sum[r] / predictors.length;
   }
   // Raw errors on the same cases as the corrected ones, as in the lead-free archives.
   const rawMasked = raw.map((v, i) => (Number.isFinite(corrected[i]) ? v : NaN));

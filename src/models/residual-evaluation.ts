@@ -1,4 +1,5 @@
 import { archiveToBytes } from '../core/archive-codec.ts';
+import { correctedMember } from '../core/corrected-member.ts';
 import { dayOfYearUtc } from '../core/day-of-year.ts';
 import { deterministicScores } from '../core/deterministic-scores.ts';
 import { buildArchiveFromSeries, templateShortfall, type ErrorArchive, type NeighbourSettings } from '../core/error-archive.ts';
@@ -6,22 +7,7 @@ import { simulationErrorVariances } from '../core/lead-growth.ts';
 import { chooseNeighboursByHalves, type NeighbourScore } from '../core/neighbour-choice.ts';
 import type { ErrorTransformSpec } from '../core/error-transform.ts';
 import { continuousRows, type FeatureSpec } from '../core/features.ts';
-
-/** A gauge's archive on one regular time axis (missing = NaN), as the fitting code needs it. */
-export interface ArchiveSeries {
-  stepSeconds: number;
-  /** Epoch ms, regular step. */
-  times: Float64Array;
-  observed: Float64Array;
-  forcings: Record<string, Float64Array>;
-  members: { id: string; values: Float64Array }[];
-}
-
-export interface Period {
-  fromMs: number;
-  /** Exclusive. */
-  toMs: number;
-}
+import type { ArchiveSeries, Period } from '../core/archive-types.ts';
 
 /** Predicts residuals for row-major float32 feature rows (one function per bundled model). */
 export type ResidualPredictor = (rows: Float32Array, nRows: number, nFeatures: number) => Promise<Float32Array>;
@@ -97,7 +83,9 @@ export async function evaluateResidualModel(
     // Rows at every time with complete inputs: the member itself stands in for the target,
     // which is not used here (an all-missing target would drop every row).
     const all = continuousRows(spec, { times, sim, forcings: series.forcings, obs: sim });
-    const correction = new Float64Array(times.length).fill(NaN);
+    // The member's corrected value per time (src/core/corrected-member.ts): each model's clipped
+    // value, averaged over a bundle's models.
+    const corrected = new Float64Array(times.length).fill(NaN);
     const pick: number[] = [];
     for (let r = 0; r < all.nRows; r++) {
       const t = all.index[r];
@@ -110,10 +98,10 @@ export async function evaluateResidualModel(
       const sum = new Float64Array(pick.length);
       for (const predict of predictors) {
         const out = await predict(x, pick.length, nF);
-        for (let j = 0; j < pick.length; j++) sum[j] += out[j];
+        for (let j = 0; j < pick.length; j++) sum[j] += correctedMember(sim[all.index[pick[j]]], out[j]);
       }
       pick.forEach((r, j) => {
-        correction[all.index[r]] = sum[j] / predictors.length;
+        corrected[all.index[r]] = sum[j] / predictors.length;
       });
     }
     const raw = new Float64Array(len);
@@ -122,7 +110,7 @@ export async function evaluateResidualModel(
     for (let j = 0; j < len; j++) {
       const i = first + j;
       const s = sim[i];
-      const c = Number.isNaN(correction[i]) ? NaN : Math.max(0, s + correction[i]);
+      const c = corrected[i];
       raw[j] = s;
       cor[j] = c;
       obs[j] = observed[i];

@@ -1,11 +1,13 @@
 import type { ErrorTransformSpec } from '../core/error-transform.ts';
 import { continuousRows, makeFeatureSpec, type FeatureSpec } from '../core/features.ts';
+import { CancelledError } from '../core/cancelled.ts';
 import { leadGrowthScale } from '../core/lead-growth.ts';
 import { createPrng } from '../core/prng.ts';
 import { treeModelToOnnx } from './onnx-export.ts';
 import { createResidualSession, predictResiduals } from './onnx-session.ts';
-import { evaluateReforecasts, type ReforecastEvaluation, type ReforecastSet } from './reforecast-evaluation.ts';
-import { evaluateResidualModel, type ArchiveSeries, type Evaluation, type Period } from './residual-evaluation.ts';
+import type { ArchiveSeries, Period, ReforecastSet } from '../core/archive-types.ts';
+import { evaluateReforecasts, type ReforecastEvaluation } from './reforecast-evaluation.ts';
+import { evaluateResidualModel, type Evaluation } from './residual-evaluation.ts';
 import { predictTrees, trainGradientBoosting, trainRandomForest, type TreeModel } from './trees/index.ts';
 import { tune, type SearchParam } from './tuning/index.ts';
 
@@ -201,12 +203,6 @@ export async function fitResidualModel(
   await Promise.all(sessions.map((s) => s.release()));
   onProgress({ stage: 'done', percent: 100 });
   return { spec, parts, trials, evaluation, perLead, rows: { calibration: cal.nRows, validation: val.nRows }, onnxCheck: { rows: val.nRows * parts.length, mismatches }, blocks };
-}
-
-export class CancelledError extends Error {
-  constructor() {
-    super('cancelled');
-  }
 }
 
 interface Rows {

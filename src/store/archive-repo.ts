@@ -14,6 +14,46 @@ async function inChunks(n: number, write: (from: number, to: number) => Promise<
   return written;
 }
 
+/** A column of an upsert: one value for the whole batch, or one per row (a Postgres array of `type`). */
+type UpsertColumn = { column: string; timestamp?: boolean } & ({ value: unknown } | { type: 'float8' | 'int' | 'text'; rows: (from: number, to: number) => unknown[] });
+
+/**
+ * The one archive upsert: inserts rows given column by column, and on a natural-key conflict
+ * updates the `update` columns only where they differ, so re-sending the same batch changes
+ * nothing. Answers how many rows it inserted or changed. `timestamp` columns are epoch seconds.
+ */
+async function upsertRows(tx: Queryable, table: string, key: string[], update: string[], n: number, columns: UpsertColumn[]): Promise<number> {
+  return inChunks(n, (from, to) => {
+    const params: unknown[] = [];
+    const select: string[] = [];
+    const arrays: string[] = [];
+    const names: string[] = [];
+    for (const c of columns) {
+      let expr: string;
+      if ('value' in c) {
+        params.push(c.value);
+        expr = `$${params.length}`;
+      } else {
+        params.push(c.rows(from, to));
+        arrays.push(`$${params.length}::${c.type}[]`);
+        expr = `u${names.length}`;
+        names.push(expr);
+      }
+      select.push(c.timestamp ? `to_timestamp(${expr})` : expr);
+    }
+    return tx.query<{ n: number }>(
+      `with w as (
+         insert into ${table} (${columns.map((c) => c.column).join(', ')})
+         select ${select.join(', ')} from unnest(${arrays.join(', ')}) as u(${names.join(', ')})
+         on conflict (${key.join(', ')}) do update set ${update.map((c) => `${c} = excluded.${c}`).join(', ')}
+         where ${update.map((c) => `${table}.${c} is distinct from excluded.${c}`).join(' or ')}
+         returning 1)
+       select count(*)::int as n from w`,
+      params,
+    );
+  });
+}
+
 /** Each upsert returns how many rows it inserted or changed; re-sending the same batch changes none. */
 export async function upsertObservations(
   tx: Queryable,
@@ -22,64 +62,41 @@ export async function upsertObservations(
   values: Float64Array,
   quality: (string | null)[] | null,
 ): Promise<number> {
-  return inChunks(times.length, (from, to) =>
-    tx.query<{ n: number }>(
-      `with w as (
-         insert into observed_flow (gauge_id, time, value, quality)
-         select $1, to_timestamp(t), v, q from unnest($2::float8[], $3::float8[], $4::text[]) as u(t, v, q)
-         on conflict (gauge_id, time) do update set value = excluded.value, quality = excluded.quality
-         where observed_flow.value is distinct from excluded.value or observed_flow.quality is distinct from excluded.quality
-         returning 1)
-       select count(*)::int as n from w`,
-      [gaugeId, seconds(times, from, to), nullable(values, from, to), quality ? quality.slice(from, to) : new Array(to - from).fill(null)],
-    ),
-  );
+  return upsertRows(tx, 'observed_flow', ['gauge_id', 'time'], ['value', 'quality'], times.length, [
+    { column: 'gauge_id', value: gaugeId },
+    { column: 'time', timestamp: true, type: 'float8', rows: (from, to) => seconds(times, from, to) },
+    { column: 'value', type: 'float8', rows: (from, to) => nullable(values, from, to) },
+    { column: 'quality', type: 'text', rows: (from, to) => (quality ? quality.slice(from, to) : new Array(to - from).fill(null)) },
+  ]);
 }
 
 export async function upsertForcing(tx: Queryable, gaugeId: string, variable: string, times: Float64Array, values: Float64Array): Promise<number> {
-  return inChunks(times.length, (from, to) =>
-    tx.query<{ n: number }>(
-      `with w as (
-         insert into forcing_values (gauge_id, variable, time, value)
-         select $1, $2, to_timestamp(t), v from unnest($3::float8[], $4::float8[]) as u(t, v)
-         on conflict (gauge_id, variable, time) do update set value = excluded.value
-         where forcing_values.value is distinct from excluded.value
-         returning 1)
-       select count(*)::int as n from w`,
-      [gaugeId, variable, seconds(times, from, to), nullable(values, from, to)],
-    ),
-  );
+  return upsertRows(tx, 'forcing_values', ['gauge_id', 'variable', 'time'], ['value'], times.length, [
+    { column: 'gauge_id', value: gaugeId },
+    { column: 'variable', value: variable },
+    { column: 'time', timestamp: true, type: 'float8', rows: (from, to) => seconds(times, from, to) },
+    { column: 'value', type: 'float8', rows: (from, to) => nullable(values, from, to) },
+  ]);
 }
 
 export async function upsertSimulation(tx: Queryable, gaugeId: string, memberId: string, times: Float64Array, values: Float64Array): Promise<number> {
-  return inChunks(times.length, (from, to) =>
-    tx.query<{ n: number }>(
-      `with w as (
-         insert into member_simulations (gauge_id, member_id, time, value)
-         select $1, $2, to_timestamp(t), v from unnest($3::float8[], $4::float8[]) as u(t, v)
-         on conflict (gauge_id, member_id, time) do update set value = excluded.value
-         where member_simulations.value is distinct from excluded.value
-         returning 1)
-       select count(*)::int as n from w`,
-      [gaugeId, memberId, seconds(times, from, to), nullable(values, from, to)],
-    ),
-  );
+  return upsertRows(tx, 'member_simulations', ['gauge_id', 'member_id', 'time'], ['value'], times.length, [
+    { column: 'gauge_id', value: gaugeId },
+    { column: 'member_id', value: memberId },
+    { column: 'time', timestamp: true, type: 'float8', rows: (from, to) => seconds(times, from, to) },
+    { column: 'value', type: 'float8', rows: (from, to) => nullable(values, from, to) },
+  ]);
 }
 
 /** One member of one past run: values[0] is lead 1 (one step after issue time). */
 export async function upsertReforecast(tx: Queryable, gaugeId: string, issueMs: number, memberId: string, values: Float64Array): Promise<number> {
-  return inChunks(values.length, (from, to) =>
-    tx.query<{ n: number }>(
-      `with w as (
-         insert into reforecasts (gauge_id, issue_time, member_id, lead, value)
-         select $1, to_timestamp($2), $3, l, v from unnest($4::int[], $5::float8[]) as u(l, v)
-         on conflict (gauge_id, issue_time, member_id, lead) do update set value = excluded.value
-         where reforecasts.value is distinct from excluded.value
-         returning 1)
-       select count(*)::int as n from w`,
-      [gaugeId, issueMs / 1000, memberId, Array.from({ length: to - from }, (_, i) => from + i + 1), nullable(values, from, to)],
-    ),
-  );
+  return upsertRows(tx, 'reforecasts', ['gauge_id', 'issue_time', 'member_id', 'lead'], ['value'], values.length, [
+    { column: 'gauge_id', value: gaugeId },
+    { column: 'issue_time', timestamp: true, value: issueMs / 1000 },
+    { column: 'member_id', value: memberId },
+    { column: 'lead', type: 'int', rows: (from, to) => Array.from({ length: to - from }, (_, i) => from + i + 1) },
+    { column: 'value', type: 'float8', rows: (from, to) => nullable(values, from, to) },
+  ]);
 }
 
 export async function ensureMembers(tx: Queryable, gaugeId: string, ids: string[]): Promise<void> {

@@ -1,5 +1,4 @@
-import type { ReforecastSet } from '../models/reforecast-evaluation.ts';
-import type { ArchiveSeries } from '../models/residual-evaluation.ts';
+import type { ArchiveSeries, ReforecastSet } from '../core/archive-types.ts';
 import { forcingUnits, readForcings, readObservations, readReforecasts, readSimulations, type Window } from './archive-repo.ts';
 import type { Queryable } from './db.ts';
 

@@ -1,4 +1,5 @@
 import type { Queryable } from './db.ts';
+import { RunSummary } from './json-columns.ts';
 
 export interface StoredRun {
   id: string;
@@ -137,7 +138,7 @@ export async function listRuns(db: Queryable, gaugeId: string, fromMs?: number, 
     source: r.source,
     status: r.status,
     modelVersionId: r.model_version_id,
-    thresholds: r.summary,
+    thresholds: RunSummary.parse(r.summary),
     createdAt: r.created_at.toISOString(),
     href: `/forecasts/${r.id}`,
   }));
@@ -152,5 +153,5 @@ export async function latestSummaries(db: Queryable) {
                           order by issue_time desc, created_at desc limit 1) r on true
       order by g.id`,
   );
-  return rows;
+  return rows.map((r) => ({ ...r, summary: r.summary === null ? null : RunSummary.parse(r.summary) }));
 }

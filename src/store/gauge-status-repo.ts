@@ -1,4 +1,5 @@
 import type { Queryable } from './db.ts';
+import { DriftBasis, JsonObject, Reasons } from './json-columns.ts';
 
 export type DriftState = 'ok' | 'drifting' | 'insufficient-data';
 
@@ -17,8 +18,8 @@ interface StatusRow {
   gauge_id: string;
   status: DriftState;
   version_id: string | null;
-  reasons: string[];
-  evidence: Record<string, unknown>;
+  reasons: unknown;
+  evidence: unknown;
   computed_at: Date;
 }
 
@@ -26,8 +27,8 @@ const fromRow = (r: StatusRow): GaugeStatusRecord => ({
   gaugeId: r.gauge_id,
   status: r.status,
   modelVersionId: r.version_id,
-  reasons: r.reasons,
-  evidence: r.evidence,
+  reasons: Reasons.parse(r.reasons),
+  evidence: JsonObject.parse(r.evidence),
   computedAt: r.computed_at.toISOString(),
 });
 
@@ -64,12 +65,12 @@ export interface DriftReferenceRecord {
 }
 
 export async function getDriftReference(db: Queryable, versionId: string): Promise<DriftReferenceRecord | null> {
-  const { rows } = await db.query<{ version_id: string; gauge_id: string; coverage90: number; crps: number; basis: DriftReferenceRecord['basis']; created_at: Date }>(
+  const { rows } = await db.query<{ version_id: string; gauge_id: string; coverage90: number; crps: number; basis: unknown; created_at: Date }>(
     'select version_id::text as version_id, gauge_id, coverage90, crps, basis, created_at from drift_references where version_id = $1',
     [versionId],
   );
   const r = rows[0];
-  return r ? { versionId: r.version_id, gaugeId: r.gauge_id, coverage90: r.coverage90, crps: r.crps, basis: r.basis, createdAt: r.created_at.toISOString() } : null;
+  return r ? { versionId: r.version_id, gaugeId: r.gauge_id, coverage90: r.coverage90, crps: r.crps, basis: DriftBasis.parse(r.basis), createdAt: r.created_at.toISOString() } : null;
 }
 
 /** Stores (or replaces) a version's reference level. */

@@ -1,4 +1,5 @@
 import type { Queryable } from './db.ts';
+import { Thresholds } from './json-columns.ts';
 
 export interface Gauge {
   id: string;
@@ -43,7 +44,7 @@ function fromRow(r: GaugeRow): Gauge {
       r.latitude === null || r.longitude === null
         ? null
         : { latitude: r.latitude, longitude: r.longitude, ...(r.elevation_m === null ? {} : { elevationM: r.elevation_m }) },
-    thresholds: typeof r.thresholds === 'string' ? JSON.parse(r.thresholds) : r.thresholds,
+    thresholds: Thresholds.parse(r.thresholds),
     createdAt: r.created_at.toISOString(),
     updatedAt: r.updated_at.toISOString(),
   };

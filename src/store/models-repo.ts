@@ -1,4 +1,6 @@
+import type { z } from 'zod';
 import type { Queryable } from './db.ts';
+import { ArchiveSummary, JsonObject, VersionPeriods } from './json-columns.ts';
 
 export interface ModelVersion {
   id: string;
@@ -6,9 +8,9 @@ export interface ModelVersion {
   origin: 'fitted' | 'uploaded';
   label: string;
   featureSpec: unknown;
-  trainer: Record<string, unknown>;
-  periods: Record<string, unknown>;
-  scores: Record<string, unknown>;
+  trainer: z.output<typeof JsonObject>;
+  periods: z.output<typeof VersionPeriods>;
+  scores: z.output<typeof JsonObject>;
   createdBy: string | null;
   createdAt: string;
   active: boolean;
@@ -22,9 +24,9 @@ interface Row {
   origin: 'fitted' | 'uploaded';
   label: string;
   feature_spec: unknown;
-  trainer: Record<string, unknown>;
-  periods: Record<string, unknown>;
-  scores: Record<string, unknown>;
+  trainer: unknown;
+  periods: unknown;
+  scores: unknown;
   created_by: string | null;
   created_at: Date;
   active: boolean;
@@ -38,9 +40,9 @@ const fromRow = (r: Row): ModelVersion => ({
   origin: r.origin,
   label: r.label,
   featureSpec: r.feature_spec,
-  trainer: r.trainer,
-  periods: r.periods,
-  scores: r.scores,
+  trainer: JsonObject.parse(r.trainer),
+  periods: VersionPeriods.parse(r.periods),
+  scores: JsonObject.parse(r.scores),
   createdBy: r.created_by,
   createdAt: r.created_at.toISOString(),
   active: r.active,
@@ -147,7 +149,7 @@ export interface StoredArchive {
   versionId: string | null;
   kind: 'corrected' | 'raw';
   leadMode: LeadMode;
-  summary: Record<string, unknown>;
+  summary: z.output<typeof ArchiveSummary>;
   bytes: Uint8Array;
 }
 
@@ -156,12 +158,12 @@ interface ArchiveRow {
   version_id: string | null;
   kind: 'corrected' | 'raw';
   lead_mode: LeadMode;
-  summary: Record<string, unknown>;
+  summary: unknown;
   bytes: Uint8Array;
 }
 
 const archiveFromRow = (r: ArchiveRow | undefined): StoredArchive | null =>
-  r ? { id: r.id, versionId: r.version_id, kind: r.kind, leadMode: r.lead_mode, summary: r.summary, bytes: new Uint8Array(r.bytes) } : null;
+  r ? { id: r.id, versionId: r.version_id, kind: r.kind, leadMode: r.lead_mode, summary: ArchiveSummary.parse(r.summary), bytes: new Uint8Array(r.bytes) } : null;
 
 const ARCHIVE_COLUMNS = 'id::text as id, version_id::text as version_id, kind, lead_mode, summary, bytes';
 
@@ -187,12 +189,12 @@ export async function latestRawArchive(db: Queryable, gaugeId: string, leadMode:
 export async function versionArchiveSummaries(
   db: Queryable,
   versionId: string,
-): Promise<{ id: string; kind: 'corrected' | 'raw'; leadMode: LeadMode; summary: Record<string, unknown> }[]> {
-  const { rows } = await db.query<{ id: string; kind: 'corrected' | 'raw'; lead_mode: LeadMode; summary: Record<string, unknown> }>(
+): Promise<{ id: string; kind: 'corrected' | 'raw'; leadMode: LeadMode; summary: z.output<typeof ArchiveSummary> }[]> {
+  const { rows } = await db.query<{ id: string; kind: 'corrected' | 'raw'; lead_mode: LeadMode; summary: unknown }>(
     `select id::text as id, kind, lead_mode, summary from error_archives where version_id = $1 order by id`,
     [versionId],
   );
-  return rows.map((r) => ({ id: r.id, kind: r.kind, leadMode: r.lead_mode, summary: r.summary }));
+  return rows.map((r) => ({ id: r.id, kind: r.kind, leadMode: r.lead_mode, summary: ArchiveSummary.parse(r.summary) }));
 }
 
 /** An archive's identity and summary, without its bytes (serving loads bytes only on a worker's first use). */
@@ -201,7 +203,7 @@ export type ArchiveInfo = Omit<StoredArchive, 'bytes'>;
 const INFO_COLUMNS = 'id::text as id, version_id::text as version_id, kind, lead_mode, summary';
 
 const infoFromRow = (r: Omit<ArchiveRow, 'bytes'> | undefined): ArchiveInfo | null =>
-  r ? { id: r.id, versionId: r.version_id, kind: r.kind, leadMode: r.lead_mode, summary: r.summary } : null;
+  r ? { id: r.id, versionId: r.version_id, kind: r.kind, leadMode: r.lead_mode, summary: ArchiveSummary.parse(r.summary) } : null;
 
 export async function versionArchiveInfo(db: Queryable, versionId: string, kind: 'corrected' | 'raw', leadMode: LeadMode = 'lead-free'): Promise<ArchiveInfo | null> {
   const { rows } = await db.query<Omit<ArchiveRow, 'bytes'>>(

@@ -1,8 +1,10 @@
+import type { z } from 'zod';
 import type { Queryable } from './db.ts';
-import { chooseArchive } from '../models/archive-choice.ts';
+import { chooseArchive } from '../core/archive-choice.ts';
 import { decodePercentiles } from './forecasts-repo.ts';
+import { ArchiveSummary, RunEnsembles, RunValidTimes } from './json-columns.ts';
 
-/** What verification reads of one stored run (see src/api/forecast-view.ts for the served shape). */
+/** What verification reads of one stored run (see src/services/forecast-view.ts for the served shape). */
 export interface RunForVerification {
   id: string;
   issueMs: number;
@@ -50,8 +52,8 @@ export async function readRunsForVerification(db: Queryable, p: RunPage): Promis
     source: string;
     status: 'corrected' | 'degraded';
     model_version_id: string | null;
-    valid_times: string[];
-    ensemble: { raw: { id: string; values: number[] }[]; corrected: { id: string; values: number[] }[] | null };
+    valid_times: unknown;
+    ensemble: unknown;
     percentiles: Uint8Array;
   }>(
     `select id, (extract(epoch from issue_time) * 1000)::float8 as t, source, status, model_version_id::text as model_version_id,
@@ -60,17 +62,20 @@ export async function readRunsForVerification(db: Queryable, p: RunPage): Promis
       order by issue_time, id limit $${params.length}`,
     params,
   );
-  return rows.map((r) => ({
-    id: r.id,
-    issueMs: Number(r.t),
-    source: r.source,
-    status: r.status,
-    modelVersionId: r.model_version_id,
-    validTimes: r.valid_times,
-    raw: r.ensemble.raw,
-    corrected: r.ensemble.corrected,
-    percentiles: decodePercentiles(r.percentiles),
-  }));
+  return rows.map((r) => {
+    const ensemble = RunEnsembles.parse(r.ensemble);
+    return {
+      id: r.id,
+      issueMs: Number(r.t),
+      source: r.source,
+      status: r.status,
+      modelVersionId: r.model_version_id,
+      validTimes: RunValidTimes.parse(r.valid_times),
+      raw: ensemble.raw,
+      corrected: ensemble.corrected,
+      percentiles: decodePercentiles(r.percentiles),
+    };
+  });
 }
 
 /** The newest corrected runs of one model version issued at or after a time (newest first). */
@@ -115,27 +120,30 @@ export interface ChosenArchive {
   leadMode: 'lead-free' | 'per-lead';
   /** Lead times it can serve: a per-lead archive its lead count, a lead-free one its template length. */
   reach: number;
-  summary: Record<string, unknown>;
+  summary: z.output<typeof ArchiveSummary>;
   bytes: Uint8Array;
 }
 
 /**
  * The archive serving would use for a run of nLeads lead times (the rule of POST /gauges/:id/runs,
- * src/models/archive-choice.ts). Also the farthest reach of the two.
+ * src/core/archive-choice.ts). Also the farthest reach of the two.
  */
 export async function correctedArchiveFor(db: Queryable, versionId: string, nLeads: number, minPerLeadRuns?: number): Promise<{ archive: ChosenArchive | null; maxReach: number }> {
-  const { rows } = await db.query<{ id: string; lead_mode: 'lead-free' | 'per-lead'; summary: Record<string, unknown>; bytes: Uint8Array }>(
+  const { rows } = await db.query<{ id: string; lead_mode: 'lead-free' | 'per-lead'; summary: unknown; bytes: Uint8Array }>(
     `select distinct on (lead_mode) id::text as id, lead_mode, summary, bytes from error_archives
       where version_id = $1 and kind = 'corrected' order by lead_mode, id desc`,
     [versionId],
   );
-  const all = rows.map((r) => ({
-    id: r.id,
-    leadMode: r.lead_mode,
-    reach: Number((r.lead_mode === 'per-lead' ? r.summary.nLeads : r.summary.templateLength) ?? 0) || 0,
-    summary: r.summary,
-    bytes: new Uint8Array(r.bytes),
-  }));
+  const all = rows.map((r) => {
+    const summary = ArchiveSummary.parse(r.summary);
+    return {
+      id: r.id,
+      leadMode: r.lead_mode,
+      reach: Number((r.lead_mode === 'per-lead' ? summary.nLeads : summary.templateLength) ?? 0) || 0,
+      summary,
+      bytes: new Uint8Array(r.bytes),
+    };
+  });
   const perLead = all.find((a) => a.leadMode === 'per-lead') ?? null;
   const leadFree = all.find((a) => a.leadMode === 'lead-free') ?? null;
   const archive = chooseArchive(perLead, leadFree, nLeads, minPerLeadRuns);

@@ -1,7 +1,7 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { buildForecastView } from '../../src/api/forecast-view.ts';
+import { buildForecastView } from '../../src/services/forecast-view.ts';
 import { createPrng, crpsGaussian, normalQuantile, watchDrift, type VerificationCase } from '../../src/core/index.ts';
-import { settleGaugeStatusRefreshes } from '../../src/jobs/drift-refresh.ts';
+import { settleGaugeStatusRefreshes } from '../../src/services/drift.ts';
 import { jobHandlers } from '../../src/jobs/handlers.ts';
 import { JobRunner } from '../../src/jobs/runner.ts';
 import { loadScenarioArchive } from '../../src/scenario/load-archive.ts';

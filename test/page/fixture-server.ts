@@ -6,7 +6,7 @@ import Fastify, { type FastifyInstance, type FastifyRequest } from 'fastify';
 import type { Services } from '../../src/api/context.ts';
 import { ApiDocs } from '../../src/api/openapi.ts';
 import { pageRoutes } from '../../src/api/page.ts';
-import { Problem } from '../../src/api/problem.ts';
+import { Problem } from '../../src/services/problem.ts';
 import { CAUTION, overviewEntry, type Forecast, type OverviewGauge } from './fixture.ts';
 
 export interface GaugeEntry {

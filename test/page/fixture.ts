@@ -2,7 +2,7 @@
 // GET /gauges/:id/forecasts/latest). The numbers only need to look like a forecast; they are made
 // self-consistent (quantiles and probabilities computed from the trajectories with the project's
 // core functions) so the page shows a coherent picture. Nothing here is checked against outside values.
-import type { ForecastView } from '../../src/api/forecast-view.ts';
+import type { ForecastView } from '../../src/services/forecast-view.ts';
 import { createPrng } from '../../src/core/prng.ts';
 import { exceedanceProbability } from '../../src/core/exceedance.ts';
 import { quantiles } from '../../src/core/quantile.ts';

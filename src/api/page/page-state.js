@@ -4,7 +4,7 @@
 
 /**
  * One corrected run as GET /gauges/:id/forecasts/latest answers it.
- * @typedef {import('../forecast-view.ts').ForecastView} Forecast
+ * @typedef {import('../../services/forecast-view.ts').ForecastView} Forecast
  * @typedef {Forecast['thresholds'][number]} ThresholdForecast
  */
 

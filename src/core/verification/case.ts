@@ -7,7 +7,7 @@
  * must sit at the K midpoint levels (i − 0.5)/K, i = 1 … K (see midpointProbs); the K values
  * are then scored as a K-member "quantile ensemble". Its CRPS tends to the CRPS of the
  * continuous forecast as K grows (1000 midpoint quantiles of N(0, 1) match the closed form to
- * 1e-4 relative — properscoring's own test, see CHECKS.md). Other quantile levels (for example
+ * 1e-4 relative — properscoring 0.1's own test, tests/test_crps.py). Other quantile levels (for example
  * the seven default levels 0.05 … 0.95) are refused: they do not describe the whole
  * distribution, so CRPS, PIT and Brier scores from them would be biased.
  */

@@ -1,7 +1,9 @@
 import { Worker } from 'node:worker_threads';
 import type { RunInput } from '../core/features.ts';
-import type { CorrectionOptions } from './correct-run.ts';
-import type { CorrectionRequest } from './correction-worker.ts';
+import type { CorrectionOptions } from '../models/correct-run.ts';
+import type { CorrectionReply, CorrectionRequest, CorrectionResult, WorkerStart } from './protocol.ts';
+
+export type { CorrectionResult };
 
 type WithoutId<T> = T extends unknown ? Omit<T, 'id'> : never;
 
@@ -15,16 +17,6 @@ export class CorrectionError extends Error {
   ) {
     super(message);
   }
-}
-
-export interface CorrectionResult {
-  corrected: Float64Array | null;
-  quantiles: Float64Array;
-  exceedance: Float64Array;
-  exceedanceAnyTime: Float64Array;
-  firstLikelyLead: (number | null)[];
-  nDraws: number;
-  timings: { featuresMs: number; inferenceMs: number; stochasticMs: number };
 }
 
 interface Slot {
@@ -66,14 +58,15 @@ export class CorrectionPool {
   }
 
   private spawn(): Slot {
-    const worker = new Worker(new URL('../jobs/worker-entry.mjs', import.meta.url), { workerData: { module: '../models/correction-worker.ts' } });
+    const start: WorkerStart = { module: './correction-worker.ts' };
+    const worker = new Worker(new URL('./worker-entry.mjs', import.meta.url), { workerData: start });
     const slot: Slot = { worker, models: new Set(), archives: new Set(), busy: 0, pending: new Map() };
-    worker.on('message', (m: { id: number; ok: boolean; result?: unknown; message?: string; path?: string | null }) => {
+    worker.on('message', (m: CorrectionReply) => {
       const p = slot.pending.get(m.id);
       if (!p) return;
       slot.pending.delete(m.id);
       if (m.ok) p.resolve(m.result);
-      else p.reject(new CorrectionError(m.message ?? 'correction failed', m.path ?? null));
+      else p.reject(new CorrectionError(m.message, m.path));
     });
     worker.on('error', (err) => {
       for (const p of slot.pending.values()) p.reject(err);

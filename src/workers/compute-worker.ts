@@ -3,21 +3,18 @@
 import { parentPort, workerData } from 'node:worker_threads';
 import { archiveToBytes } from '../core/archive-codec.ts';
 import { checkFeatureSpec } from '../core/features.ts';
+import { CancelledError } from '../core/cancelled.ts';
+import { computeHindcast } from '../models/hindcast-compute.ts';
 import { createResidualSession, predictResiduals } from '../models/onnx-session.ts';
-import { computeHindcast, type HindcastTaskInput } from './hindcast-compute.ts';
-import { fitResidualModel, type FitOptions } from '../models/residual-fit.ts';
-import { evaluateReforecasts, type ReforecastEvaluation, type ReforecastSet } from '../models/reforecast-evaluation.ts';
-import { archiveSummary, evaluateResidualModel, rawArchiveFromSeries, type ArchiveSeries, type ArchiveOptions, type Period } from '../models/residual-evaluation.ts';
+import { evaluateReforecasts, type ReforecastEvaluation } from '../models/reforecast-evaluation.ts';
+import { archiveSummary, evaluateResidualModel, rawArchiveFromSeries } from '../models/residual-evaluation.ts';
+import { fitResidualModel } from '../models/residual-fit.ts';
+import type { ComputeMessage, ComputeStart } from './protocol.ts';
 
-export type ComputeTask =
-  | { kind: 'fit'; series: ArchiveSeries; options: FitOptions }
-  | { kind: 'evaluate-upload'; series: ArchiveSeries; onnx: Uint8Array; spec: unknown; validation: Period; archive: ArchiveOptions; reforecasts?: ReforecastSet | null }
-  | { kind: 'raw-archive'; series: ArchiveSeries; period: Period; archive: ArchiveOptions }
-  | { kind: 'hindcast'; input: HindcastTaskInput };
-
-const { task, cancelFlag } = workerData as { task: ComputeTask; cancelFlag: Int32Array; module: string };
+const { task, cancelFlag } = workerData as ComputeStart;
 const shouldStop = () => Atomics.load(cancelFlag, 0) === 1;
-const progress = (p: { stage: string; percent: number }) => parentPort!.postMessage({ type: 'progress', ...p });
+const post = (m: ComputeMessage) => parentPort!.postMessage(m);
+const progress = (p: { stage: string; percent: number }) => post({ type: 'progress', ...p });
 
 /** The per-lead archives as stored (bytes + summary), or why there are none; null without past runs. */
 function perLeadResult(e: ReforecastEvaluation | null) {
@@ -80,6 +77,6 @@ async function run(): Promise<unknown> {
 }
 
 run().then(
-  (result) => parentPort!.postMessage({ type: 'done', result }),
-  (err: Error) => parentPort!.postMessage({ type: 'error', message: err.message, cancelled: err.message === 'cancelled' || shouldStop() }),
+  (result) => post({ type: 'done', result }),
+  (err: Error) => post({ type: 'error', message: err.message, cancelled: err instanceof CancelledError }),
 );

@@ -1,35 +1,29 @@
 import { Worker } from 'node:worker_threads';
-import type { ComputeTask } from './compute-worker.ts';
-
-export class ComputeCancelled extends Error {
-  constructor() {
-    super('cancelled');
-  }
-}
+import { CancelledError } from '../core/cancelled.ts';
+import type { ComputeMessage, ComputeStart, ComputeTask } from './protocol.ts';
 
 export interface ComputeHandle<T> {
   result: Promise<T>;
-  /** Asks the worker to stop at its next check; the result then rejects with ComputeCancelled. */
+  /** Asks the worker to stop at its next check; the result then rejects with CancelledError. */
   cancel(): void;
 }
 
 /** Runs one compute task in its own worker thread, relaying progress. */
 export function runCompute<T>(task: ComputeTask, onProgress: (p: { stage: string; percent: number }) => void = () => {}): ComputeHandle<T> {
   const cancelFlag = new Int32Array(new SharedArrayBuffer(4));
-  const worker = new Worker(new URL('./worker-entry.mjs', import.meta.url), {
-    workerData: { module: './compute-worker.ts', task, cancelFlag },
-  });
+  const start: ComputeStart = { module: './compute-worker.ts', task, cancelFlag };
+  const worker = new Worker(new URL('./worker-entry.mjs', import.meta.url), { workerData: start });
   const result = new Promise<T>((resolve, reject) => {
     let settled = false;
-    worker.on('message', (m: { type: string; stage?: string; percent?: number; result?: T; message?: string; cancelled?: boolean }) => {
-      if (m.type === 'progress') onProgress({ stage: m.stage!, percent: m.percent! });
+    worker.on('message', (m: ComputeMessage) => {
+      if (m.type === 'progress') onProgress({ stage: m.stage, percent: m.percent });
       else if (m.type === 'done') {
         settled = true;
         resolve(m.result as T);
         void worker.terminate();
       } else if (m.type === 'error') {
         settled = true;
-        reject(m.cancelled ? new ComputeCancelled() : new Error(m.message));
+        reject(m.cancelled ? new CancelledError() : new Error(m.message));
         void worker.terminate();
       }
     });

@@ -1,4 +1,4 @@
-// The hindcast's CPU work, run inside a compute worker thread (compute-worker.ts, task kind
+// The hindcast's CPU work, run inside a compute worker thread (src/workers/compute-worker.ts, task kind
 // 'hindcast'): the whole correction pipeline over many past issues — feature rows → the version's
 // ONNX residual model(s) → stochastic stage with the version's error archive — then the
 // side-by-side verification of raw, corrected and stochastic, the ensemble-size study and the
@@ -7,6 +7,8 @@ import type { InferenceSession } from 'onnxruntime-node';
 import { archiveFromBytes } from '../core/archive-codec.ts';
 import { dayOfYearUtc } from '../core/day-of-year.ts';
 import { checkFeatureSpec, continuousRows, featureCount, FeatureInputError, requiredInputs, servingRows, type FeatureSpec, type RunInput } from '../core/features.ts';
+import { CancelledError } from '../core/cancelled.ts';
+import { correctedMember } from '../core/corrected-member.ts';
 import { createStochasticWorkspace } from '../core/stochastic-stage.ts';
 import {
   adviseStochasticStage,
@@ -18,8 +20,8 @@ import {
   type SourceName,
   type StochasticAdvice,
 } from '../core/verification/index.ts';
-import { createResidualSession, predictResiduals } from '../models/onnx-session.ts';
-import type { ArchiveSeries } from '../models/residual-evaluation.ts';
+import { createResidualSession, predictResiduals } from './onnx-session.ts';
+import type { ArchiveSeries } from '../core/archive-types.ts';
 
 export interface HindcastSettings {
   mode: 'simulation' | 'reforecast';
@@ -85,13 +87,6 @@ export interface HindcastOutput {
 
 export type Progress = (p: { stage: string; percent: number }) => void;
 
-/** Thrown inside the worker when the job was asked to stop. */
-export class HindcastCancelled extends Error {
-  constructor() {
-    super('cancelled');
-  }
-}
-
 const ROWS_PER_BATCH = 100_000;
 
 /**
@@ -123,7 +118,7 @@ export async function computeHindcast(input: HindcastTaskInput, progress: Progre
   let warm = need.simStepsToIssue;
   for (const f of need.forcings) warm = Math.max(warm, f.stepsToIssue);
   const check = () => {
-    if (shouldStop()) throw new HindcastCancelled();
+    if (shouldStop()) throw new CancelledError();
   };
 
   // Raw values per issue; issues with any missing raw value are left out.
@@ -292,11 +287,8 @@ export async function computeHindcast(input: HindcastTaskInput, progress: Progre
   }
 }
 
-/** max(0, value + residual), or NaN when either is missing. */
-function correctedValue(value: number, residual: number): number {
-  const v = value + residual;
-  return Number.isFinite(v) ? Math.max(0, v) : NaN;
-}
+/** The corrected member, or NaN (missing: the issue is left out) when the sum is not finite. */
+const usableCorrected = (value: number, residual: number) => (Number.isFinite(value + residual) ? correctedMember(value, residual) : NaN);
 
 /**
  * Simulation mode with lead-free features: every (model, member, valid time) the issues need is
@@ -332,7 +324,7 @@ async function correctPerValidTime(
       const base = (k * M + m) * n;
       for (let j = 0; j < pick.length; j++) {
         const t = all.index[pick[j]];
-        out[base + t] = correctedValue(sim[t], residual[j]);
+        out[base + t] = usableCorrected(sim[t], residual[j]);
       }
     }
     progress({ stage: 'correcting the members', percent: 2 + (33 * (m + 1)) / M });
@@ -403,7 +395,7 @@ async function correctPerIssue(
       for (let slot = 0; slot < filled.length; slot++) {
         const j = filled[slot];
         const base = (j * K + k) * perIssue;
-        for (let r = 0; r < perIssue; r++) out[base + r] = correctedValue(rawBatch[slot * perIssue + r], residual[slot * perIssue + r]);
+        for (let r = 0; r < perIssue; r++) out[base + r] = usableCorrected(rawBatch[slot * perIssue + r], residual[slot * perIssue + r]);
       }
     }
     progress({ stage: 'correcting the members', percent: 2 + (33 * b1) / issues.length });

@@ -4,15 +4,13 @@ import { parentPort } from 'node:worker_threads';
 import type { InferenceSession } from 'onnxruntime-node';
 import { archiveFromBytes } from '../core/archive-codec.ts';
 import type { ErrorArchive } from '../core/error-archive.ts';
-import { checkFeatureSpec, featureCount, FeatureInputError, type FeatureSpec, type RunInput } from '../core/features.ts';
+import { checkFeatureSpec, featureCount, FeatureInputError, type FeatureSpec } from '../core/features.ts';
 import { createStochasticWorkspace } from '../core/stochastic-stage.ts';
-import { correctRun, type CorrectionOptions } from './correct-run.ts';
-import { createResidualSession, predictResiduals } from './onnx-session.ts';
+import { correctRun } from '../models/correct-run.ts';
+import { createResidualSession, predictResiduals } from '../models/onnx-session.ts';
+import type { CorrectionReply, CorrectionRequest } from './protocol.ts';
 
-export type CorrectionRequest =
-  | { type: 'load-model'; id: number; versionId: string; parts: Uint8Array[]; spec: unknown }
-  | { type: 'load-archive'; id: number; archiveId: string; bytes: Uint8Array }
-  | { type: 'correct'; id: number; versionId: string | null; archiveId: string; run: RunInput; options: CorrectionOptions };
+const reply = (m: CorrectionReply) => parentPort!.postMessage(m);
 
 const MAX_MODELS = 8;
 const MAX_ARCHIVES = 16;
@@ -41,11 +39,11 @@ parentPort!.on('message', async (msg: CorrectionRequest) => {
   try {
     if (msg.type === 'load-model') {
       await loadModel(msg.versionId, msg.parts, msg.spec);
-      parentPort!.postMessage({ id: msg.id, ok: true });
+      reply({ id: msg.id, ok: true });
     } else if (msg.type === 'load-archive') {
       if (!archives.has(msg.archiveId)) archives.set(msg.archiveId, archiveFromBytes(msg.bytes));
       while (archives.size > MAX_ARCHIVES) archives.delete(archives.keys().next().value!);
-      parentPort!.postMessage({ id: msg.id, ok: true });
+      reply({ id: msg.id, ok: true });
     } else {
       const model = msg.versionId ? models.get(msg.versionId) : null;
       if (msg.versionId && !model) throw new Error(`model ${msg.versionId} is not loaded in this worker`);
@@ -53,7 +51,7 @@ parentPort!.on('message', async (msg: CorrectionRequest) => {
       if (!archive) throw new Error(`archive ${msg.archiveId} is not loaded in this worker`);
       const out = await correctRun(msg.run, model?.spec ?? null, model?.sessions ?? [], archive, msg.options, workspace);
       const s = out.stage;
-      parentPort!.postMessage({
+      reply({
         id: msg.id,
         ok: true,
         result: {
@@ -69,6 +67,6 @@ parentPort!.on('message', async (msg: CorrectionRequest) => {
     }
   } catch (err) {
     const e = err as Error;
-    parentPort!.postMessage({ id: msg.id, ok: false, message: e.message, path: e instanceof FeatureInputError ? e.path : null });
+    reply({ id: msg.id, ok: false, message: e.message, path: e instanceof FeatureInputError ? e.path : null });
   }
 });

@@ -2,16 +2,16 @@
 // the observations that arrived since, held to the version's validation level (core watchDrift).
 // The result is stored in gauge_status, so the overview, the gauge and /metrics only read a row.
 // Refreshed after observations are posted (after the commit, off the request), after a hindcast
-// stores a version's level, and on a timer (src/api/verification.ts).
+// stores a version's level, and on the job runner's schedule (refreshAllGaugeStatuses, src/jobs/handlers.ts).
 import { midpointProbs, watchDrift, type QuantileForecast, type VerificationCase } from '../core/verification/index.ts';
 import { readObservations } from '../store/archive-repo.ts';
 import type { Queryable } from '../store/db.ts';
 import { getDriftReference, referenceJob, saveGaugeStatus, type GaugeStatusRecord } from '../store/gauge-status-repo.ts';
-import { getGauge } from '../store/gauges-repo.ts';
+import { getGauge, listGauges } from '../store/gauges-repo.ts';
 import { enqueueJob } from '../store/jobs-repo.ts';
 import { getActiveModelVersion } from '../store/models-repo.ts';
 import { hasRuns, latestObservationMs, readRecentRunPercentiles } from '../store/verification-repo.ts';
-import type { HindcastJobParams } from './hindcast-job.ts';
+import { referenceHindcastParams } from './hindcast-params.ts';
 
 /** Window of the watch: runs issued in the last 60 days before the newest observation (common practice). */
 export const DRIFT_WINDOW_DAYS = 60;
@@ -24,26 +24,6 @@ export const DRIFT_MIN_CASES = 30;
 const DAY_MS = 86_400_000;
 const iso = (ms: number) => new Date(ms).toISOString().replace('.000Z', 'Z');
 const EMPTY: number[] = [];
-
-/** The hindcast that measures a version's level: its validation period, reforecasts when there are enough. */
-export function referenceHindcastParams(versionId: string, horizon: number | null): HindcastJobParams {
-  return {
-    mode: 'auto',
-    versionId,
-    from: null,
-    to: null,
-    horizon,
-    everySteps: 1,
-    trajectories: 1000,
-    seed: 1,
-    seasonalWindowDays: 60,
-    minLead: null,
-    maxLead: null,
-    sizeStudy: { sources: [], sizes: [], repeats: 1, caseFraction: null },
-    purpose: 'drift-reference',
-    setDriftLevel: true,
-  };
-}
 
 export type GaugeStatusInput = Omit<GaugeStatusRecord, 'computedAt'>;
 
@@ -113,7 +93,7 @@ export async function computeGaugeStatus(db: Queryable, gaugeId: string): Promis
   });
   // The block the archives were built from: the held-out archive block, or (older versions and
   // uploads) the whole validation period.
-  const archiveBlock = (active.periods.archive ?? active.periods.validation) as { from?: string; to?: string } | undefined;
+  const archiveBlock = active.periods.archive ?? active.periods.validation;
   const p = reference.basis.period;
   if (archiveBlock?.from && archiveBlock.to && p.from < archiveBlock.to && p.to > archiveBlock.from) {
     d.reasons.push(
@@ -179,4 +159,10 @@ export function scheduleGaugeStatusRefresh(db: Queryable, gaugeId: string, log?:
 export async function settleGaugeStatusRefreshes(db: Queryable): Promise<void> {
   const byGauge = pending.get(db);
   while (byGauge && byGauge.size) await Promise.all([...byGauge.values()].map((p) => p.done));
+}
+
+/** Refreshes every gauge's status (the periodic refresh; observations also trigger one per gauge). */
+export async function refreshAllGaugeStatuses(db: Queryable, log?: { warn: (o: object, msg: string) => void }): Promise<void> {
+  for (const g of await listGauges(db)) scheduleGaugeStatusRefresh(db, g.id, log);
+  await settleGaugeStatusRefreshes(db);
 }

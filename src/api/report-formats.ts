@@ -1,0 +1,130 @@
+// How verification reports are written out: the main scores side by side as CSV or a fixed-width
+// text table (stored-run verification and hindcasts share them), and the choice among JSON, CSV and text.
+import type { FastifyReply } from 'fastify';
+import type { ComparisonReport, SizeStudyResult, SourceReport, StochasticAdvice } from '../core/verification/index.ts';
+import type { Format } from './formats.ts';
+
+export interface ScoreRow {
+  score: string;
+  unit: string;
+  values: (number | string | null)[];
+}
+
+const pct = (l: number) => `${Math.round(l * 1000) / 10} %`;
+
+/** The main scores side by side, in the order an operator reads them. */
+export function scoreRows(report: ComparisonReport): ScoreRow[] {
+  const sources: (SourceReport | null)[] = [report.raw, report.corrected, report.stochastic];
+  const row = (score: string, unit: string, get: (s: SourceReport) => number | string | null | undefined): ScoreRow => ({
+    score,
+    unit,
+    values: sources.map((s) => (s && s.n > 0 ? (get(s) ?? null) : null)),
+  });
+  const rows: ScoreRow[] = [
+    row('cases', '', (s) => s.n),
+    row('members or values per case', '', (s) => s.members.max),
+    row('MAE of the median', 'm3/s', (s) => s.median.mae),
+    row('RMSE of the median', 'm3/s', (s) => s.median.rmse),
+    row('NSE of the median', '', (s) => s.median.nse),
+    row('KGE of the median', '', (s) => s.median.kge),
+    row('MAE of the mean', 'm3/s', (s) => s.mean.mae),
+    row('RMSE of the mean', 'm3/s', (s) => s.mean.rmse),
+    row('NSE of the mean', '', (s) => s.mean.nse),
+    row('KGE of the mean', '', (s) => s.mean.kge),
+    row('bias of the mean', 'm3/s', (s) => s.mean.bias),
+    row('CRPS', 'm3/s', (s) => s.crps.crps),
+    row('fair CRPS', 'm3/s', (s) => s.crps.fairCrps),
+    row('CRPS skill vs raw', '', (s) => s.crps.skillVsRaw),
+    row('fair CRPS skill vs raw', '', (s) => s.crps.fairSkillVsRaw),
+    row('CRPS reliability (Hersbach)', 'm3/s', (s) => s.crps.hersbach.reliability),
+    row('CRPS potential (Hersbach)', 'm3/s', (s) => s.crps.hersbach.potential),
+    row('alpha index', '', (s) => s.alphaIndex),
+    row('PIT mean', '', (s) => s.pit.mean),
+    row('PIT variance ratio', '', (s) => s.pit.varianceRatio),
+  ];
+  for (const level of report.settings.levels) {
+    const at = (s: SourceReport) => s.intervals.find((i) => i.level === level);
+    rows.push(row(`coverage of the ${pct(level)} band`, '', (s) => at(s)?.coverage));
+    rows.push(row(`PIT coverage ${pct(level)}`, '', (s) => at(s)?.pitCoverage));
+    rows.push(row(`width of the ${pct(level)} band`, 'm3/s', (s) => at(s)?.meanWidth));
+  }
+  report.settings.thresholds.forEach((thr, t) => {
+    rows.push(row(`Brier score, flow > ${thr}`, '', (s) => s.brier[t]?.brier));
+    rows.push(row(`Brier skill, flow > ${thr}`, '', (s) => s.brier[t]?.skill));
+  });
+  rows.push(row('spread class', '', (s) => s.spread.class));
+  return rows;
+}
+
+const csvField = (v: string) => (/[",\n]/.test(v) ? `"${v.replace(/"/g, '""')}"` : v);
+
+export function scoresCsv(report: ComparisonReport, comments: string[]): string {
+  const lines = comments.map((c) => `# ${c.replace(/\n/g, ' ')}`);
+  lines.push('score,unit,raw,corrected,stochastic');
+  for (const r of scoreRows(report)) lines.push([r.score, r.unit, ...r.values.map((v) => (v === null ? '' : String(v)))].map(csvField).join(','));
+  return `${lines.join('\n')}\n`;
+}
+
+const fmt = (v: number | string | null): string => {
+  if (v === null) return '–';
+  if (typeof v === 'string') return v;
+  if (Number.isInteger(v)) return String(v);
+  const a = Math.abs(v);
+  return a >= 1000 ? v.toFixed(0) : a >= 100 ? v.toFixed(1) : a >= 1 ? v.toFixed(3) : v.toFixed(4);
+};
+
+/** A fixed-width table: first column left-aligned, the others right-aligned. */
+export function textTable(header: string[], rows: string[][]): string[] {
+  const widths = header.map((h, i) => Math.max(h.length, ...rows.map((r) => r[i].length)));
+  const line = (cells: string[]) => cells.map((c, i) => (i === 0 ? c.padEnd(widths[i]) : c.padStart(widths[i]))).join('  ').trimEnd();
+  return [line(header), line(widths.map((w) => '-'.repeat(w))), ...rows.map(line)];
+}
+
+export function scoresText(title: string[], report: ComparisonReport, advice: StochasticAdvice, notes: string[]): string {
+  const table = textTable(
+    ['score', 'raw', 'corrected', 'stochastic'],
+    scoreRows(report).map((r) => [`${r.score}${r.unit ? ` (${r.unit})` : ''}`, ...r.values.map(fmt)]),
+  );
+  return [
+    ...title,
+    '',
+    ...table,
+    '',
+    `Stochastic stage: ${advice.recommendation}`,
+    ...advice.reasons.map((r) => `  - ${r}`),
+    ...(notes.length ? ['', ...notes.map((n) => `Note: ${n}`)] : []),
+    '',
+  ].join('\n');
+}
+
+/** The report as JSON, CSV or text, as the request asked. */
+export function sendReport(reply: FastifyReply, format: Format, filename: string, json: unknown, csv: () => string, text: () => string): unknown {
+  reply.header('vary', 'accept');
+  if (format === 'csv') {
+    reply.type('text/csv; charset=utf-8').header('content-disposition', `inline; filename="${filename}.csv"`);
+    return csv();
+  }
+  if (format === 'text') {
+    reply.type('text/plain; charset=utf-8');
+    return text();
+  }
+  return json;
+}
+
+
+/** The ensemble-size study as text tables. */
+export function sizeStudyText(studies: SizeStudyResult[] | null): string[] {
+  if (!studies?.length) return [];
+  const out: string[] = [''];
+  for (const s of studies) {
+    out.push(`Ensemble-size study, ${s.source} (${s.members} available; ${s.repeats} random draws per case, ${Math.round(s.caseFraction * 1000) / 10} % of cases; band ${Math.round(s.level * 100)} %):`);
+    const f = (x: number | null, d = 3) => (x === null ? '–' : x.toFixed(d));
+    out.push(
+      ...textTable(
+        ['members', 'cases', 'CRPS', 'fair CRPS', 'band width', 'band coverage', 'PIT coverage', 'alpha', 'alpha sd'],
+        s.rows.map((r) => [String(r.size), String(r.cases), f(r.crps), f(r.fairCrps), f(r.meanWidth, 2), f(r.coverage), f(r.pitCoverage), f(r.alphaIndex), f(r.alphaIndexSd)]),
+      ),
+    );
+  }
+  return out;
+}

@@ -1,0 +1,102 @@
+// Use case: evaluate an uploaded model. An ONNX residual model trained elsewhere is checked (its
+// feature spec, its input and output shapes), run over the gauge's validation period in a compute
+// worker to score it and build its error archives, and stored as a new version only when all of
+// that succeeds; a refusal names the body field and stores nothing.
+import { checkFeatureSpec, featureCount, FeatureInputError } from '../core/features.ts';
+import type { ErrorTransformSpec } from '../core/error-transform.ts';
+import { inspectOnnx, OnnxInspectError } from '../models/onnx-inspect.ts';
+import { loadArchiveSeries, loadReforecastSet } from '../store/archive-series.ts';
+import type { Db } from '../store/db.ts';
+import type { Gauge } from '../store/gauges-repo.ts';
+import { activateModelVersion, insertModelVersion } from '../store/models-repo.ts';
+import { runCompute } from '../workers/run-compute.ts';
+import { defaultPeriods, perLeadParts, type PerLeadOutput } from './fit.ts';
+import { conflict, invalid, type FieldError } from './problem.ts';
+
+export const MAX_UPLOAD_BYTES = 20 * 1024 * 1024;
+
+/** An upload request after the wire schema (src/api/models.ts) has applied its defaults. */
+export interface UploadRequest {
+  label: string;
+  description?: string;
+  featureSpec: unknown;
+  onnxBase64: string;
+  validation?: { from: string; to: string };
+  transform: ErrorTransformSpec;
+  templateLength: number;
+  activate: boolean;
+}
+
+/** Checks, evaluates and stores an uploaded model; answers with the new version's id. */
+export async function evaluateUpload(db: Db, gauge: Gauge, body: UploadRequest, createdBy: string | null): Promise<string> {
+  const onnx = new Uint8Array(Buffer.from(body.onnxBase64, 'base64'));
+  if (onnx.length > MAX_UPLOAD_BYTES) throw invalid([{ path: 'body.onnxBase64', message: `the ONNX file is ${onnx.length} bytes; the limit is ${MAX_UPLOAD_BYTES}` }]);
+  let spec;
+  try {
+    spec = checkFeatureSpec(body.featureSpec);
+  } catch (e) {
+    if (e instanceof FeatureInputError) throw invalid([{ path: `body.featureSpec${e.path.replace(/^spec/, '')}`, message: e.message }]);
+    throw e;
+  }
+  if (spec.stepSeconds !== gauge.stepSeconds) throw invalid([{ path: 'body.featureSpec.stepSeconds', message: `is ${spec.stepSeconds}; the gauge's step is ${gauge.stepSeconds} s` }]);
+  let summary;
+  try {
+    summary = inspectOnnx(onnx);
+  } catch (e) {
+    if (e instanceof OnnxInspectError) throw invalid([{ path: 'body.onnxBase64', message: `not a readable ONNX model: ${e.message}` }]);
+    throw e;
+  }
+  const nF = featureCount(spec);
+  const errors: FieldError[] = [];
+  const input = summary.inputs[0];
+  if (summary.inputs.length !== 1) errors.push({ path: 'body.onnxBase64', message: `the model must take exactly one input, it takes ${summary.inputs.length}` });
+  else if (input.elemType !== 'float' || input.dims.length !== 2 || (typeof input.dims[1] === 'number' && input.dims[1] !== nF)) {
+    errors.push({ path: 'body.onnxBase64', message: `input ${input.name} must be float [N, ${nF}] (the feature spec's ${nF} features); it is ${input.elemType} [${input.dims.join(', ')}]` });
+  }
+  const output = summary.outputs[0];
+  if (summary.outputs.length < 1) errors.push({ path: 'body.onnxBase64', message: 'the model has no output' });
+  else if (output.elemType !== 'float' || output.dims.length > 2 || (output.dims.length === 2 && typeof output.dims[1] === 'number' && output.dims[1] !== 1)) {
+    errors.push({ path: 'body.onnxBase64', message: `output ${output.name} must be float [N, 1] or [N] (one residual per row); it is ${output.elemType} [${output.dims.join(', ')}]` });
+  }
+  if (errors.length) throw invalid(errors);
+
+  const series = await loadArchiveSeries(db, gauge.id, gauge.stepSeconds).catch((e: Error) => {
+    throw conflict(`the model cannot be checked: ${e.message}`);
+  });
+  const validation = body.validation ? { fromMs: Date.parse(body.validation.from), toMs: Date.parse(body.validation.to) } : defaultPeriods(series).validation;
+  // Past runs issued in the validation period give the per-lead archives, as for a fitted model.
+  const reforecasts = await loadReforecastSet(db, gauge.id, validation);
+  let out: {
+    scores: Record<string, unknown>;
+    correctedArchive: { bytes: Uint8Array; summary: Record<string, unknown> };
+    rawArchive: { bytes: Uint8Array; summary: Record<string, unknown> };
+    perLead: PerLeadOutput | null;
+  };
+  try {
+    out = await runCompute<typeof out>({ kind: 'evaluate-upload', series, onnx, spec, validation, archive: { transform: body.transform, templateLength: body.templateLength }, reforecasts }).result;
+  } catch (e) {
+    throw invalid([{ path: 'body.onnxBase64', message: `the model failed on archive rows: ${(e as Error).message}` }], 'the uploaded model was refused; nothing was stored');
+  }
+  const perLead = perLeadParts(out.perLead);
+  const scores = perLead.scores ? { ...out.scores, reforecasts: perLead.scores } : out.scores;
+  const id = await db.transaction(async (tx) => {
+    const versionId = await insertModelVersion(tx, {
+      gaugeId: gauge.id,
+      origin: 'uploaded',
+      label: body.label,
+      featureSpec: spec,
+      trainer: { kind: 'uploaded', description: body.description ?? null, producer: summary.producer, opsets: summary.opsets, bytes: onnx.length },
+      // Trained elsewhere: whether the validation period was seen in training is not known here.
+    periods: { validation: out.scores.period, archive: out.scores.period, archiveSource: 'unknown (trained elsewhere)' },
+      scores,
+      createdBy,
+      parts: [onnx],
+      correctedArchive: out.correctedArchive,
+      rawArchive: out.rawArchive,
+      perLeadArchives: perLead.archives,
+    });
+    if (body.activate) await activateModelVersion(tx, gauge.id, versionId);
+    return versionId;
+  });
+  return id;
+}
