@@ -1,8 +1,8 @@
 // GET /gauges/:id/verification: the warnings part, on runs stored with known issued
 // probabilities, so every number has a hand-checked answer.
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { CAUTION } from '../../src/api/caution.ts';
-import { buildForecastView } from '../../src/api/forecast-view.ts';
+import { CAUTION } from '../../src/services/caution.ts';
+import { buildForecastView } from '../../src/services/forecast-view.ts';
 import { crpsEnsemble } from '../../src/core/crps.ts';
 import { insertRun } from '../../src/store/forecasts-repo.ts';
 import { getGauge } from '../../src/store/gauges-repo.ts';

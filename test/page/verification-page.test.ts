@@ -7,7 +7,7 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { chromium, type BrowserContext, type Page } from 'playwright-core';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { CAUTION } from '../../src/api/caution.ts';
+import { CAUTION } from '../../src/services/caution.ts';
 import { createPrng } from '../../src/core/prng.ts';
 import {
   climatologicalRates,
