@@ -70,10 +70,8 @@ describe('warnings of stored runs, checked by hand', () => {
   const g = 'wren-water-at-osk';
   const t0 = Date.parse('2024-03-01T00:00:00Z');
   // Run A issued t0: leads t0+1d, t0+2d; run B issued t0+1d: leads t0+2d, t0+3d (t0+3d never observed).
-  const q = [
-    [8, 9, 10, 11],
-    [9, 10, 11, 12],
-  ];
+  // The stage's 100 quantiles per lead (stored as float32: multiples of 1/32 are exact).
+  const q = [Array.from({ length: 100 }, (_, i) => 8 + i / 32), Array.from({ length: 100 }, (_, i) => 9 + i / 32)];
   const obs: [number, number][] = [
     [t0, 9.5], // issue time of A: persistence 9.5
     [t0 + DAY, 11], // A lead 1; issue time of B: persistence 11
@@ -122,7 +120,7 @@ describe('warnings of stored runs, checked by hand', () => {
     // Fitting-period rate: no active model, so the year before the runs (always 10): 0; BS_ref = mean o² = 1/3.
     expect(lead.climatologicalRate).toBe(0);
     expect(lead.sources.stochastic.brierSkill.value).toBeCloseTo(1 - (0.16 + 0.04 + 0.01) / 3 / (1 / 3), 12);
-    // CRPS of the quantile sets (ensemble CRPS of the 4 values): A1 [8..11] vs 11, A2 [9..12] vs 10, B1 [8..11] vs 10.
+    // CRPS of the quantile sets (ensemble CRPS of the 100 values): A1 q0 vs 11, A2 q1 vs 10, B1 q0 vs 10.
     const crps = [crpsEnsemble(q[0], 11), crpsEnsemble(q[1], 10), crpsEnsemble(q[0], 10)];
     const sk = w.skill.stochastic;
     expect(sk.crps.value).toBeCloseTo((crps[0] + crps[1] + crps[2]) / 3, 12);
