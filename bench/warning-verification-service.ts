@@ -113,7 +113,7 @@ try {
     const wall = performance.now() - a;
     const cpu = process.cpuUsage(cpu0);
     console.log(
-      `verification ${r + 1}: wall ${wall.toFixed(0)} ms, CPU time of this process ${((cpu.user + cpu.system) / 1000).toFixed(0)} ms; ${v.comparison.cases.used} cases, ${v.warnings?.runs ?? 0} runs in the warnings (goal under 1000 ms); load average ${os.loadavg().map((x) => x.toFixed(1)).join(' ')}`,
+      `verification ${r + 1}: wall ${wall.toFixed(0)} ms, CPU time of this process ${((cpu.user + cpu.system) / 1000).toFixed(0)} ms; ${v.comparison.cases.used} cases, ${v.warningScores?.runs ?? 0} runs in the warnings (goal under 1000 ms); load average ${os.loadavg().map((x) => x.toFixed(1)).join(' ')}`,
     );
   }
 } finally {

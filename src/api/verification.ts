@@ -62,8 +62,8 @@ export async function verificationRoutes(app: FastifyInstance, { services }: { s
         chooseFormat(req, q.format),
         `${gauge.id}-verification`,
         { ...v, drift },
-        () => scoresCsv(v.comparison, [...header, `advice: ${v.advice.recommendation}`, v.stochasticFrom, v.caution], v.warnings ? warningRows(v.warnings) : []),
-        () => `${scoresText(header, v.comparison, v.advice, [v.stochasticFrom, ...v.notes])}\n${warningsText(v.warnings)}\n\n${v.caution}\n`,
+        () => scoresCsv(v.comparison, [...header, `advice: ${v.advice.recommendation}`, v.stochasticFrom, v.caution], v.warningScores ? warningRows(v.warningScores) : []),
+        () => `${scoresText(header, v.comparison, v.advice, [v.stochasticFrom, ...v.notes])}\n${warningsText(v.warningScores)}\n\n${v.caution}\n`,
       );
     },
   );

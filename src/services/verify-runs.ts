@@ -40,7 +40,7 @@ export interface StoredVerification {
   comparison: ComparisonReport;
   advice: StochasticAdvice;
   /** The warnings (src/services/verify-warnings.ts); null when no corrected run has been issued with the gauge's thresholds. */
-  warnings: (WarningReport & { references: { climatology: string; rates: string | null }; skipped: { degraded: number; thresholdsChanged: number } }) | null;
+  warningScores: (WarningReport & { references: { climatology: string; rates: string | null }; skipped: { degraded: number; thresholdsChanged: number } }) | null;
   caution: string;
   notes: string[];
 }
@@ -140,7 +140,7 @@ export async function verifyStoredRuns(
     thresholds: gauge.thresholds,
     comparison: report,
     advice,
-    warnings: w.report ? { ...w.report, references: w.references, skipped: w.skipped } : null,
+    warningScores: w.report ? { ...w.report, references: w.references, skipped: w.skipped } : null,
     caution: CAUTION,
     notes,
   };

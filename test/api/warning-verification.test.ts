@@ -103,7 +103,7 @@ describe('warnings of stored runs, checked by hand', () => {
     expect(res.statusCode, res.body).toBe(200);
     const v = res.json();
     expect(v.caution).toBe(CAUTION);
-    const w = v.warnings;
+    const w = v.warningScores;
     expect(w.runs).toBe(2);
     expect(w.cases).toBe(3);
     const lead = w.events.find((e: { event: string }) => e.event === 'lead-time');

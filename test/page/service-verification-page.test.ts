@@ -59,15 +59,15 @@ afterAll(async () => {
 describe.skipIf(!hasChromium)('verification on the page served by the service', () => {
   it('shows the warning scores and pictures of the stored runs', async () => {
     const v = (await t.as('read', { method: 'GET', url: `/gauges/${gaugeId}/verification` })).json();
-    expect(v.warnings.runs).toBe(RUNS);
-    expect(v.warnings.cases).toBeGreaterThan(RUNS);
+    expect(v.warningScores.runs).toBe(RUNS);
+    expect(v.warningScores.cases).toBeGreaterThan(RUNS);
     const page = await browser.newPage();
     const errors: string[] = [];
     page.on('pageerror', (e) => errors.push(e.message));
     await page.goto(`${base}/view/${gaugeId}#token=${t.tokens.read}`);
     await page.locator('#verification-load').click({ timeout: 30_000 });
     await expect.poll(() => page.locator('#reliability-svg').count(), { timeout: 60_000 }).toBe(1);
-    expect(await page.locator('#verification-summary').textContent()).toContain(`${v.warnings.runs} runs, ${v.warnings.cases} verified lead times`);
+    expect(await page.locator('#verification-summary').textContent()).toContain(`${v.warningScores.runs} runs, ${v.warningScores.cases} verified lead times`);
     expect(await page.locator('#roc-svg path.roc-line').count()).toBe(3);
     expect(await page.locator('#crps-lead-svg path.score-line').count()).toBe(3);
     expect(await page.locator('#skill-lead-svg path.score-line').count()).toBe(2);

@@ -89,7 +89,7 @@ function verificationAnswer() {
       cases.push({ lead: k, observation: flow[i + k + 1], raw: col(raw, 10), corrected: col(cor, 10), stochastic: col(sto, 200) });
     }
   }
-  return { gaugeId: GAUGE.id, caution: CAUTION, runs: { total: nIssues, verified: nIssues }, comparison: compareForecasts(cases, { thresholds: THRESHOLDS.map((t) => t.value) }), warnings: w.result() };
+  return { gaugeId: GAUGE.id, caution: CAUTION, runs: { total: nIssues, verified: nIssues }, comparison: compareForecasts(cases, { thresholds: THRESHOLDS.map((t) => t.value) }), warningScores: w.result() };
 }
 
 let server: FixtureServer;
@@ -137,7 +137,7 @@ describe.skipIf(!hasChromium)('verification on the gauge page in chromium', () =
     await page.locator('#verification-load').click();
     await expect.poll(() => page.locator('#reliability-svg').count(), { timeout: 15_000 }).toBe(1);
     expect(server.seen.some((u) => u.startsWith(`/gauges/${GAUGE.id}/verification`))).toBe(true);
-    const w = answer.warnings as WarningReport;
+    const w = answer.warningScores as WarningReport;
 
     // Summary and caution as given.
     const summary = await page.locator('#verification-summary').textContent();

@@ -20,7 +20,7 @@ import { perLeadChart, pitChart, reliabilityChart, rocChart, SOURCE_STYLES } fro
  * @property {string} caution
  * @property {{ total: number, verified: number }} runs
  * @property {any} comparison
- * @property {{ settings: { level: number, replicates: number, blockLength: number, attentionLevel: number }, runs: number, cases: number, anyTimeRuns: number, events: EventJson[], skill: Partial<Record<SourceName, SourceSkill>> } | null} warnings
+ * @property {{ settings: { level: number, replicates: number, blockLength: number, attentionLevel: number }, runs: number, cases: number, anyTimeRuns: number, events: EventJson[], skill: Partial<Record<SourceName, SourceSkill>> } | null} warningScores
  */
 
 /** @type {Map<string, Verification>} */
@@ -92,7 +92,7 @@ async function load(gaugeId, body, button) {
  * @param {HTMLElement} body
  */
 function render(v, body) {
-  const w = v.warnings;
+  const w = v.warningScores;
   if (!w || w.cases === 0) {
     body.replaceChildren(h('p', { class: 'note', id: 'verification-empty' }, 'No stored run has observations to verify against yet.'));
     return;
@@ -194,7 +194,7 @@ function eventFigures(ev) {
 
 /** @param {Verification} v */
 function skillFigures(v) {
-  const w = /** @type {NonNullable<Verification['warnings']>} */ (v.warnings);
+  const w = /** @type {NonNullable<Verification['warningScores']>} */ (v.warningScores);
   const crpsSeries = SOURCES.filter((src) => w.skill[src]).map((src) => ({
     key: src,
     colour: SOURCE_STYLES[src].colour,
