@@ -144,7 +144,12 @@ function warningTable(ev, level) {
   return h(
     'table',
     { class: 'numbers', id: 'warning-table' },
-    h('caption', {}, `Attention flag (chance ≥ ${fmtProb(level)}) and probability scores; climatological chance in the fitting period ${fmtProb(ev.climatologicalRate)}.`),
+    h(
+      'caption',
+      {},
+      `Attention flag (chance ≥ ${fmtProb(level)}) and probability scores; climatological chance in the fitting period ${fmtProb(ev.climatologicalRate)}.`,
+      Object.values(ev.sources).some((e) => e && e.events === 0) ? ' No observed event in these cases: hit rate, ROC area and skill cannot be judged yet.' : '',
+    ),
     h(
       'thead',
       {},
