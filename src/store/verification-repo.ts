@@ -59,11 +59,13 @@ export async function readRunsForVerification(db: Queryable, p: RunPage): Promis
     thresholds: unknown;
     percentiles: Uint8Array;
   }>(
-    `select id, (extract(epoch from issue_time) * 1000)::float8 as t, source, status, model_version_id::text as model_version_id,
-            (output::jsonb)->'validTimes' as valid_times, (output::jsonb)->'ensemble' as ensemble,
-            (output::jsonb)->'thresholds' as thresholds, percentiles
-       from forecast_runs where gauge_id = $1${where}
-      order by issue_time, id limit $${params.length}`,
+    // The output text is parsed once per row (the limited subquery is not flattened into the outer one).
+    `select id, t, source, status, model_version_id, o->'validTimes' as valid_times, o->'ensemble' as ensemble, o->'thresholds' as thresholds, percentiles
+       from (select id, issue_time, (extract(epoch from issue_time) * 1000)::float8 as t, source, status,
+                    model_version_id::text as model_version_id, output::jsonb as o, percentiles
+               from forecast_runs where gauge_id = $1${where}
+              order by issue_time, id limit $${params.length}) r
+      order by issue_time, id`,
     params,
   );
   return rows.map((r) => {
