@@ -75,6 +75,7 @@ try {
   const inside95 = new Float64Array(H);
   const crps = new Float64Array(H);
   const cases = new Float64Array(H);
+  const below = Array.from({ length: H }, () => ({ stage: 0, members: 0, shift: 0 }));
   const anyTime = thresholds.map(() => ({ p: [] as number[], o: [] as number[] }));
   let runs = 0;
   for (let i = heldOutFrom; i < n - H - 1; i += every) {
@@ -90,7 +91,7 @@ try {
       source: 'bench',
     });
     if (res.status !== 201) throw new Error(`run ${run.issueTime}: ${JSON.stringify(res.body)}`);
-    const f = res.body as { quantiles: { values: number[][] }; thresholds: { anyTime: number }[] };
+    const f = res.body as { quantiles: { values: number[][] }; thresholds: { anyTime: number }[]; ensemble: { corrected: { values: number[] }[] | null } };
     runs++;
     const obs = Array.from({ length: H }, (_, h) => scenario.observedFlow[i + 1 + h]);
     for (let h = 0; h < H; h++) {
@@ -108,6 +109,14 @@ try {
         u = LEVELS[l] + w * (LEVELS[l + 1] - LEVELS[l]);
       }
       pit[h].push(u);
+      // Where the centre sits: the stage's median (mean of the 0.475 and 0.525 levels) and the
+      // corrected members' median, each against the observation.
+      const stageMedian = (q[9] + q[10]) / 2;
+      const cm = (f.ensemble.corrected ?? []).map((m) => m.values[h]).sort((a, b) => a - b);
+      const memberMedian = cm.length ? (cm[(cm.length - 1) >> 1] + cm[cm.length >> 1]) / 2 : NaN;
+      below[h].stage += y < stageMedian ? 1 : 0;
+      below[h].members += y < memberMedian ? 1 : 0;
+      below[h].shift += Math.log((stageMedian + 0.1) / (memberMedian + 0.1));
       if (y >= q[0] && y <= q[q.length - 1]) inside95[h]++;
       // CRPS ≈ (2/K)·Σ quantile scores at the K midpoint levels.
       let s = 0;
@@ -129,13 +138,20 @@ try {
   const version = (await send('GET', `/gauges/${gaugeId}/models/${job.result.versionId}`)).body as { archives: Record<string, unknown>[] };
   for (const a of version.archives) console.log(`archive ${a.kind}/${a.leadMode}: ${JSON.stringify({ cases: a.cases, templates: a.templates, neighbours: a.neighbours, leadScale: a.leadScale })}`);
   console.log('');
-  console.log('| lead | cases | alpha (goal ≥ 0.95) | 95 % coverage (goal 0.94–0.96) | CRPS (m3/s) |');
-  console.log('|---|---|---|---|---|');
+  console.log('| lead | cases | alpha (goal ≥ 0.95) | 95 % coverage (goal 0.94–0.96) | CRPS (m3/s) | mean PIT | PIT histogram (10 bins, %) |');
+  console.log('|---|---|---|---|---|---|---|');
   for (let h = 0; h < H; h++) {
     const a = alphaIndex(pit[h]);
     const c = inside95[h] / cases[h];
-    console.log(`| ${h + 1} | ${cases[h]} | ${a.toFixed(3)} ${ok(a >= 0.95)} | ${c.toFixed(3)} ${ok(c >= 0.94 && c <= 0.96)} | ${(crps[h] / cases[h]).toFixed(3)} |`);
+    const bins = new Array(10).fill(0);
+    for (const u of pit[h]) bins[Math.min(9, Math.floor(u * 10))]++;
+    const meanPit = pit[h].reduce((x, y) => x + y, 0) / pit[h].length;
+    console.log(`| ${h + 1} | ${cases[h]} | ${a.toFixed(3)} ${ok(a >= 0.95)} | ${c.toFixed(3)} ${ok(c >= 0.94 && c <= 0.96)} | ${(crps[h] / cases[h]).toFixed(3)} | ${meanPit.toFixed(3)} | ${bins.map((b) => Math.round((100 * b) / pit[h].length)).join(' ')} |`);
   }
+  console.log('');
+  console.log('| lead | observed below the stage median | observed below the corrected members\' median | mean log(stage median / members\' median) |');
+  console.log('|---|---|---|---|');
+  for (let h = 0; h < H; h++) console.log(`| ${h + 1} | ${(below[h].stage / cases[h]).toFixed(3)} | ${(below[h].members / cases[h]).toFixed(3)} | ${(below[h].shift / cases[h]).toFixed(4)} |`);
   const meanCrps = crps.reduce((a, b) => a + b, 0) / cases.reduce((a, b) => a + b, 0);
   console.log(`mean CRPS over leads: ${meanCrps.toFixed(4)} m3/s`);
   console.log('');

@@ -1,7 +1,7 @@
 import type { FastifyInstance } from 'fastify';
 import { z } from 'zod';
 import { formatDurationSeconds, parseDurationSeconds } from '../core/iso-duration.ts';
-import { listMembers, readReforecasts, upsertReforecast } from '../store/archive-repo.ts';
+import { forcingUnits, listMembers, readReforecasts, upsertReforecast, upsertReforecastForcing } from '../store/archive-repo.ts';
 import { GaugeParams, readWindow, requireGauge, sendCsv, wantsCsv } from './archive-common.ts';
 import { addIngestRoute } from './archive-ingest.ts';
 import { addRoute, type Services } from './context.ts';
@@ -17,6 +17,8 @@ const ReforecastsBody = z.strictObject({
       z.strictObject({
         issueTime: z.string(),
         members: z.array(z.strictObject({ id: MemberId, values: z.array(z.unknown()).min(1) })).min(1),
+        /** Forecast forcings the run was driven by, one value per lead time (optional, JSON only). */
+        forcings: z.record(z.string().regex(/^[a-z][a-z0-9_]{0,47}$/), z.array(z.unknown())).optional(),
       }),
     )
     .min(1),
@@ -26,6 +28,7 @@ interface Run {
   issueTime: unknown;
   issueWhere: string;
   members: { id: string; idWhere: string; values: unknown[]; valueWhere: (lead: number) => string }[];
+  forcings: { name: string; values: unknown[]; where: string }[];
 }
 
 function fromJson(b: z.output<typeof ReforecastsBody>, errors: ErrorList): Run[] {
@@ -36,10 +39,14 @@ function fromJson(b: z.output<typeof ReforecastsBody>, errors: ErrorList): Run[]
       if (m.values.length !== n) errors.add(`body.runs[${r}].members[${k}].values`, `has ${m.values.length} lead times but members[0] has ${n}`);
       if (run.members.findIndex((o) => o.id === m.id) !== k) errors.add(`body.runs[${r}].members[${k}].id`, `member ${m.id} appears twice`);
     });
+    for (const [name, values] of Object.entries(run.forcings ?? {})) {
+      if (values.length !== n) errors.add(`body.runs[${r}].forcings.${name}`, `has ${values.length} values; the run has ${n} lead times`);
+    }
     return {
       issueTime: run.issueTime,
       issueWhere: `body.runs[${r}].issueTime`,
       members: run.members.map((m, k) => ({ id: m.id, idWhere: `body.runs[${r}].members[${k}].id`, values: m.values, valueWhere: (l: number) => `body.runs[${r}].members[${k}].values[${l}]` })),
+      forcings: Object.entries(run.forcings ?? {}).map(([name, values]) => ({ name, values, where: `body.runs[${r}].forcings.${name}` })),
     };
   });
   errors.throwIfAny();
@@ -68,7 +75,7 @@ function fromCsv(text: string, stepSeconds: number, errors: ErrorList): Run[] {
     }
     const lead = leadSeconds / stepSeconds;
     let run = runs.get(issue);
-    if (!run) runs.set(issue, (run = { issueTime: issue, issueWhere: `line ${row.line}, column issue_time`, members: [] }));
+    if (!run) runs.set(issue, (run = { issueTime: issue, issueWhere: `line ${row.line}, column issue_time`, members: [], forcings: [] }));
     const key = `${issue}\u0000${member}`;
     let seen = leadsSeen.get(key);
     if (!seen) {
@@ -100,11 +107,18 @@ export async function reforecastRoutes(app: FastifyInstance, { services }: { ser
 
   addIngestRoute(app, services, {
     resource: 'reforecasts',
-    summary: 'Add past forecast runs (upsert by issue time, member and lead time); members must be known from simulations',
+    summary: 'Add past forecast runs (upsert by issue time, member and lead time), optionally with the forecast forcings they were driven by; members must be known from simulations',
     body: ReforecastsBody,
     decode: (input, gauge, errors) => ('json' in input ? fromJson(input.json, errors) : fromCsv(input.csv, gauge.stepSeconds, errors)),
     check: async (tx, gauge, runs, errors) => {
       const known = new Set(await listMembers(tx, gauge.id));
+      const variables = await forcingUnits(tx, gauge.id);
+      const forcings = runs.map((run) =>
+        run.forcings.map((f) => {
+          if (!variables.has(f.name)) errors.add(f.where, `unknown forcing ${f.name}; forcings are declared by posting their archive first`);
+          return { name: f.name, values: checkValues(f.values, { nonNegative: f.name === 'precipitation', quantity: f.name }, (l) => `${f.where}[${l}]`, errors) };
+        }),
+      );
       const issueMs = checkTimes(runs.map((r) => r.issueTime), gauge.stepSeconds, (i) => runs[i].issueWhere, errors);
       const members = runs.map((run) =>
         run.members.map((m) => {
@@ -112,15 +126,19 @@ export async function reforecastRoutes(app: FastifyInstance, { services }: { ser
           return { id: m.id, values: checkValues(m.values, { nonNegative: true, quantity: 'flow' }, m.valueWhere, errors) };
         }),
       );
-      return { issueMs, members };
+      return { issueMs, members, forcings };
     },
-    store: async (tx, gauge, { issueMs, members }) => {
+    store: async (tx, gauge, { issueMs, members, forcings }) => {
       let written = 0;
       let received = 0;
       for (let r = 0; r < issueMs.length; r++) {
         for (const m of members[r]) {
           received += m.values.length;
           written += await upsertReforecast(tx, gauge.id, issueMs[r], m.id, m.values);
+        }
+        for (const f of forcings[r]) {
+          received += f.values.length;
+          written += await upsertReforecastForcing(tx, gauge.id, issueMs[r], f.name, f.values);
         }
       }
       return { received, written };

@@ -29,4 +29,6 @@ export interface ReforecastSet {
   memberIds: string[];
   /** [(issue·memberIds.length + member)·nLeads + lead]; lead 0 is one step after issue time; NaN = missing. */
   values: Float64Array;
+  /** Forecast forcings the runs were driven by, per variable: [issue·nLeads + lead]; NaN = not stored. */
+  forcings?: Record<string, Float64Array>;
 }

@@ -43,7 +43,11 @@ export interface ReforecastEvaluation {
 
 /** Said wherever reforecast-based results are shown: the archive stores no forecast forcings. */
 export const PAST_FORCINGS_NOTE =
-  "The reforecasts' feature rows use the archived (observed) forcings at the lead times, not the forecast forcings available when each run was issued (those are not stored); warm-up values come from the members' continuous simulations before issue time.";
+  "Some past runs have no stored forecast forcings (post them with the runs): their feature rows use the archived (observed) forcings at the lead times, which the runs did not have when issued, so those errors lack the forecast-forcing part; warm-up values come from the members' continuous simulations before issue time.";
+
+/** Said when every past run came with the forecast forcings it was driven by. */
+export const FORECAST_FORCINGS_NOTE =
+  "The past runs' feature rows use the forecast forcings each run was driven by at its lead times; warm-up values come from the members' continuous simulations and the archived forcings before issue time.";
 
 /**
  * The horizon of the per-lead archive: the longest lead that at least half of the past runs reach
@@ -187,8 +191,10 @@ function unusable(a: ErrorArchive, issues: number): string | null {
  * and compared with the observations at the valid times. Each issue is
  * one row of the issue × lead matrix: its case at a lead is the ensemble mean's error, shrunk so
  * the members' own spread is not counted twice (ensemble-dressing.ts); each (nearly) complete row
- * is a Schaake template. The raw members dressed the same way make the degraded-mode archive. Forcings at the lead times are the archived
- * (observed) ones: see PAST_FORCINGS_NOTE.
+ * is a Schaake template. The raw members dressed the same way make the degraded-mode archive.
+ * Forcings at the lead times are the forecast forcings the run was driven by when they were
+ * posted with it, else the archived
+ * (observed) ones, and the scores' note says which (PAST_FORCINGS_NOTE).
  */
 export async function evaluateReforecasts(
   series: ArchiveSeries,
@@ -213,6 +219,7 @@ export async function evaluateReforecasts(
     }
     return out;
   };
+  let observedForcingsUsed = false;
   // Issues in batches, so the feature rows stay a few MB whatever the archive's size.
   const perBatch = Math.max(1, Math.floor(50_000 / (nK * L.H)));
   for (let u0 = 0; u0 < L.issue.length; u0 += perBatch) {
@@ -220,7 +227,19 @@ export async function evaluateReforecasts(
     for (let u = u0; u < Math.min(L.issue.length, u0 + perBatch); u++) {
       const i = L.at[u];
       const forcings: Record<string, Float64Array> = {};
-      for (const f of spec.forcings) if (series.forcings[f.name]) forcings[f.name] = window(series.forcings[f.name], i, W + L.H);
+      for (const f of spec.forcings) {
+        if (!series.forcings[f.name]) continue;
+        forcings[f.name] = window(series.forcings[f.name], i, W + L.H);
+        // At the lead times, the forcing the run was driven by when stored (never one observed later).
+        const forecast = set.forcings?.[f.name];
+        if (forecast) {
+          for (let h = 0; h < L.H; h++) {
+            const v = forecast[L.issue[u] * set.nLeads + h];
+            if (Number.isFinite(v)) forcings[f.name][W + h] = v;
+            else observedForcingsUsed = true;
+          }
+        } else observedForcingsUsed = true;
+      }
       batch.push({
         issueTime: set.issueTimes[L.issue[u]],
         nLeads: L.H,
@@ -251,7 +270,7 @@ export async function evaluateReforecasts(
   // Raw errors on the same cases as the corrected ones, as in the lead-free archives.
   const rawMasked = raw.map((v, i) => (Number.isFinite(corrected[i]) ? v : NaN));
   const issues = issuesWithCases(corrected, observed, L);
-  const scores = scoreReforecasts(rawMasked, corrected, observed, L, issues);
+  const scores = scoreReforecasts(rawMasked, corrected, observed, L, issues, observedForcingsUsed ? PAST_FORCINGS_NOTE : FORECAST_FORCINGS_NOTE);
   if (scores.cases === 0) return { archives: null, reason: 'no past run has a corrected value with an observation', scores: null };
   const cor = dressedArchive(corrected, observed, dayOfYear, L, options.transform);
   const reason = unusable(cor.archive, issues);
@@ -287,7 +306,7 @@ export function rawArchiveFromReforecasts(
 
 const rmse = (sumSq: number, n: number): number | null => (n ? Math.sqrt(sumSq / n) : null);
 
-function scoreReforecasts(raw: Float64Array, corrected: Float64Array, observed: Float64Array, L: Layout, issues: number): ReforecastScores {
+function scoreReforecasts(raw: Float64Array, corrected: Float64Array, observed: Float64Array, L: Layout, issues: number, note: string): ReforecastScores {
   const H = L.H;
   const before = new Float64Array(H);
   const after = new Float64Array(H);
@@ -309,5 +328,5 @@ function scoreReforecasts(raw: Float64Array, corrected: Float64Array, observed: 
     n += count[h];
     return { lead: h + 1, cases: count[h], rmseBefore: rmse(before[h], count[h]), rmseAfter: rmse(after[h], count[h]) };
   });
-  return { issues, members: L.setMember.length, cases: n, residualRmse: { before: rmse(b, n), after: rmse(a, n) }, byLead, note: PAST_FORCINGS_NOTE };
+  return { issues, members: L.setMember.length, cases: n, residualRmse: { before: rmse(b, n), after: rmse(a, n) }, byLead, note };
 }

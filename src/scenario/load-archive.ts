@@ -63,7 +63,12 @@ export async function loadScenarioArchive(
     for (let i = 0; i < runs.length; i += 20) {
       await expectOk(send, 'POST', `/gauges/${g.id}/reforecasts`, {
         unit: 'm3/s',
-        runs: runs.slice(i, i + 20).map((r) => ({ issueTime: r.issueTime, members: r.members.map((m) => ({ id: m.id, values: m.values.slice(m.warmupSteps) })) })),
+        runs: runs.slice(i, i + 20).map((r) => ({
+          issueTime: r.issueTime,
+          members: r.members.map((m) => ({ id: m.id, values: m.values.slice(m.warmupSteps) })),
+          // The forecast forcings each run was driven by at its lead times.
+          forcings: { precipitation: r.forcings.precipitation.slice(r.warmupSteps), air_temperature: r.forcings.air_temperature.slice(r.warmupSteps) },
+        })),
       });
     }
     step('reforecasts');

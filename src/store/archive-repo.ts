@@ -99,6 +99,17 @@ export async function upsertReforecast(tx: Queryable, gaugeId: string, issueMs: 
   ]);
 }
 
+/** The forecast forcing one past run was driven by: values[0] is lead 1. */
+export async function upsertReforecastForcing(tx: Queryable, gaugeId: string, issueMs: number, variable: string, values: Float64Array): Promise<number> {
+  return upsertRows(tx, 'reforecast_forcings', ['gauge_id', 'issue_time', 'variable', 'lead'], ['value'], values.length, [
+    { column: 'gauge_id', value: gaugeId },
+    { column: 'issue_time', timestamp: true, value: issueMs / 1000 },
+    { column: 'variable', value: variable },
+    { column: 'lead', type: 'int', rows: (from, to) => Array.from({ length: to - from }, (_, i) => from + i + 1) },
+    { column: 'value', type: 'float8', rows: (from, to) => nullable(values, from, to) },
+  ]);
+}
+
 export async function ensureMembers(tx: Queryable, gaugeId: string, ids: string[]): Promise<void> {
   await tx.query('insert into members (gauge_id, id) select $1, unnest($2::text[]) on conflict do nothing', [gaugeId, ids]);
 }
@@ -181,6 +192,17 @@ export async function readReforecasts(db: Queryable, gaugeId: string, w: Window)
   const { rows } = await db.query<{ t: number; member_id: string; lead: number; value: number | null }>(
     `select ${epochMs('issue_time')} as t, member_id, lead, value from reforecasts where gauge_id = $1${where}
      order by issue_time, member_id, lead`,
+    params,
+  );
+  return rows;
+}
+
+export async function readReforecastForcings(db: Queryable, gaugeId: string, w: Window) {
+  const params: unknown[] = [gaugeId];
+  const where = windowSql('issue_time', w, params);
+  const { rows } = await db.query<{ t: number; variable: string; lead: number; value: number | null }>(
+    `select ${epochMs('issue_time')} as t, variable, lead, value from reforecast_forcings where gauge_id = $1${where}
+     order by issue_time, variable, lead`,
     params,
   );
   return rows;

@@ -1,5 +1,5 @@
 import type { ArchiveSeries, ReforecastSet } from '../core/archive-types.ts';
-import { forcingUnits, readForcings, readObservations, readReforecasts, readSimulations, type Window } from './archive-repo.ts';
+import { forcingUnits, readForcings, readObservations, readReforecastForcings, readReforecasts, readSimulations, type Window } from './archive-repo.ts';
 import type { Queryable } from './db.ts';
 
 /**
@@ -64,5 +64,12 @@ export async function loadReforecastSet(db: Queryable, gaugeId: string, window: 
   for (const r of rows) {
     if (r.value !== null) values[(issues.get(r.t)! * nM + memberIndex.get(r.member_id)!) * nLeads + r.lead - 1] = r.value;
   }
-  return { issueTimes: Float64Array.from(issues.keys()), nLeads, memberIds, values };
+  const forcings: Record<string, Float64Array> = {};
+  for (const r of await readReforecastForcings(db, gaugeId, window)) {
+    const u = issues.get(r.t);
+    if (u === undefined || r.lead > nLeads || r.value === null) continue;
+    const f = (forcings[r.variable] ??= new Float64Array(issues.size * nLeads).fill(NaN));
+    f[u * nLeads + r.lead - 1] = r.value;
+  }
+  return { issueTimes: Float64Array.from(issues.keys()), nLeads, memberIds, values, ...(Object.keys(forcings).length ? { forcings } : {}) };
 }

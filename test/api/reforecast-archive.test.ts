@@ -156,7 +156,9 @@ describe('per-lead error archives after fitting', () => {
   it("the corrected per-lead archive holds what the service serves for the same past run (one feature builder)", async () => {
     const past = inArchive[inArchive.length - 3];
     const i = past.issueTimeIndex;
-    const res = await post(runBody(i, (m, k) => past.members[m].values[past.warmupSteps + k], LEADS, { source: 'past-run' }));
+    // The run as it was issued: its own forecast forcings, which the archive's rows also used.
+    const forcings = { precipitation: past.forcings.precipitation, air_temperature: past.forcings.air_temperature };
+    const res = await post(runBody(i, (m, k) => past.members[m].values[past.warmupSteps + k], LEADS, { source: 'past-run', forcings }));
     expect(res.statusCode, res.body).toBe(201);
     const served = res.json();
     expect(served.status).toBe('corrected');
@@ -183,7 +185,7 @@ describe('per-lead error archives after fitting', () => {
     expect(r.byLead).toHaveLength(LEADS);
     // The residual scores count every member at every observed lead; the archive one case per issue.
     expect(r.cases).toBe(expected(inArchive).cases * scenario.memberIds.length);
-    expect(r.note).toMatch(/observed\) forcings at the lead times/);
+    expect(r.note).toMatch(/forecast forcings each run was driven by/);
     // The past runs also give the lead-free archive its growth of errors with lead (factors ≥ 1).
     const growth = version.scores.leadGrowth as number[];
     expect(growth).toHaveLength(LEADS);
@@ -229,6 +231,29 @@ describe('serving chooses the archive by the run\'s lead count', () => {
     } finally {
       await t.db.query('update model_versions set active = true where id = $1', [versionId]);
     }
+  });
+});
+
+describe('forecast forcings of past runs', () => {
+  it('refuses an unknown forcing or one of the wrong length, naming it, and stores nothing', async () => {
+    const run = scenario.reforecasts()[0];
+    const members = run.members.map((m) => ({ id: m.id, values: m.values.slice(m.warmupSteps) }));
+    const count = async () => Number((await t.db.query<{ n: number }>('select count(*)::int as n from reforecast_forcings')).rows[0].n);
+    const before = await count();
+    const post = (forcings: Record<string, number[]>) =>
+      t.as('ingest', { method: 'POST', url: `/gauges/${gaugeId}/reforecasts`, payload: { unit: 'm3/s', runs: [{ issueTime: run.issueTime, members, forcings }] } });
+    for (const [forcings, path, message] of [
+      [{ snow_depth: new Array(LEADS).fill(1) }, 'body.runs[0].forcings.snow_depth', /unknown forcing/],
+      [{ precipitation: [1, 2] }, 'body.runs[0].forcings.precipitation', /has 2 values; the run has 10 lead times/],
+      [{ precipitation: new Array(LEADS).fill(-1) }, 'body.runs[0].forcings.precipitation[0]', /cannot be negative/],
+    ] as const) {
+      const res = await post(forcings as Record<string, number[]>);
+      expect(res.statusCode).toBe(422);
+      expect(res.headers['content-type']).toContain('application/problem+json');
+      expect(res.json().errors[0].path).toBe(path);
+      expect(res.json().errors[0].message).toMatch(message);
+    }
+    expect(await count()).toBe(before);
   });
 });
 
