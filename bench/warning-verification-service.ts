@@ -17,6 +17,7 @@ import { verifyStoredRuns } from '../src/services/verify-runs.ts';
 import { upsertObservations } from '../src/store/archive-repo.ts';
 import { insertRun } from '../src/store/forecasts-repo.ts';
 import { insertGauge } from '../src/store/gauges-repo.ts';
+import { readRunsForVerification } from '../src/store/verification-repo.ts';
 import { migrate, readMigrations } from '../src/store/migrate.ts';
 import { openPostgres } from '../src/store/postgres-driver.ts';
 
@@ -106,6 +107,21 @@ try {
   }
   console.log(`node ${process.version}, ${os.cpus()[0]?.model ?? 'cpu'} (${os.cpus().length} cores shared with other work)`);
   console.log(`${nRuns} stored runs × ${H} lead times (${M} raw + ${M} corrected members, ${K} quantiles, ${THRESHOLDS.length} thresholds), stored in ${((performance.now() - t1) / 1000).toFixed(1)} s`);
+  // The reads alone: every page of runs as verifyStoredRuns reads them (no scoring).
+  {
+    const cpu0 = process.cpuUsage();
+    const a = performance.now();
+    let after: { issueMs: number; id: string } | undefined;
+    let count = 0;
+    for (;;) {
+      const page = await readRunsForVerification(db, { gaugeId: gauge.id, after, limit: 500 });
+      count += page.length;
+      if (page.length < 500) break;
+      after = { issueMs: page[page.length - 1].issueMs, id: page[page.length - 1].id };
+    }
+    const cpu = process.cpuUsage(cpu0);
+    console.log(`reading the ${count} runs alone: wall ${(performance.now() - a).toFixed(0)} ms, CPU time of this process ${((cpu.user + cpu.system) / 1000).toFixed(0)} ms`);
+  }
   for (let r = 0; r < 3; r++) {
     const cpu0 = process.cpuUsage();
     const a = performance.now();
