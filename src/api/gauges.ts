@@ -16,9 +16,11 @@ const GaugeFields = {
   flowUnit: FlowUnit,
   location: Location.nullable().optional(),
   thresholds: Thresholds,
+  /** Issue-time updating uses the latest observation at most this many steps before a run's issue time. */
+  updatingMaxAgeSteps: z.number().int().min(0).max(1000),
 };
 
-const GaugeCreate = z.strictObject({ id: GaugeId, ...GaugeFields, thresholds: Thresholds.default([]), timeZone: TimeZone.default('UTC') });
+const GaugeCreate = z.strictObject({ id: GaugeId, ...GaugeFields, thresholds: Thresholds.default([]), timeZone: TimeZone.default('UTC'), updatingMaxAgeSteps: GaugeFields.updatingMaxAgeSteps.default(2) });
 const GaugePatch = z.strictObject(GaugeFields).partial();
 const Params = z.object({ id: GaugeId });
 const DeleteQuery = z.strictObject({ force: z.enum(['true', 'false']).optional() });

@@ -44,11 +44,39 @@ export const FitBody = z.strictObject({
   maxTrainRows: z.number().int().min(100).max(2_000_000).default(200_000),
   activate: z.boolean().default(true),
   label: z.string().min(1).max(100).optional(),
+  /**
+   * Issue-time updating on the latest observation. auto: kept at the lead times where the held-out
+   * block shows a gain beyond twice its standard error; on: at every lead time; off: none.
+   * leads: horizon of the updater (default: templateLength, at most ten days of steps);
+   * leadBands: bands of the per-band tree candidate (default 1–2, 3–5, 6–10, 11–20, …);
+   * history: earlier errors given to the tree candidates; trees: fit and score the tree candidates.
+   */
+  updating: z
+    .strictObject({
+      mode: z.enum(['auto', 'on', 'off']).default('auto'),
+      leads: z.number().int().min(1).max(2000).optional(),
+      leadBands: z
+        .array(z.tuple([z.number().int().min(1), z.number().int().min(1)]).refine(([a, b]) => a <= b, 'a band is [first, last] lead with first ≤ last'))
+        .min(1)
+        .max(50)
+        .optional(),
+      history: z.number().int().min(0).max(24).default(2),
+      trees: z.boolean().default(true),
+    })
+    .default({ mode: 'auto', history: 2, trees: true })
+    .describe(
+      'Issue-time updating on the latest observation. mode auto (default): kept at the lead times where the held-out block shows a gain beyond twice its standard error (and, where it holds at least 50 past runs, no loss beyond twice its standard error on them); on: every lead time; off: none. leads: horizon of the updater in steps (default: templateLength, at most ten days of steps: 10 for a daily gauge, 240 for an hourly one). leadBands: [first, last] lead bands of the per-band tree candidate. history: earlier errors given to the tree candidates. trees: also fit and score the tree candidates (measured, not served).',
+    ),
 }).superRefine((body, ctx) => {
   const allowed = body.trainer === 'gradient-boosting' ? boostingParams : forestParams;
   for (const name of Object.keys(body.params ?? {})) {
     if (!allowed.includes(name)) ctx.addIssue({ code: 'custom', path: ['params', name], message: `not a ${body.trainer} parameter; known: ${allowed.join(', ')}` });
   }
+  const u = body.updating;
+  const leads = u.leads ?? null;
+  u.leadBands?.forEach(([, last], i) => {
+    if (leads !== null && last > leads) ctx.addIssue({ code: 'custom', path: ['updating', 'leadBands', i], message: `ends at lead ${last}, past updating.leads (${leads})` });
+  });
 }).transform((body) => ({
   ...body,
   params: body.params ?? (body.trainer === 'gradient-boosting' ? { nRounds: 400, learningRate: 0.08, maxDepth: 5, patience: 30 } : { nTrees: 200, maxDepth: 10 }),

@@ -15,7 +15,10 @@ export const RunBody = z.strictObject({
   members: z.array(z.strictObject({ id: MemberId, values: z.array(z.unknown()).min(1).max(5000) })).min(1).max(1000),
   /** Forecast forcings laid out like the members' values (warm-up then lead times). */
   forcings: z.record(z.string().regex(/^[a-z][a-z0-9_]{0,47}$/), z.array(z.unknown())).optional(),
-  /** Observed flow at issue time, for models that use the last known error. */
+  /**
+   * Observed flow at issue time: the run is updated on it (it wins over the stored observations)
+   * and it is stored with the run; also read by models that use the last known error.
+   */
   issueObservation: z.number().finite().nonnegative().nullable().optional(),
   quantiles: z
     .array(z.number().gt(0).lt(1))

@@ -1,6 +1,7 @@
 /** What the choice between a version's error archives looks at. */
 export interface ArchiveOption {
-  leadMode: 'lead-free' | 'per-lead';
+  /** 'updating': per-lead errors of the members after the residual model and the issue-time updater. */
+  leadMode: 'lead-free' | 'per-lead' | 'updating';
   summary: Record<string, unknown>;
 }
 
@@ -16,7 +17,7 @@ export const MIN_PER_LEAD_RUNS = 300;
 /** Lead times an archive can serve: a per-lead archive its lead count, a lead-free one its template length. */
 export function archiveReach(a: ArchiveOption | null): number {
   if (!a) return 0;
-  return Number((a.leadMode === 'per-lead' ? a.summary.nLeads : a.summary.templateLength) ?? 0) || 0;
+  return Number((a.leadMode === 'lead-free' ? a.summary.templateLength : a.summary.nLeads) ?? 0) || 0;
 }
 
 /** The archive for a run of nLeads lead times: per-lead when it reaches and is large enough, else lead-free. */

@@ -5,6 +5,8 @@ import type { ErrorArchive } from '../core/error-archive.ts';
 import { servingRows, type FeatureSpec, type RunInput } from '../core/features.ts';
 import { runStochasticStage, type StochasticResult, type StochasticWorkspace } from '../core/stochastic-stage.ts';
 import { predictResiduals } from './onnx-session.ts';
+import { applyUpdating, type UpdatingModel } from '../core/updating.ts';
+import { observationTimeRows } from '../core/updating-rows.ts';
 
 export interface CorrectionOptions {
   stepSeconds: number;
@@ -13,12 +15,19 @@ export interface CorrectionOptions {
   probs: number[];
   thresholds: number[];
   seasonalWindowDays: number | null;
+  /** Issue-time updating on an observation ageSteps before issue; absent = not updated. */
+  updating?: { model: UpdatingModel; observation: number; ageSteps: number } | null;
 }
 
 export interface CorrectionOutput {
   /** Corrected members (mean over a bundle's models), [member·nLeads + lead]; null when degraded. */
   corrected: Float64Array | null;
   stage: StochasticResult;
+  /**
+   * With updating: each (model, member)'s issue-time error ε0 = T(observed) − T(corrected) in the
+   * updater's transform, [model·nMembers + member] (for a stage that conditions on it); else null.
+   */
+  issueError: Float64Array | null;
   timings: { featuresMs: number; inferenceMs: number; stochasticMs: number };
 }
 
@@ -53,6 +62,7 @@ export async function correctRun(
   let inferenceMs = 0;
   let stageInput = raw;
   let corrected: Float64Array | null = null;
+  let issueError: Float64Array | null = null;
   if (sessions.length) {
     const rows = servingRows(spec!, run);
     featuresMs = performance.now() - t;
@@ -68,6 +78,20 @@ export async function correctRun(
         corrected[i] += v / sessions.length;
       }
     }
+    if (options.updating) {
+      // Each (model, member)'s corrected value at the observation's time gives its issue-time error.
+      const u = options.updating;
+      const at = observationTimeRows(spec!, run, u.ageSteps);
+      corrected.fill(0);
+      issueError = new Float64Array(sessions.length * nM);
+      for (let s = 0; s < sessions.length; s++) {
+        const residual = await predictResiduals(sessions[s], at.rows, at.nRows, at.nFeatures);
+        const atObs = Float64Array.from({ length: nM }, (_, m) => correctedMember(at.simAt[m], residual[m]));
+        const block = stageInput.subarray(s * nM * H, (s + 1) * nM * H);
+        issueError.set(applyUpdating(u.model, block, atObs, u.observation, u.ageSteps, H), s * nM);
+        for (let i = 0; i < nM * H; i++) corrected[i] += block[i] / sessions.length;
+      }
+    }
     inferenceMs = performance.now() - t;
   }
   t = performance.now();
@@ -75,9 +99,10 @@ export async function correctRun(
   const doy = Int32Array.from({ length: H }, (_, k) => dayOfYearUtc(run.issueTime + (k + 1) * stepMs));
   const stage = runStochasticStage(
     archive,
-    { members: stageInput, nModels: sessions.length || 1, nMembers: nM, nLeads: H, dayOfYear: doy },
+    // With updating, each member draws from the archive's stratum of its own issue-time error.
+    { members: stageInput, nModels: sessions.length || 1, nMembers: nM, nLeads: H, dayOfYear: doy, ...(issueError ? { issueError } : {}) },
     { seed: options.seed, nDraws: options.nDraws, probs: options.probs, thresholds: options.thresholds, seasonalWindowDays: options.seasonalWindowDays },
     workspace,
   );
-  return { corrected, stage, timings: { featuresMs, inferenceMs, stochasticMs: performance.now() - t } };
+  return { corrected, stage, issueError, timings: { featuresMs, inferenceMs, stochasticMs: performance.now() - t } };
 }

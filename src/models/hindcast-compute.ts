@@ -26,6 +26,8 @@ import {
 } from '../core/verification/index.ts';
 import { createResidualSession, predictResiduals } from './onnx-session.ts';
 import type { ArchiveSeries } from '../core/archive-types.ts';
+import { applyUpdating, checkUpdatingModel } from '../core/updating.ts';
+import { updatingPassScores, type UpdatingByLead, type UpdatingPassCollector } from '../core/updating-verification.ts';
 
 export interface HindcastSettings {
   mode: 'simulation' | 'reforecast';
@@ -73,6 +75,12 @@ export interface HindcastTaskInput {
   /** The version's corrected-member error archive (archive-codec bytes). */
   archive: Uint8Array;
   settings: HindcastSettings;
+  /**
+   * The version's issue-time updater and its per-lead archive of updated-member errors: the
+   * hindcast then also runs with updating (on the observation at each issue time) and reports
+   * raw, corrected, updated and both stochastic stages per lead.
+   */
+  updating?: { model: unknown; archive: Uint8Array } | null;
 }
 
 export interface HindcastOutput {
@@ -97,6 +105,8 @@ export interface HindcastOutput {
   /** The warnings, with where their references came from. */
   warnings: (WarningReport & { references: { climatology: string; rates: string | null } }) | null;
   driftReference: DriftReference | null;
+  /** Per lead: without and with issue-time updating (absent without an updater). */
+  updating?: UpdatingByLead | null;
   timings: { correctionMs: number; stageMs: number; verificationMs: number; reportMs: number; totalMs: number };
 }
 
@@ -277,6 +287,27 @@ export async function computeHindcast(input: HindcastTaskInput, progress: Progre
     progress({ stage: 'stochastic stage and verification', percent: 35 });
     let verificationMs = 0;
     let lastIssue = -1;
+    // With an issue-time updater the comparison follows serving: each issue is updated on the
+    // observation at its issue time and the stage draws from the updated members' archive. A
+    // second pass without updating gives the per-lead comparison of the two.
+    const upd = input.updating ? { model: checkUpdatingModel(input.updating.model), archive: archiveFromBytes(input.updating.archive) } : null;
+    const atIssue = upd ? await correctPerValidTime(spec, series, sessions, issues.map((i) => i - 1), 1, () => {}, check) : null;
+    const atObs = new Float64Array(K * M);
+    let notUpdated = 0;
+    let lastIssueError: Float64Array | undefined;
+    const correctUpdated = (r: Float64Array, s: number, out: Float64Array) => {
+      correct(r, s, out);
+      const i = issues[s];
+      const y = series.observed[i];
+      let ok = Number.isFinite(y);
+      for (let km = 0; km < K * M && ok; km++) {
+        atObs[km] = atIssue![km * n + i];
+        if (!Number.isFinite(atObs[km])) ok = false;
+      }
+      lastIssueError = ok ? applyUpdating(upd!.model, out, atObs, y, 0, H) : undefined;
+      if (!ok) notUpdated++;
+    };
+    const withUpdating: UpdatingPassCollector | null = upd ? updatingPassScores(I, H) : null;
     const tStage = performance.now();
     const summary = runHindcast(
       {
@@ -287,8 +318,9 @@ export async function computeHindcast(input: HindcastTaskInput, progress: Progre
         raw,
         observed,
         dayOfYear,
-        correct,
-        archive,
+        correct: upd ? correctUpdated : correct,
+        ...(upd ? { issueError: () => lastIssueError } : {}),
+        archive: upd ? upd.archive : archive,
         stochastic: { seed: settings.seed, nDraws: settings.nDraws, seasonalWindowDays: settings.seasonalWindowDays },
       },
       (c, issue) => {
@@ -296,17 +328,43 @@ export async function computeHindcast(input: HindcastTaskInput, progress: Progre
           lastIssue = issue;
           if ((issue & 63) === 0) {
             check();
-            progress({ stage: 'stochastic stage and verification', percent: 35 + (60 * issue) / I });
+            progress({ stage: 'stochastic stage and verification', percent: 35 + ((upd ? 40 : 60) * issue) / I });
           }
         }
         const a = performance.now();
         comparison.add(c);
         collector?.add(c, issue);
+        withUpdating?.add(c, issue);
         verificationMs += performance.now() - a;
       },
       createStochasticWorkspace(),
     );
     const stageMs = performance.now() - tStage - verificationMs;
+    let updating: UpdatingByLead | null = null;
+    if (upd && withUpdating) {
+      progress({ stage: 'the same issues without issue-time updating', percent: 75 });
+      const withoutUpdating = updatingPassScores(I, H);
+      runHindcast(
+        {
+          nIssues: I,
+          nMembers: M,
+          nLeads: H,
+          nModels: K,
+          raw,
+          observed,
+          dayOfYear,
+          correct,
+          archive,
+          stochastic: { seed: settings.seed, nDraws: settings.nDraws, seasonalWindowDays: settings.seasonalWindowDays },
+        },
+        (c, issue) => {
+          if ((issue & 63) === 0) check();
+          withoutUpdating.add(c, issue);
+        },
+        createStochasticWorkspace(),
+      );
+      updating = withoutUpdating.compare(withUpdating, { method: upd.model.method, issuesWithoutObservation: notUpdated });
+    }
     check();
     progress({ stage: 'scores and advice', percent: 96 });
     const tReport = performance.now();
@@ -338,6 +396,7 @@ export async function computeHindcast(input: HindcastTaskInput, progress: Progre
       advice,
       warnings: warningReport,
       driftReference,
+      updating,
       timings: { correctionMs, stageMs, verificationMs, reportMs, totalMs: performance.now() - t0 },
     };
   } finally {

@@ -39,6 +39,21 @@ export interface ReforecastEvaluation {
   archives: { corrected: ErrorArchive; raw: ErrorArchive; correctedSummary: PerLeadSummary; rawSummary: PerLeadSummary } | null;
   reason: string | null;
   scores: ReforecastScores | null;
+  /**
+   * The past runs' raw and corrected members as evaluated (issue-time updating trains on them):
+   * rows = used issue × kept member, [(u·members.length + j)·nLeads + lead]. Absent when none.
+   */
+  values?: PastRunValues;
+}
+
+export interface PastRunValues {
+  nLeads: number;
+  /** Index into series.times of each used issue. */
+  issueIndex: number[];
+  /** Index into series.members of each kept member. */
+  members: number[];
+  raw: Float64Array;
+  corrected: Float64Array;
 }
 
 /** Said wherever reforecast-based results are shown: the archive stores no forecast forcings. */
@@ -272,9 +287,10 @@ export async function evaluateReforecasts(
   const issues = issuesWithCases(corrected, observed, L);
   const scores = scoreReforecasts(rawMasked, corrected, observed, L, issues, observedForcingsUsed ? PAST_FORCINGS_NOTE : FORECAST_FORCINGS_NOTE);
   if (scores.cases === 0) return { archives: null, reason: 'no past run has a corrected value with an observation', scores: null };
+  const values: PastRunValues = { nLeads: L.H, issueIndex: L.at, members: L.seriesMember, raw: rawMasked, corrected };
   const cor = dressedArchive(corrected, observed, dayOfYear, L, options.transform);
   const reason = unusable(cor.archive, issues);
-  if (reason) return { archives: null, reason, scores };
+  if (reason) return { archives: null, reason, scores, values };
   const rawArchive = dressedArchive(rawMasked, observed, dayOfYear, L, options.transform);
   const given = set.issueTimes.length;
   return {
@@ -286,6 +302,7 @@ export async function evaluateReforecasts(
     },
     reason: null,
     scores,
+    values,
   };
 }
 

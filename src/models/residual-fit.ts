@@ -10,6 +10,7 @@ import { evaluateReforecasts, type ReforecastEvaluation } from './reforecast-eva
 import { evaluateResidualModel, type Evaluation } from './residual-evaluation.ts';
 import { predictTrees, trainGradientBoosting, trainRandomForest, type TreeModel } from './trees/index.ts';
 import { tune, type SearchParam } from './tuning/index.ts';
+import { fitUpdating, type UpdatingFit, type UpdatingOptions } from './updating-fit.ts';
 
 export interface FitOptions {
   calibration: Period;
@@ -32,6 +33,8 @@ export interface FitOptions {
   maxTrainRows: number;
   /** Past runs issued in the archive block; when given, per-lead error archives are built from them too. */
   reforecasts?: ReforecastSet | null;
+  /** Issue-time updating (src/models/updating-fit.ts); null or mode 'off' = none. */
+  updating?: UpdatingOptions | null;
 }
 
 export interface FitProgress {
@@ -54,6 +57,10 @@ export interface FitResult {
   evaluation: Evaluation;
   /** Per-lead archives of the past runs (null when no reforecasts were given). */
   perLead: ReforecastEvaluation | null;
+  /** The issue-time updater, its candidates' scores and archive; null when not asked for. */
+  updating: UpdatingFit | null;
+  /** Why updating was asked for but not fitted (auto only; `on` fails the fit instead). */
+  updatingError: string | null;
   rows: { calibration: number; validation: number };
   onnxCheck: { rows: number; mismatches: number };
   /** The blocks the validation period was split into. */
@@ -200,9 +207,30 @@ export async function fitResidualModel(
       }
     }
   }
+  let updating: UpdatingFit | null = null;
+  let updatingError: string | null = null;
+  // The forecast-forcing error variance per lead the past runs show (τ² of leadGrowthScale), for the
+  // updated archive: its pseudo-forecast errors lack it as the lead-free archive's do.
+  let forcingErrorVariance: Float64Array | null = null;
+  if (perLead?.archives) {
+    const v = evaluation.scores.errorVariances;
+    if (Number.isFinite(v.meanErrorVariance)) forcingErrorVariance = Float64Array.from(perLead.archives.correctedSummary.dressing.byLead, (l) => Math.max(0, l.errorVariance - v.meanErrorVariance));
+  }
+  if (options.updating && options.updating.mode !== 'off') {
+    onProgress({ stage: 'fitting issue-time updating on pseudo-forecasts', percent: 96 });
+    try {
+      updating = await fitUpdating(series, spec, options.validation, predictors, evaluation.correctedArchive.transform, options.updating, shouldStop, perLead?.values ?? null, blocks.archive, forcingErrorVariance);
+      // The stage's kernel and k as chosen on the lead-free archive's held-out errors.
+      if (updating.archive && evaluation.correctedArchive.neighbours) updating.archive.archive.neighbours = evaluation.correctedArchive.neighbours;
+    } catch (err) {
+      if (options.updating.mode === 'on') throw err;
+      updatingError = (err as Error).message;
+    }
+  }
+  if (shouldStop()) throw new CancelledError();
   await Promise.all(sessions.map((s) => s.release()));
   onProgress({ stage: 'done', percent: 100 });
-  return { spec, parts, trials, evaluation, perLead, rows: { calibration: cal.nRows, validation: val.nRows }, onnxCheck: { rows: val.nRows * parts.length, mismatches }, blocks };
+  return { spec, parts, trials, evaluation, perLead, updating, updatingError, rows: { calibration: cal.nRows, validation: val.nRows }, onnxCheck: { rows: val.nRows * parts.length, mismatches }, blocks };
 }
 
 interface Rows {

@@ -15,6 +15,7 @@ import type { Gauge } from '../store/gauges-repo.ts';
 import { archiveBytes, getActiveModelVersion, latestRawArchiveInfo, modelParts, versionArchiveInfo, type ArchiveInfo } from '../store/models-repo.ts';
 import { CorrectionError, PoolFullError, type ArchiveSource, type CorrectionPool, type CorrectionResult, type ModelSource } from '../workers/correction-pool.ts';
 import { buildForecastView } from './forecast-view.ts';
+import { decideUpdating, type UpdatingDecision } from './issue-updating.ts';
 import { conflict, ErrorList, invalid, Problem } from './problem.ts';
 import { checkFlowUnit, checkTimes, isoUtc } from './series-input.ts';
 
@@ -98,6 +99,13 @@ function checkRun(body: RunRequest, gauge: Gauge, known: Set<string>, horizonLim
   return { issueTime: issueMs, nLeads, members, forcings, issueObservation: body.issueObservation ?? null };
 }
 
+/** What the answer says about updating: what was used, or why not (degraded runs are never updated). */
+function updatingAnswer(status: 'corrected' | 'degraded', u: UpdatingDecision | null, degradedReason: string | null) {
+  if (!u) return undefined;
+  if (status === 'degraded') return { status: 'off' as const, reason: `not updated: ${degradedReason}`, observation: null, method: null };
+  return u.answer;
+}
+
 /** The stored answer of an earlier identical request, or a conflict when the request differs. */
 function replay(stored: StoredRun, requestHash: string, what: string): StoredRun {
   if (stored.requestHash !== requestHash) {
@@ -162,6 +170,8 @@ export class RunCorrection {
     const horizonLimit = Math.min(...reaches);
     const known = new Set(memberIds);
     const run = checkRun(body, gauge, known, horizonLimit, config.MAX_TRAJECTORIES);
+    // Issue-time updating: the latest observation at or before issue time (the run's own wins).
+    const updating: UpdatingDecision | null = active && correctedArchive ? await decideUpdating(db, gauge, active, run, body.warmupSteps, body.issueObservation) : null;
 
     const probs = body.quantiles ?? [...DEFAULT_QUANTILE_PROBS];
     const seed = body.seed ?? defaultSeed(gauge.id, isoUtc(run.issueTime), body.source);
@@ -190,8 +200,8 @@ export class RunCorrection {
     try {
       if (active && correctedArchive) {
         try {
-          used = correctedArchive;
-          result = await pool.correct(modelSource(active.id, active.featureSpec), archiveSource(correctedArchive), run, options);
+          used = updating?.archive ?? correctedArchive;
+          result = await pool.correct(modelSource(active.id, active.featureSpec), archiveSource(used), run, { ...options, updating: updating?.correct ?? null });
         } catch (err) {
           if (err instanceof CorrectionError && err.path) {
             throw invalid([{ path: `body.${err.path}`, message: `${err.message} (needed by model version ${active.id}'s feature spec)` }]);
@@ -245,6 +255,7 @@ export class RunCorrection {
       status,
       degradedReason,
       modelVersion: status === 'corrected' && active ? { id: active.id, label: active.label } : null,
+      updating: updatingAnswer(status, updating, degradedReason),
       errorArchive: { id: used!.id, kind: used!.kind, leadMode: used!.leadMode, leadTimes: archiveReach(used!), cases: Number(used!.summary.cases ?? 0), templates: Number(used!.summary.templates ?? 0) },
       seed,
       nDraws: result.nDraws,
@@ -283,6 +294,12 @@ export class RunCorrection {
           etag,
           summary,
           percentiles,
+          issueObservation:
+            updating?.stored && (status === 'corrected' || updating.stored.source === 'run')
+              ? updating.stored
+              : body.issueObservation != null
+                ? { timeMs: run.issueTime, value: body.issueObservation, source: 'run' }
+                : null,
         }),
       );
     } catch (err) {

@@ -7,6 +7,7 @@ import type { ArchiveSeries, Period } from '../core/archive-types.ts';
 import type { ErrorTransform } from '../core/error-transform.ts';
 import { rawArchiveFromReforecasts, type ReforecastScores } from '../models/reforecast-evaluation.ts';
 import { defaultBoostingSpace, defaultForestSpace, splitValidation, type FitOptions } from '../models/residual-fit.ts';
+import { defaultUpdatingLeads } from '../models/updating-fit.ts';
 import { loadArchiveSeries, loadReforecastSet } from '../store/archive-series.ts';
 import type { Db } from '../store/db.ts';
 import { getGauge } from '../store/gauges-repo.ts';
@@ -39,6 +40,16 @@ export const FitJobParams = z.object({
   maxTrainRows: z.number().int(),
   activate: z.boolean(),
   label: z.string().optional(),
+  /** Issue-time updating; absent on jobs queued before it existed (= off). */
+  updating: z
+    .object({
+      mode: z.enum(['auto', 'on', 'off']),
+      leads: z.number().int().optional(),
+      leadBands: z.array(z.tuple([z.number().int(), z.number().int()])).optional(),
+      history: z.number().int(),
+      trees: z.boolean(),
+    })
+    .optional(),
 });
 export type FitJobParams = z.output<typeof FitJobParams>;
 
@@ -73,6 +84,7 @@ interface FitOutput {
   correctedArchive: { bytes: Uint8Array; summary: Record<string, unknown> };
   rawArchive: { bytes: Uint8Array; summary: Record<string, unknown> };
   perLead: PerLeadOutput | null;
+  updating: { model: unknown; archive: (StoredForm & { issueError: Uint8Array }) | null; scores: Record<string, unknown> } | null;
 }
 
 type StoredForm = { bytes: Uint8Array; summary: Record<string, unknown> };
@@ -127,6 +139,18 @@ export async function fitModel(db: Db, job: { gaugeId: string; createdBy: string
     templateLength: p.templateLength,
     maxTrainRows: p.maxTrainRows,
     reforecasts,
+    updating: p.updating && p.updating.mode !== 'off'
+      ? {
+          mode: p.updating.mode,
+          leads: p.updating.leads ?? defaultUpdatingLeads(series.stepSeconds, p.templateLength),
+          leadBands: p.updating.leadBands ?? null,
+          history: p.updating.history,
+          trees: p.updating.trees,
+          seed: p.seed,
+          // The tree candidates are measured, not served: a smaller sample keeps the fit's time in bounds.
+          maxTrainRows: Math.min(p.maxTrainRows, 50_000),
+        }
+      : null,
   };
   const handle = runCompute<FitOutput>({ kind: 'fit', series, options }, (pr) => {
     void progress(pr.stage, pr.percent * 0.97);
@@ -134,7 +158,10 @@ export async function fitModel(db: Db, job: { gaugeId: string; createdBy: string
   signal.addEventListener('abort', () => handle.cancel());
   const out = await handle.result;
   const perLead = perLeadParts(out.perLead);
-  const scores = perLead.scores ? { ...out.scores, reforecasts: perLead.scores } : out.scores;
+  const withPerLead = perLead.scores ? { ...out.scores, reforecasts: perLead.scores } : out.scores;
+  const updatingMode = p.updating?.mode ?? 'off';
+  const scores = { ...withPerLead, updating: out.updating?.scores ?? { status: 'off', reason: updatingMode === 'off' ? 'updating: off was asked for' : 'not fitted' } };
+  const updating = out.updating?.model && out.updating.archive ? { model: out.updating.model, archive: out.updating.archive } : null;
   await progress('storing the model version', 98);
   const versionId = await db.transaction(async (tx) => {
     const id = await insertModelVersion(tx, {
@@ -157,6 +184,7 @@ export async function fitModel(db: Db, job: { gaugeId: string; createdBy: string
       correctedArchive: out.correctedArchive,
       rawArchive: out.rawArchive,
       perLeadArchives: perLead.archives,
+      updating,
     });
     if (p.activate) await activateModelVersion(tx, gauge.id, id);
     return id;

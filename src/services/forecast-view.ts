@@ -23,6 +23,11 @@ export interface ForecastView {
    * Absent on runs stored before it was recorded.
    */
   errorArchive?: ErrorArchiveUsed;
+  /**
+   * Issue-time updating: the observation the corrected members were updated on, or why they were
+   * not. Absent on runs stored before updating existed and for versions without an updater.
+   */
+  updating?: UpdatingUsed;
   seed: number;
   trajectories: number;
   attentionLevel: number;
@@ -51,10 +56,19 @@ export interface ForecastView {
   timings: { featuresMs: number; inferenceMs: number; stochasticMs: number; totalMs: number };
 }
 
+export interface UpdatingUsed {
+  status: 'on' | 'off';
+  /** Why updating is off (null when on). */
+  reason: string | null;
+  /** The observation used: from the run's body ('run') or the gauge's archive ('archive'). */
+  observation: { time: string; value: number; source: 'run' | 'archive'; ageSteps: number } | null;
+  method: 'ar1' | 'phi-per-lead' | null;
+}
+
 export interface ErrorArchiveUsed {
   id: string;
   kind: 'corrected' | 'raw';
-  leadMode: 'lead-free' | 'per-lead';
+  leadMode: 'lead-free' | 'per-lead' | 'updating';
   leadTimes: number;
   cases: number;
   templates: number;
@@ -75,6 +89,7 @@ export interface ViewInput {
   degradedReason: string | null;
   modelVersion: { id: string; label: string } | null;
   errorArchive?: ErrorArchiveUsed;
+  updating?: UpdatingUsed;
   seed: number;
   nDraws: number;
   attentionLevel: number;
@@ -111,6 +126,7 @@ export function buildForecastView(v: ViewInput): ForecastView {
     degradedReason: v.degradedReason,
     modelVersion: v.modelVersion,
     errorArchive: v.errorArchive,
+    ...(v.updating ? { updating: v.updating } : {}),
     seed: v.seed,
     trajectories: v.nDraws,
     attentionLevel: v.attentionLevel,
@@ -171,9 +187,12 @@ export function forecastText(f: ForecastView): string {
   const widths = header.map((h, i) => Math.max(h.length, ...rows.map((r) => r[i].length)));
   const line = (cells: string[]) => cells.map((c, i) => (i < 2 ? c.padEnd(widths[i]) : c.padStart(widths[i]))).join('  ').trimEnd();
   const status = f.status === 'degraded' ? `DEGRADED: ${f.degradedReason}` : `corrected with model version ${f.modelVersion?.id} (${f.modelVersion?.label})`;
+  const u = f.updating;
+  const updating = !u ? [] : u.status === 'on' && u.observation ? [`updated on the observation of ${u.observation.time} (${u.observation.value} m3/s, from the ${u.observation.source})`] : [`updating off: ${u.reason}`];
   return [
     `${f.gaugeName} (${f.gaugeId}) — issued ${f.issueTime} — flows in m3/s`,
     `${status}; ${f.trajectories} trajectories, seed ${f.seed}`,
+    ...updating,
     `CAUTION: ${f.caution}`,
     '',
     line(header),

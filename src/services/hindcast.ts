@@ -13,7 +13,7 @@ import type { Db } from '../store/db.ts';
 import { saveDriftReference } from '../store/gauge-status-repo.ts';
 import { getGauge, type Gauge } from '../store/gauges-repo.ts';
 import { enqueueJob, type Job } from '../store/jobs-repo.ts';
-import { getActiveModelVersion, getModelVersion, modelParts } from '../store/models-repo.ts';
+import { getActiveModelVersion, getModelVersion, modelParts, versionArchive } from '../store/models-repo.ts';
 import { correctedArchiveFor, reforecastIssueTimes } from '../store/verification-repo.ts';
 import { runCompute } from '../workers/run-compute.ts';
 import { CAUTION } from './caution.ts';
@@ -209,7 +209,10 @@ export async function runHindcast(db: Db, job: { id: string; gaugeId: string }, 
     },
   };
   await progress('starting the compute worker', 3);
-  const handle = runCompute<HindcastOutput>({ kind: 'hindcast', input: { series, issueIndex, reforecast, model: { spec: version.featureSpec, parts: await modelParts(db, version.id) }, archive: archive.bytes, settings } }, (pr) => {
+  // A version with an issue-time updater is also hindcast with updating, when its archive reaches H.
+  const updArchive = version.updating ? await versionArchive(db, version.id, 'corrected', 'updating') : null;
+  const updating = version.updating && updArchive && Number(updArchive.summary.nLeads ?? 0) >= H ? { model: version.updating, archive: updArchive.bytes } : null;
+  const handle = runCompute<HindcastOutput>({ kind: 'hindcast', input: { series, issueIndex, reforecast, model: { spec: version.featureSpec, parts: await modelParts(db, version.id) }, archive: archive.bytes, settings, updating } }, (pr) => {
     void progress(pr.stage, 3 + pr.percent * 0.95);
   });
   if (signal.aborted) handle.cancel();
@@ -283,7 +286,9 @@ export async function runHindcast(db: Db, job: { id: string; gaugeId: string }, 
     unit: 'm3/s',
     thresholds: gauge.thresholds,
     correction: out.correction,
-    errorArchive: { id: archive.id, leadMode: archive.leadMode, leadTimes: archive.reach, cases: Number(archive.summary.cases ?? 0) },
+    errorArchive: updating && updArchive
+      ? { id: updArchive.id, leadMode: updArchive.leadMode, leadTimes: Number(updArchive.summary.nLeads ?? 0), cases: Number(updArchive.summary.cases ?? 0) }
+      : { id: archive.id, leadMode: archive.leadMode, leadTimes: archive.reach, cases: Number(archive.summary.cases ?? 0) },
     overlap: { issues: usedTimes.length, calibration: inCalibration, validation: inValidation },
     warnings,
     cases: { verified: out.cases, unobserved: out.unobserved },
@@ -292,6 +297,9 @@ export async function runHindcast(db: Db, job: { id: string; gaugeId: string }, 
     advice: out.advice,
     warningScores: out.warnings,
     caution: CAUTION,
+    updating: out.updating
+      ? { ...out.updating, note: `${out.updating.note} Updated on the observation at each issue time.` }
+      : { status: 'not run', reason: version.updating ? `the updated members' error archive does not reach ${H} lead times` : `model version ${version.id} has no issue-time updater` },
     driftReference,
     timings: Object.fromEntries(Object.entries(out.timings).map(([k, v]) => [k, Math.round(v)])),
   };

@@ -58,6 +58,8 @@ export interface NewRun {
   summary: unknown;
   /** Per lead time, the 100 midpoint-level quantiles. */
   percentiles: number[][];
+  /** The observation the run was updated on (or the run's own issue-time observation). */
+  issueObservation?: { timeMs: number; value: number; source: 'run' | 'archive' } | null;
 }
 
 export const PERCENTILE_LEVELS = 100;
@@ -81,10 +83,11 @@ export function decodePercentiles(bytes: Uint8Array): number[][] {
 export async function insertRun(tx: Queryable, r: NewRun): Promise<void> {
   await tx.query(
     `insert into forecast_runs (id, gauge_id, issue_time, source, request_hash, idempotency_key, status, model_version_id, seed,
-                                input, output, etag, summary, percentiles)
-     values ($1, $2, to_timestamp($3), $4, $5, $6, $7, $8, $9, $10, $11, $12, $13::jsonb, $14)`,
+                                input, output, etag, summary, percentiles, issue_observation_time, issue_observation_value, issue_observation_source)
+     values ($1, $2, to_timestamp($3), $4, $5, $6, $7, $8, $9, $10, $11, $12, $13::jsonb, $14, to_timestamp($15), $16, $17)`,
     [r.id, r.gaugeId, r.issueTimeMs / 1000, r.source, r.requestHash, r.idempotencyKey, r.status, r.modelVersionId, r.seed,
-      JSON.stringify(r.input), r.output, r.etag, JSON.stringify(r.summary), Buffer.from(encodePercentiles(r.percentiles))],
+      JSON.stringify(r.input), r.output, r.etag, JSON.stringify(r.summary), Buffer.from(encodePercentiles(r.percentiles)),
+      r.issueObservation ? r.issueObservation.timeMs / 1000 : null, r.issueObservation?.value ?? null, r.issueObservation?.source ?? null],
   );
   await tx.query(`select pg_notify('forecast_runs', $1)`, [
     JSON.stringify({ gaugeId: r.gaugeId, runId: r.id, issueTime: new Date(r.issueTimeMs).toISOString().replace('.000Z', 'Z') }),

@@ -11,6 +11,8 @@ export interface Gauge {
   flowUnit: string;
   location: { latitude: number; longitude: number; elevationM?: number } | null;
   thresholds: { label: string; value: number }[];
+  /** Issue-time updating uses the latest observation at most this many steps before issue time. */
+  updatingMaxAgeSteps: number;
   createdAt: string;
   updatedAt: string;
 }
@@ -27,6 +29,7 @@ interface GaugeRow {
   longitude: number | null;
   elevation_m: number | null;
   thresholds: { label: string; value: number }[] | string;
+  updating_max_age_steps: number;
   created_at: Date;
   updated_at: Date;
 }
@@ -45,18 +48,19 @@ function fromRow(r: GaugeRow): Gauge {
         ? null
         : { latitude: r.latitude, longitude: r.longitude, ...(r.elevation_m === null ? {} : { elevationM: r.elevation_m }) },
     thresholds: Thresholds.parse(r.thresholds),
+    updatingMaxAgeSteps: r.updating_max_age_steps ?? 2,
     createdAt: r.created_at.toISOString(),
     updatedAt: r.updated_at.toISOString(),
   };
 }
 
-export type GaugeInput = Omit<Gauge, 'createdAt' | 'updatedAt'>;
+export type GaugeInput = Omit<Gauge, 'createdAt' | 'updatedAt' | 'updatingMaxAgeSteps'> & { updatingMaxAgeSteps?: number };
 
 export async function insertGauge(db: Queryable, g: GaugeInput): Promise<Gauge> {
   const { rows } = await db.query<GaugeRow>(
     `insert into gauges (id, name, catchment_area_km2, time_step, step_seconds, time_zone, flow_unit,
-                         latitude, longitude, elevation_m, thresholds)
-     values ($1,$2,$3,$4,$5,$6,$7,$8,$9,$10,$11::jsonb) returning *`,
+                         latitude, longitude, elevation_m, thresholds, updating_max_age_steps)
+     values ($1,$2,$3,$4,$5,$6,$7,$8,$9,$10,$11::jsonb,$12) returning *`,
     params(g),
   );
   return fromRow(rows[0]);
@@ -65,7 +69,7 @@ export async function insertGauge(db: Queryable, g: GaugeInput): Promise<Gauge> 
 export async function updateGauge(db: Queryable, g: GaugeInput): Promise<Gauge> {
   const { rows } = await db.query<GaugeRow>(
     `update gauges set name=$2, catchment_area_km2=$3, time_step=$4, step_seconds=$5, time_zone=$6, flow_unit=$7,
-            latitude=$8, longitude=$9, elevation_m=$10, thresholds=$11::jsonb, updated_at=now()
+            latitude=$8, longitude=$9, elevation_m=$10, thresholds=$11::jsonb, updating_max_age_steps=$12, updated_at=now()
      where id=$1 returning *`,
     params(g),
   );
@@ -85,6 +89,7 @@ function params(g: GaugeInput): unknown[] {
     g.location?.longitude ?? null,
     g.location?.elevationM ?? null,
     JSON.stringify(g.thresholds),
+    g.updatingMaxAgeSteps ?? 2,
   ];
 }
 

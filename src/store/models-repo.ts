@@ -16,6 +16,8 @@ export interface ModelVersion {
   active: boolean;
   activatedAt: string | null;
   parts: number;
+  /** The issue-time updater (src/core/updating.ts), or null when the version does not update. */
+  updating: unknown;
 }
 
 interface Row {
@@ -32,6 +34,7 @@ interface Row {
   active: boolean;
   activated_at: Date | null;
   parts: number;
+  updating?: unknown;
 }
 
 const fromRow = (r: Row): ModelVersion => ({
@@ -48,6 +51,7 @@ const fromRow = (r: Row): ModelVersion => ({
   active: r.active,
   activatedAt: r.activated_at?.toISOString() ?? null,
   parts: Number(r.parts),
+  updating: r.updating ?? null,
 });
 
 const SELECT = `select v.*, (select count(*)::int from model_parts p where p.version_id = v.id) as parts from model_versions v`;
@@ -66,16 +70,18 @@ export interface NewModelVersion {
   rawArchive: { bytes: Uint8Array; summary: Record<string, unknown> } | null;
   /** Per-lead archives built from past runs (reforecasts), when there were enough. */
   perLeadArchives?: { corrected: { bytes: Uint8Array; summary: Record<string, unknown> }; raw: { bytes: Uint8Array; summary: Record<string, unknown> } | null } | null;
+  /** The issue-time updater and its per-lead archive of updated-member errors. */
+  updating?: { model: unknown; archive: { bytes: Uint8Array; summary: Record<string, unknown>; issueError?: Uint8Array | null } } | null;
 }
 
-export type LeadMode = 'lead-free' | 'per-lead';
+export type LeadMode = 'lead-free' | 'per-lead' | 'updating';
 
 /** Stores a version with its ONNX parts and error archives; call inside a transaction. */
 export async function insertModelVersion(tx: Queryable, v: NewModelVersion): Promise<string> {
   const { rows } = await tx.query<{ id: string }>(
-    `insert into model_versions (gauge_id, origin, label, feature_spec, trainer, periods, scores, created_by)
-     values ($1, $2, $3, $4::jsonb, $5::jsonb, $6::jsonb, $7::jsonb, $8) returning id::text as id`,
-    [v.gaugeId, v.origin, v.label, JSON.stringify(v.featureSpec), JSON.stringify(v.trainer), JSON.stringify(v.periods), JSON.stringify(v.scores), v.createdBy],
+    `insert into model_versions (gauge_id, origin, label, feature_spec, trainer, periods, scores, created_by, updating)
+     values ($1, $2, $3, $4::jsonb, $5::jsonb, $6::jsonb, $7::jsonb, $8, $9::jsonb) returning id::text as id`,
+    [v.gaugeId, v.origin, v.label, JSON.stringify(v.featureSpec), JSON.stringify(v.trainer), JSON.stringify(v.periods), JSON.stringify(v.scores), v.createdBy, v.updating ? JSON.stringify(v.updating.model) : null],
   );
   const id = rows[0].id;
   for (let i = 0; i < v.parts.length; i++) {
@@ -87,6 +93,7 @@ export async function insertModelVersion(tx: Queryable, v: NewModelVersion): Pro
     await insertArchive(tx, v.gaugeId, id, 'corrected', v.perLeadArchives.corrected, 'per-lead');
     if (v.perLeadArchives.raw) await insertArchive(tx, v.gaugeId, id, 'raw', v.perLeadArchives.raw, 'per-lead');
   }
+  if (v.updating) await insertArchive(tx, v.gaugeId, id, 'corrected', v.updating.archive, 'updating');
   return id;
 }
 
@@ -95,13 +102,25 @@ export async function insertArchive(
   gaugeId: string,
   versionId: string | null,
   kind: 'corrected' | 'raw',
-  a: { bytes: Uint8Array; summary: Record<string, unknown> },
+  a: { bytes: Uint8Array; summary: Record<string, unknown>; issueError?: Uint8Array | null },
   leadMode: LeadMode = 'lead-free',
 ): Promise<void> {
   await tx.query(
-    `insert into error_archives (gauge_id, version_id, kind, lead_mode, cases, summary, bytes) values ($1, $2, $3, $4, $5, $6::jsonb, $7)`,
-    [gaugeId, versionId, kind, leadMode, Number(a.summary.cases ?? 0), JSON.stringify(a.summary), Buffer.from(a.bytes)],
+    `insert into error_archives (gauge_id, version_id, kind, lead_mode, cases, summary, bytes, issue_error) values ($1, $2, $3, $4, $5, $6::jsonb, $7, $8)`,
+    [gaugeId, versionId, kind, leadMode, Number(a.summary.cases ?? 0), JSON.stringify(a.summary), Buffer.from(a.bytes), a.issueError ? Buffer.from(a.issueError) : null],
   );
+}
+
+/**
+ * The issue-time error of each case of an 'updating' archive, aligned with its cases; null for
+ * archives that do not keep it.
+ */
+export async function archiveIssueError(db: Queryable, id: string): Promise<Float64Array | null> {
+  const { rows } = await db.query<{ issue_error: Uint8Array | null }>('select issue_error from error_archives where id = $1', [id]);
+  const b = rows[0]?.issue_error;
+  if (!b) return null;
+  const copy = new Uint8Array(b);
+  return new Float64Array(copy.buffer, copy.byteOffset, copy.byteLength / 8);
 }
 
 export async function listModelVersions(db: Queryable, gaugeId: string): Promise<ModelVersion[]> {

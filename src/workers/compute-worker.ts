@@ -10,6 +10,7 @@ import { evaluateReforecasts, type ReforecastEvaluation } from '../models/refore
 import { archiveSummary, evaluateResidualModel, rawArchiveFromSeries } from '../models/residual-evaluation.ts';
 import { fitResidualModel } from '../models/residual-fit.ts';
 import type { ComputeMessage, ComputeStart } from './protocol.ts';
+import type { UpdatingFit } from '../models/updating-fit.ts';
 
 const { task, cancelFlag } = workerData as ComputeStart;
 const shouldStop = () => Atomics.load(cancelFlag, 0) === 1;
@@ -28,6 +29,21 @@ function perLeadResult(e: ReforecastEvaluation | null) {
   };
 }
 
+/**
+ * The updater as stored: the model, its scores (what GET of the version shows), its archive's
+ * bytes and the archive cases' issue-time errors (UpdatingFit.archive.issueError).
+ */
+function updatingResult(u: UpdatingFit | null, error: string | null) {
+  if (!u) return error ? { model: null, archive: null, scores: { status: 'off', reason: error } } : null;
+  const { archive, model, ...scores } = u;
+  return {
+    model,
+    // issueError: float64 bytes aligned with the archive's cases (stored beside it for the stage).
+    archive: archive ? { bytes: archiveToBytes(archive.archive), summary: archive.summary, issueError: new Uint8Array(archive.issueError.buffer, archive.issueError.byteOffset, archive.issueError.byteLength) } : null,
+    scores: { status: model ? 'on' : 'off', ...scores, method: model?.method ?? null, phi: model?.phi ?? null, ar1: model?.ar1 ?? null },
+  };
+}
+
 async function run(): Promise<unknown> {
   switch (task.kind) {
     case 'fit': {
@@ -42,6 +58,7 @@ async function run(): Promise<unknown> {
         correctedArchive: { bytes: archiveToBytes(r.evaluation.correctedArchive), summary: archiveSummary(r.evaluation.correctedArchive) },
         rawArchive: { bytes: archiveToBytes(r.evaluation.rawArchive), summary: archiveSummary(r.evaluation.rawArchive) },
         perLead: perLeadResult(r.perLead),
+        updating: updatingResult(r.updating, r.updatingError),
       };
     }
     case 'evaluate-upload': {

@@ -21,7 +21,9 @@ const gaugeId = scenario.gauge.id;
 const quiet = { info() {}, warn() {}, error() {} } as never;
 const DAY = 86_400_000;
 const LEADS = scenario.horizonSteps; // 10
-const fitBody = { params: { nRounds: 40, learningRate: 0.2, maxDepth: 3, patience: 10 }, templateLength: 30, simLags: 5, forcingLags: 2 };
+// Updating off: these tests are about the per-lead archives of corrected members (issue-time
+// updating, which serves runs from its own archive, is tested in issue-updating.test.ts).
+const fitBody = { params: { nRounds: 40, learningRate: 0.2, maxDepth: 3, patience: 10 }, templateLength: 30, simLags: 5, forcingLags: 2, updating: { mode: 'off' } };
 
 let versionId: string;
 let version: Record<string, any>;

@@ -35,6 +35,9 @@ describe.skipIf(process.env.TEST_STORE === 'postgres')('npm run demo', () => {
     const first = await runDemo();
     expect(first.output).toMatch(/loaded member simulations/);
     expect(first.output).toMatch(/model version 1 active/);
+    // The default fit asks for auto updating; the answer names the observation it used, or why none.
+    expect(first.output).toMatch(/issue-time updating (on \(\S+\) at lead times [\d, ]+|off: .+)/);
+    expect(first.table).toMatch(/updated on the observation of \S+ \([\d.]+ m3\/s, from the archive\)|updating off: /);
     expect(first.output).toMatch(/posted the raw runs of the last 10 days \(10 new\)/);
     expect(first.output).toMatch(/CAUTION: .*responsible local authority/);
     expect(first.output).toMatch(/any time\s+in the horizon/);

@@ -137,6 +137,18 @@ export function renderNoForecast(id, detail) {
   );
 }
 
+/**
+ * The observation the run was updated on, or why it was not.
+ * @param {Forecast} f
+ * @returns {string}
+ */
+function updatingText(f) {
+  const u = f.updating;
+  if (!u) return 'no updating';
+  if (u.status === 'on' && u.observation) return `${u.observation.value} ${UNIT} observed ${fmtTime(u.observation.time)} (from the ${u.observation.source})`;
+  return `not updated: ${u.reason ?? 'no reason given'}`;
+}
+
 /** @param {Forecast} f */
 export function renderGauge(f) {
   document.title = `${f.gaugeName ?? f.gaugeId} — streamflow forecast`;
@@ -146,6 +158,7 @@ export function renderGauge(f) {
     ['Issue time', h('time', { datetime: f.issueTime }, fmtTime(f.issueTime))],
     ['Status', h('span', { class: `run-status r-${f.status}` }, statusText(f.status))],
     ['Model version', f.modelVersion ? `${f.modelVersion.label} (${f.modelVersion.id})` : 'none'],
+    ['Updated on', updatingText(f)],
     ['Seed', String(f.seed ?? '–')],
     ['Trajectories', String(f.trajectories ?? '–')],
     ['Members', String(f.ensemble?.corrected?.length ?? f.ensemble?.raw?.length ?? 0)],

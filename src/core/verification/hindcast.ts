@@ -31,6 +31,11 @@ export interface HindcastInput {
    */
   correct: (raw: Float64Array, issue: number, out: Float64Array) => void;
   /**
+   * The issue-time error of each (model, member) of one issue, called after `correct` (for
+   * archives split into issue-error strata); undefined or absent = not known.
+   */
+  issueError?: (issue: number) => ArrayLike<number> | undefined;
+  /**
    * Residual models bundled (default 1). `correct` then writes nModels·nMembers·nLeads values,
    * model-major ([(model·nMembers + member)·nLeads + lead]); the corrected ensemble is the mean
    * over models per member and the stochastic stage runs on every (model, member), as serving
@@ -91,7 +96,7 @@ export function runHindcast(
       if (input.dayOfYear) for (let h = 0; h < H; h++) doyIssue[h] = input.dayOfYear[is * H + h];
       const r = runStochasticStage(
         archive,
-        { members: corrIssue, nModels: K, nMembers: M, nLeads: H, dayOfYear: input.dayOfYear ? doyIssue : undefined },
+        { members: corrIssue, nModels: K, nMembers: M, nLeads: H, dayOfYear: input.dayOfYear ? doyIssue : undefined, issueError: input.issueError?.(is) },
         { ...opts, seed: opts.seed + is, keepTrajectories: true },
         workspace,
       );
