@@ -1,6 +1,6 @@
 import type { FastifyInstance } from 'fastify';
 import { z } from 'zod';
-import type { ComparisonReport, SizeStudyResult, StochasticAdvice } from '../core/verification/index.ts';
+import type { ComparisonReport, SizeStudyResult, StochasticAdvice, WarningReport } from '../core/verification/index.ts';
 import { requestHindcast } from '../services/hindcast.ts';
 import { HindcastJobParams } from '../services/hindcast-params.ts';
 import { getJob, listJobs, type Job } from '../store/jobs-repo.ts';
@@ -9,7 +9,9 @@ import { addRoute, type Services } from './context.ts';
 import { conflict, notFound } from '../services/problem.ts';
 import { Rfc3339 } from './schemas.ts';
 import { chooseFormat, FormatOnly } from './formats.ts';
-import { scoresCsv, scoresText, sendReport, sizeStudyText } from './report-formats.ts';
+import { CAUTION } from '../services/caution.ts';
+import { scoresCsv, scoresText, sendReport, sizeStudyText, warningsText } from './report-formats.ts';
+import { warningRows } from './warning-tables.ts';
 
 const SourceEnum = z.enum(['raw', 'corrected', 'stochastic']);
 
@@ -69,6 +71,9 @@ interface HindcastResult {
   comparison: ComparisonReport;
   sizeStudy: SizeStudyResult[] | null;
   advice: StochasticAdvice;
+  /** Absent on hindcasts stored before warnings were scored. */
+  warningScores?: WarningReport | null;
+  caution?: string;
 }
 
 const href = (gaugeId: string, jobId: string) => `/gauges/${gaugeId}/hindcasts/${jobId}`;
@@ -111,7 +116,7 @@ export async function hindcastRoutes(app: FastifyInstance, { services }: { servi
     async (req, reply) => {
       const gauge = await requireGauge(db, req.params);
       const body = req.body;
-      const job = await requestHindcast(db, gauge, body, { maxTrajectories: config.MAX_TRAJECTORIES }, req.principal?.tokenId ?? null);
+      const job = await requestHindcast(db, gauge, body, { maxTrajectories: config.MAX_TRAJECTORIES, attentionLevel: config.ATTENTION_LEVEL }, req.principal?.tokenId ?? null);
       reply.code(202).header('location', href(gauge.id, job.id));
       return { ...job, href: href(gauge.id, job.id) };
     },
@@ -161,8 +166,8 @@ export async function hindcastRoutes(app: FastifyInstance, { services }: { servi
         chosen,
         `${r.gaugeId}-hindcast-${jobId}`,
         body,
-        () => scoresCsv(r.comparison, [...header, `advice: ${r.advice.recommendation}`, ...r.warnings]),
-        () => scoresText(header, r.comparison, r.advice, r.warnings) + sizeStudyText(r.sizeStudy).join('\n') + '\n',
+        () => scoresCsv(r.comparison, [...header, `advice: ${r.advice.recommendation}`, ...r.warnings, CAUTION], r.warningScores ? warningRows(r.warningScores) : []),
+        () => `${scoresText(header, r.comparison, r.advice, r.warnings)}${sizeStudyText(r.sizeStudy).join('\n')}\n\n${warningsText(r.warningScores ?? null)}\n\n${CAUTION}\n`,
       );
     },
   );

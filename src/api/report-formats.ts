@@ -1,8 +1,9 @@
 // How verification reports are written out: the main scores side by side as CSV or a fixed-width
 // text table (stored-run verification and hindcasts share them), and the choice among JSON, CSV and text.
 import type { FastifyReply } from 'fastify';
-import type { ComparisonReport, SizeStudyResult, SourceReport, StochasticAdvice } from '../core/verification/index.ts';
+import type { ComparisonReport, SizeStudyResult, SourceReport, StochasticAdvice, WarningReport } from '../core/verification/index.ts';
 import type { Format } from './formats.ts';
+import { warningText } from './warning-tables.ts';
 
 export interface ScoreRow {
   score: string;
@@ -50,7 +51,8 @@ export function scoreRows(report: ComparisonReport): ScoreRow[] {
   }
   report.settings.thresholds.forEach((thr, t) => {
     rows.push(row(`Brier score, flow > ${thr}`, '', (s) => s.brier[t]?.brier));
-    rows.push(row(`Brier skill, flow > ${thr}`, '', (s) => s.brier[t]?.skill));
+    // Against the verified sample's own base rate; the warnings rows give it against the fitting period's.
+    rows.push(row(`Brier skill vs the sample base rate, flow > ${thr}`, '', (s) => s.brier[t]?.skill));
   });
   rows.push(row('spread class', '', (s) => s.spread.class));
   return rows;
@@ -58,10 +60,11 @@ export function scoreRows(report: ComparisonReport): ScoreRow[] {
 
 const csvField = (v: string) => (/[",\n]/.test(v) ? `"${v.replace(/"/g, '""')}"` : v);
 
-export function scoresCsv(report: ComparisonReport, comments: string[]): string {
+/** CSV of the scores; `extra` rows (the warnings) follow in the same columns. */
+export function scoresCsv(report: ComparisonReport, comments: string[], extra: ScoreRow[] = []): string {
   const lines = comments.map((c) => `# ${c.replace(/\n/g, ' ')}`);
   lines.push('score,unit,raw,corrected,stochastic');
-  for (const r of scoreRows(report)) lines.push([r.score, r.unit, ...r.values.map((v) => (v === null ? '' : String(v)))].map(csvField).join(','));
+  for (const r of [...scoreRows(report), ...extra]) lines.push([r.score, r.unit, ...r.values.map((v) => (v === null ? '' : String(v)))].map(csvField).join(','));
   return `${lines.join('\n')}\n`;
 }
 
@@ -127,4 +130,9 @@ export function sizeStudyText(studies: SizeStudyResult[] | null): string[] {
     );
   }
   return out;
+}
+
+/** The warnings section of a text report (src/api/warning-tables.ts). */
+export function warningsText(w: WarningReport | null): string {
+  return w ? warningText(w, textTable).join('\n') : 'Warnings: no corrected run issued with the gauge\'s present thresholds to verify.';
 }

@@ -6,7 +6,8 @@ import { getGaugeStatus } from '../store/gauge-status-repo.ts';
 import { GaugeParams, requireGauge } from './archive-common.ts';
 import { addRoute, type Services } from './context.ts';
 import { chooseFormat, FormatOnly } from './formats.ts';
-import { scoresCsv, scoresText, sendReport } from './report-formats.ts';
+import { scoresCsv, scoresText, sendReport, warningsText } from './report-formats.ts';
+import { warningRows } from './warning-tables.ts';
 import { Rfc3339 } from './schemas.ts';
 
 const VerificationQuery = z
@@ -33,7 +34,7 @@ export async function verificationRoutes(app: FastifyInstance, { services }: { s
     {
       method: 'GET',
       url: '/gauges/:id/verification',
-      summary: 'Stored runs against the observations posted since: raw, corrected and stochastic side by side, with PIT, reliability and coverage data and the stochastic-stage advice (JSON, CSV or text)',
+      summary: 'Stored runs against the observations posted since: raw, corrected and stochastic side by side, with PIT, reliability and coverage data and the stochastic-stage advice; the warnings (Brier parts, reliability diagram, ROC, economic value, attention-flag hits and false alarms, skill against climatology and persistence) with block-bootstrap intervals (JSON, CSV or text)',
       tag: 'verification',
       role: 'read',
       params: GaugeParams,
@@ -49,6 +50,7 @@ export async function verificationRoutes(app: FastifyInstance, { services }: { s
         minLead: q.minLead,
         maxLead: q.maxLead,
         source: q.source,
+        attentionLevel: services.config.ATTENTION_LEVEL,
       });
       const drift = await getGaugeStatus(db, gauge.id);
       const header = [
@@ -60,8 +62,8 @@ export async function verificationRoutes(app: FastifyInstance, { services }: { s
         chooseFormat(req, q.format),
         `${gauge.id}-verification`,
         { ...v, drift },
-        () => scoresCsv(v.comparison, [...header, `advice: ${v.advice.recommendation}`, v.stochasticFrom]),
-        () => scoresText(header, v.comparison, v.advice, [v.stochasticFrom, ...v.notes]),
+        () => scoresCsv(v.comparison, [...header, `advice: ${v.advice.recommendation}`, v.stochasticFrom, v.caution], v.warningScores ? warningRows(v.warningScores) : []),
+        () => `${scoresText(header, v.comparison, v.advice, [v.stochasticFrom, ...v.notes])}\n${warningsText(v.warningScores)}\n\n${v.caution}\n`,
       );
     },
   );

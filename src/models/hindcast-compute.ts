@@ -14,12 +14,16 @@ import { createStochasticWorkspace } from '../core/stochastic-stage.ts';
 import {
   adviseStochasticStage,
   createComparison,
+  createWarningVerification,
   driftReferenceFrom,
+  HindcastWarningCollector,
   runHindcast,
+  warningReferences,
   type ComparisonReport,
   type DriftReference,
   type SourceName,
   type StochasticAdvice,
+  type WarningReport,
 } from '../core/verification/index.ts';
 import { createResidualSession, predictResiduals } from './onnx-session.ts';
 import type { ArchiveSeries } from '../core/archive-types.ts';
@@ -47,6 +51,15 @@ export interface HindcastSettings {
     caseFraction: number | null;
     targetCases: number;
   };
+  /** Warning verification (src/core/verification/warning-verification.ts); null = none. */
+  warnings?: {
+    thresholds: { label: string; value: number }[];
+    attentionLevel: number;
+    /** Observations before the period (ascending): seasonal climatology, and rates when no fitting period. */
+    observations: { times: Float64Array; values: Float64Array };
+    /** The model's fitting period (climatological rates of the Brier skill). */
+    fitting: { fromMs: number; toMs: number } | null;
+  } | null;
 }
 
 export interface HindcastTaskInput {
@@ -90,6 +103,8 @@ export interface HindcastOutput {
   correction: 'per-valid-time' | 'per-issue';
   report: ComparisonReport;
   advice: StochasticAdvice;
+  /** The warnings, with where their references came from. */
+  warnings: (WarningReport & { references: { climatology: string; rates: string | null } }) | null;
   driftReference: DriftReference | null;
   /** Per lead: without and with issue-time updating (absent without an updater). */
   updating?: UpdatingByLead | null;
@@ -231,6 +246,45 @@ export async function computeHindcast(input: HindcastTaskInput, progress: Progre
       includeStochastic: true,
       sizeStudy: study.sources.length ? { sources: study.sources, sizes, repeats: study.repeats, caseFraction, seed: settings.seed } : null,
     });
+    // Warnings: the cases gathered back into one run per issue (trajectories kept as paths).
+    const ws = settings.warnings ?? null;
+    let warnings: ReturnType<typeof createWarningVerification> | null = null;
+    let collector: HindcastWarningCollector | null = null;
+    let refsText = { climatology: 'none', rates: null as string | null };
+    if (ws) {
+      // Observations before the period plus those the series holds up to the first issue: all known then.
+      const firstIssue = series.times[issues[0]];
+      const refs = warningReferences(ws.observations.times, ws.observations.values, {
+        cutoffMs: firstIssue,
+        fitting: ws.fitting,
+        thresholds: ws.thresholds.map((t) => t.value),
+        horizon: H,
+        stepMs,
+      });
+      refsText = {
+        climatology: refs.climatology ? `observations within ±15 days of the valid time's day of the year, ${refs.climatology.size} before the first issue` : 'none (no observations before the period)',
+        rates: refs.ratesFrom,
+      };
+      warnings = createWarningVerification({
+        sources: ['raw', 'corrected', 'stochastic'],
+        thresholds: ws.thresholds,
+        attentionLevel: ws.attentionLevel,
+        climatology: refs.climatology,
+        climatologicalRates: refs.climatologicalRates,
+        leadRange: settings.leadRange,
+        stepMs,
+        seed: settings.seed,
+      });
+      const w = warnings;
+      collector = new HindcastWarningCollector(
+        H,
+        (s) => {
+          const i = issues[s];
+          return { issueMs: series.times[i], validMs: Float64Array.from({ length: H }, (_, h) => series.times[i] + (h + 1) * stepMs), persistence: series.observed[i] };
+        },
+        (run) => w.addRun(run),
+      );
+    }
     progress({ stage: 'stochastic stage and verification', percent: 35 });
     let verificationMs = 0;
     let lastIssue = -1;
@@ -280,6 +334,7 @@ export async function computeHindcast(input: HindcastTaskInput, progress: Progre
         }
         const a = performance.now();
         comparison.add(c);
+        collector?.add(c, issue);
         withUpdating?.add(c, issue);
         verificationMs += performance.now() - a;
       },
@@ -314,8 +369,10 @@ export async function computeHindcast(input: HindcastTaskInput, progress: Progre
     check();
     progress({ stage: 'scores and advice', percent: 96 });
     const tReport = performance.now();
+    collector?.finish();
     const report = comparison.result();
     const advice = adviseStochasticStage(report);
+    const warningReport = warnings ? { ...warnings.result(), references: refsText } : null;
     let driftReference: DriftReference | null = null;
     try {
       driftReference = report.stochastic && report.stochastic.n >= 30 ? driftReferenceFrom(report, 'stochastic') : null;
@@ -338,6 +395,7 @@ export async function computeHindcast(input: HindcastTaskInput, progress: Progre
       correction: byTime ? 'per-valid-time' : 'per-issue',
       report,
       advice,
+      warnings: warningReport,
       driftReference,
       updating,
       timings: { correctionMs, stageMs, verificationMs, reportMs, totalMs: performance.now() - t0 },

@@ -26,6 +26,8 @@ export const HindcastJobParams = z.object({
   purpose: z.enum(['request', 'drift-reference']),
   /** Store the stochastic stage's coverage and CRPS as the version's drift-watch level (refused when the period overlaps calibration). */
   setDriftLevel: z.boolean(),
+  /** Attention level the warnings are scored at (config ATTENTION_LEVEL when requested; jobs stored before it: 0.3, its default). */
+  attentionLevel: z.number().min(0).max(1).default(0.3),
 });
 export type HindcastJobParams = z.output<typeof HindcastJobParams>;
 
@@ -46,5 +48,6 @@ export function referenceHindcastParams(versionId: string, horizon: number | nul
     sizeStudy: { sources: [], sizes: [], repeats: 1, caseFraction: null },
     purpose: 'drift-reference',
     setDriftLevel: true,
+    attentionLevel: 0.3,
   };
 }

@@ -7,7 +7,7 @@ import { checkResidualSpec, requiredRunInputs } from '../core/model-inputs.ts';
 import { formatDurationSeconds } from '../core/iso-duration.ts';
 import type { SourceName } from '../core/verification/index.ts';
 import type { HindcastOutput, HindcastSettings } from '../models/hindcast-compute.ts';
-import { readReforecasts } from '../store/archive-repo.ts';
+import { readObservations, readReforecasts } from '../store/archive-repo.ts';
 import { loadArchiveSeries } from '../store/archive-series.ts';
 import type { Db } from '../store/db.ts';
 import { saveDriftReference } from '../store/gauge-status-repo.ts';
@@ -16,6 +16,7 @@ import { enqueueJob, type Job } from '../store/jobs-repo.ts';
 import { getActiveModelVersion, getModelVersion, modelParts, versionArchive } from '../store/models-repo.ts';
 import { correctedArchiveFor, reforecastIssueTimes } from '../store/verification-repo.ts';
 import { runCompute } from '../workers/run-compute.ts';
+import { CAUTION } from './caution.ts';
 import { refreshGaugeStatus } from './drift.ts';
 import { withLeadTimes } from './verify-runs.ts';
 import type { HindcastJobParams } from './hindcast-params.ts';
@@ -33,6 +34,12 @@ export function storedPeriod(p: { from: string; to: string } | undefined): Perio
   const fromMs = Date.parse(p.from);
   const toMs = Date.parse(p.to);
   return Number.isFinite(fromMs) && Number.isFinite(toMs) ? { fromMs, toMs } : null;
+}
+
+/** The gauge's observations before a time, as arrays (the warnings' references). */
+async function observationArrays(db: Db, gaugeId: string, beforeMs: number): Promise<{ times: Float64Array; values: Float64Array }> {
+  const rows = await readObservations(db, gaugeId, { toMs: beforeMs });
+  return { times: Float64Array.from(rows, (r) => r.t), values: Float64Array.from(rows, (r) => (r.value === null ? NaN : r.value)) };
 }
 
 /** Issues whose valid times (issue + 1 … H steps) fall at least partly inside a period. */
@@ -64,7 +71,7 @@ export interface HindcastRequest {
  * Checks a hindcast request against the stored version, its archives and the reforecasts, and
  * queues the job. Refusals name the body field; nothing is queued then.
  */
-export async function requestHindcast(db: Db, gauge: Gauge, body: HindcastRequest, limits: { maxTrajectories: number }, createdBy: string | null): Promise<Job> {
+export async function requestHindcast(db: Db, gauge: Gauge, body: HindcastRequest, limits: { maxTrajectories: number; attentionLevel?: number }, createdBy: string | null): Promise<Job> {
   const version = body.version ? await getModelVersion(db, gauge.id, body.version) : await getActiveModelVersion(db, gauge.id);
   if (!version) {
     if (body.version) throw invalid([{ path: 'body.version', message: `gauge ${gauge.id} has no model version ${body.version}` }]);
@@ -99,6 +106,7 @@ export async function requestHindcast(db: Db, gauge: Gauge, body: HindcastReques
     sizeStudy: { sources: body.sizeStudy.sources, sizes: body.sizeStudy.sizes, repeats: body.sizeStudy.repeats, caseFraction: body.sizeStudy.caseFraction ?? null },
     purpose: 'request',
     setDriftLevel: body.setDriftLevel,
+    attentionLevel: limits.attentionLevel ?? 0.3,
   };
   return enqueueJob(db, 'hindcast', gauge.id, params, createdBy);
 }
@@ -191,6 +199,14 @@ export async function runHindcast(db: Db, job: { id: string; gaugeId: string }, 
     thresholds: gauge.thresholds.map((t) => t.value),
     leadRange: p.minLead !== null || p.maxLead !== null ? { min: p.minLead !== null ? p.minLead - 1 : undefined, max: p.maxLead !== null ? p.maxLead - 1 : undefined } : null,
     sizeStudy: { ...p.sizeStudy, targetCases: 20_000 },
+    warnings: {
+      thresholds: gauge.thresholds,
+      attentionLevel: p.attentionLevel,
+      // References known at issue time: the observations before the period (seasonal climatology)
+      // and the model's fitting period (climatological rates).
+      observations: await observationArrays(db, gauge.id, fromMs),
+      fitting: calibration,
+    },
   };
   await progress('starting the compute worker', 3);
   // A version with an issue-time updater is also hindcast with updating, when its archive reaches H.
@@ -279,6 +295,8 @@ export async function runHindcast(db: Db, job: { id: string; gaugeId: string }, 
     comparison: { ...withLeadTimes(out.report, gauge.stepSeconds), sizeStudy: undefined },
     sizeStudy: out.report.sizeStudy,
     advice: out.advice,
+    warningScores: out.warnings,
+    caution: CAUTION,
     updating: out.updating
       ? { ...out.updating, note: `${out.updating.note} Updated on the observation at each issue time.` }
       : { status: 'not run', reason: version.updating ? `the updated members' error archive does not reach ${H} lead times` : `model version ${version.id} has no issue-time updater` },

@@ -2,12 +2,14 @@
 // their valid times and raw, corrected and stochastic are compared side by side (core
 // compareForecasts, streamed page by page), with the stochastic-stage advice.
 import { formatDurationSeconds } from '../core/iso-duration.ts';
-import { adviseStochasticStage, createComparison, midpointProbs, type ComparisonReport, type StochasticAdvice } from '../core/verification/index.ts';
+import { adviseStochasticStage, createComparison, midpointProbs, type ComparisonReport, type StochasticAdvice, type WarningReport } from '../core/verification/index.ts';
 import { readObservations } from '../store/archive-repo.ts';
 import type { Queryable } from '../store/db.ts';
 import type { Gauge } from '../store/gauges-repo.ts';
 import { readRunsForVerification } from '../store/verification-repo.ts';
+import { CAUTION } from './caution.ts';
 import { isoUtc } from './series-input.ts';
+import { startStoredWarnings } from './verify-warnings.ts';
 
 /** byLead entries also name their lead time as an ISO 8601 duration (lead index 0 = one step). */
 export function withLeadTimes(report: ComparisonReport, stepSeconds: number): ComparisonReport {
@@ -37,6 +39,9 @@ export interface StoredVerification {
   thresholds: { label: string; value: number }[];
   comparison: ComparisonReport;
   advice: StochasticAdvice;
+  /** The warnings (src/services/verify-warnings.ts); null when no corrected run has been issued with the gauge's thresholds. */
+  warningScores: (WarningReport & { references: { climatology: string; rates: string | null }; skipped: { degraded: number; thresholdsChanged: number } }) | null;
+  caution: string;
   notes: string[];
 }
 
@@ -47,12 +52,15 @@ export interface StoredVerification {
 export async function verifyStoredRuns(
   db: Queryable,
   gauge: Gauge,
-  q: { fromMs?: number; toMs?: number; minLead?: number; maxLead?: number; source?: string },
+  q: { fromMs?: number; toMs?: number; minLead?: number; maxLead?: number; source?: string; attentionLevel?: number },
 ): Promise<StoredVerification> {
+  const leadRange = q.minLead !== undefined || q.maxLead !== undefined ? { min: q.minLead !== undefined ? q.minLead - 1 : undefined, max: q.maxLead !== undefined ? q.maxLead - 1 : undefined } : null;
+  // The attention level of the forecasts (config ATTENTION_LEVEL, whose default is 0.3).
+  const warnings = await startStoredWarnings(db, gauge, { attentionLevel: q.attentionLevel ?? 0.3, fromMs: q.fromMs, leadRange });
   const comparison = createComparison({
     seed: 1,
     thresholds: gauge.thresholds.map((t) => t.value),
-    leadRange: q.minLead !== undefined || q.maxLead !== undefined ? { min: q.minLead !== undefined ? q.minLead - 1 : undefined, max: q.maxLead !== undefined ? q.maxLead - 1 : undefined } : null,
+    leadRange,
     includeStochastic: true,
   });
   const minK = (q.minLead ?? 1) - 1;
@@ -104,6 +112,7 @@ export async function verifyStoredRuns(
         comparison.add({ lead: k, observation: y, raw, corrected: cor, stochasticQuantiles: probs ? { probs, values } : null, validTime: vt });
       });
       if (verified) runs.verified++;
+      warnings.addRun(r);
     }
     const last = page[page.length - 1];
     after = { issueMs: last.issueMs, id: last.id };
@@ -111,7 +120,9 @@ export async function verifyStoredRuns(
   }
   const report = withLeadTimes(comparison.result(), gauge.stepSeconds);
   const advice = adviseStochasticStage(report);
+  const w = warnings.result();
   const notes: string[] = [];
+  if (w.skipped.thresholdsChanged) notes.push(`${w.skipped.thresholdsChanged} runs issued with other thresholds than the gauge's present ones are left out of the warnings.`);
   if (runs.degraded) notes.push(`${runs.degraded} degraded runs (${degradedCases} observed lead times) are left out of the comparison; see degraded.handling.`);
   const versions = [...runs.modelVersions.keys()].filter((v) => v !== null);
   if (versions.length > 1) notes.push(`Runs of ${versions.length} model versions are pooled (${versions.join(', ')}); narrow the window to judge one version.`);
@@ -129,6 +140,8 @@ export async function verifyStoredRuns(
     thresholds: gauge.thresholds,
     comparison: report,
     advice,
+    warningScores: w.report ? { ...w.report, references: w.references, skipped: w.skipped } : null,
+    caution: CAUTION,
     notes,
   };
 }

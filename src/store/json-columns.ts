@@ -48,3 +48,6 @@ export const RunSummary = z.array(z.looseObject({ label: z.string(), value: z.nu
 const MemberValues = z.array(z.object({ id: z.string(), values: z.array(z.number()) }));
 export const RunValidTimes = z.array(z.string());
 export const RunEnsembles = z.object({ raw: MemberValues, corrected: MemberValues.nullable() });
+
+/** The thresholds of forecast_runs.output as issued: exceedance per lead and at any time in the horizon. */
+export const RunIssuedThresholds = z.array(z.looseObject({ label: z.string(), value: z.number(), exceedance: z.array(z.number()), anyTime: z.number() }));

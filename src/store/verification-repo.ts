@@ -2,7 +2,7 @@ import type { z } from 'zod';
 import type { Queryable } from './db.ts';
 import { chooseArchive } from '../core/archive-choice.ts';
 import { decodePercentiles } from './forecasts-repo.ts';
-import { ArchiveSummary, RunEnsembles, RunValidTimes } from './json-columns.ts';
+import { ArchiveSummary, RunEnsembles, RunIssuedThresholds, RunValidTimes } from './json-columns.ts';
 
 /** What verification reads of one stored run (see src/services/forecast-view.ts for the served shape). */
 export interface RunForVerification {
@@ -18,6 +18,8 @@ export interface RunForVerification {
   corrected: { id: string; values: number[] }[] | null;
   /** Per lead, the stochastic stage's quantiles at the midpoint levels (i − 0.5)/K. */
   percentiles: number[][];
+  /** The thresholds' probabilities as issued (per lead and at any time); null when the output has none. */
+  issued: { label: string; value: number; exceedance: number[]; anyTime: number }[] | null;
 }
 
 export interface RunPage {
@@ -54,12 +56,16 @@ export async function readRunsForVerification(db: Queryable, p: RunPage): Promis
     model_version_id: string | null;
     valid_times: unknown;
     ensemble: unknown;
+    thresholds: unknown;
     percentiles: Uint8Array;
   }>(
-    `select id, (extract(epoch from issue_time) * 1000)::float8 as t, source, status, model_version_id::text as model_version_id,
-            (output::jsonb)->'validTimes' as valid_times, (output::jsonb)->'ensemble' as ensemble, percentiles
-       from forecast_runs where gauge_id = $1${where}
-      order by issue_time, id limit $${params.length}`,
+    // The output text is parsed once per row (the limited subquery is not flattened into the outer one).
+    `select id, t, source, status, model_version_id, o->'validTimes' as valid_times, o->'ensemble' as ensemble, o->'thresholds' as thresholds, percentiles
+       from (select id, issue_time, (extract(epoch from issue_time) * 1000)::float8 as t, source, status,
+                    model_version_id::text as model_version_id, output::jsonb as o, percentiles
+               from forecast_runs where gauge_id = $1${where}
+              order by issue_time, id limit $${params.length}) r
+      order by issue_time, id`,
     params,
   );
   return rows.map((r) => {
@@ -74,6 +80,7 @@ export async function readRunsForVerification(db: Queryable, p: RunPage): Promis
       raw: ensemble.raw,
       corrected: ensemble.corrected,
       percentiles: decodePercentiles(r.percentiles),
+      issued: r.thresholds === null || r.thresholds === undefined ? null : RunIssuedThresholds.parse(r.thresholds),
     };
   });
 }

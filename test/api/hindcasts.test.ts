@@ -107,6 +107,21 @@ describe('hindcast jobs', () => {
     expect(r.driftReference.note).toMatch(/setDriftLevel/);
     expect(r.errorArchive).toMatchObject({ leadTimes: expect.any(Number) });
 
+    // Warnings: per threshold at each lead and at any time, the same cases as the comparison.
+    const w = r.warningScores;
+    expect(w.runs).toBe(r.issues.used);
+    expect(w.cases).toBe(r.cases.verified);
+    expect(w.events).toHaveLength(2 * scenario.gauge.thresholds.length);
+    // The CRPS of the warnings' stochastic column is the comparison's (same trajectories, same cases).
+    expect(w.skill.stochastic.crps.value).toBeCloseTo(stochastic.crps.crps, 9);
+    expect(w.skill.raw.crps.value).toBeCloseTo(raw.crps.crps, 9);
+    expect(w.skill.stochastic.crps.low).toBeLessThan(w.skill.stochastic.crps.value);
+    expect(w.skill.stochastic.byLead).toHaveLength(10);
+    // The climatology is the archive before the validation period; the Brier reference the calibration period.
+    expect(w.references.rates).toBe('fitting period');
+    expect(w.settings.blockLength).toBe(10);
+    expect(r.caution).toMatch(/local authority/);
+
     const viaJobs = (await t.as('read', { method: 'GET', url: `/jobs/${job.id}` })).json();
     expect(viaJobs.result.advice).toEqual(r.advice);
   });
@@ -126,6 +141,10 @@ describe('hindcast jobs', () => {
     expect(text.body).toContain(`Stochastic stage: ${first.advice.recommendation}`);
     expect(text.body).toContain('Ensemble-size study, stochastic');
     expect(text.body).toMatch(/alpha index\s+0\.\d+\s+0\.\d+\s+0\.\d+/);
+    // The warnings follow in both.
+    expect(lines.some((l) => l.startsWith('CRPS skill vs seasonal climatology (90 % interval),'))).toBe(true);
+    expect(text.body).toContain('Warnings: ');
+    expect(text.body).toContain('Paired differences');
   });
 
   it('warns when the period overlaps the calibration period, and keeps such a level out of the drift watch', async () => {

@@ -1,5 +1,5 @@
-// A stand-in service for the page test: the real page plugin plus the three reads the page uses
-// (GET /overview, GET /gauges/:id/forecasts/latest, GET /events), answering in the contract's shape
+// A stand-in service for the page test: the real page plugin plus the reads the page uses
+// (GET /overview, GET /gauges/:id/forecasts/latest, GET /gauges/:id/verification, GET /events), answering in the contract's shape
 // from fixture data. To be replaced by the real service once those endpoints exist.
 import type { ServerResponse } from 'node:http';
 import Fastify, { type FastifyInstance, type FastifyRequest } from 'fastify';
@@ -15,6 +15,8 @@ export interface GaugeEntry {
   status: OverviewGauge['status'];
   thresholds: { label: string; value: number }[];
   latest: Forecast | null;
+  /** Answer of GET /gauges/:id/verification (404 when absent). */
+  verification?: unknown;
 }
 
 export interface FixtureServer {
@@ -72,6 +74,14 @@ export async function startFixtureServer(readToken: string, gauges: GaugeEntry[]
     if (!g.latest) throw new Problem(404, 'not-found', 'Not found', `no forecast for gauge ${id}`);
     reply.header('etag', `"${g.latest.id}"`);
     return g.latest;
+  });
+
+  app.get('/gauges/:id/verification', async (request) => {
+    requireRead(request);
+    const { id } = request.params as { id: string };
+    const g = byId.get(id);
+    if (!g || g.verification === undefined) throw new Problem(404, 'not-found', 'Not found', `no verification for gauge ${id}`);
+    return g.verification;
   });
 
   app.get('/events', async (request, reply) => {

@@ -5,6 +5,7 @@ import { h, show } from './dom.js';
 import { finite, fmtFlow, fmtLead, fmtLevel, fmtProb, fmtShort, fmtTime, statusText, UNIT } from './format.js';
 import { setCaution } from './notices.js';
 import { state } from './page-state.js';
+import { verificationSection } from './verification-view.js';
 
 /**
  * @typedef {import('./page-state.js').Forecast} Forecast
@@ -203,6 +204,7 @@ export function renderGauge(f) {
         : h('p', { class: 'note' }, 'No thresholds are set for this gauge.'),
     ),
     h('section', { 'aria-labelledby': 'table-h' }, h('h2', { id: 'table-h' }, 'Numbers by lead time'), forecastTable(f)),
+    verificationSection(f.gaugeId),
   );
   drawCharts();
 }

@@ -3,6 +3,7 @@ import { createPrng } from '../prng.ts';
 import { binomialLowerTail } from './binomial.ts';
 import { sourceValues, type SourceName, type VerificationCase } from './case.ts';
 import { pitFromSorted } from './randomised-pit.ts';
+import { twoSidedDriftChecks, type TwoSidedChecks } from './two-sided-drift.ts';
 import { ValueSorter } from './value-sorter.ts';
 import type { ComparisonReport } from './compare-forecasts.ts';
 
@@ -39,6 +40,8 @@ export interface DriftOptions {
    * k = round(share · n): each run counts once, a conservative design-effect correction.
    */
   testUnits?: 'cases' | 'issues';
+  /** Mean-PIT distance from 1/2 that counts as bias (default 0.1, common practice). */
+  biasMargin?: number;
 }
 
 export interface DriftStatus {
@@ -59,6 +62,8 @@ export interface DriftStatus {
     crpsRatio: number | null;
     firstValidTime: string | null;
     lastValidTime: string | null;
+    /** The checks the other way: bias (mean PIT) and over-dispersion (coverage well above expected). */
+    twoSided: TwoSidedChecks;
   };
 }
 
@@ -78,6 +83,9 @@ export function driftReferenceFrom(report: ComparisonReport, source: SourceName 
  * CRPS: drifting when mean CRPS > crpsFactor × validation CRPS. CRPS grows with flow, so a
  * window in a wet season can exceed a whole-year reference without drift; pick the factor,
  * or a seasonal reference, with that in mind.
+ * Two-sided (twoSidedDriftChecks): also drifting when the mean PIT is clearly away from 1/2
+ * (bias) or the 90 % coverage is clearly above max(0.9, validation coverage) (over-dispersion),
+ * tested over the same units.
  */
 export function watchDrift(cases: Iterable<VerificationCase>, reference: DriftReference, options: DriftOptions = {}): DriftStatus {
   const source = options.source ?? 'stochastic';
@@ -109,6 +117,7 @@ export function watchDrift(cases: Iterable<VerificationCase>, reference: DriftRe
   let covered = 0;
   const issues = new Set<string | undefined>();
   let crpsSum = 0;
+  const pits: number[] = [];
   for (const c of window) {
     const v = sourceValues(c, source)!;
     if (row.length < v.length) row = new Float64Array(v.length);
@@ -126,6 +135,7 @@ export function watchDrift(cases: Iterable<VerificationCase>, reference: DriftRe
     const y = c.observation as number;
     const pit = pitFromSorted(sorted, m, y, rng.nextFloat());
     n++;
+    pits.push(pit);
     issues.add(c.issueTime);
     if (pit >= 0.05 && pit <= 0.95) covered++;
     crpsSum += crpsSorted(sorted, y);
@@ -146,6 +156,7 @@ export function watchDrift(cases: Iterable<VerificationCase>, reference: DriftRe
     crpsRatio: n ? crpsSum / n / reference.crps : null,
     firstValidTime: window[0]?.validTime ?? null,
     lastValidTime: window[window.length - 1]?.validTime ?? null,
+    twoSided: twoSidedDriftChecks(pits, units, reference.coverage90, { pValue: alpha, biasMargin: options.biasMargin, coverageMargin: margin }),
   };
   const reasons: string[] = [];
   if (n < minCases) {
@@ -161,8 +172,20 @@ export function watchDrift(cases: Iterable<VerificationCase>, reference: DriftRe
     reasons.push(`90 % coverage ${(100 * cov).toFixed(1)} % is well below the expected ${(100 * p0).toFixed(1)} % (binomial p = ${pv.toExponential(2)} < ${alpha} over ${units} ${options.testUnits === 'issues' ? 'issues' : 'cases'}, shortfall over ${margin}).`);
   }
   if (highCrps) reasons.push(`CRPS ${evidence.crps!.toPrecision(4)} is ${ratio.toFixed(2)} × the validation level (limit ${factor} ×).`);
-  if (!lowCoverage && !highCrps) {
-    reasons.push(`90 % coverage ${(100 * cov).toFixed(1)} % (expected ${(100 * p0).toFixed(1)} %) and CRPS ${ratio.toFixed(2)} × the validation level are within limits.`);
+  const two = evidence.twoSided;
+  if (two.bias) {
+    reasons.push(
+      `Mean PIT ${two.pitMean!.toFixed(3)} is far from 0.5 (p = ${two.biasPValue!.toExponential(2)}): observations fall ${two.bias === 'high' ? 'above' : 'below'} the forecasts more often than they should (bias).`,
+    );
   }
-  return { status: lowCoverage || highCrps ? 'drifting' : 'ok', reasons, evidence };
+  if (two.overDispersed) {
+    reasons.push(
+      `90 % coverage ${(100 * cov).toFixed(1)} % is well above the expected at most ${(100 * two.expectedCoverageAtMost).toFixed(1)} % (binomial p = ${two.overDispersionPValue!.toExponential(2)}): the bands are too wide (over-dispersion).`,
+    );
+  }
+  const drifting = lowCoverage || highCrps || two.bias !== null || two.overDispersed;
+  if (!drifting) {
+    reasons.push(`90 % coverage ${(100 * cov).toFixed(1)} % (expected ${(100 * p0).toFixed(1)} %), mean PIT ${two.pitMean!.toFixed(3)} and CRPS ${ratio.toFixed(2)} × the validation level are within limits.`);
+  }
+  return { status: drifting ? 'drifting' : 'ok', reasons, evidence };
 }

@@ -41,7 +41,7 @@ describe('drift watch', () => {
     expect(d.evidence.coveragePValue!).toBeGreaterThan(0.01);
   });
 
-  it('detects a change of bias (forecasts 1.5 σ too high): low 90 % coverage and worse CRPS', () => {
+  it('detects a change of bias (forecasts 1.5 σ too high): low 90 % coverage, worse CRPS and a low mean PIT', () => {
     const recent = [...sampled(150, 3, 0, 400), ...sampled(30, 4, 1.5, 560)];
     // Whole history: the 90 biased cases are diluted. Last 90 cases, or since the change: drifting.
     const last = watchDrift(recent, reference, { lastCases: 90 });
@@ -52,7 +52,11 @@ describe('drift watch', () => {
     expect(last.evidence.coverage90!).toBeLessThan(0.75);
     expect(last.evidence.coveragePValue!).toBeLessThan(1e-6);
     expect(last.evidence.crpsRatio!).toBeGreaterThan(1.5);
-    expect(last.reasons.length).toBe(2);
+    // The two-sided check sees the direction: observations below the forecasts, mean PIT well under 1/2.
+    expect(last.evidence.twoSided.bias).toBe('low');
+    expect(last.evidence.twoSided.pitMean!).toBeLessThan(0.4);
+    expect(last.evidence.twoSided.overDispersed).toBe(false);
+    expect(last.reasons.length).toBe(3);
     const since = watchDrift(recent, reference, { since: new Date(T0 + 560 * DAY).toISOString() });
     expect(since.status).toBe('drifting');
     expect(since.evidence.cases).toBe(90);

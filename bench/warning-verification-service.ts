@@ -1,0 +1,139 @@
+/**
+ * Verification of 5,000 stored runs end to end, as GET /gauges/:id/verification does it: runs and
+ * observations read from PostgreSQL page by page, the side-by-side comparison and the warning
+ * verification. A fresh database is made on the server and dropped afterwards. Each run: 20 raw
+ * and 20 corrected members, 100 stage quantiles, 3 thresholds, 10 daily lead times; 20 years of
+ * daily observations before them (climatology). Goal: under 1 s. Prints figures; asserts nothing.
+ * Usage: DATABASE_URL=postgres://postgres@127.0.0.1:5432/test npx tsx bench/warning-verification-service.ts [runs]
+ * Data are invented.
+ */
+import { randomBytes } from 'node:crypto';
+import os from 'node:os';
+import pg from 'pg';
+import { createPrng } from '../src/core/prng.ts';
+import { midpointProbs } from '../src/core/verification/index.ts';
+import { buildForecastView } from '../src/services/forecast-view.ts';
+import { verifyStoredRuns } from '../src/services/verify-runs.ts';
+import { upsertObservations } from '../src/store/archive-repo.ts';
+import { insertRun } from '../src/store/forecasts-repo.ts';
+import { insertGauge } from '../src/store/gauges-repo.ts';
+import { readRunsForVerification } from '../src/store/verification-repo.ts';
+import { migrate, readMigrations } from '../src/store/migrate.ts';
+import { openPostgres } from '../src/store/postgres-driver.ts';
+
+const DATABASE_URL = process.env.DATABASE_URL;
+if (!DATABASE_URL) {
+  console.error('set DATABASE_URL to a PostgreSQL server');
+  process.exit(2);
+}
+const nRuns = Number(process.argv[2] ?? 5000);
+const H = 10;
+const M = 20;
+const K = 100;
+const DAY = 86_400_000;
+const THRESHOLDS = [
+  { label: '2-year flow', value: 90 },
+  { label: '10-year flow', value: 140 },
+  { label: '50-year flow', value: 190 },
+];
+
+const name = `bench_wv_${randomBytes(4).toString('hex')}`;
+const admin = new pg.Client({ connectionString: DATABASE_URL });
+await admin.connect();
+await admin.query(`create database ${name}`);
+const u = new URL(DATABASE_URL);
+u.pathname = `/${name}`;
+const db = openPostgres(u.toString(), 4);
+try {
+  await migrate(db, readMigrations());
+  const gauge = await insertGauge(db, { id: 'bench-river', name: 'Bench River at Nowhere', catchmentAreaKm2: 300, timeStep: 'P1D', stepSeconds: 86400, timeZone: 'UTC', flowUnit: 'm3/s', location: null, thresholds: THRESHOLDS });
+  const g = createPrng(7);
+  const nHist = 20 * 365;
+  const n = nHist + nRuns + H + 1;
+  const t0 = Date.UTC(2000, 0, 1);
+  const times = Float64Array.from({ length: n }, (_, i) => t0 + i * DAY);
+  const z = new Float64Array(n);
+  for (let i = 1; i < n; i++) z[i] = 0.85 * z[i - 1] + 0.35 * g.normal();
+  const flow = Float64Array.from(z, (x, i) => 50 * Math.exp(x + 0.5 * Math.sin((2 * Math.PI * i) / 365.25)));
+  await upsertObservations(db, gauge.id, times, flow, null);
+  const probs = Array.from(midpointProbs(K));
+  const t1 = performance.now();
+  for (let s = 0; s < nRuns; s++) {
+    const i = nHist + s;
+    const member = (scale: number) => {
+      const v: number[] = [];
+      let e = z[i];
+      for (let k = 0; k < H; k++) {
+        e = 0.85 * e + 0.35 * g.normal();
+        v.push(scale * 50 * Math.exp(e + 0.5 * Math.sin((2 * Math.PI * (i + k + 1)) / 365.25)));
+      }
+      return v;
+    };
+    const raw = Array.from({ length: M }, () => member(1.2));
+    const corrected = Array.from({ length: M }, () => member(1));
+    const percentiles: number[][] = [];
+    for (let k = 0; k < H; k++) {
+      const col = corrected.map((m) => m[k]).sort((a, b) => a - b);
+      percentiles.push(probs.map((p) => col[Math.min(M - 1, Math.floor(p * M))] * (0.9 + 0.2 * p)));
+    }
+    const exceedance = THRESHOLDS.flatMap((t) => percentiles.map((q) => q.filter((x) => x > t.value).length / K));
+    const anyTime = THRESHOLDS.map((_, j) => Math.min(1, 1.2 * Math.max(...exceedance.slice(j * H, (j + 1) * H))));
+    const id = crypto.randomUUID();
+    const view = buildForecastView({
+      id,
+      gauge,
+      issueTimeMs: times[i],
+      createdAt: new Date().toISOString(),
+      source: 'default',
+      status: 'corrected',
+      degradedReason: null,
+      modelVersion: null,
+      seed: 1,
+      nDraws: 1000,
+      attentionLevel: 0.3,
+      probs: [0.5],
+      nLeads: H,
+      memberIds: raw.map((_, m) => `m${m}`),
+      raw: Float64Array.from(raw.flat()),
+      corrected: Float64Array.from(corrected.flat()),
+      quantiles: percentiles.map((q) => q[50]),
+      exceedance: Float64Array.from(exceedance),
+      anyTime: Float64Array.from(anyTime),
+      firstLikelyLead: THRESHOLDS.map(() => null),
+      recent: { times: [], observed: [] },
+      timings: { featuresMs: 0, inferenceMs: 0, stochasticMs: 0, totalMs: 0 },
+    } as unknown as Parameters<typeof buildForecastView>[0]);
+    await insertRun(db, { id, gaugeId: gauge.id, issueTimeMs: times[i], source: 'default', requestHash: id, idempotencyKey: null, status: 'corrected', modelVersionId: null, seed: 1, input: {}, output: JSON.stringify(view), etag: `"${id}"`, summary: [], percentiles } as Parameters<typeof insertRun>[1]);
+  }
+  console.log(`node ${process.version}, ${os.cpus()[0]?.model ?? 'cpu'} (${os.cpus().length} cores shared with other work)`);
+  console.log(`${nRuns} stored runs × ${H} lead times (${M} raw + ${M} corrected members, ${K} quantiles, ${THRESHOLDS.length} thresholds), stored in ${((performance.now() - t1) / 1000).toFixed(1)} s`);
+  // The reads alone: every page of runs as verifyStoredRuns reads them (no scoring).
+  {
+    const cpu0 = process.cpuUsage();
+    const a = performance.now();
+    let after: { issueMs: number; id: string } | undefined;
+    let count = 0;
+    for (;;) {
+      const page = await readRunsForVerification(db, { gaugeId: gauge.id, after, limit: 500 });
+      count += page.length;
+      if (page.length < 500) break;
+      after = { issueMs: page[page.length - 1].issueMs, id: page[page.length - 1].id };
+    }
+    const cpu = process.cpuUsage(cpu0);
+    console.log(`reading the ${count} runs alone: wall ${(performance.now() - a).toFixed(0)} ms, CPU time of this process ${((cpu.user + cpu.system) / 1000).toFixed(0)} ms`);
+  }
+  for (let r = 0; r < 3; r++) {
+    const cpu0 = process.cpuUsage();
+    const a = performance.now();
+    const v = await verifyStoredRuns(db, gauge, {});
+    const wall = performance.now() - a;
+    const cpu = process.cpuUsage(cpu0);
+    console.log(
+      `verification ${r + 1}: wall ${wall.toFixed(0)} ms, CPU time of this process ${((cpu.user + cpu.system) / 1000).toFixed(0)} ms; ${v.comparison.cases.used} cases, ${v.warningScores?.runs ?? 0} runs in the warnings (goal under 1000 ms); load average ${os.loadavg().map((x) => x.toFixed(1)).join(' ')}`,
+    );
+  }
+} finally {
+  await db.close();
+  await admin.query(`drop database if exists ${name} with (force)`);
+  await admin.end();
+}
