@@ -67,7 +67,18 @@ async function withWindowWarmup(db: Queryable, gauge: Gauge, featureSpec: unknow
   const need = requiredRunInputs(spec);
   if (warmupShortfall(run, need) === 0) return run;
   const steps = Math.max(need.simStepsToIssue, ...need.forcings.map((f) => f.stepsToIssue));
-  return withArchiveWarmup(run, need, await loadWarmupSlice(db, gauge.id, gauge.stepSeconds, run.issueTime, steps, memberIds, specForcings(spec)));
+  const longer = withArchiveWarmup(run, need, await loadWarmupSlice(db, gauge.id, gauge.stepSeconds, run.issueTime, steps, memberIds, specForcings(spec)));
+  // Name the member whose early steps the archive cannot give, rather than an index in the lengthened series.
+  const stepMs = gauge.stepSeconds * 1000;
+  longer.members.forEach((m, i) => {
+    const added = m.length - run.members[i].length;
+    for (let j = 0; j < added; j++) {
+      if (Number.isFinite(m[j])) continue;
+      const at = isoUtc(run.issueTime - (m.length - run.nLeads - 1 - j) * stepMs);
+      throw invalid([{ path: `body.members[${i}].values`, message: `the model's ${spec.window}-step window needs ${need.simStepsToIssue} values up to issue time; the run gives ${run.members[i].length - run.nLeads} and the archive has no simulated value of member ${memberIds[i]} at ${at}` }]);
+    }
+  });
+  return longer;
 }
 
 /** Default seed: a hash of the run's natural key, so reposting the same run reproduces it. */

@@ -76,6 +76,22 @@ describe('uploading a PyTorch LSTM or GRU taking [N, window, steps]', () => {
     expect(a.json().modelVersion.id).toBe(res.json().id);
     // The scenario's warm-up values are the members' continuous simulations, so both give the same correction.
     expect(a.json().ensemble.corrected).toEqual(b.json().ensemble.corrected);
+
+    // Before the archive starts there is nothing to lengthen the run with: the member is named.
+    // A run issued on the archive's fourth day: its 8-step window reaches two days before the archive starts.
+    const cut = (v: (number | null)[]) => v.slice(2, 14);
+    const early = {
+      issueTime: scenario.times[3],
+      unit: 'm3/s',
+      warmupSteps: 2,
+      source: 'early',
+      members: scenario.memberIds.map((id) => ({ id, values: cut(scenario.memberSimulations[id]) })),
+      forcings: { precipitation: cut(scenario.forcings.precipitation), air_temperature: cut(scenario.forcings.air_temperature) },
+    };
+    const refused = await t.as('ingest', { method: 'POST', url: `/gauges/${gaugeId}/runs`, payload: early });
+    expect(refused.statusCode, refused.body).toBe(422);
+    expect(refused.json().errors[0].path).toBe('body.members[0].values');
+    expect(refused.json().errors[0].message).toMatch(/archive has no simulated value of member/);
   });
 
   it.each([
