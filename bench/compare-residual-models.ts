@@ -4,8 +4,8 @@
 // simulation-mode hindcast (daily issues, 10 leads, the kNN + Schaake stage) verified by CRPS.
 // Run: npx tsx bench/compare-residual-models.ts [--quick]
 // Prints a table (the numbers in README.md come from it); nothing is asserted.
-import { archiveToBytes } from '../src/core/archive-codec.ts';
-import type { FeatureSpec } from '../src/core/features.ts';
+import { archiveToBytes } from '../src/core/stochastic/archive-codec.ts';
+import type { FeatureSpec } from '../src/core/features/features.ts';
 import { computeHindcast, type HindcastSettings } from '../src/models/hindcast-compute.ts';
 import { fitLstmResidualModel } from '../src/models/lstm-fit.ts';
 import { predictorFor } from '../src/models/model-shape.ts';
@@ -13,7 +13,7 @@ import { createResidualSession } from '../src/models/onnx-session.ts';
 import type { Period } from '../src/core/archive-types.ts';
 import { evaluateResidualModel } from '../src/models/residual-evaluation.ts';
 import { fitResidualModel, splitValidation } from '../src/models/residual-fit.ts';
-import type { ResidualSpec } from '../src/core/model-inputs.ts';
+import type { ResidualSpec } from '../src/core/features/model-inputs.ts';
 import { demoPeriods, demoSeries } from './demo-series.ts';
 
 const quick = process.argv.includes('--quick');

@@ -1,7 +1,7 @@
 // Timings of the feature builder and one Bayesian-optimisation step (printed, never asserted).
 // Run: npx tsx bench/features-tuning.ts
 import { createPrng } from '../src/core/prng.ts';
-import { continuousRows, makeFeatureSpec, servingRows } from '../src/core/features.ts';
+import { continuousRows, makeFeatureSpec, servingRows } from '../src/core/features/features.ts';
 import { latinHypercube } from '../src/models/tuning/latin-hypercube.ts';
 import { proposeNext } from '../src/models/tuning/propose-next.ts';
 

@@ -3,8 +3,8 @@
 // Run: npx tsx bench/lstm.ts [--hidden 16] [--window 14] [--repeats 30]
 // Prints figures only; nothing here is asserted.
 import { availableParallelism, cpus, loadavg } from 'node:os';
-import { rowShape, servingInputs } from '../src/core/model-inputs.ts';
-import type { RunInput } from '../src/core/features.ts';
+import { rowShape, servingInputs } from '../src/core/features/model-inputs.ts';
+import type { RunInput } from '../src/core/features/features.ts';
 import { fitLstmResidualModel, lstmSpec } from '../src/models/lstm-fit.ts';
 import { fitResidualModel } from '../src/models/residual-fit.ts';
 import { lstmModelToOnnx } from '../src/models/lstm-onnx-export.ts';

@@ -15,7 +15,7 @@
  */
 import { buildApp } from '../src/api/app.ts';
 import { loadConfig } from '../src/config.ts';
-import { alphaIndex } from '../src/core/alpha-index.ts';
+import { alphaIndex } from '../src/core/scores/alpha-index.ts';
 import { jobHandlers } from '../src/jobs/handlers.ts';
 import { JobRunner } from '../src/jobs/runner.ts';
 import { loadScenarioArchive, type Send } from '../src/scenario/load-archive.ts';

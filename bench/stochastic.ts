@@ -15,7 +15,7 @@ import {
   type ErrorArchive,
   type StochasticOptions,
 } from '../src/core/index.ts';
-import { makeFeatureSpec } from '../src/core/features.ts';
+import { makeFeatureSpec } from '../src/core/features/features.ts';
 import type { ArchiveSeries } from '../src/core/archive-types.ts';
 import { evaluateResidualModel } from '../src/models/residual-evaluation.ts';
 

@@ -15,7 +15,7 @@
  * With --on, the fit asks for updating at every lead time instead of auto (for comparison).
  * Run: npx tsx bench/updating.ts [hindcastYears=3] [--past-runs] [--on]
  */
-import { archiveToBytes } from '../src/core/archive-codec.ts';
+import { archiveToBytes } from '../src/core/stochastic/archive-codec.ts';
 import { computeHindcast } from '../src/models/hindcast-compute.ts';
 import { defaultPeriods } from '../src/services/fit.ts';
 import { fitResidualModel } from '../src/models/residual-fit.ts';

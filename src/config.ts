@@ -17,7 +17,7 @@ const ConfigSchema = z.object({
   MAX_TRAJECTORIES: z.coerce.number().int().min(10).max(100_000).default(5000),
   CORRECTION_QUEUE: z.coerce.number().int().min(1).max(10_000).default(32),
   WORKERS: z.coerce.number().int().min(1).max(64).default(2),
-  /** Past runs a per-lead error archive needs before it serves runs (see src/core/archive-choice.ts). */
+  /** Past runs a per-lead error archive needs before it serves runs (see src/core/stochastic/archive-choice.ts). */
   PER_LEAD_MIN_RUNS: z.coerce.number().int().min(1).max(1_000_000).default(300),
 });
 

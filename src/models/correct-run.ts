@@ -1,13 +1,13 @@
 import type { InferenceSession } from 'onnxruntime-node';
-import { correctedMember } from '../core/corrected-member.ts';
+import { correctedMember } from '../core/correction/corrected-member.ts';
 import { dayOfYearUtc } from '../core/day-of-year.ts';
-import type { ErrorArchive } from '../core/error-archive.ts';
-import type { FeatureSpec, RunInput } from '../core/features.ts';
-import { isSequenceSpec, rowShape, servingInputs, type ResidualSpec } from '../core/model-inputs.ts';
-import { runStochasticStage, type StochasticResult, type StochasticWorkspace } from '../core/stochastic-stage.ts';
+import type { ErrorArchive } from '../core/stochastic/error-archive.ts';
+import type { FeatureSpec, RunInput } from '../core/features/features.ts';
+import { isSequenceSpec, rowShape, servingInputs, type ResidualSpec } from '../core/features/model-inputs.ts';
+import { runStochasticStage, type StochasticResult, type StochasticWorkspace } from '../core/stochastic/stochastic-stage.ts';
 import { predictResiduals } from './onnx-session.ts';
-import { applyUpdating, type UpdatingModel } from '../core/updating.ts';
-import { observationTimeRows } from '../core/updating-rows.ts';
+import { applyUpdating, type UpdatingModel } from '../core/correction/updating.ts';
+import { observationTimeRows } from '../core/correction/updating-rows.ts';
 
 export interface CorrectionOptions {
   stepSeconds: number;
@@ -43,7 +43,7 @@ export function rawAtLeads(run: RunInput): Float64Array {
 
 /**
  * The correction pipeline for one run: feature rows for all members × lead times, one batched
- * inference per bundled residual model, each model's corrected member (src/core/corrected-member.ts;
+ * inference per bundled residual model, each model's corrected member (src/core/correction/corrected-member.ts;
  * the reported ensemble is their mean over models), then the stochastic error stage over every (model, member) with the corrected-error archive. With no sessions the
  * stage runs on the raw members (degraded mode; the archive must then be the raw-error one).
  */

@@ -4,13 +4,13 @@
 // side-by-side verification of raw, corrected and stochastic, the ensemble-size study and the
 // stochastic-stage advice.
 import type { InferenceSession } from 'onnxruntime-node';
-import { archiveFromBytes } from '../core/archive-codec.ts';
+import { archiveFromBytes } from '../core/stochastic/archive-codec.ts';
 import { dayOfYearUtc } from '../core/day-of-year.ts';
-import { FeatureInputError, type RunInput } from '../core/features.ts';
-import { checkResidualSpec, continuousInputs, inputWidth, isSequenceSpec, requiredRunInputs, rowShape, servingInputs, specForcings, type ResidualSpec } from '../core/model-inputs.ts';
+import { FeatureInputError, type RunInput } from '../core/features/features.ts';
+import { checkResidualSpec, continuousInputs, inputWidth, isSequenceSpec, requiredRunInputs, rowShape, servingInputs, specForcings, type ResidualSpec } from '../core/features/model-inputs.ts';
 import { CancelledError } from '../core/cancelled.ts';
-import { correctedMember } from '../core/corrected-member.ts';
-import { createStochasticWorkspace } from '../core/stochastic-stage.ts';
+import { correctedMember } from '../core/correction/corrected-member.ts';
+import { createStochasticWorkspace } from '../core/stochastic/stochastic-stage.ts';
 import {
   adviseStochasticStage,
   createComparison,
@@ -27,8 +27,8 @@ import {
 } from '../core/verification/index.ts';
 import { createResidualSession, predictResiduals } from './onnx-session.ts';
 import type { ArchiveSeries } from '../core/archive-types.ts';
-import { applyUpdating, checkUpdatingModel } from '../core/updating.ts';
-import { updatingPassScores, type UpdatingByLead, type UpdatingPassCollector } from '../core/updating-verification.ts';
+import { applyUpdating, checkUpdatingModel } from '../core/correction/updating.ts';
+import { updatingPassScores, type UpdatingByLead, type UpdatingPassCollector } from '../core/correction/updating-verification.ts';
 
 export interface HindcastSettings {
   mode: 'simulation' | 'reforecast';

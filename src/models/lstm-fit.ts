@@ -6,10 +6,10 @@
 // the error archives. The export to the ONNX LSTM
 // operator must reproduce the trainer's forward pass on every stopping row (relative 1e-5)
 // before anything is handed back.
-import type { ErrorTransformSpec } from '../core/error-transform.ts';
-import { continuousInputs, rowShape } from '../core/model-inputs.ts';
+import type { ErrorTransformSpec } from '../core/stochastic/error-transform.ts';
+import { continuousInputs, rowShape } from '../core/features/model-inputs.ts';
 import { createPrng } from '../core/prng.ts';
-import { checkSequenceSpec, type SequenceSpec, type StepFeature } from '../core/sequence-spec.ts';
+import { checkSequenceSpec, type SequenceSpec, type StepFeature } from '../core/features/sequence-spec.ts';
 import { lstmModelToOnnx } from './lstm-onnx-export.ts';
 import { predictLstm } from './lstm/forward.ts';
 import type { LstmModel } from './lstm/model.ts';

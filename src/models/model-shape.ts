@@ -2,7 +2,7 @@
 // for both kinds of spec: flat rows [N, nFeatures] (trees, MLPs) and windows
 // [N, window, steps] (the usual PyTorch LSTM/GRU export).
 import type { InferenceSession } from 'onnxruntime-node';
-import { inputWidth, isSequenceSpec, rowShape, type ResidualSpec } from '../core/model-inputs.ts';
+import { inputWidth, isSequenceSpec, rowShape, type ResidualSpec } from '../core/features/model-inputs.ts';
 import type { OnnxSummary } from './onnx-inspect.ts';
 import { predictResiduals } from './onnx-session.ts';
 import type { ResidualPredictor } from './residual-evaluation.ts';

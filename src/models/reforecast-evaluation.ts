@@ -1,10 +1,10 @@
-import { correctedMember } from '../core/corrected-member.ts';
+import { correctedMember } from '../core/correction/corrected-member.ts';
 import { dayOfYearUtc } from '../core/day-of-year.ts';
-import { dressedArchiveFromRuns, type DressingSummary } from '../core/ensemble-dressing.ts';
-import { casesInLeadGroup, type ErrorArchive } from '../core/error-archive.ts';
-import type { ErrorTransformSpec } from '../core/error-transform.ts';
-import type { ReforecastIssue } from '../core/features.ts';
-import { reforecastInputs, requiredRunInputs, specForcings, type ResidualSpec } from '../core/model-inputs.ts';
+import { dressedArchiveFromRuns, type DressingSummary } from '../core/stochastic/ensemble-dressing.ts';
+import { casesInLeadGroup, type ErrorArchive } from '../core/stochastic/error-archive.ts';
+import type { ErrorTransformSpec } from '../core/stochastic/error-transform.ts';
+import type { ReforecastIssue } from '../core/features/features.ts';
+import { reforecastInputs, requiredRunInputs, specForcings, type ResidualSpec } from '../core/features/model-inputs.ts';
 import type { ArchiveSeries, ReforecastSet } from '../core/archive-types.ts';
 import { archiveSummary, type ResidualPredictor } from './residual-evaluation.ts';
 
@@ -202,7 +202,7 @@ function unusable(a: ErrorArchive, issues: number): string | null {
 /**
  * Per-lead error archives from the gauge's stored past runs (reforecasts): each issue is laid out
  * like a served run — the members' continuous simulations up to issue time as warm-up, then the
- * stored value per lead — corrected by the residual model(s) (src/core/corrected-member.ts: each
+ * stored value per lead — corrected by the residual model(s) (src/core/correction/corrected-member.ts: each
  * model's value clipped at zero, a bundle's mean over models, as serving and the lead-free archive),
  * and compared with the observations at the valid times. Each issue is
  * one row of the issue × lead matrix: its case at a lead is the ensemble mean's error, shrunk so
@@ -272,7 +272,7 @@ export async function evaluateReforecasts(
     const rows = reforecastInputs(spec, batch);
     if (!rows.nRows) continue;
     const cells = Int32Array.from({ length: rows.nRows }, (_, r) => ((u0 + rows.issue[r]) * nK + rows.member[r]) * L.H + rows.lead[r] - 1);
-    // A bundle's member: the mean of each model's clipped corrected value (src/core/corrected-member.ts).
+    // A bundle's member: the mean of each model's clipped corrected value (src/core/correction/corrected-member.ts).
     const sum = new Float64Array(rows.nRows);
     for (const predict of predictors) {
       const out = await predict(rows.rows, rows.nRows, rows.nFeatures);

@@ -1,12 +1,12 @@
-import { archiveToBytes } from '../core/archive-codec.ts';
-import { correctedMember } from '../core/corrected-member.ts';
+import { archiveToBytes } from '../core/stochastic/archive-codec.ts';
+import { correctedMember } from '../core/correction/corrected-member.ts';
 import { dayOfYearUtc } from '../core/day-of-year.ts';
-import { deterministicScores } from '../core/deterministic-scores.ts';
-import { buildArchiveFromSeries, templateShortfall, type ErrorArchive, type NeighbourSettings } from '../core/error-archive.ts';
-import { simulationErrorVariances } from '../core/lead-growth.ts';
-import { chooseNeighboursByHalves, type NeighbourScore } from '../core/neighbour-choice.ts';
-import type { ErrorTransformSpec } from '../core/error-transform.ts';
-import { continuousInputs, type ResidualSpec } from '../core/model-inputs.ts';
+import { deterministicScores } from '../core/scores/deterministic-scores.ts';
+import { buildArchiveFromSeries, templateShortfall, type ErrorArchive, type NeighbourSettings } from '../core/stochastic/error-archive.ts';
+import { simulationErrorVariances } from '../core/stochastic/lead-growth.ts';
+import { chooseNeighboursByHalves, type NeighbourScore } from '../core/stochastic/neighbour-choice.ts';
+import type { ErrorTransformSpec } from '../core/stochastic/error-transform.ts';
+import { continuousInputs, type ResidualSpec } from '../core/features/model-inputs.ts';
 import type { ArchiveSeries, Period } from '../core/archive-types.ts';
 
 /** Predicts residuals for row-major float32 feature rows (one function per bundled model). */
@@ -83,7 +83,7 @@ export async function evaluateResidualModel(
     // Rows at every time with complete inputs: the member itself stands in for the target,
     // which is not used here (an all-missing target would drop every row).
     const all = continuousInputs(spec, { times, sim, forcings: series.forcings, obs: sim });
-    // The member's corrected value per time (src/core/corrected-member.ts): each model's clipped
+    // The member's corrected value per time (src/core/correction/corrected-member.ts): each model's clipped
     // value, averaged over a bundle's models.
     const corrected = new Float64Array(times.length).fill(NaN);
     const pick: number[] = [];

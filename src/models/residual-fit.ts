@@ -1,7 +1,7 @@
-import type { ErrorTransformSpec } from '../core/error-transform.ts';
-import { continuousRows, makeFeatureSpec, type FeatureSpec } from '../core/features.ts';
+import type { ErrorTransformSpec } from '../core/stochastic/error-transform.ts';
+import { continuousRows, makeFeatureSpec, type FeatureSpec } from '../core/features/features.ts';
 import { CancelledError } from '../core/cancelled.ts';
-import { leadGrowthScale } from '../core/lead-growth.ts';
+import { leadGrowthScale } from '../core/stochastic/lead-growth.ts';
 import { createPrng } from '../core/prng.ts';
 import { treeModelToOnnx } from './onnx-export.ts';
 import { createResidualSession, predictResiduals } from './onnx-session.ts';

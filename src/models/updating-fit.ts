@@ -2,11 +2,11 @@
 // the residual-corrected continuous simulations read as forecasts issued every step. Candidates
 // with lead in their structure are fitted on block A, tree candidates stop early on block B, and
 // all are scored per lead on block C, which neither fitting nor early stopping saw.
-import { correctedMember } from '../core/corrected-member.ts';
+import { correctedMember } from '../core/correction/corrected-member.ts';
 import { dayOfYearUtc } from '../core/day-of-year.ts';
-import { archiveFromErrorMatrix, archiveStrata, stratumOf, type ErrorArchive } from '../core/error-archive.ts';
-import type { ErrorTransform } from '../core/error-transform.ts';
-import { continuousRows, type FeatureSpec } from '../core/features.ts';
+import { archiveFromErrorMatrix, archiveStrata, stratumOf, type ErrorArchive } from '../core/stochastic/error-archive.ts';
+import type { ErrorTransform } from '../core/stochastic/error-transform.ts';
+import { continuousRows, type FeatureSpec } from '../core/features/features.ts';
 import { createPrng } from '../core/prng.ts';
 import {
   ar1Multipliers,
@@ -23,7 +23,7 @@ import {
   type PseudoForecastCube,
   type ShiftPredictor,
   type UpdatingModel,
-} from '../core/updating.ts';
+} from '../core/correction/updating.ts';
 import type { PastRunValues } from './reforecast-evaluation.ts';
 import type { ArchiveSeries, Period } from '../core/archive-types.ts';
 import { archiveMembers, type ResidualPredictor } from './residual-evaluation.ts';
@@ -462,12 +462,12 @@ export function updatedArchive(
     }
   }
   // Errors in the transform; each issue row keeps its issue-time error, so the archive splits every
-  // lead into strata of it (src/core/error-archive.ts) and a run draws from its own stratum.
+  // lead into strata of it (src/core/stochastic/error-archive.ts) and a run draws from its own stratum.
   const errorMatrix = new Float64Array(rows * L).fill(NaN);
   for (let i = 0; i < rows * L; i++) errorMatrix[i] = transformedError(transform, observed[i], updated[i]);
   // Pseudo-forecast errors lack the forecast-forcing error. Where past runs measured its variance
   // τ_h², each lead's errors are scaled by g_h = √(1 + τ_h²/V_h), V_h their own variance, so their
-  // variance becomes V_h + τ_h² (the lead-free archive's lead growth, src/core/lead-growth.ts, applied
+  // variance becomes V_h + τ_h² (the lead-free archive's lead growth, src/core/stochastic/lead-growth.ts, applied
   // here to the updated errors because the stage applies it to lead-free archives only).
   const growth = forcingErrorVariance && forcingErrorVariance.length ? errorGrowth(errorMatrix, rows, L, forcingErrorVariance) : null;
   // (a copy: the builder fills template gaps in the matrix it is given)

@@ -4,11 +4,11 @@
 // worker pool (falling back to degraded when the model fails), shaped into the served view with
 // the recent observations, and stored in one transaction.
 import { createHash, randomUUID } from 'node:crypto';
-import { archiveReach, chooseArchive } from '../core/archive-choice.ts';
-import type { RunInput } from '../core/features.ts';
-import { checkResidualSpec, isSequenceSpec, requiredRunInputs, specForcings } from '../core/model-inputs.ts';
-import { warmupShortfall, withArchiveWarmup } from '../core/run-warmup.ts';
-import { DEFAULT_QUANTILE_PROBS } from '../core/stochastic-stage.ts';
+import { archiveReach, chooseArchive } from '../core/stochastic/archive-choice.ts';
+import type { RunInput } from '../core/features/features.ts';
+import { checkResidualSpec, isSequenceSpec, requiredRunInputs, specForcings } from '../core/features/model-inputs.ts';
+import { warmupShortfall, withArchiveWarmup } from '../core/features/run-warmup.ts';
+import { DEFAULT_QUANTILE_PROBS } from '../core/stochastic/stochastic-stage.ts';
 import type { Config } from '../config.ts';
 import { listMembers, readObservations } from '../store/archive-repo.ts';
 import type { Db, Queryable } from '../store/db.ts';

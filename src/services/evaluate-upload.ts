@@ -2,10 +2,10 @@
 // feature spec, its input and output shapes), run over the gauge's validation period in a compute
 // worker to score it and build its error archives, and stored as a new version only when all of
 // that succeeds; a refusal names the body field and stores nothing.
-import { FeatureInputError } from '../core/features.ts';
-import { checkResidualSpec, specForcings } from '../core/model-inputs.ts';
+import { FeatureInputError } from '../core/features/features.ts';
+import { checkResidualSpec, specForcings } from '../core/features/model-inputs.ts';
 import { modelShapeProblems } from '../models/model-shape.ts';
-import type { ErrorTransformSpec } from '../core/error-transform.ts';
+import type { ErrorTransformSpec } from '../core/stochastic/error-transform.ts';
 import { inspectOnnx, OnnxInspectError } from '../models/onnx-inspect.ts';
 import { loadArchiveSeries, loadReforecastSet } from '../store/archive-series.ts';
 import type { Db } from '../store/db.ts';

@@ -3,9 +3,9 @@
 // tuning and ONNX export run in a compute worker (src/models/residual-fit.ts); so does the in-house
 // LSTM (src/models/lstm-fit.ts, trainer 'lstm').
 import { z } from 'zod';
-import { archiveToBytes } from '../core/archive-codec.ts';
+import { archiveToBytes } from '../core/stochastic/archive-codec.ts';
 import type { ArchiveSeries, Period } from '../core/archive-types.ts';
-import type { ErrorTransform } from '../core/error-transform.ts';
+import type { ErrorTransform } from '../core/stochastic/error-transform.ts';
 import { defaultLstmSpace, type LstmFitOptions } from '../models/lstm-fit.ts';
 import { rawArchiveFromReforecasts, type ReforecastScores } from '../models/reforecast-evaluation.ts';
 import { defaultBoostingSpace, defaultForestSpace, splitValidation, type FitOptions } from '../models/residual-fit.ts';

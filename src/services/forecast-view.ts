@@ -1,5 +1,5 @@
 import { formatDurationSeconds } from '../core/iso-duration.ts';
-import { COARSE_TRAJECTORIES, monteCarloStandardError } from '../core/stochastic-stage.ts';
+import { COARSE_TRAJECTORIES, monteCarloStandardError } from '../core/stochastic/stochastic-stage.ts';
 import { CAUTION } from './caution.ts';
 import { isoUtc } from './series-input.ts';
 

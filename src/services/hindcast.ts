@@ -3,7 +3,7 @@
 // the period in a compute worker (src/models/hindcast-compute.ts, pure verification in
 // src/core/verification/hindcast.ts), and assembles the stored result with its warnings.
 import type { Period } from '../core/archive-types.ts';
-import { checkResidualSpec, requiredRunInputs } from '../core/model-inputs.ts';
+import { checkResidualSpec, requiredRunInputs } from '../core/features/model-inputs.ts';
 import { formatDurationSeconds } from '../core/iso-duration.ts';
 import type { SourceName } from '../core/verification/index.ts';
 import type { HindcastOutput, HindcastSettings } from '../models/hindcast-compute.ts';

@@ -1,14 +1,14 @@
 // Serving side of issue-time updating: whether a run is updated, on which observation, with which
 // error archive, and what the answer says about it. Reads only observations at or before the run's
 // issue time.
-import { FeatureInputError, checkFeatureSpec, type RunInput } from '../core/features.ts';
-import { chooseIssueObservation, type IssueObservation } from '../core/issue-observation.ts';
-import { checkUpdatingModel, updatingWarmupProblem, type UpdatingModel } from '../core/updating.ts';
-import { observationTimeRows } from '../core/updating-rows.ts';
+import { FeatureInputError, checkFeatureSpec, type RunInput } from '../core/features/features.ts';
+import { chooseIssueObservation, type IssueObservation } from '../core/correction/issue-observation.ts';
+import { checkUpdatingModel, updatingWarmupProblem, type UpdatingModel } from '../core/correction/updating.ts';
+import { observationTimeRows } from '../core/correction/updating-rows.ts';
 import type { Queryable } from '../store/db.ts';
 import { readObservations } from '../store/archive-repo.ts';
 import { versionArchiveInfo, type ArchiveInfo } from '../store/models-repo.ts';
-import { archiveReach } from '../core/archive-choice.ts';
+import { archiveReach } from '../core/stochastic/archive-choice.ts';
 
 export interface UpdatingAnswer {
   status: 'on' | 'off';

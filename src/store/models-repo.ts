@@ -16,7 +16,7 @@ export interface ModelVersion {
   active: boolean;
   activatedAt: string | null;
   parts: number;
-  /** The issue-time updater (src/core/updating.ts), or null when the version does not update. */
+  /** The issue-time updater (src/core/correction/updating.ts), or null when the version does not update. */
   updating: unknown;
 }
 

@@ -1,6 +1,6 @@
 import type { z } from 'zod';
 import type { Queryable } from './db.ts';
-import { chooseArchive } from '../core/archive-choice.ts';
+import { chooseArchive } from '../core/stochastic/archive-choice.ts';
 import { decodePercentiles } from './forecasts-repo.ts';
 import { ArchiveSummary, RunEnsembles, RunIssuedThresholds, RunValidTimes } from './json-columns.ts';
 
@@ -133,7 +133,7 @@ export interface ChosenArchive {
 
 /**
  * The archive serving would use for a run of nLeads lead times (the rule of POST /gauges/:id/runs,
- * src/core/archive-choice.ts). Also the farthest reach of the two.
+ * src/core/stochastic/archive-choice.ts). Also the farthest reach of the two.
  */
 export async function correctedArchiveFor(db: Queryable, versionId: string, nLeads: number, minPerLeadRuns?: number): Promise<{ archive: ChosenArchive | null; maxReach: number }> {
   const { rows } = await db.query<{ id: string; lead_mode: 'lead-free' | 'per-lead'; summary: unknown; bytes: Uint8Array }>(

@@ -1,4 +1,4 @@
-import type { WarmupSlice } from '../core/run-warmup.ts';
+import type { WarmupSlice } from '../core/features/run-warmup.ts';
 import { readForcings, readSimulations } from './archive-repo.ts';
 import type { Queryable } from './db.ts';
 

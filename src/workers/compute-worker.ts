@@ -1,8 +1,8 @@
 // Runs CPU-heavy work (fitting, evaluating uploaded models, building archives) off the event loop.
 // Receives one task in workerData, posts {type:'progress'} messages and one {type:'done'|'error'}.
 import { parentPort, workerData } from 'node:worker_threads';
-import { archiveToBytes } from '../core/archive-codec.ts';
-import { checkResidualSpec } from '../core/model-inputs.ts';
+import { archiveToBytes } from '../core/stochastic/archive-codec.ts';
+import { checkResidualSpec } from '../core/features/model-inputs.ts';
 import { CancelledError } from '../core/cancelled.ts';
 import { computeHindcast } from '../models/hindcast-compute.ts';
 import { fitLstmResidualModel } from '../models/lstm-fit.ts';

@@ -1,5 +1,5 @@
 import { Worker } from 'node:worker_threads';
-import type { RunInput } from '../core/features.ts';
+import type { RunInput } from '../core/features/features.ts';
 import type { CorrectionOptions } from '../models/correct-run.ts';
 import type { CorrectionReply, CorrectionRequest, CorrectionResult, WorkerStart } from './protocol.ts';
 

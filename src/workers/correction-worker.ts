@@ -2,11 +2,11 @@
 // (creating and dropping sessions repeatedly leaks memory in onnxruntime), and corrects runs.
 import { parentPort } from 'node:worker_threads';
 import type { InferenceSession } from 'onnxruntime-node';
-import { archiveFromBytes } from '../core/archive-codec.ts';
-import type { ErrorArchive } from '../core/error-archive.ts';
-import { FeatureInputError } from '../core/features.ts';
-import { checkResidualSpec, type ResidualSpec } from '../core/model-inputs.ts';
-import { createStochasticWorkspace } from '../core/stochastic-stage.ts';
+import { archiveFromBytes } from '../core/stochastic/archive-codec.ts';
+import type { ErrorArchive } from '../core/stochastic/error-archive.ts';
+import { FeatureInputError } from '../core/features/features.ts';
+import { checkResidualSpec, type ResidualSpec } from '../core/features/model-inputs.ts';
+import { createStochasticWorkspace } from '../core/stochastic/stochastic-stage.ts';
 import { correctRun } from '../models/correct-run.ts';
 import { warmSession } from '../models/model-shape.ts';
 import { createResidualSession } from '../models/onnx-session.ts';

@@ -3,7 +3,7 @@
 // and compute workers (one per task, compute-worker.ts). Both tell a stop on request from a failure
 // by the `cancelled` flag, which the main thread turns back into core's CancelledError.
 import type { ArchiveSeries, Period, ReforecastSet } from '../core/archive-types.ts';
-import type { RunInput } from '../core/features.ts';
+import type { RunInput } from '../core/features/features.ts';
 import type { CorrectionOptions } from '../models/correct-run.ts';
 import type { HindcastTaskInput } from '../models/hindcast-compute.ts';
 import type { ArchiveOptions } from '../models/residual-evaluation.ts';

@@ -1,6 +1,6 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { crpsEnsemble } from '../../src/core/crps.ts';
-import { crpsGaussian } from '../../src/core/crps-gaussian.ts';
+import { crpsEnsemble } from '../../src/core/scores/crps.ts';
+import { crpsGaussian } from '../../src/core/scores/crps-gaussian.ts';
 import { createPrng } from '../../src/core/prng.ts';
 import { jobHandlers } from '../../src/jobs/handlers.ts';
 import { JobRunner } from '../../src/jobs/runner.ts';

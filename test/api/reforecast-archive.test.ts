@@ -4,8 +4,8 @@
 // of the validation period, observed leads), not taken from the service.
 import { readFileSync } from 'node:fs';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { archiveFromBytes } from '../../src/core/archive-codec.ts';
-import type { ErrorArchive } from '../../src/core/error-archive.ts';
+import { archiveFromBytes } from '../../src/core/stochastic/archive-codec.ts';
+import type { ErrorArchive } from '../../src/core/stochastic/error-archive.ts';
 import { jobHandlers } from '../../src/jobs/handlers.ts';
 import { JobRunner } from '../../src/jobs/runner.ts';
 import { loadScenarioArchive } from '../../src/scenario/load-archive.ts';

@@ -3,7 +3,7 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { CAUTION } from '../../src/services/caution.ts';
 import { buildForecastView } from '../../src/services/forecast-view.ts';
-import { crpsEnsemble } from '../../src/core/crps.ts';
+import { crpsEnsemble } from '../../src/core/scores/crps.ts';
 import { insertRun } from '../../src/store/forecasts-repo.ts';
 import { getGauge } from '../../src/store/gauges-repo.ts';
 import { makeTestApp, type TestApp } from '../helpers/test-app.ts';

@@ -1,5 +1,5 @@
 import { describe, expect, it } from 'vitest';
-import { chooseArchive, MIN_PER_LEAD_RUNS, type ArchiveOption } from '../../src/core/archive-choice.ts';
+import { chooseArchive, MIN_PER_LEAD_RUNS, type ArchiveOption } from '../../src/core/stochastic/archive-choice.ts';
 
 const perLead = (issues: number, nLeads = 10): ArchiveOption => ({ leadMode: 'per-lead', summary: { nLeads, issues } });
 const leadFree = (templateLength = 30): ArchiveOption => ({ leadMode: 'lead-free', summary: { templateLength } });

@@ -1,5 +1,5 @@
 import { describe, expect, it } from 'vitest';
-import { brierDecomposition, brierScores } from '../../src/core/brier.ts';
+import { brierDecomposition, brierScores } from '../../src/core/scores/brier.ts';
 import { createPrng } from '../../src/core/prng.ts';
 
 describe('Brier score and Murphy (1973) decomposition', () => {

@@ -1,9 +1,9 @@
 import { readFileSync } from 'node:fs';
 import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
-import { crpsEnsemble, crpsPerCase, crpsSorted, crpsWeighted, meanCrps } from '../../src/core/crps.ts';
-import { crpsGaussian } from '../../src/core/crps-gaussian.ts';
-import { normalQuantile } from '../../src/core/normal.ts';
+import { crpsEnsemble, crpsPerCase, crpsSorted, crpsWeighted, meanCrps } from '../../src/core/scores/crps.ts';
+import { crpsGaussian } from '../../src/core/scores/crps-gaussian.ts';
+import { normalQuantile } from '../../src/core/scores/normal.ts';
 
 const ref = JSON.parse(readFileSync(new URL('../fixtures/scores/reference.json', import.meta.url), 'utf8'));
 

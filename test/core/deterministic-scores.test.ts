@@ -1,6 +1,6 @@
 import { readFileSync } from 'node:fs';
 import { describe, expect, it } from 'vitest';
-import { deterministicScores } from '../../src/core/deterministic-scores.ts';
+import { deterministicScores } from '../../src/core/scores/deterministic-scores.ts';
 
 // numpy reference (Debian python3-numpy 1.24.2), made by test/fixtures/scores/make.py.
 const ref = JSON.parse(readFileSync(new URL('../fixtures/scores/reference.json', import.meta.url), 'utf8'));

@@ -1,8 +1,8 @@
 import { describe, expect, it } from 'vitest';
-import { dressedArchiveFromRuns } from '../../src/core/ensemble-dressing.ts';
-import { buildArchiveFromReforecasts, type ErrorArchive } from '../../src/core/error-archive.ts';
+import { dressedArchiveFromRuns } from '../../src/core/stochastic/ensemble-dressing.ts';
+import { buildArchiveFromReforecasts, type ErrorArchive } from '../../src/core/stochastic/error-archive.ts';
 import { createPrng } from '../../src/core/prng.ts';
-import { runStochasticStage } from '../../src/core/stochastic-stage.ts';
+import { runStochasticStage } from '../../src/core/stochastic/stochastic-stage.ts';
 
 // A calibrated synthetic ensemble (invented process): per issue and lead a centre μ ~ U(30, 90); the
 // observation and each of M members are independent draws from N(μ, 4²), so the observation is

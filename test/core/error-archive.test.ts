@@ -1,8 +1,8 @@
 import { describe, expect, it } from 'vitest';
-import { buildArchiveFromReforecasts, buildArchiveFromSeries, MISSING_RANK, validateArchive, archiveBuffers } from '../../src/core/error-archive.ts';
-import { archiveFromBytes, archiveFromJSON, archiveToBytes, archiveToJSON } from '../../src/core/archive-codec.ts';
-import { forwardTransform, inverseTransform, resolveTransform } from '../../src/core/error-transform.ts';
-import { runStochasticStage } from '../../src/core/stochastic-stage.ts';
+import { buildArchiveFromReforecasts, buildArchiveFromSeries, MISSING_RANK, validateArchive, archiveBuffers } from '../../src/core/stochastic/error-archive.ts';
+import { archiveFromBytes, archiveFromJSON, archiveToBytes, archiveToJSON } from '../../src/core/stochastic/archive-codec.ts';
+import { forwardTransform, inverseTransform, resolveTransform } from '../../src/core/stochastic/error-transform.ts';
+import { runStochasticStage } from '../../src/core/stochastic/stochastic-stage.ts';
 import { createPrng } from '../../src/core/prng.ts';
 
 function smallSeries() {

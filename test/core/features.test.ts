@@ -10,8 +10,8 @@ import {
   reforecastRows,
   requiredInputs,
   servingRows,
-} from '../../src/core/features.ts';
-import type { FeatureSpec, RunInput } from '../../src/core/features.ts';
+} from '../../src/core/features/features.ts';
+import type { FeatureSpec, RunInput } from '../../src/core/features/features.ts';
 
 const DAY = 86_400_000;
 const T0 = Date.UTC(2021, 0, 1);

@@ -1,5 +1,5 @@
 import { describe, expect, it } from 'vitest';
-import { hersbachDecomposition } from '../../src/core/hersbach.ts';
+import { hersbachDecomposition } from '../../src/core/scores/hersbach.ts';
 import { createPrng } from '../../src/core/prng.ts';
 
 function randomCases(seed: number, nCases: number, m: number, bias: number, spread: number) {

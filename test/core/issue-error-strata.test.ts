@@ -1,8 +1,8 @@
 import { describe, expect, it } from 'vitest';
-import { archiveFromBytes, archiveToBytes } from '../../src/core/archive-codec.ts';
-import { archiveFromErrorMatrix, archiveStrata } from '../../src/core/error-archive.ts';
+import { archiveFromBytes, archiveToBytes } from '../../src/core/stochastic/archive-codec.ts';
+import { archiveFromErrorMatrix, archiveStrata } from '../../src/core/stochastic/error-archive.ts';
 import { createPrng } from '../../src/core/prng.ts';
-import { runStochasticStage } from '../../src/core/stochastic-stage.ts';
+import { runStochasticStage } from '../../src/core/stochastic/stochastic-stage.ts';
 
 // Invented process: past runs whose remaining error at lead 1 has a spread that grows with the
 // size of the error at issue time, sd = 0.5 + |e₀| (e₀ ~ N(0, 1)), independent of the flow.

@@ -1,8 +1,8 @@
 import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
-import { defaultK, harmonicCumulative, lallSharmaWeights, nearestSorted, pickKernelIndex, circularDayDistance } from '../../src/core/knn.ts';
-import { schaakeShuffle } from '../../src/core/schaake.ts';
-import { radixOrder, sortNonNegative } from '../../src/core/radix-sort.ts';
+import { defaultK, harmonicCumulative, lallSharmaWeights, nearestSorted, pickKernelIndex, circularDayDistance } from '../../src/core/stochastic/knn.ts';
+import { schaakeShuffle } from '../../src/core/stochastic/schaake.ts';
+import { radixOrder, sortNonNegative } from '../../src/core/stochastic/radix-sort.ts';
 import { createPrng } from '../../src/core/prng.ts';
 
 describe('kNN (Lall & Sharma 1996)', () => {

@@ -1,8 +1,8 @@
 import { describe, expect, it } from 'vitest';
-import { buildArchiveFromSeries } from '../../src/core/error-archive.ts';
-import { leadGrowthScale } from '../../src/core/lead-growth.ts';
+import { buildArchiveFromSeries } from '../../src/core/stochastic/error-archive.ts';
+import { leadGrowthScale } from '../../src/core/stochastic/lead-growth.ts';
 import { createPrng } from '../../src/core/prng.ts';
-import { runStochasticStage } from '../../src/core/stochastic-stage.ts';
+import { runStochasticStage } from '../../src/core/stochastic/stochastic-stage.ts';
 
 describe('error growth with lead time for lead-free archives', () => {
   it('g_h = √(1 + max(0, F_h − V̄)/V_m), worked by hand', () => {

@@ -1,10 +1,10 @@
 import fc from 'fast-check';
 import { describe, it } from 'vitest';
-import { brierScores } from '../../src/core/brier.ts';
-import { crpsPerCase } from '../../src/core/crps.ts';
-import { hersbachDecomposition } from '../../src/core/hersbach.ts';
-import { intervalCoverage } from '../../src/core/interval-coverage.ts';
-import { pitValues } from '../../src/core/pit.ts';
+import { brierScores } from '../../src/core/scores/brier.ts';
+import { crpsPerCase } from '../../src/core/scores/crps.ts';
+import { hersbachDecomposition } from '../../src/core/scores/hersbach.ts';
+import { intervalCoverage } from '../../src/core/scores/interval-coverage.ts';
+import { pitValues } from '../../src/core/scores/pit.ts';
 
 // Property: every ensemble score depends on the members as a set, not on their order.
 const cases = fc

@@ -1,8 +1,8 @@
 import { describe, expect, it } from 'vitest';
-import { buildArchiveFromSeries } from '../../src/core/error-archive.ts';
-import { chooseNeighbourSettings, chooseNeighboursByHalves, scoreNeighbourSettings } from '../../src/core/neighbour-choice.ts';
+import { buildArchiveFromSeries } from '../../src/core/stochastic/error-archive.ts';
+import { chooseNeighbourSettings, chooseNeighboursByHalves, scoreNeighbourSettings } from '../../src/core/stochastic/neighbour-choice.ts';
 import { createPrng } from '../../src/core/prng.ts';
-import { runStochasticStage } from '../../src/core/stochastic-stage.ts';
+import { runStochasticStage } from '../../src/core/stochastic/stochastic-stage.ts';
 
 /** Cases x ~ U(10, 100) with errors N(0, (0.5 + 0.02x)²): error spread grows with flow (invented process). */
 function cases(seed: number, n: number) {

@@ -1,6 +1,6 @@
 import { readFileSync } from 'node:fs';
 import { describe, expect, it } from 'vitest';
-import { erfc, normalCdf, normalPdf, normalQuantile } from '../../src/core/normal.ts';
+import { erfc, normalCdf, normalPdf, normalQuantile } from '../../src/core/scores/normal.ts';
 
 // Reference values from Debian's python3-scipy 1.10.1 (scipy.special.ndtr, erfc, ndtri),
 // made by test/fixtures/quantiles/make.py.

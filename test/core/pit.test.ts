@@ -1,9 +1,9 @@
 import { describe, expect, it } from 'vitest';
-import { alphaIndex } from '../../src/core/alpha-index.ts';
-import { pitQQ } from '../../src/core/pit-qq.ts';
-import { pitValues } from '../../src/core/pit.ts';
-import { rankHistogram } from '../../src/core/rank-histogram.ts';
-import { intervalCoverage } from '../../src/core/interval-coverage.ts';
+import { alphaIndex } from '../../src/core/scores/alpha-index.ts';
+import { pitQQ } from '../../src/core/scores/pit-qq.ts';
+import { pitValues } from '../../src/core/scores/pit.ts';
+import { rankHistogram } from '../../src/core/scores/rank-histogram.ts';
+import { intervalCoverage } from '../../src/core/scores/interval-coverage.ts';
 import { createPrng } from '../../src/core/prng.ts';
 
 describe('PIT, alpha index, QQ data, rank histogram, interval coverage', () => {

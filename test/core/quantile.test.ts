@@ -1,8 +1,8 @@
 import { readFileSync } from 'node:fs';
 import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
-import { quantiles, quantileSorted, sortedFinite } from '../../src/core/quantile.ts';
-import { countAboveSorted, exceedanceProbability } from '../../src/core/exceedance.ts';
+import { quantiles, quantileSorted, sortedFinite } from '../../src/core/scores/quantile.ts';
+import { countAboveSorted, exceedanceProbability } from '../../src/core/scores/exceedance.ts';
 
 // Reference values made by Debian's python3-numpy 1.24.2 (numpy.quantile, method='linear',
 // Hyndman & Fan 1996 definition 7) with test/fixtures/quantiles/make.py.

@@ -1,9 +1,9 @@
 import { describe, expect, it } from 'vitest';
-import { buildArchiveFromSeries, type ErrorArchive } from '../../src/core/error-archive.ts';
-import { kernelCumulative, kernelEffectiveSize } from '../../src/core/knn.ts';
+import { buildArchiveFromSeries, type ErrorArchive } from '../../src/core/stochastic/error-archive.ts';
+import { kernelCumulative, kernelEffectiveSize } from '../../src/core/stochastic/knn.ts';
 import { createPrng } from '../../src/core/prng.ts';
-import { schaakeShuffle } from '../../src/core/schaake.ts';
-import { monteCarloStandardError, runStochasticStage } from '../../src/core/stochastic-stage.ts';
+import { schaakeShuffle } from '../../src/core/stochastic/schaake.ts';
+import { monteCarloStandardError, runStochasticStage } from '../../src/core/stochastic/stochastic-stage.ts';
 
 /** Lead-free archive whose errors are a stationary AR(1) (φ, σ), independent of the flow (invented process). */
 function ar1Archive(seed: number, S: number, phi: number, sigma: number, templateLength: number): ErrorArchive {

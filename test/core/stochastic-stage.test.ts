@@ -1,12 +1,12 @@
 import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
-import { nearestSorted } from '../../src/core/knn.ts';
-import { buildArchiveFromReforecasts, buildArchiveFromSeries, type ErrorArchive } from '../../src/core/error-archive.ts';
-import { createStochasticWorkspace, runStochasticStage } from '../../src/core/stochastic-stage.ts';
+import { nearestSorted } from '../../src/core/stochastic/knn.ts';
+import { buildArchiveFromReforecasts, buildArchiveFromSeries, type ErrorArchive } from '../../src/core/stochastic/error-archive.ts';
+import { createStochasticWorkspace, runStochasticStage } from '../../src/core/stochastic/stochastic-stage.ts';
 import { createPrng } from '../../src/core/prng.ts';
-import { quantiles } from '../../src/core/quantile.ts';
-import { forwardTransform, inverseTransform } from '../../src/core/error-transform.ts';
-import { normalQuantile } from '../../src/core/normal.ts';
+import { quantiles } from '../../src/core/scores/quantile.ts';
+import { forwardTransform, inverseTransform } from '../../src/core/stochastic/error-transform.ts';
+import { normalQuantile } from '../../src/core/scores/normal.ts';
 
 /** 9 cases with predictors 1 … 9 and errors 100·predictor, so a drawn value names its case. */
 function tinyArchive(dayOfYear?: number[]): ErrorArchive {

@@ -14,11 +14,11 @@ import {
   scoreShifts,
   updatingWarmupProblem,
   type UpdatingModel,
-} from '../../src/core/updating.ts';
-import { makeFeatureSpec } from '../../src/core/features.ts';
-import { chooseIssueObservation } from '../../src/core/issue-observation.ts';
-import { archiveStrata, stratumOf } from '../../src/core/error-archive.ts';
-import type { ErrorTransform } from '../../src/core/error-transform.ts';
+} from '../../src/core/correction/updating.ts';
+import { makeFeatureSpec } from '../../src/core/features/features.ts';
+import { chooseIssueObservation } from '../../src/core/correction/issue-observation.ts';
+import { archiveStrata, stratumOf } from '../../src/core/stochastic/error-archive.ts';
+import type { ErrorTransform } from '../../src/core/stochastic/error-transform.ts';
 import { defaultLeadBands, defaultUpdatingLeads, fitUpdatingFromSeries } from '../../src/models/updating-fit.ts';
 
 const LOG: ErrorTransform = { kind: 'log', offset: 1 };
@@ -221,7 +221,7 @@ describe('the observation a run is updated on', () => {
 });
 
 describe('forecast-forcing error in the updated archive', () => {
-  it('adds the past runs\' τ² to each lead\'s error variance (g = √(1 + τ²/V), derived in src/core/lead-growth.ts)', () => {
+  it('adds the past runs\' τ² to each lead\'s error variance (g = √(1 + τ²/V), derived in src/core/stochastic/lead-growth.ts)', () => {
     const s = synthetic(3000, 0.9, 4, 31);
     const o = { mode: 'on' as const, leads: 3, leadBands: null, history: 2, trees: false, seed: 1, maxTrainRows: 20_000 };
     const period = { fromMs: s.times[0], toMs: s.times[2999] + 1 };

@@ -1,9 +1,9 @@
 import { describe, expect, it } from 'vitest';
 import { yearFraction } from '../../src/core/day-of-year.ts';
-import { FeatureInputError } from '../../src/core/feature-spec.ts';
-import { checkResidualSpec, inputWidth, requiredRunInputs, rowShape } from '../../src/core/model-inputs.ts';
-import { checkSequenceSpec, type SequenceSpec } from '../../src/core/sequence-spec.ts';
-import { continuousWindows, reforecastWindows, servingWindows } from '../../src/core/windows.ts';
+import { FeatureInputError } from '../../src/core/features/feature-spec.ts';
+import { checkResidualSpec, inputWidth, requiredRunInputs, rowShape } from '../../src/core/features/model-inputs.ts';
+import { checkSequenceSpec, type SequenceSpec } from '../../src/core/features/sequence-spec.ts';
+import { continuousWindows, reforecastWindows, servingWindows } from '../../src/core/features/windows.ts';
 
 const DAY = 86_400_000;
 const T0 = Date.UTC(2021, 2, 1);
@@ -130,7 +130,7 @@ describe('windows', () => {
 
 describe('warm-up from the archive', () => {
   it('puts archived values in front of a short run so the windows equal the continuous ones', async () => {
-    const { withArchiveWarmup, warmupShortfall } = await import('../../src/core/run-warmup.ts');
+    const { withArchiveWarmup, warmupShortfall } = await import('../../src/core/features/run-warmup.ts');
     const n = 14;
     const times = Array.from({ length: n }, (_, i) => T0 + i * DAY);
     const sim = Array.from({ length: n }, (_, i) => 5 + i * i * 0.1);

@@ -1,4 +1,4 @@
-// One definition of the corrected member (src/core/corrected-member.ts) for a two-model bundle where
+// One definition of the corrected member (src/core/correction/corrected-member.ts) for a two-model bundle where
 // clipping at zero bites: serving, the lead-free error archive, the per-lead error archive and the
 // hindcast must all see the same member values. The numbers are worked by hand (no outside source
 // needed): simulated 2 m3/s with residuals −5 and +1 gives per-model values max(0, −3) = 0 and
@@ -6,9 +6,9 @@
 // max(0, 2 + (−5 + 1)/2) = 0.
 import { describe, expect, it } from 'vitest';
 import type { ArchiveSeries, ReforecastSet } from '../../src/core/archive-types.ts';
-import { correctedMember } from '../../src/core/corrected-member.ts';
-import { makeFeatureSpec } from '../../src/core/features.ts';
-import { createStochasticWorkspace } from '../../src/core/stochastic-stage.ts';
+import { correctedMember } from '../../src/core/correction/corrected-member.ts';
+import { makeFeatureSpec } from '../../src/core/features/features.ts';
+import { createStochasticWorkspace } from '../../src/core/stochastic/stochastic-stage.ts';
 import { correctRun } from '../../src/models/correct-run.ts';
 import { computeHindcast } from '../../src/models/hindcast-compute.ts';
 import { treeModelToOnnx } from '../../src/models/onnx-export.ts';
@@ -16,7 +16,7 @@ import { createResidualSession } from '../../src/models/onnx-session.ts';
 import { evaluateReforecasts } from '../../src/models/reforecast-evaluation.ts';
 import { evaluateResidualModel, type ResidualPredictor } from '../../src/models/residual-evaluation.ts';
 import type { TreeModel } from '../../src/models/trees/types.ts';
-import { archiveToBytes } from '../../src/core/archive-codec.ts';
+import { archiveToBytes } from '../../src/core/stochastic/archive-codec.ts';
 
 const DAY = 86_400_000;
 const T0 = Date.UTC(2020, 0, 1);
@@ -57,7 +57,7 @@ describe('the corrected member of a two-model bundle where clipping at zero bite
 
   it('the lead-free error archive holds the clip-then-average member', async () => {
     const e = await evaluateResidualModel(series, spec, validation, RESIDUALS.map(constant), { transform: { kind: 'none' }, templateLength: 10 });
-    // predictor[i] is the corrected flow of case i (src/core/error-archive.ts).
+    // predictor[i] is the corrected flow of case i (src/core/stochastic/error-archive.ts).
     expect(e.correctedArchive.predictor.length).toBeGreaterThan(200);
     expect(new Set(e.correctedArchive.predictor)).toEqual(new Set([BUNDLE_MEMBER]));
   });

@@ -4,8 +4,8 @@
 // core functions) so the page shows a coherent picture. Nothing here is checked against outside values.
 import type { ForecastView } from '../../src/services/forecast-view.ts';
 import { createPrng } from '../../src/core/prng.ts';
-import { exceedanceProbability } from '../../src/core/exceedance.ts';
-import { quantiles } from '../../src/core/quantile.ts';
+import { exceedanceProbability } from '../../src/core/scores/exceedance.ts';
+import { quantiles } from '../../src/core/scores/quantile.ts';
 
 export const CAUTION =
   'Guidance only: computed forecasts carry uncertainty. Flood warnings are decided by the responsible local authority.';

@@ -1,5 +1,5 @@
 import { createPrng } from '../prng.ts';
-import { quantileSorted } from '../quantile.ts';
+import { quantileSorted } from '../scores/quantile.ts';
 
 /**
  * Moving-block bootstrap over issue times (Künsch 1989). The forecasts of neighbouring issues

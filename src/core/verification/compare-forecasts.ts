@@ -1,9 +1,9 @@
-import { alphaIndex, finiteSorted } from '../alpha-index.ts';
-import { brierDecomposition, type BrierResult } from '../brier.ts';
-import { deterministicScores } from '../deterministic-scores.ts';
+import { alphaIndex, finiteSorted } from '../scores/alpha-index.ts';
+import { brierDecomposition, type BrierResult } from '../scores/brier.ts';
+import { deterministicScores } from '../scores/deterministic-scores.ts';
 import { createPrng } from '../prng.ts';
-import { quantileSorted } from '../quantile.ts';
-import { rankHistogram } from '../rank-histogram.ts';
+import { quantileSorted } from '../scores/quantile.ts';
+import { rankHistogram } from '../scores/rank-histogram.ts';
 import { SOURCE_NAMES, sourceValues, type SourceName, type VerificationCase } from './case.ts';
 import { GrowableF64 } from './growable.ts';
 import { jsonNumber } from './json-number.ts';

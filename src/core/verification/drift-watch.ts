@@ -1,4 +1,4 @@
-import { crpsSorted } from '../crps.ts';
+import { crpsSorted } from '../scores/crps.ts';
 import { createPrng } from '../prng.ts';
 import { binomialLowerTail } from './binomial.ts';
 import { sourceValues, type SourceName, type VerificationCase } from './case.ts';

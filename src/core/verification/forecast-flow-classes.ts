@@ -1,4 +1,4 @@
-import { quantileSorted } from '../quantile.ts';
+import { quantileSorted } from '../scores/quantile.ts';
 
 /**
  * Scores by forecast flow class. Cases are grouped by what the forecast said — the terciles of

@@ -1,4 +1,4 @@
-import { crpsSorted } from '../crps.ts';
+import { crpsSorted } from '../scores/crps.ts';
 import { GrowableF64 } from './growable.ts';
 
 /**
@@ -33,7 +33,7 @@ export interface HersbachDecomposition {
 /**
  * Hersbach (2000) CRPS decomposition gathered case by case, so a hindcast never has to hold
  * every ensemble in memory. Same bins, clipping and outlier rules as hersbachDecomposition
- * (src/core/hersbach.ts); only the per-bin sums are kept, plus one observation per case for the
+ * (src/core/scores/hersbach.ts); only the per-bin sums are kept, plus one observation per case for the
  * uncertainty term. All cases must have the same member count N (the bins are p_i = i/N).
  */
 export class HersbachAccumulator {

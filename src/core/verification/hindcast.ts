@@ -1,10 +1,10 @@
-import type { ErrorArchive } from '../error-archive.ts';
+import type { ErrorArchive } from '../stochastic/error-archive.ts';
 import {
   createStochasticWorkspace,
   runStochasticStage,
   type StochasticOptions,
   type StochasticWorkspace,
-} from '../stochastic-stage.ts';
+} from '../stochastic/stochastic-stage.ts';
 import type { VerificationCase } from './case.ts';
 
 /**

@@ -1,6 +1,6 @@
 /**
  * PIT of y among ascending-sorted values x[0 … m−1], randomised among ties — the same rule as
- * pitValues (src/core/pit.ts): (below + u·(ties + 1))/(m + 1), u uniform in [0, 1). Exactly
+ * pitValues (src/core/scores/pit.ts): (below + u·(ties + 1))/(m + 1), u uniform in [0, 1). Exactly
  * uniform for an exchangeable (calibrated) ensemble of any size. Binary search: O(log m).
  */
 export function pitFromSorted(sorted: ArrayLike<number>, m: number, y: number, u: number): number {

@@ -1,6 +1,6 @@
-import { normalQuantile } from '../normal.ts';
+import { normalQuantile } from '../scores/normal.ts';
 import { createPrng } from '../prng.ts';
-import { quantileSorted } from '../quantile.ts';
+import { quantileSorted } from '../scores/quantile.ts';
 import { probabilityBin } from './probability-bins.ts';
 
 /**

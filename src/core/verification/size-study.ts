@@ -1,7 +1,7 @@
-import { alphaIndex } from '../alpha-index.ts';
-import { crpsSorted } from '../crps.ts';
+import { alphaIndex } from '../scores/alpha-index.ts';
+import { crpsSorted } from '../scores/crps.ts';
 import { createPrng, type Prng } from '../prng.ts';
-import { quantileSorted } from '../quantile.ts';
+import { quantileSorted } from '../scores/quantile.ts';
 import { sourceValues, type SourceName, type VerificationCase } from './case.ts';
 import { GrowableF64 } from './growable.ts';
 import { jsonNumber } from './json-number.ts';

@@ -1,7 +1,7 @@
-import { crpsSorted } from '../crps.ts';
-import { countAboveSorted } from '../exceedance.ts';
+import { crpsSorted } from '../scores/crps.ts';
+import { countAboveSorted } from '../scores/exceedance.ts';
 import type { Prng } from '../prng.ts';
-import { quantileSorted } from '../quantile.ts';
+import { quantileSorted } from '../scores/quantile.ts';
 import { GrowableF64 } from './growable.ts';
 import { HersbachAccumulator } from './hersbach-accumulator.ts';
 import { pitFromSorted } from './randomised-pit.ts';

@@ -1,4 +1,4 @@
-import { normalCdf } from '../normal.ts';
+import { normalCdf } from '../scores/normal.ts';
 import { binomialLowerTail } from './binomial.ts';
 
 /**

@@ -1,8 +1,8 @@
-import { sortNonNegative } from '../radix-sort.ts';
+import { sortNonNegative } from '../stochastic/radix-sort.ts';
 
 /**
  * Sorts the values of one case in place, reusing its scratch buffers. Flows are never negative,
- * so long rows (stochastic samples) take the stage's radix sort (src/core/radix-sort.ts), several
+ * so long rows (stochastic samples) take the stage's radix sort (src/core/stochastic/radix-sort.ts), several
  * times faster than the engine's sort for 1000 values; short rows and rows with negative values
  * use the engine's sort. Callers write +0 for −0 (v + 0 does it), as the radix sort requires.
  */

@@ -1,5 +1,5 @@
-import { crpsSorted } from '../crps.ts';
-import { quantileSorted } from '../quantile.ts';
+import { crpsSorted } from '../scores/crps.ts';
+import { quantileSorted } from '../scores/quantile.ts';
 import { blockBootstrapColumns, blockLengthFor, type Interval } from './block-bootstrap.ts';
 import type { SourceName } from './case.ts';
 import type { ClimatologicalRate } from './climatological-rates.ts';

@@ -63,7 +63,7 @@ describe('verification building blocks', () => {
     }
   });
 
-  it('streamed Hersbach decomposition equals hersbachDecomposition (src/core/hersbach.ts) case by case', () => {
+  it('streamed Hersbach decomposition equals hersbachDecomposition (src/core/scores/hersbach.ts) case by case', () => {
     const g = createPrng(8);
     const m = 6;
     const n = 400;

@@ -7,7 +7,7 @@ const M = 20;
 const BIAS = 5;
 
 /**
- * Hindcast of the real stochastic stage (src/core/stochastic-stage.ts) on a synthetic gauge:
+ * Hindcast of the real stochastic stage (src/core/stochastic/stochastic-stage.ts) on a synthetic gauge:
  * the archive comes from a separate validation run of the same process (same spread), the
  * hindcast period follows it.
  */

@@ -1,5 +1,5 @@
 import { describe, expect, it } from 'vitest';
-import { crpsEnsemble } from '../../../src/core/crps.ts';
+import { crpsEnsemble } from '../../../src/core/scores/crps.ts';
 import { createPrng } from '../../../src/core/prng.ts';
 import {
   blockBootstrap,

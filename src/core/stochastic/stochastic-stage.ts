@@ -1,8 +1,8 @@
 import { archiveStrata, MISSING_RANK, stratumOf, type ErrorArchive } from './error-archive.ts';
-import { countAboveSorted } from './exceedance.ts';
+import { countAboveSorted } from '../scores/exceedance.ts';
 import { circularDayDistance, defaultK, kernelCumulative, type NeighbourKernel } from './knn.ts';
-import { createPrng, type Prng } from './prng.ts';
-import { quantileSorted } from './quantile.ts';
+import { createPrng, type Prng } from '../prng.ts';
+import { quantileSorted } from '../scores/quantile.ts';
 import { sortNonNegative } from './radix-sort.ts';
 import { forwardTransform } from './error-transform.ts';
 

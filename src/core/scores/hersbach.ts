@@ -1,4 +1,4 @@
-import { HersbachAccumulator, type HersbachDecomposition } from './verification/hersbach-accumulator.ts';
+import { HersbachAccumulator, type HersbachDecomposition } from '../verification/hersbach-accumulator.ts';
 
 export type { HersbachDecomposition };
 

@@ -1,4 +1,4 @@
-import { yearFraction } from './day-of-year.ts';
+import { yearFraction } from '../day-of-year.ts';
 import type { FeatureSpec } from './feature-spec.ts';
 
 const TWO_PI = 2 * Math.PI;

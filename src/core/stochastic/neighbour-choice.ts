@@ -1,9 +1,9 @@
-import { alphaIndex } from './alpha-index.ts';
-import { crpsWeighted } from './crps.ts';
+import { alphaIndex } from '../scores/alpha-index.ts';
+import { crpsWeighted } from '../scores/crps.ts';
 import type { NeighbourSettings } from './error-archive.ts';
 import { forwardTransform, type ErrorTransform } from './error-transform.ts';
 import { defaultK, kernelCumulative, nearestSorted, NEIGHBOUR_KERNELS } from './knn.ts';
-import { createPrng } from './prng.ts';
+import { createPrng } from '../prng.ts';
 
 /**
  * Chooses the stochastic stage's neighbour kernel and k on held-out errors: for each held-out case

@@ -2,7 +2,7 @@
 // simulation) and serving (a run: members × lead times). A window row holds window × steps
 // values, step-major (row r, step j, feature f at r·window·F + j·F + f), which is exactly the
 // memory of the [N, window, F] tensor the model takes. Pure: no I/O, no clock.
-import { yearFraction } from './day-of-year.ts';
+import { yearFraction } from '../day-of-year.ts';
 import { FeatureInputError } from './feature-spec.ts';
 import type { ContinuousInput, ContinuousRows, ReforecastIssue, ReforecastRows, RunInput, ServingRows } from './features.ts';
 import { sequenceForcings, sequenceWidth, type SequenceSpec } from './sequence-spec.ts';

@@ -1,4 +1,4 @@
-import { createPrng } from './prng.ts';
+import { createPrng } from '../prng.ts';
 
 /**
  * Probability integral transform of each observation against its ensemble/samples, randomised

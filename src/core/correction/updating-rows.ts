@@ -1,9 +1,9 @@
 // Feature rows of a run's members at the observation's time (ageSteps before issue), laid out as
 // the continuous-simulation rows the residual model was trained on (lead_hours 0), so the member's
 // corrected value there, and so its issue-time error, can be computed at serving.
-import { writeFeatureRow } from './feature-row.ts';
-import { FeatureInputError, featureCount, type FeatureSpec } from './feature-spec.ts';
-import type { RunInput } from './features.ts';
+import { writeFeatureRow } from '../features/feature-row.ts';
+import { FeatureInputError, featureCount, type FeatureSpec } from '../features/feature-spec.ts';
+import type { RunInput } from '../features/features.ts';
 
 export function observationTimeRows(spec: FeatureSpec, run: RunInput, ageSteps: number): { rows: Float32Array; nRows: number; nFeatures: number; simAt: Float64Array } {
   const nF = featureCount(spec);

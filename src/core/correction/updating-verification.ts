@@ -1,9 +1,9 @@
 // Per-lead verification of issue-time updating: the same hindcast cases scored without and with
 // updating, so a forecaster sees at which lead the gain falls below its sampling error.
-import { crpsSorted } from './crps.ts';
-import { quantileSorted } from './quantile.ts';
+import { crpsSorted } from '../scores/crps.ts';
+import { quantileSorted } from '../scores/quantile.ts';
 import { pairedLeadDifference } from './updating.ts';
-import type { VerificationCase } from './verification/case.ts';
+import type { VerificationCase } from '../verification/case.ts';
 
 export interface UpdatingLeadRow {
   lead: number;

@@ -2,9 +2,9 @@
 // lead time. Pure computation: the pseudo-forecast cube built from continuous simulations, the
 // closed-form predictors (AR(1) and φ per lead, Box & Jenkins), per-lead scores, and the updater
 // applied to a run's corrected members.
-import { crpsSorted } from './crps.ts';
-import { forwardTransform, inverseTransform, type ErrorTransform } from './error-transform.ts';
-import type { FeatureSpec } from './feature-spec.ts';
+import { crpsSorted } from '../scores/crps.ts';
+import { forwardTransform, inverseTransform, type ErrorTransform } from '../stochastic/error-transform.ts';
+import type { FeatureSpec } from '../features/feature-spec.ts';
 
 /**
  * The updater stored with a model version. In the error transform T of the version's archive,
