@@ -214,7 +214,7 @@ export function templateShortfall(a: ErrorArchive, horizon: number, minTemplates
   return null;
 }
 
-/** Fewest templates an archive needs to serve runs (common practice here: fewer make the shuffle's dependence rest on a handful of past situations). */
+/** Fewest templates an archive needs to serve runs: our own rule of thumb (fewer make the shuffle's dependence rest on a handful of past situations). */
 export const MIN_TEMPLATES = 20;
 
 export interface SeriesArchiveInput {
