@@ -294,20 +294,32 @@ export function reforecastRows(spec: FeatureSpec, issues: ReforecastIssue[]): Re
     }
     return checked;
   });
+  return collectReforecastRows(issues, nF, (i, rows, r, keep) => runRows(spec, issues[i], checkedAll[i], rows, r, keep));
+}
+
+/**
+ * The rows of past runs, one builder for flat feature rows and for windows: `lay` writes issue i's
+ * rows from row r on, asking `keep` for each; a row is kept when its inputs are complete and the
+ * target (observed − simulated at the lead) is finite.
+ */
+export function collectReforecastRows(
+  issues: ReforecastIssue[],
+  width: number,
+  lay: (i: number, rows: Float32Array, r: number, keep: (row: number, m: number, k: number, ok: boolean) => boolean) => number,
+): ReforecastRows {
   let maxRows = 0;
-  for (const c of checkedAll) maxRows += c.nMembers * c.nLeads;
-  const rows = new Float32Array(maxRows * nF);
+  for (const run of issues) maxRows += run.members.length * run.nLeads;
+  const rows = new Float32Array(maxRows * width);
   const target = new Float64Array(maxRows);
   const issue = new Int32Array(maxRows);
   const member = new Int32Array(maxRows);
   const lead = new Int32Array(maxRows);
   let r = 0;
   issues.forEach((run, i) => {
-    const checked = checkedAll[i];
-    r += runRows(spec, run, checked, rows, r, (row, m, k, ok) => {
+    r += lay(i, rows, r, (row, m, k, ok) => {
       if (!ok) return false;
       const sim = run.members[m];
-      const y = run.obs[k - 1] - sim[sim.length - checked.nLeads - 1 + k];
+      const y = run.obs[k - 1] - sim[sim.length - run.nLeads - 1 + k];
       if (!Number.isFinite(y)) return false;
       target[row] = y;
       issue[row] = i;
@@ -316,13 +328,5 @@ export function reforecastRows(spec: FeatureSpec, issues: ReforecastIssue[]): Re
       return true;
     });
   });
-  return {
-    rows: rows.slice(0, r * nF),
-    target: target.slice(0, r),
-    issue: issue.slice(0, r),
-    member: member.slice(0, r),
-    lead: lead.slice(0, r),
-    nRows: r,
-    nFeatures: nF,
-  };
+  return { rows: rows.slice(0, r * width), target: target.slice(0, r), issue: issue.slice(0, r), member: member.slice(0, r), lead: lead.slice(0, r), nRows: r, nFeatures: width };
 }

@@ -4,7 +4,7 @@
 // memory of the [N, window, F] tensor the model takes. Pure: no I/O, no clock.
 import { yearFraction } from '../day-of-year.ts';
 import { FeatureInputError } from './feature-spec.ts';
-import type { ContinuousInput, ContinuousRows, ReforecastIssue, ReforecastRows, RunInput, ServingRows } from './features.ts';
+import { collectReforecastRows, type ContinuousInput, type ContinuousRows, type ReforecastIssue, type ReforecastRows, type RunInput, type ServingRows } from './features.ts';
 import { sequenceForcings, sequenceWidth, type SequenceSpec } from './sequence-spec.ts';
 
 const TWO_PI = 2 * Math.PI;
@@ -286,26 +286,5 @@ export function reforecastWindows(spec: SequenceSpec, issues: ReforecastIssue[])
     if (!isSeries(run.obs) || run.obs.length !== run.nLeads) throw new FeatureInputError(`issues[${i}].obs`, `needs one value per lead time (${run.nLeads})`);
     return s;
   });
-  let maxRows = 0;
-  for (const run of issues) maxRows += run.members.length * run.nLeads;
-  const rows = new Float32Array(maxRows * width);
-  const target = new Float64Array(maxRows);
-  const issue = new Int32Array(maxRows);
-  const member = new Int32Array(maxRows);
-  const lead = new Int32Array(maxRows);
-  let r = 0;
-  issues.forEach((run, i) => {
-    r += runWindows(spec, p, run, checked[i], rows, r, (row, m, k, ok) => {
-      if (!ok) return false;
-      const sim = run.members[m];
-      const y = run.obs[k - 1] - sim[sim.length - run.nLeads - 1 + k];
-      if (!Number.isFinite(y)) return false;
-      target[row] = y;
-      issue[row] = i;
-      member[row] = m;
-      lead[row] = k;
-      return true;
-    });
-  });
-  return { rows: rows.slice(0, r * width), target: target.slice(0, r), issue: issue.slice(0, r), member: member.slice(0, r), lead: lead.slice(0, r), nRows: r, nFeatures: width };
+  return collectReforecastRows(issues, width, (i, rows, r, keep) => runWindows(spec, p, issues[i], checked[i], rows, r, keep));
 }
