@@ -33,16 +33,17 @@ export function crpsEnsemble(members: ArrayLike<number>, y: number, fair = false
 
 /**
  * CRPS of members with weights (normalised to sum 1), by exact integration of (F(x) − 1{x ≥ y})²
- * over the weighted empirical CDF F.
+ * over the weighted empirical CDF F. `order` (the member indices by ascending value) may be given
+ * when the caller scores the same members against several weightings.
  */
 export function crpsWeighted(
   members: ArrayLike<number>,
   weights: ArrayLike<number>,
   y: number,
+  order: ArrayLike<number> = ascendingOrder(members),
 ): number {
   const m = members.length;
-  if (m === 0 || weights.length !== m) throw new RangeError('members and weights must be non-empty and of equal length');
-  const order = Array.from({ length: m }, (_, i) => i).sort((a, b) => members[a] - members[b]);
+  if (m === 0 || weights.length !== m || order.length !== m) throw new RangeError('members, weights and order must be non-empty and of equal length');
   let total = 0;
   for (let i = 0; i < m; i++) total += weights[i];
   let crps = 0;
@@ -62,6 +63,11 @@ export function crpsWeighted(
     else crps += f * f * (y - a) + (1 - f) ** 2 * (b - y);
   }
   return crps;
+}
+
+/** Indices of the values in ascending order (stable for ties). */
+export function ascendingOrder(values: ArrayLike<number>): number[] {
+  return Array.from({ length: values.length }, (_, i) => i).sort((a, b) => values[a] - values[b]);
 }
 
 /**

@@ -1,5 +1,5 @@
 import { alphaIndex } from '../scores/alpha-index.ts';
-import { crpsWeighted } from '../scores/crps.ts';
+import { ascendingOrder, crpsWeighted } from '../scores/crps.ts';
 import type { NeighbourSettings } from './error-archive.ts';
 import { forwardTransform, type ErrorTransform } from './error-transform.ts';
 import { defaultK, kernelCumulative, nearestSorted, NEIGHBOUR_KERNELS } from './knn.ts';
@@ -50,31 +50,43 @@ export function scoreNeighbourSettings(
   const m = heldOut.predictor.length;
   if (n === 0 || m === 0) throw new RangeError('both the training archive and the held-out errors need cases');
   if (heldOut.error.length !== m) throw new RangeError('held-out predictor and error lengths differ');
-  return candidates.map(({ kernel, kScale }) => {
-    const k = Math.min(n, Math.max(1, Math.round(kScale * defaultK(n))));
-    const cum = kernelCumulative(kernel, k);
-    const weights = Float64Array.from(cum, (c, j) => c - (j ? cum[j - 1] : 0));
-    const errors = new Float64Array(k);
-    const pit = new Float64Array(m);
-    const rng = createPrng(seed, 3);
-    let crps = 0;
-    let covered = 0;
-    for (let i = 0; i < m; i++) {
-      const y = heldOut.error[i];
-      nearestSorted(train.predictor, train.error, 0, n, heldOut.predictor[i], k, errors);
-      let below = 0;
-      let equal = 0;
-      for (let j = 0; j < k; j++) {
-        if (errors[j] < y) below += weights[j];
-        else if (errors[j] === y) equal += weights[j];
-      }
-      const total = cum[k - 1];
-      pit[i] = (below + rng.nextFloat() * equal) / total;
-      if (pit[i] >= 0.05 && pit[i] <= 0.95) covered++;
-      crps += crpsWeighted(errors, weights, y);
-    }
-    return { kernel, kScale, k, alpha: alphaIndex(pit), crps: crps / m, coverage90: covered / m, cases: m };
+  // Every candidate's neighbours are the first k of one nearest-first walk (the walk does not
+  // depend on k), so each case is searched once and sorted once per distinct k.
+  const ks = candidates.map(({ kScale }) => Math.min(n, Math.max(1, Math.round(kScale * defaultK(n)))));
+  const kMax = Math.max(...ks);
+  const weights = candidates.map(({ kernel }, c) => {
+    const cum = kernelCumulative(kernel, ks[c]);
+    return { cum, w: Float64Array.from(cum, (x, j) => x - (j ? cum[j - 1] : 0)) };
   });
+  const pit = candidates.map(() => new Float64Array(m));
+  const rng = candidates.map(() => createPrng(seed, 3));
+  const crps = new Float64Array(candidates.length);
+  const covered = new Float64Array(candidates.length);
+  const nearest = new Float64Array(kMax);
+  const distinctK = [...new Set(ks)];
+  for (let i = 0; i < m; i++) {
+    const y = heldOut.error[i];
+    nearestSorted(train.predictor, train.error, 0, n, heldOut.predictor[i], kMax, nearest);
+    for (const k of distinctK) {
+      const errors = nearest.subarray(0, k);
+      const order = ascendingOrder(errors);
+      for (let c = 0; c < candidates.length; c++) {
+        if (ks[c] !== k) continue;
+        const { cum, w } = weights[c];
+        let below = 0;
+        let equal = 0;
+        for (let j = 0; j < k; j++) {
+          if (errors[j] < y) below += w[j];
+          else if (errors[j] === y) equal += w[j];
+        }
+        const u = (below + rng[c].nextFloat() * equal) / cum[k - 1];
+        pit[c][i] = u;
+        if (u >= 0.05 && u <= 0.95) covered[c]++;
+        crps[c] += crpsWeighted(errors, w, y, order);
+      }
+    }
+  }
+  return candidates.map(({ kernel, kScale }, c) => ({ kernel, kScale, k: ks[c], alpha: alphaIndex(pit[c]), crps: crps[c] / m, coverage90: covered[c] / m, cases: m }));
 }
 
 /** The chosen settings by the rule above. */
