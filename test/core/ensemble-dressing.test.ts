@@ -6,7 +6,7 @@ import { runStochasticStage } from '../../src/core/stochastic/stochastic-stage.t
 
 // A calibrated synthetic ensemble (invented process): per issue and lead a centre μ ~ U(30, 90); the
 // observation and each of M members are independent draws from N(μ, 4²), so the observation is
-// exchangeable with the members (Hamill 2001's definition of a reliable ensemble).
+// exchangeable with the members: the usual definition of a reliable ensemble (Hamill 2001, from memory).
 const M = 20;
 const H = 3;
 const SD = 4;
