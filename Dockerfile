@@ -1,7 +1,7 @@
 FROM node:20-bookworm-slim
 WORKDIR /app
 ENV NODE_ENV=production
-COPY package.json package-lock.json .npmrc ./
+COPY package.json package-lock.json ./
 RUN npm ci --omit=dev --no-audit --no-fund
 COPY tsconfig.json ./
 COPY src ./src
