@@ -24,6 +24,8 @@ import { docsRoutes } from './docs.ts';
 import { Problem } from '../services/problem.ts';
 import { reforecastRoutes } from './reforecasts.ts';
 import { simulationRoutes } from './simulations.ts';
+import { streamTicketRoutes } from './stream-tickets.ts';
+import { withRedactedUrls } from './log-redaction.ts';
 import { tokenRoutes } from './token-routes.ts';
 import { verificationRoutes } from './verification.ts';
 
@@ -37,7 +39,7 @@ export interface AppOptions {
 export async function buildApp(options: AppOptions): Promise<FastifyInstance> {
   const { db, config } = options;
   const app = Fastify({
-    ...(options.logger ? { loggerInstance: options.logger } : { logger: false }),
+    ...(options.logger ? { loggerInstance: withRedactedUrls(options.logger) } : { logger: false }),
     bodyLimit: Math.round(config.BODY_LIMIT_MB * 1024 * 1024),
     return503OnClosing: true,
     routerOptions: { ignoreTrailingSlash: true },
@@ -93,6 +95,7 @@ export async function buildApp(options: AppOptions): Promise<FastifyInstance> {
   await app.register(verificationRoutes, { services });
   await app.register(hindcastRoutes, { services });
   await app.register(overviewRoutes, { services });
+  await app.register(streamTicketRoutes, { services });
   await app.register(eventRoutes, { services });
   await app.register(metricsRoutes, { services });
   await app.register(pageRoutes, { services });

@@ -2,6 +2,7 @@ import type { FastifyRequest } from 'fastify';
 import { findTokenByHash, touchToken, type Role } from '../store/tokens-repo.ts';
 import type { Services } from './context.ts';
 import { Problem } from '../services/problem.ts';
+import { redeemTicket } from './stream-tickets.ts';
 import { hashToken, roleRank } from './tokens.ts';
 
 const CACHE_MS = 30_000;
@@ -21,6 +22,21 @@ export function authHook(services: Services) {
     if (required === 'open' || services.config.AUTH === 'off') return;
 
     const header = request.headers.authorization ?? '';
+    const ticket = (request.query as { ticket?: unknown } | undefined)?.ticket;
+    // A stream ticket stands in for the token only on the one route that takes it (the event stream).
+    if (!header && typeof ticket === 'string' && request.routeOptions.config?.acceptsStreamTicket) {
+      const principal = await redeemTicket(services.db, ticket);
+      if (!principal) {
+        throw new Problem(401, 'unauthorized', 'Unauthorized', 'the stream ticket is unknown, used or expired; ask for a new one with POST /stream-tickets', [{ path: 'query.ticket', message: 'not a valid ticket' }], {
+          'www-authenticate': 'Bearer error="invalid_token"',
+        });
+      }
+      if (roleRank[principal.role] < roleRank[required]) {
+        throw new Problem(403, 'forbidden', 'Forbidden', `this route needs the ${required} role; the ticket's token has ${principal.role}`);
+      }
+      request.principal = principal;
+      return;
+    }
     const match = /^Bearer\s+(\S+)$/i.exec(header);
     if (!match) {
       throw new Problem(401, 'unauthorized', 'Unauthorized', 'send a bearer token: Authorization: Bearer <token>', [], {

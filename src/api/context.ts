@@ -39,7 +39,7 @@ export function addRoute<const D extends RouteDoc>(app: FastifyInstance, service
   app.route({
     method: doc.method,
     url: doc.url,
-    config: { role: doc.role },
+    config: { role: doc.role, acceptsStreamTicket: doc.acceptsStreamTicket === true },
     handler: async (req, reply) => {
       if (doc.params) req.params = parseWith(doc.params, req.params, 'params');
       if (doc.query) req.query = parseWith(doc.query, req.query, 'query');
@@ -52,6 +52,8 @@ export function addRoute<const D extends RouteDoc>(app: FastifyInstance, service
 declare module 'fastify' {
   interface FastifyContextConfig {
     role?: RouteDoc['role'];
+    /** The route may be opened with a stream ticket (?ticket=) instead of a bearer token. */
+    acceptsStreamTicket?: boolean;
   }
   interface FastifyRequest {
     principal?: { tokenId: string; role: 'admin' | 'ingest' | 'read' } | null;

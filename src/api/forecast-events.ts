@@ -1,6 +1,8 @@
 import type { Db } from '../store/db.ts';
 
 export interface RunAnnouncement {
+  /** The run's event number (decimal text); absent from instances that predate it. */
+  eventId?: string;
   gaugeId: string;
   runId: string;
   issueTime: string;

@@ -16,6 +16,8 @@ export interface RouteDoc {
   bodyDecodedByHandler?: boolean;
   bodyTypes?: string[];
   response?: z.ZodType;
+  /** The route may be opened with a stream ticket (?ticket=, from POST /stream-tickets) instead of a bearer token. */
+  acceptsStreamTicket?: boolean;
   responseTypes?: string[];
 }
 

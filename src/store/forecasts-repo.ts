@@ -79,19 +79,52 @@ export function decodePercentiles(bytes: Uint8Array): number[][] {
   return out;
 }
 
-/** Stores a run and announces it (NOTIFY is delivered when the transaction commits). */
+/** The lock that makes run event numbers follow commit order (held to the end of the inserting transaction). */
+const RUN_EVENT_LOCK = 7305015;
+
+/**
+ * Stores a run and announces it (NOTIFY is delivered when the transaction commits). The insert
+ * first takes a transaction lock, so a run's event number is never below that of a run committed
+ * before it: a client resuming after event n misses no run (the lock is held only for the insert).
+ */
 export async function insertRun(tx: Queryable, r: NewRun): Promise<void> {
-  await tx.query(
+  await tx.query('select pg_advisory_xact_lock($1)', [RUN_EVENT_LOCK]);
+  const { rows } = await tx.query<{ event_seq: string | number }>(
     `insert into forecast_runs (id, gauge_id, issue_time, source, request_hash, idempotency_key, status, model_version_id, seed,
                                 input, output, etag, summary, percentiles, issue_observation_time, issue_observation_value, issue_observation_source)
-     values ($1, $2, to_timestamp($3), $4, $5, $6, $7, $8, $9, $10, $11, $12, $13::jsonb, $14, to_timestamp($15), $16, $17)`,
+     values ($1, $2, to_timestamp($3), $4, $5, $6, $7, $8, $9, $10, $11, $12, $13::jsonb, $14, to_timestamp($15), $16, $17)
+     returning event_seq`,
     [r.id, r.gaugeId, r.issueTimeMs / 1000, r.source, r.requestHash, r.idempotencyKey, r.status, r.modelVersionId, r.seed,
       JSON.stringify(r.input), r.output, r.etag, JSON.stringify(r.summary), Buffer.from(encodePercentiles(r.percentiles)),
       r.issueObservation ? r.issueObservation.timeMs / 1000 : null, r.issueObservation?.value ?? null, r.issueObservation?.source ?? null],
   );
-  await tx.query(`select pg_notify('forecast_runs', $1)`, [
-    JSON.stringify({ gaugeId: r.gaugeId, runId: r.id, issueTime: new Date(r.issueTimeMs).toISOString().replace('.000Z', 'Z') }),
-  ]);
+  const announcement: RunEvent = { eventId: String(rows[0].event_seq), gaugeId: r.gaugeId, runId: r.id, issueTime: new Date(r.issueTimeMs).toISOString().replace('.000Z', 'Z') };
+  await tx.query(`select pg_notify('forecast_runs', $1)`, [JSON.stringify(announcement)]);
+}
+
+/** A stored run as a server-sent event: its event number (decimal text) and what it announces. */
+export interface RunEvent {
+  eventId: string;
+  gaugeId: string;
+  runId: string;
+  issueTime: string;
+}
+
+/**
+ * Runs stored after event number `after`, oldest first, at most `limit`; `more` says whether
+ * further ones exist, and `latest` is the newest event number stored (null when none).
+ */
+export async function runEventsAfter(db: Queryable, after: bigint, limit: number): Promise<{ events: RunEvent[]; more: boolean; latest: string | null }> {
+  const { rows } = await db.query<{ event_seq: string | number; gauge_id: string; id: string; issue_time: Date }>(
+    'select event_seq::text as event_seq, gauge_id, id, issue_time from forecast_runs where event_seq > $1 order by event_seq limit $2',
+    [after.toString(), limit + 1],
+  );
+  const latest = await db.query<{ latest: string | null }>('select max(event_seq)::text as latest from forecast_runs');
+  return {
+    events: rows.slice(0, limit).map((r) => ({ eventId: String(r.event_seq), gaugeId: r.gauge_id, runId: r.id, issueTime: r.issue_time.toISOString().replace('.000Z', 'Z') })),
+    more: rows.length > limit,
+    latest: latest.rows[0]?.latest ?? null,
+  };
 }
 
 export async function findRunByKey(db: Queryable, gaugeId: string, issueTimeMs: number, source: string): Promise<StoredRun | null> {
