@@ -1,7 +1,7 @@
 import type { ServerResponse } from 'node:http';
 import type { FastifyInstance } from 'fastify';
 import { z } from 'zod';
-import { runEventsAfter, type RunEvent } from '../store/forecasts-repo.ts';
+import { latestRunEventId, runEventsAfter, type RunEvent } from '../store/forecasts-repo.ts';
 import { invalid } from '../services/problem.ts';
 import { addRoute, type Services } from './context.ts';
 import type { RunAnnouncement } from './forecast-events.ts';
@@ -36,7 +36,7 @@ export async function eventRoutes(app: FastifyInstance, { services }: { services
     {
       method: 'GET',
       url: '/events',
-      summary: 'Server-sent events announcing each new run (event: forecast, with id:); Last-Event-ID resumes from the store; browsers open it with ?ticket=',
+      summary: 'Server-sent events: `ready` (id: newest run event) on a fresh stream, then `forecast` per new run (id: its event number); Last-Event-ID resumes from the store; browsers open it with ?ticket=',
       tag: 'forecasts',
       role: 'read',
       acceptsStreamTicket: true,
@@ -59,8 +59,8 @@ export async function eventRoutes(app: FastifyInstance, { services }: { services
 
       // Everything after `sent` has not been written yet; live announcements that arrive while the
       // store is read are held back and written after the replay, each run once.
-      let sent = resumeFrom === undefined ? null : BigInt(resumeFrom);
-      let held: RunAnnouncement[] | null = resumeFrom === undefined ? null : [];
+      let sent: bigint | null = resumeFrom === undefined ? null : BigInt(resumeFrom);
+      let held: RunAnnouncement[] | null = [];
       const write = (a: RunAnnouncement) => {
         if (res.writableEnded) return;
         if (a.eventId !== undefined) {
@@ -78,8 +78,14 @@ export async function eventRoutes(app: FastifyInstance, { services }: { services
         open.delete(res);
       });
 
-      if (sent !== null) {
-        try {
+      try {
+        if (sent === null) {
+          // A fresh stream starts with `ready`, whose id is the newest event stored: a client that
+          // reconnects from there misses nothing even if no run arrives in between.
+          const latest = (await latestRunEventId(services.db)) ?? '0';
+          sent = BigInt(latest);
+          if (!res.writableEnded) res.write(`id: ${latest}\nevent: ready\ndata: ${JSON.stringify({ latestEventId: latest })}\n\n`);
+        } else {
           const replay = await runEventsAfter(services.db, sent, REPLAY_LIMIT);
           if (replay.more) {
             // Too much was missed to send run by run: the client reloads what it shows instead.
@@ -88,15 +94,15 @@ export async function eventRoutes(app: FastifyInstance, { services }: { services
           } else {
             for (const e of replay.events) write(e);
           }
-        } catch (err) {
-          req.log.error({ err }, 'event replay failed');
-          res.end();
-          return;
         }
-        const pending = held ?? [];
-        held = null;
-        for (const a of pending) write(a);
+      } catch (err) {
+        req.log.error({ err }, 'event replay failed');
+        res.end();
+        return;
       }
+      const pending = held ?? [];
+      held = null;
+      for (const a of pending) write(a);
     },
   );
 }

@@ -119,12 +119,17 @@ export async function runEventsAfter(db: Queryable, after: bigint, limit: number
     'select event_seq::text as event_seq, gauge_id, id, issue_time from forecast_runs where event_seq > $1 order by event_seq limit $2',
     [after.toString(), limit + 1],
   );
-  const latest = await db.query<{ latest: string | null }>('select max(event_seq)::text as latest from forecast_runs');
   return {
     events: rows.slice(0, limit).map((r) => ({ eventId: String(r.event_seq), gaugeId: r.gauge_id, runId: r.id, issueTime: r.issue_time.toISOString().replace('.000Z', 'Z') })),
     more: rows.length > limit,
-    latest: latest.rows[0]?.latest ?? null,
+    latest: await latestRunEventId(db),
   };
+}
+
+/** The newest event number stored, or null when no run is stored. */
+export async function latestRunEventId(db: Queryable): Promise<string | null> {
+  const { rows } = await db.query<{ latest: string | null }>('select max(event_seq)::text as latest from forecast_runs');
+  return rows[0]?.latest ?? null;
 }
 
 export async function findRunByKey(db: Queryable, gaugeId: string, issueTimeMs: number, source: string): Promise<StoredRun | null> {

@@ -115,11 +115,16 @@ describe('server-sent events', () => {
     const s = await openStream(`${base}/events`, { authorization: `Bearer ${t.tokens.read}` });
     expect(s.res.status).toBe(200);
     expect(s.res.headers.get('content-type')).toContain('text/event-stream');
+    // A fresh stream opens with `ready`, carrying the newest event id stored.
+    await s.waitFor(1);
+    expect(s.events[0].event).toBe('ready');
+    expect(s.events[0].id).toBe(JSON.parse(s.events[0].data).latestEventId);
     const a = await storeRun();
     const b = await storeRun();
-    await s.waitFor(2);
+    await s.waitFor(3);
     expect(s.retry).toBe(5000);
-    const [ea, eb] = s.events;
+    const [, ea, eb] = s.events;
+    expect(BigInt(ea.id!)).toBeGreaterThan(BigInt(s.events[0].id!));
     expect(ea.event).toBe('forecast');
     expect(JSON.parse(ea.data)).toEqual({ gaugeId: riverGauge.id, runId: a.id, issueTime: a.issueTime });
     expect(JSON.parse(eb.data).runId).toBe(b.id);
@@ -176,9 +181,10 @@ describe('stream tickets', () => {
 
     const s = await openStream(`${base}${url}`);
     expect(s.res.status).toBe(200);
-    const run = await storeRun();
     await s.waitFor(1);
-    expect(JSON.parse(s.events[0].data).runId).toBe(run.id);
+    const run = await storeRun();
+    await s.waitFor(2);
+    expect(JSON.parse(s.events[1].data).runId).toBe(run.id);
     await s.close();
 
     // Used up.

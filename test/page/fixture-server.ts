@@ -1,5 +1,6 @@
 // A stand-in service for the page test: the real page plugin plus the reads the page uses
-// (GET /overview, GET /gauges/:id/forecasts/latest, GET /gauges/:id/verification, GET /events), answering in the contract's shape
+// (GET /overview, GET /gauges/:id/forecasts/latest, GET /gauges/:id/verification, POST /stream-tickets,
+// GET /events?ticket=), answering in the contract's shape
 // from fixture data. To be replaced by the real service once those endpoints exist.
 import type { ServerResponse } from 'node:http';
 import Fastify, { type FastifyInstance, type FastifyRequest } from 'fastify';
@@ -25,6 +26,10 @@ export interface FixtureServer {
   gauges: Map<string, GaugeEntry>;
   /** Every request URL seen (path and query; a fragment never arrives). */
   seen: string[];
+  /** Tickets issued by POST /stream-tickets and not yet used. */
+  tickets: Set<string>;
+  /** Last-Event-ID (header or lastEventId parameter) of each stream opened, '' when none. */
+  resumedFrom: string[];
   /** Number of GET /gauges/:id/forecasts/latest answered per gauge id. */
   latestReads: Map<string, number>;
   openStreams(): number;
@@ -41,6 +46,9 @@ export async function startFixtureServer(readToken: string, gauges: GaugeEntry[]
   const seen: string[] = [];
   const latestReads = new Map<string, number>();
   const streams = new Set<ServerResponse>();
+  const tickets = new Set<string>();
+  const resumedFrom: string[] = [];
+  let eventId = 100;
 
   app.setErrorHandler((error, request, reply) => {
     const p = error instanceof Problem ? error : new Problem(500, 'internal-error', 'Internal error', (error as Error).message);
@@ -84,12 +92,24 @@ export async function startFixtureServer(readToken: string, gauges: GaugeEntry[]
     return g.verification;
   });
 
-  app.get('/events', async (request, reply) => {
+  app.post('/stream-tickets', async (request, reply) => {
     requireRead(request);
+    const ticket = `stk_fixture_${tickets.size}_${Math.random().toString(36).slice(2)}`;
+    tickets.add(ticket);
+    reply.code(201);
+    return { ticket, expiresAt: new Date(Date.now() + 60_000).toISOString(), url: `/events?ticket=${ticket}` };
+  });
+
+  // As the service: only a ticket opens the stream (the page's EventSource sends no header), once.
+  app.get('/events', async (request, reply) => {
+    const q = request.query as { ticket?: string; lastEventId?: string };
+    if (!q.ticket || !tickets.delete(q.ticket)) throw new Problem(401, 'unauthorized', 'Unauthorized', 'the stream ticket is unknown, used or expired');
+    const header = request.headers['last-event-id'];
+    resumedFrom.push((typeof header === 'string' ? header : q.lastEventId) ?? '');
     reply.hijack();
     const res = reply.raw;
     res.writeHead(200, { 'content-type': 'text/event-stream', 'cache-control': 'no-store', connection: 'keep-alive' });
-    res.write(': connected\n\n');
+    res.write(`retry: 5000\n: connected\n\nid: ${eventId}\nevent: ready\ndata: {}\n\n`);
     streams.add(res);
     request.raw.on('close', () => streams.delete(res));
   });
@@ -101,10 +121,13 @@ export async function startFixtureServer(readToken: string, gauges: GaugeEntry[]
     url,
     gauges: byId,
     seen,
+    tickets,
+    resumedFrom,
     latestReads,
     openStreams: () => streams.size,
     sendEvent(type, data) {
-      for (const res of streams) res.write(`event: ${type}\ndata: ${JSON.stringify(data)}\n\n`);
+      eventId++;
+      for (const res of streams) res.write(`id: ${eventId}\nevent: ${type}\ndata: ${JSON.stringify(data)}\n\n`);
     },
     dropStreams() {
       for (const res of streams) res.end();

@@ -226,11 +226,17 @@ describe.skipIf(!hasChromium)('forecast page in chromium', () => {
     await page.screenshot({ path: join(OUT, 'page-gauge-updated.png'), fullPage: true });
   });
 
-  it('reconnects after the event stream drops', async () => {
+  it('reconnects after the event stream drops, with a new ticket, resuming after the last event seen', async () => {
+    const opened = server.resumedFrom.length;
     server.dropStreams();
     await expect.poll(() => page.locator('#live').getAttribute('data-state')).not.toBe('live');
     await expect.poll(() => server.openStreams(), { timeout: 10_000 }).toBe(1);
     await expect.poll(() => page.locator('#live').getAttribute('data-state')).toBe('live');
+    // the fixture numbers events from 101; two forecast events were sent by the test before
+    expect(server.resumedFrom.slice(opened)).toEqual(['102']);
+    const streamUrls = server.seen.filter((u) => u.startsWith('/events'));
+    expect(streamUrls.every((u) => /^\/events\?ticket=stk_fixture_/.test(u))).toBe(true);
+    expect(new Set(streamUrls.map((u) => new URL(u, server.url).searchParams.get('ticket'))).size).toBe(streamUrls.length);
 
     const next = riverRun('2024-12-02T00:00:00Z', 6262, 2.3);
     server.gauges.get(RIVER.id)!.latest = next;

@@ -1,53 +1,74 @@
 // @ts-check
-// Live updates of the forecast page: the /events stream, read with fetch so the token can go in a
-// header, with a watchdog, reconnection with back-off, and a reload when a new forecast is for the
-// view shown.
+// Live updates of the forecast page: the /events stream through EventSource, opened with a
+// single-use stream ticket (EventSource cannot send the Authorization header, and the read token
+// must not go into a URL), resumed after the last event seen, and a reload when a new forecast is
+// for the view shown.
 import { fmtTime } from './format.js';
 import { announce, setLive, showTokenForm } from './notices.js';
 import { state } from './page-state.js';
 import { authHeaders } from './service-requests.js';
 
 /**
- * Follows /events with fetch streaming (EventSource cannot send the Authorization header) and
- * reloads the view when a forecast for it arrives, or after a reconnection. Calling it again
- * replaces the connection (for example after a new token).
+ * Follows /events and reloads the view when a forecast for it arrives. Each connection takes a
+ * fresh ticket from POST /stream-tickets (a ticket opens one stream), so reconnection is done
+ * here, with back-off, rather than by EventSource itself; it resumes after the last event id, so
+ * the service replays the runs stored meanwhile. Calling it again replaces the connection (for
+ * example after a new token).
  * @param {() => unknown} reload
  */
 export async function followEvents(reload) {
   const generation = ++state.events.generation;
-  state.events.controller?.abort();
+  state.events.stop?.();
   let delay = 1000;
   while (generation === state.events.generation) {
-    const controller = new AbortController();
-    state.events.controller = controller;
-    /** @type {number | undefined} */
-    let watchdog;
     let connectedAt = 0;
-    // keep-alive comments come every 15 s; silence for longer means a dead connection
-    const arm = () => {
-      window.clearTimeout(watchdog);
-      watchdog = window.setTimeout(() => controller.abort(), 45_000);
-    };
+    setLive('connecting', 'connecting…');
     try {
-      setLive('connecting', 'connecting…');
-      arm();
-      const res = await fetch('/events', { headers: authHeaders({ accept: 'text/event-stream' }), signal: controller.signal, cache: 'no-store' });
+      const res = await fetch('/stream-tickets', { method: 'POST', headers: authHeaders({ accept: 'application/json' }), cache: 'no-store' });
       if (res.status === 401) {
-        window.clearTimeout(watchdog);
         setLive('token', 'live updates need a token');
         showTokenForm(state.token ? 'The token was refused; enter a valid read token.' : 'Enter a read token to see the data.');
         return; // restarted when a token is entered
       }
-      if (!res.ok || !res.body) throw new Error(`events answered ${res.status}`);
-      setLive('live', 'live');
-      connectedAt = Date.now();
-      if (state.events.connectedOnce) void reload(); // catch up on anything missed while away
-      state.events.connectedOnce = true;
-      await readEvents(res.body, arm, (type, text) => onEvent(type, text, reload));
+      if (!res.ok) throw new Error(`stream ticket answered ${res.status}`);
+      /** @type {{ ticket: string }} */
+      const { ticket } = await res.json();
+      if (generation !== state.events.generation) return;
+      const resume = state.events.lastEventId;
+      const url = `/events?ticket=${encodeURIComponent(ticket)}${resume ? `&lastEventId=${encodeURIComponent(resume)}` : ''}`;
+      await new Promise((done) => {
+        const source = new EventSource(url);
+        state.events.stop = () => {
+          source.close();
+          done(undefined);
+        };
+        source.addEventListener('open', () => {
+          setLive('live', 'live');
+          connectedAt = Date.now();
+        });
+        source.addEventListener('ready', (ev) => {
+          // Without an id to resume from, something may have been missed while away: load again.
+          if (state.events.connectedOnce && !resume) void reload();
+          state.events.connectedOnce = true;
+          state.events.lastEventId = ev.lastEventId;
+        });
+        source.addEventListener('forecast', (ev) => {
+          state.events.connectedOnce = true;
+          state.events.lastEventId = ev.lastEventId;
+          onForecast(ev.data, reload);
+        });
+        source.addEventListener('resync', (ev) => {
+          state.events.lastEventId = ev.lastEventId;
+          void reload();
+        });
+        // The ticket is used up, so EventSource's own reconnection would be refused: start over.
+        source.addEventListener('error', () => {
+          source.close();
+          done(undefined);
+        });
+      });
     } catch {
       /* reconnect below */
-    } finally {
-      window.clearTimeout(watchdog);
     }
     if (generation !== state.events.generation) return;
     // back to a short wait only after a connection that held; one that drops at once keeps backing off
@@ -60,52 +81,10 @@ export async function followEvents(reload) {
 }
 
 /**
- * Minimal text/event-stream parser (WHATWG HTML, server-sent events): fields per line, blank line dispatches.
- * @param {ReadableStream<BufferSource>} body
- * @param {() => void} onBytes
- * @param {(type: string, data: string) => void} dispatch
- */
-async function readEvents(body, onBytes, dispatch) {
-  const reader = body.pipeThrough(new TextDecoderStream()).getReader();
-  let buffer = '';
-  let type = '';
-  /** @type {string[]} */
-  let data = [];
-  for (;;) {
-    const { value, done } = await reader.read();
-    if (done) return;
-    onBytes();
-    buffer += value;
-    for (;;) {
-      const m = /\r\n|\r|\n/.exec(buffer);
-      if (!m) break;
-      if (m[0] === '\r' && m.index === buffer.length - 1) break; // a \n may follow in the next chunk
-      const line = buffer.slice(0, m.index);
-      buffer = buffer.slice(m.index + m[0].length);
-      if (line === '') {
-        if (data.length) dispatch(type || 'message', data.join('\n'));
-        type = '';
-        data = [];
-        continue;
-      }
-      if (line.startsWith(':')) continue;
-      const colon = line.indexOf(':');
-      const field = colon < 0 ? line : line.slice(0, colon);
-      let val = colon < 0 ? '' : line.slice(colon + 1);
-      if (val.startsWith(' ')) val = val.slice(1);
-      if (field === 'event') type = val;
-      else if (field === 'data') data.push(val);
-    }
-  }
-}
-
-/**
- * @param {string} type
  * @param {string} text
  * @param {() => unknown} reload
  */
-function onEvent(type, text, reload) {
-  if (type !== 'forecast') return;
+function onForecast(text, reload) {
   /** @type {{ gaugeId?: string, issueTime?: string }} */
   let ev;
   try {
@@ -121,4 +100,3 @@ function onEvent(type, text, reload) {
     void reload();
   }
 }
-

@@ -47,7 +47,7 @@ export function parseView(path) {
  * @property {Promise<void> | null} loading
  * @property {boolean} again
  * @property {number} lastFocusLoad
- * @property {{ generation: number, controller: AbortController | null, connectedOnce: boolean }} events
+ * @property {{ generation: number, stop: (() => void) | null, connectedOnce: boolean, lastEventId: string }} events  the live stream: `stop` closes the open one; `lastEventId` is where a new one resumes
  */
 
 /** @type {PageState} */
@@ -60,5 +60,5 @@ export const state = {
   loading: null,
   again: false,
   lastFocusLoad: 0,
-  events: { generation: 0, controller: null, connectedOnce: false },
+  events: { generation: 0, stop: null, connectedOnce: false, lastEventId: '' },
 };
