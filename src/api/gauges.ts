@@ -1,11 +1,12 @@
 import type { FastifyInstance } from 'fastify';
 import { z } from 'zod';
 import { parseDurationSeconds } from '../core/iso-duration.ts';
-import { archiveCounts, dataCounts, deleteGauge, getGauge, insertGauge, listGauges, updateGauge, type GaugeInput } from '../store/gauges-repo.ts';
+import { archiveCounts, dataCounts, deleteGauge, getGauge, insertGauge, listGaugesAfter, updateGauge, type GaugeInput } from '../store/gauges-repo.ts';
 import { getGaugeStatus } from '../store/gauge-status-repo.ts';
 import { hasRuns } from '../store/verification-repo.ts';
 import { addRoute, type Services } from './context.ts';
 import { conflict, notFound } from '../services/problem.ts';
+import { decodeCursor, encodeCursor, pageQuery } from './pagination.ts';
 import { FlowUnit, GaugeId, IsoDuration, Location, Thresholds, TimeZone } from './schemas.ts';
 
 const GaugeFields = {
@@ -23,6 +24,9 @@ const GaugeFields = {
 const GaugeCreate = z.strictObject({ id: GaugeId, ...GaugeFields, thresholds: Thresholds.default([]), timeZone: TimeZone.default('UTC'), updatingMaxAgeSteps: GaugeFields.updatingMaxAgeSteps.default(2) });
 const GaugePatch = z.strictObject(GaugeFields).partial();
 const Params = z.object({ id: GaugeId });
+const ListQuery = z.strictObject(pageQuery(100, 1000));
+/** Where a page of gauges ended (they come in id order). */
+const GaugesCursor = z.strictObject({ after: GaugeId });
 const DeleteQuery = z.strictObject({ force: z.enum(['true', 'false']).optional() });
 
 export async function gaugeRoutes(app: FastifyInstance, { services }: { services: Services }) {
@@ -43,9 +47,13 @@ export async function gaugeRoutes(app: FastifyInstance, { services }: { services
     });
   });
 
-  addRoute(app, services, { method: 'GET', url: '/gauges', summary: 'List gauges', tag: 'gauges', role: 'read' }, async () => ({
-    gauges: await listGauges(db),
-  }));
+  addRoute(app, services, { method: 'GET', url: '/gauges', summary: 'Gauges in id order, a page at a time (limit, cursor → next)', tag: 'gauges', role: 'read', query: ListQuery }, async (req) => {
+    const { limit, cursor } = req.query;
+    const after = cursor === undefined ? null : decodeCursor(cursor, GaugesCursor).after;
+    const rows = await listGaugesAfter(db, after, limit + 1);
+    const gauges = rows.slice(0, limit);
+    return { gauges, next: rows.length > limit ? encodeCursor({ after: gauges[gauges.length - 1].id }) : null };
+  });
 
   addRoute(app, services, { method: 'GET', url: '/gauges/:id', summary: 'One gauge with the size of its archive', tag: 'gauges', role: 'read', params: Params }, async (req) => {
     const { id } = req.params;

@@ -128,7 +128,7 @@ export async function hindcastRoutes(app: FastifyInstance, { services }: { servi
     { method: 'GET', url: '/gauges/:id/hindcasts', summary: "The gauge's hindcast jobs, newest first", tag: 'verification', role: 'read', params: GaugeParams },
     async (req) => {
       const gauge = await requireGauge(db, req.params);
-      const jobs = (await listJobs(db, gauge.id, 200)).filter((j) => j.kind === 'hindcast');
+      const jobs = (await listJobs(db, gauge.id, null, 200)).filter((j) => j.kind === 'hindcast');
       return { gaugeId: gauge.id, hindcasts: jobs.map(summary) };
     },
   );

@@ -2,17 +2,25 @@ import type { FastifyInstance } from 'fastify';
 import { z } from 'zod';
 import { getJob, listJobs, requestCancel } from '../store/jobs-repo.ts';
 import { addRoute, type Services } from './context.ts';
-import { notFound } from '../services/problem.ts';
+import { invalid, notFound } from '../services/problem.ts';
+import { decodeCursor, encodeCursor, pageQuery } from './pagination.ts';
 import { GaugeId } from './schemas.ts';
 
 const JobParams = z.object({ id: z.string() });
-const JobsQuery = z.strictObject({ gauge: GaugeId.optional() });
+const JobsQuery = z.strictObject({ gauge: GaugeId.optional(), ...pageQuery(50, 500) });
+/** Where a page of jobs ended (newest first) and for which gauge filter. */
+const JobsCursor = z.strictObject({ before: z.string().regex(/^\d{1,18}$/), gauge: GaugeId.nullable() });
 
 export async function jobRoutes(app: FastifyInstance, { services }: { services: Services }) {
   const { db } = services;
-  addRoute(app, services, { method: 'GET', url: '/jobs', summary: 'Recent background jobs (fits, archives, hindcasts)', tag: 'jobs', role: 'read', query: JobsQuery }, async (req) => {
-    const { gauge } = req.query;
-    return { jobs: await listJobs(db, gauge) };
+  addRoute(app, services, { method: 'GET', url: '/jobs', summary: 'Background jobs (fits, archives, hindcasts), newest first, a page at a time (limit, cursor → next)', tag: 'jobs', role: 'read', query: JobsQuery }, async (req) => {
+    const { limit, cursor } = req.query;
+    const gauge = req.query.gauge ?? null;
+    const after = cursor === undefined ? null : decodeCursor(cursor, JobsCursor);
+    if (after && after.gauge !== gauge) throw invalid([{ path: 'query.cursor', message: `the cursor is for ${after.gauge ? `gauge=${after.gauge}` : 'all gauges'}; ask with the same gauge filter` }]);
+    const rows = await listJobs(db, gauge, after?.before ?? null, limit + 1);
+    const jobs = rows.slice(0, limit);
+    return { jobs, next: rows.length > limit ? encodeCursor({ before: jobs[jobs.length - 1].id, gauge }) : null };
   });
   addRoute(app, services, { method: 'GET', url: '/jobs/:id', summary: 'One job: status, stage, percent done, result or error', tag: 'jobs', role: 'read', params: JobParams }, async (req) => {
     const { id } = req.params;

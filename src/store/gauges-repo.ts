@@ -102,6 +102,12 @@ export async function listGauges(db: Queryable): Promise<Gauge[]> {
   return (await db.query<GaugeRow>('select * from gauges order by id')).rows.map(fromRow);
 }
 
+/** Up to `limit` gauges after `afterId` in id order (one page of GET /gauges). */
+export async function listGaugesAfter(db: Queryable, afterId: string | null, limit: number): Promise<Gauge[]> {
+  const { rows } = await db.query<GaugeRow>('select * from gauges where $1::text is null or id > $1 order by id limit $2', [afterId, limit]);
+  return rows.map(fromRow);
+}
+
 /** How much archive a gauge holds, per kind; step changes look at it. */
 export async function archiveCounts(db: Queryable, id: string): Promise<Record<string, number>> {
   const { rows } = await db.query<Record<string, number>>(

@@ -113,10 +113,12 @@ export async function getJob(db: Queryable, id: string): Promise<Job | null> {
   return rows[0] ? fromRow(rows[0]) : null;
 }
 
-export async function listJobs(db: Queryable, gaugeId?: string, limit = 50): Promise<Job[]> {
-  const { rows } = gaugeId
-    ? await db.query<Row>('select * from jobs where gauge_id = $1 order by id desc limit $2', [gaugeId, limit])
-    : await db.query<Row>('select * from jobs order by id desc limit $1', [limit]);
+/** Newest first: up to `limit` jobs with ids below `beforeId` (all when null), of one gauge or of all. */
+export async function listJobs(db: Queryable, gaugeId: string | null, beforeId: string | null, limit = 50): Promise<Job[]> {
+  const { rows } = await db.query<Row>(
+    'select * from jobs where ($1::text is null or gauge_id = $1) and ($2::bigint is null or id < $2::bigint) order by id desc limit $3',
+    [gaugeId, beforeId, limit],
+  );
   return rows.map(fromRow);
 }
 

@@ -33,6 +33,59 @@ describe('gauges', () => {
     expect((await t.as('read', { method: 'GET', url: `/gauges/${riverGauge.id}` })).statusCode).toBe(404);
   });
 
+  it('lists gauges a page at a time with an opaque cursor, in a stable order', async () => {
+    const ids = ['page-a', 'page-b', 'page-c', 'page-d', 'page-e'];
+    for (const id of [...ids].reverse()) expect((await t.as('admin', { method: 'POST', url: '/gauges', payload: { ...riverGauge, id } })).statusCode).toBe(201);
+    const seen: string[] = [];
+    let cursor: string | null = null;
+    let pages = 0;
+    do {
+      const res = await t.as('read', { method: 'GET', url: `/gauges?limit=2${cursor ? `&cursor=${encodeURIComponent(cursor)}` : ''}` });
+      expect(res.statusCode, res.body).toBe(200);
+      const body = res.json();
+      expect(body.gauges.length).toBeLessThanOrEqual(2);
+      seen.push(...body.gauges.map((g: { id: string }) => g.id));
+      cursor = body.next;
+      pages++;
+      // A gauge added behind the cursor while paging neither repeats nor shifts the pages.
+      if (pages === 1) expect((await t.as('admin', { method: 'POST', url: '/gauges', payload: { ...riverGauge, id: 'page-0' } })).statusCode).toBe(201);
+    } while (cursor && pages < 20);
+    const all = (await t.as('read', { method: 'GET', url: '/gauges?limit=1000' })).json();
+    expect(all.next).toBeNull();
+    const expected = all.gauges.map((g: { id: string }) => g.id).filter((id: string) => id !== 'page-0');
+    expect(seen).toEqual(expected);
+    expect(seen).toEqual([...seen].sort());
+    for (const id of ids) expect(seen).toContain(id);
+
+    const bad = await t.as('read', { method: 'GET', url: '/gauges?cursor=not-ours' });
+    expect(bad.statusCode).toBe(422);
+    expect(bad.json().errors[0].path).toBe('query.cursor');
+    expect((await t.as('read', { method: 'GET', url: '/gauges?limit=0' })).json().errors[0].path).toBe('query.limit');
+    for (const id of [...ids, 'page-0']) await t.as('admin', { method: 'DELETE', url: `/gauges/${id}` });
+  });
+
+  it('lists jobs newest first, a page at a time, and keeps a cursor to its gauge filter', async () => {
+    const { rows } = await t.db.query<{ id: string }>(
+      `insert into jobs (kind, gauge_id, params) select 'test-kind', null, '{}'::jsonb from generate_series(1, 7) returning id::text as id`,
+    );
+    const made = rows.map((r) => r.id);
+    const seen: string[] = [];
+    let cursor: string | null = null;
+    do {
+      const res = await t.as('read', { method: 'GET', url: `/jobs?limit=3${cursor ? `&cursor=${encodeURIComponent(cursor)}` : ''}` });
+      expect(res.statusCode, res.body).toBe(200);
+      const body = res.json();
+      seen.push(...body.jobs.map((j: { id: string }) => j.id));
+      cursor = body.next;
+    } while (cursor);
+    expect(seen.filter((id) => made.includes(id))).toEqual([...made].reverse());
+    expect(seen.map(Number)).toEqual([...seen.map(Number)].sort((a, b) => b - a));
+    const first = (await t.as('read', { method: 'GET', url: '/jobs?limit=1' })).json();
+    const crossed = await t.as('read', { method: 'GET', url: `/jobs?gauge=page-a&cursor=${encodeURIComponent(first.next)}` });
+    expect(crossed.statusCode).toBe(422);
+    expect(crossed.json().errors[0].path).toBe('query.cursor');
+  });
+
   it('accepts an hourly gauge', async () => {
     const res = await t.as('admin', { method: 'POST', url: '/gauges', payload: { ...riverGauge, id: 'hourly-one', timeStep: 'PT1H' } });
     expect(res.statusCode).toBe(201);
