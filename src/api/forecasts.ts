@@ -3,17 +3,31 @@ import { z } from 'zod';
 import { getRun, latestRunTag, listRuns } from '../store/forecasts-repo.ts';
 import { GaugeParams, requireGauge } from './archive-common.ts';
 import { addRoute, type Services } from './context.ts';
-import { forecastCsv, forecastText, type ForecastView } from '../services/forecast-view.ts';
+import { forecastCsv, forecastText, withMembers, type ForecastView, type MembersChoice } from '../services/forecast-view.ts';
 import { chooseFormat, FormatOnly, type Format } from './formats.ts';
 import { notFound } from '../services/problem.ts';
 import { Rfc3339 } from './schemas.ts';
 
-const FormatQuery = z.strictObject({ format: FormatOnly });
+const FormatQuery = z.strictObject({
+  format: FormatOnly,
+  members: z
+    .enum(['none', 'corrected', 'all'])
+    .default('all')
+    .describe('member series in the JSON: none (quantiles and probabilities only, the smallest answer), corrected, or all (raw and corrected, as stored)'),
+});
 const CACHE_MS = 5_000;
 
+interface SendableRun {
+  etag: string;
+  output: string;
+  /** JSON answers with fewer members, made once per run and kept while the run is cached. */
+  trimmed?: Map<MembersChoice, string>;
+}
+
 /** Sends a stored run in the chosen format with a strong ETag per representation; 304 when unchanged. */
-function sendRun(req: FastifyRequest, reply: FastifyReply, run: { etag: string; output: string }, format: Format, cacheControl: string) {
-  const etag = format === 'json' ? run.etag : `${run.etag.slice(0, -1)}-${format}"`;
+function sendRun(req: FastifyRequest, reply: FastifyReply, run: SendableRun, format: Format, members: MembersChoice, cacheControl: string) {
+  const variant = format === 'json' ? (members === 'all' ? '' : `-members-${members}`) : `-${format}`;
+  const etag = variant ? `${run.etag.slice(0, -1)}${variant}"` : run.etag;
   reply.header('etag', etag).header('cache-control', cacheControl).header('vary', 'accept');
   const match = req.headers['if-none-match'];
   if (match && match.split(',').some((t) => t.trim() === etag || t.trim() === '*')) {
@@ -22,7 +36,11 @@ function sendRun(req: FastifyRequest, reply: FastifyReply, run: { etag: string; 
   }
   if (format === 'json') {
     reply.type('application/json');
-    return run.output;
+    if (members === 'all') return run.output;
+    run.trimmed ??= new Map();
+    let body = run.trimmed.get(members);
+    if (body === undefined) run.trimmed.set(members, (body = withMembers(run.output, members)));
+    return body;
   }
   const view = JSON.parse(run.output) as ForecastView;
   if (format === 'csv') {
@@ -37,16 +55,16 @@ export async function forecastRoutes(app: FastifyInstance, { services }: { servi
   const { db, events } = services;
   // The newest run per gauge, cached briefly and dropped as soon as a new run is announced
   // (LISTEN/NOTIFY reaches every instance); the database stays the only record.
-  const latest = new Map<string, { at: number; id: string; etag: string; output: string }>();
+  const latest = new Map<string, { at: number; id: string } & SendableRun>();
   events.subscribe((a) => latest.delete(a.gaugeId));
 
   addRoute(
     app,
     services,
-    { method: 'GET', url: '/gauges/:id/forecasts/latest', summary: "The gauge's newest corrected forecast (JSON, CSV or a plain-text table; ETag and 304)", tag: 'forecasts', role: 'read', params: GaugeParams, query: FormatQuery, responseTypes: ['application/json', 'text/csv', 'text/plain'] },
+    { method: 'GET', url: '/gauges/:id/forecasts/latest', summary: "The gauge's newest corrected forecast (JSON, CSV or a plain-text table; ETag and 304); members=none|corrected|all trims the JSON for dashboards", tag: 'forecasts', role: 'read', params: GaugeParams, query: FormatQuery, responseTypes: ['application/json', 'text/csv', 'text/plain'] },
     async (req, reply) => {
       const { id } = req.params;
-      const { format } = req.query;
+      const { format, members } = req.query;
       let hit = latest.get(id);
       if (!hit || Date.now() - hit.at > CACHE_MS) {
         const tag = await latestRunTag(db, id);
@@ -62,7 +80,7 @@ export async function forecastRoutes(app: FastifyInstance, { services }: { servi
         }
         latest.set(id, hit);
       }
-      return sendRun(req, reply, hit, chooseFormat(req, format), 'private, max-age=10, must-revalidate');
+      return sendRun(req, reply, hit, chooseFormat(req, format), members, 'private, max-age=10, must-revalidate');
     },
   );
 
@@ -73,10 +91,10 @@ export async function forecastRoutes(app: FastifyInstance, { services }: { servi
     { method: 'GET', url: '/forecasts/:runId', summary: 'One stored run by id (JSON, CSV or text)', tag: 'forecasts', role: 'read', params: RunParams, query: FormatQuery, responseTypes: ['application/json', 'text/csv', 'text/plain'] },
     async (req, reply) => {
       const { runId } = req.params;
-      const { format } = req.query;
+      const { format, members } = req.query;
       const run = await getRun(db, runId);
       if (!run) throw notFound(`no run ${runId}`);
-      return sendRun(req, reply, run, chooseFormat(req, format), 'private, max-age=86400, immutable');
+      return sendRun(req, reply, run, chooseFormat(req, format), members, 'private, max-age=86400, immutable');
     },
   );
 

@@ -158,6 +158,22 @@ export function buildForecastView(v: ViewInput): ForecastView {
   };
 }
 
+/** Which member series a forecast answer carries: none, the corrected ones, or raw and corrected (as stored). */
+export type MembersChoice = 'none' | 'corrected' | 'all';
+
+/**
+ * The stored answer with fewer member series, for dashboards that draw only quantiles and
+ * probabilities (the members are most of a run's bytes). `members` says what was kept; an
+ * omitted series is left out, never emptied, so no reader takes it for "no members".
+ */
+export function withMembers(storedJson: string, members: MembersChoice): string {
+  if (members === 'all') return storedJson;
+  const { ensemble, ...view } = JSON.parse(storedJson) as ForecastView;
+  const memberCount = ensemble.corrected?.length ?? ensemble.raw.length;
+  if (members === 'none') return JSON.stringify({ ...view, members: 'none', memberCount });
+  return JSON.stringify({ ...view, members: 'corrected', memberCount, ensemble: { corrected: ensemble.corrected } });
+}
+
 function coarseNote(n: number): string {
   return `Only ${n} trajectories: the probabilities are coarse (steps of ${round(100 / n, 1)} points, standard error up to ${round(50 / Math.sqrt(n), 1)} points); ask for at least ${COARSE_TRAJECTORIES}.`;
 }

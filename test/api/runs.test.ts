@@ -198,6 +198,28 @@ describe('reading forecasts', () => {
     expect(text.body).toContain('any time');
   });
 
+  it('trims the member series on request (members=none|corrected|all), each with its own ETag', async () => {
+    const url = `/gauges/${gaugeId}/forecasts/latest`;
+    const full = await t.as('read', { method: 'GET', url });
+    const all = full.json();
+    const { ensemble, ...rest } = all;
+    const none = await t.as('read', { method: 'GET', url: `${url}?members=none` });
+    expect(none.statusCode).toBe(200);
+    expect(none.json()).toEqual({ ...rest, members: 'none', memberCount: 6 });
+    expect(none.body.length).toBeLessThan(full.body.length);
+    const corrected = await t.as('read', { method: 'GET', url: `${url}?members=corrected` });
+    expect(corrected.json()).toEqual({ ...rest, members: 'corrected', memberCount: 6, ensemble: { corrected: ensemble.corrected } });
+    expect((await t.as('read', { method: 'GET', url: `${url}?members=all` })).body).toBe(full.body);
+    const tags = [full, none, corrected].map((r) => r.headers.etag as string);
+    expect(new Set(tags).size).toBe(3);
+    expect((await t.as('read', { method: 'GET', url: `${url}?members=none`, headers: { 'if-none-match': tags[1] } })).statusCode).toBe(304);
+    expect((await t.as('read', { method: 'GET', url: `${url}?members=none`, headers: { 'if-none-match': tags[0] } })).statusCode).toBe(200);
+    expect((await t.as('read', { method: 'GET', url: `/forecasts/${all.id}?members=none` })).json()).toEqual(none.json());
+    const bad = await t.as('read', { method: 'GET', url: `${url}?members=some` });
+    expect(bad.statusCode).toBe(422);
+    expect(bad.json().errors[0].path).toBe('query.members');
+  });
+
   it('reads a run by id and lists runs in a window', async () => {
     const latest = (await t.as('read', { method: 'GET', url: `/gauges/${gaugeId}/forecasts/latest` })).json();
     const byId = await t.as('read', { method: 'GET', url: `/forecasts/${latest.id}` });
