@@ -54,7 +54,7 @@ export async function buildApp(options: AppOptions): Promise<FastifyInstance> {
   });
   app.addHook('onResponse', async (request, reply) => {
     const route = request.routeOptions.url ?? 'unmatched';
-    services.metrics.requests.inc({ route, method: request.method, status: String(reply.statusCode) });
+    services.metrics.requests.inc({ method: request.method, route, status: String(reply.statusCode) });
     services.metrics.latency.observe({ route }, reply.elapsedTime / 1000);
   });
 

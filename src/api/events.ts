@@ -56,6 +56,7 @@ export async function eventRoutes(app: FastifyInstance, { services }: { services
       res.writeHead(200, { 'content-type': 'text/event-stream', 'cache-control': 'no-cache', connection: 'keep-alive', 'x-accel-buffering': 'no' });
       res.write(`retry: ${RETRY_MS}\n: connected\n\n`);
       open.add(res);
+      services.events.openStreams++;
 
       // Everything after `sent` has not been written yet; live announcements that arrive while the
       // store is read are held back and written after the replay, each run once.
@@ -76,6 +77,7 @@ export async function eventRoutes(app: FastifyInstance, { services }: { services
         clearInterval(keepAlive);
         unsubscribe();
         open.delete(res);
+        services.events.openStreams--;
       });
 
       try {

@@ -16,6 +16,8 @@ export interface RunAnnouncement {
 export class ForecastEvents {
   private listeners = new Set<(a: RunAnnouncement) => void>();
   private stop: (() => Promise<void>) | null = null;
+  /** Server-sent-event streams open now (the events route counts them; other listeners are not streams). */
+  openStreams = 0;
 
   async start(db: Db): Promise<void> {
     this.stop = await db.listen('forecast_runs', (payload) => {
