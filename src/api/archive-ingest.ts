@@ -11,6 +11,7 @@ import type { Queryable } from '../store/db.ts';
 import type { Gauge } from '../store/gauges-repo.ts';
 import { bodyFormat, GaugeParams, requireGauge } from './archive-common.ts';
 import { addRoute, type Services } from './context.ts';
+import { IngestAnswer } from './schemas.ts';
 import { parseCsv, splitHeader } from './csv.ts';
 import { parseWith } from './validate.ts';
 
@@ -103,7 +104,7 @@ export function addIngestRoute<S extends z.ZodType, B, C>(
   addRoute(
     app,
     services,
-    { method: 'POST', url: `/gauges/:id/${route.resource}`, summary: route.summary, tag: 'archive', role: 'ingest', params: GaugeParams, body: route.body, bodyTypes: ['application/json', 'text/csv'], bodyDecodedByHandler: true },
+    { method: 'POST', url: `/gauges/:id/${route.resource}`, summary: route.summary, tag: 'archive', role: 'ingest', params: GaugeParams, body: route.body, bodyTypes: ['application/json', 'text/csv'], bodyDecodedByHandler: true, response: IngestAnswer },
     async (req) => {
       const errors = new ErrorList();
       const input = bodyFormat(req) === 'csv' ? { csv: req.body as string } : { json: parseWith(route.body, req.body, 'body') };

@@ -1,4 +1,5 @@
 import type { FastifyInstance } from 'fastify';
+import { z } from 'zod';
 import { addRoute, type Services } from './context.ts';
 
 const info = {
@@ -13,7 +14,7 @@ export async function docsRoutes(app: FastifyInstance, { services }: { services:
   let cached: Record<string, unknown> | null = null;
   const documentOnce = () => (cached ??= services.docs.document(info));
 
-  addRoute(app, services, { method: 'GET', url: '/openapi.json', summary: 'This API as an OpenAPI 3.1 document', tag: 'docs', role: 'open' }, async () =>
+  addRoute(app, services, { method: 'GET', url: '/openapi.json', summary: 'This API as an OpenAPI 3.1 document', tag: 'docs', role: 'open', response: z.looseObject({ openapi: z.string(), info: z.looseObject({ title: z.string(), version: z.string() }), paths: z.record(z.string(), z.unknown()), components: z.unknown() }) }, async () =>
     documentOnce(),
   );
   addRoute(app, services, { method: 'GET', url: '/api', summary: 'Browsable list of the API', tag: 'docs', role: 'open', responseTypes: ['text/html'] }, async (_req, reply) => {

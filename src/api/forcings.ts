@@ -4,7 +4,7 @@ import { ensureForcingVariable, forcingUnits, readForcings, upsertForcing } from
 import { GaugeParams, readWindow, requireGauge, sendCsv, wantsCsv } from './archive-common.ts';
 import { addIngestRoute, timeColumnsFromCsv, timeColumnsFromJson, type TimeColumns } from './archive-ingest.ts';
 import { addRoute, type Services } from './context.ts';
-import { TimeWindowQuery } from './schemas.ts';
+import { Series, TimeWindowQuery } from './schemas.ts';
 import { checkTimes, checkValues, isoUtc, knownForcingUnits } from '../services/series-input.ts';
 
 const VariableName = z.string().regex(/^[a-z][a-z0-9_]{0,47}$/, 'must be lowercase letters, digits and underscores, e.g. precipitation');
@@ -68,7 +68,7 @@ export async function forcingRoutes(app: FastifyInstance, { services }: { servic
   addRoute(
     app,
     services,
-    { method: 'GET', url: '/gauges/:id/forcings', summary: 'Forcings in a time window (JSON or CSV); variables=a,b to choose', tag: 'archive', role: 'read', params: GaugeParams, query: ForcingsQuery, responseTypes: ['application/json', 'text/csv'] },
+    { method: 'GET', url: '/gauges/:id/forcings', summary: 'Forcings in a time window (JSON or CSV); variables=a,b to choose', tag: 'archive', role: 'read', params: GaugeParams, query: ForcingsQuery, response: z.object({ gaugeId: z.string(), times: z.array(z.string()), variables: z.array(Series) }), responseTypes: ['application/json', 'text/csv'] },
     async (req, reply) => {
       const gauge = await requireGauge(db, req.params);
       const q = req.query;

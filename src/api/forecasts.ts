@@ -6,7 +6,14 @@ import { addRoute, type Services } from './context.ts';
 import { forecastCsv, forecastText, withMembers, type ForecastView, type MembersChoice } from '../services/forecast-view.ts';
 import { chooseFormat, FormatOnly, type Format } from './formats.ts';
 import { notFound } from '../services/problem.ts';
-import { Rfc3339 } from './schemas.ts';
+import { ForecastAnswer, Rfc3339, RunSummaryAnswer } from './schemas.ts';
+
+const RunListAnswer = z.object({
+  gaugeId: z.string(),
+  runs: z.array(
+    z.object({ id: z.string(), issueTime: z.string(), source: z.string(), status: z.string(), modelVersionId: z.string().nullable(), thresholds: z.array(RunSummaryAnswer), createdAt: z.string(), href: z.string() }),
+  ),
+});
 
 const FormatQuery = z.strictObject({
   format: FormatOnly,
@@ -61,7 +68,7 @@ export async function forecastRoutes(app: FastifyInstance, { services }: { servi
   addRoute(
     app,
     services,
-    { method: 'GET', url: '/gauges/:id/forecasts/latest', summary: "The gauge's newest corrected forecast (JSON, CSV or a plain-text table; ETag and 304); members=none|corrected|all trims the JSON for dashboards", tag: 'forecasts', role: 'read', params: GaugeParams, query: FormatQuery, responseTypes: ['application/json', 'text/csv', 'text/plain'] },
+    { method: 'GET', url: '/gauges/:id/forecasts/latest', summary: "The gauge's newest corrected forecast (JSON, CSV or a plain-text table; ETag and 304); members=none|corrected|all trims the JSON for dashboards", tag: 'forecasts', role: 'read', params: GaugeParams, query: FormatQuery, response: ForecastAnswer, responseTypes: ['application/json', 'text/csv', 'text/plain'] },
     async (req, reply) => {
       const { id } = req.params;
       const { format, members } = req.query;
@@ -88,7 +95,7 @@ export async function forecastRoutes(app: FastifyInstance, { services }: { servi
   addRoute(
     app,
     services,
-    { method: 'GET', url: '/forecasts/:runId', summary: 'One stored run by id (JSON, CSV or text)', tag: 'forecasts', role: 'read', params: RunParams, query: FormatQuery, responseTypes: ['application/json', 'text/csv', 'text/plain'] },
+    { method: 'GET', url: '/forecasts/:runId', summary: 'One stored run by id (JSON, CSV or text)', tag: 'forecasts', role: 'read', params: RunParams, query: FormatQuery, response: ForecastAnswer, responseTypes: ['application/json', 'text/csv', 'text/plain'] },
     async (req, reply) => {
       const { runId } = req.params;
       const { format, members } = req.query;
@@ -102,7 +109,7 @@ export async function forecastRoutes(app: FastifyInstance, { services }: { servi
   addRoute(
     app,
     services,
-    { method: 'GET', url: '/gauges/:id/forecasts', summary: 'Runs issued in a time window, newest first, with their threshold summaries', tag: 'forecasts', role: 'read', params: GaugeParams, query: WindowQuery },
+    { method: 'GET', url: '/gauges/:id/forecasts', summary: 'Runs issued in a time window, newest first, with their threshold summaries', tag: 'forecasts', role: 'read', params: GaugeParams, query: WindowQuery, response: RunListAnswer },
     async (req) => {
       const gauge = await requireGauge(db, req.params);
       const q = req.query;

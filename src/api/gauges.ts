@@ -6,8 +6,8 @@ import { getGaugeStatus } from '../store/gauge-status-repo.ts';
 import { hasRuns } from '../store/verification-repo.ts';
 import { addRoute, type Services } from './context.ts';
 import { conflict, notFound } from '../services/problem.ts';
-import { decodeCursor, encodeCursor, pageQuery } from './pagination.ts';
-import { FlowUnit, GaugeId, IsoDuration, Location, Thresholds, TimeZone } from './schemas.ts';
+import { decodeCursor, encodeCursor, NextCursor, pageQuery } from './pagination.ts';
+import { FlowUnit, GaugeAnswer, GaugeDetailAnswer, GaugeId, IsoDuration, Location, Thresholds, TimeZone } from './schemas.ts';
 
 const GaugeFields = {
   name: z.string().trim().min(1).max(200),
@@ -32,7 +32,7 @@ const DeleteQuery = z.strictObject({ force: z.enum(['true', 'false']).optional()
 export async function gaugeRoutes(app: FastifyInstance, { services }: { services: Services }) {
   const { db } = services;
 
-  addRoute(app, services, { method: 'POST', url: '/gauges', summary: 'Create a gauge', tag: 'gauges', role: 'admin', body: GaugeCreate }, async (req, reply) => {
+  addRoute(app, services, { method: 'POST', url: '/gauges', summary: 'Create a gauge', tag: 'gauges', role: 'admin', body: GaugeCreate, response: GaugeAnswer, status: 201 }, async (req, reply) => {
     const body = req.body;
     const input: GaugeInput = {
       ...body,
@@ -47,7 +47,7 @@ export async function gaugeRoutes(app: FastifyInstance, { services }: { services
     });
   });
 
-  addRoute(app, services, { method: 'GET', url: '/gauges', summary: 'Gauges in id order, a page at a time (limit, cursor → next)', tag: 'gauges', role: 'read', query: ListQuery }, async (req) => {
+  addRoute(app, services, { method: 'GET', url: '/gauges', summary: 'Gauges in id order, a page at a time (limit, cursor → next)', tag: 'gauges', role: 'read', query: ListQuery, response: z.object({ gauges: z.array(GaugeAnswer), next: NextCursor }) }, async (req) => {
     const { limit, cursor } = req.query;
     const after = cursor === undefined ? null : decodeCursor(cursor, GaugesCursor).after;
     const rows = await listGaugesAfter(db, after, limit + 1);
@@ -55,7 +55,7 @@ export async function gaugeRoutes(app: FastifyInstance, { services }: { services
     return { gauges, next: rows.length > limit ? encodeCursor({ after: gauges[gauges.length - 1].id }) : null };
   });
 
-  addRoute(app, services, { method: 'GET', url: '/gauges/:id', summary: 'One gauge with the size of its archive', tag: 'gauges', role: 'read', params: Params }, async (req) => {
+  addRoute(app, services, { method: 'GET', url: '/gauges/:id', summary: 'One gauge with the size of its archive', tag: 'gauges', role: 'read', params: Params, response: GaugeDetailAnswer }, async (req) => {
     const { id } = req.params;
     const gauge = await getGauge(db, id);
     if (!gauge) throw notFound(`no gauge ${id}`);
@@ -65,7 +65,7 @@ export async function gaugeRoutes(app: FastifyInstance, { services }: { services
     return { ...gauge, archive: await archiveCounts(db, id), status, drift };
   });
 
-  addRoute(app, services, { method: 'PATCH', url: '/gauges/:id', summary: 'Change a gauge', tag: 'gauges', role: 'admin', params: Params, body: GaugePatch }, async (req) => {
+  addRoute(app, services, { method: 'PATCH', url: '/gauges/:id', summary: 'Change a gauge', tag: 'gauges', role: 'admin', params: Params, body: GaugePatch, response: GaugeAnswer }, async (req) => {
     const { id } = req.params;
     const patch = req.body;
     return db.transaction(async (tx) => {
@@ -83,7 +83,7 @@ export async function gaugeRoutes(app: FastifyInstance, { services }: { services
     });
   });
 
-  addRoute(app, services, { method: 'DELETE', url: '/gauges/:id', summary: 'Delete a gauge (refused while it holds data unless force=true)', tag: 'gauges', role: 'admin', params: Params, query: DeleteQuery }, async (req, reply) => {
+  addRoute(app, services, { method: 'DELETE', url: '/gauges/:id', summary: 'Delete a gauge (refused while it holds data unless force=true)', tag: 'gauges', role: 'admin', params: Params, query: DeleteQuery, status: 204 }, async (req, reply) => {
     const { id } = req.params;
     const { force } = req.query;
     await db.transaction(async (tx) => {

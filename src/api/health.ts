@@ -1,11 +1,12 @@
 import type { FastifyInstance } from 'fastify';
+import { z } from 'zod';
 import { addRoute, type Services } from './context.ts';
 
 export async function healthRoutes(app: FastifyInstance, { services }: { services: Services }) {
-  addRoute(app, services, { method: 'GET', url: '/healthz', summary: 'The process is alive', tag: 'health', role: 'open' }, async () => ({
+  addRoute(app, services, { method: 'GET', url: '/healthz', summary: 'The process is alive', tag: 'health', role: 'open', response: z.object({ status: z.literal('ok') }) }, async () => ({
     status: 'ok',
   }));
-  addRoute(app, services, { method: 'GET', url: '/readyz', summary: 'The database answers', tag: 'health', role: 'open' }, async (_req, reply) => {
+  addRoute(app, services, { method: 'GET', url: '/readyz', summary: 'The database answers', tag: 'health', role: 'open', response: z.object({ status: z.literal('ready'), store: z.enum(['postgres', 'embedded']) }) }, async (_req, reply) => {
     try {
       await services.db.query('select 1');
       return { status: 'ready', store: services.db.kind };

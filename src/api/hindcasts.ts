@@ -7,7 +7,23 @@ import { getJob, listJobs, type Job } from '../store/jobs-repo.ts';
 import { GaugeParams, requireGauge } from './archive-common.ts';
 import { addRoute, type Services } from './context.ts';
 import { conflict, notFound } from '../services/problem.ts';
-import { Rfc3339 } from './schemas.ts';
+import { JobAnswer, Rfc3339 } from './schemas.ts';
+
+const HindcastSummary = z.object({
+  id: z.string(),
+  status: z.enum(['queued', 'running', 'succeeded', 'failed', 'cancelled']),
+  stage: z.string(),
+  percent: z.number(),
+  mode: z.string(),
+  purpose: z.string().optional(),
+  modelVersion: z.string().nullable().optional(),
+  from: z.string().nullable().optional(),
+  to: z.string().nullable().optional(),
+  createdAt: z.string(),
+  finishedAt: z.string().nullable(),
+  error: z.string().nullable(),
+  href: z.string(),
+});
 import { chooseFormat, FormatOnly } from './formats.ts';
 import { CAUTION } from '../services/caution.ts';
 import { scoresCsv, scoresText, sendReport, sizeStudyText, warningsText } from './report-formats.ts';
@@ -112,6 +128,8 @@ export async function hindcastRoutes(app: FastifyInstance, { services }: { servi
       params: GaugeParams,
       body: HindcastBody,
       bodyOptional: true,
+      response: JobAnswer.extend({ href: z.string() }),
+      status: 202,
     },
     async (req, reply) => {
       const gauge = await requireGauge(db, req.params);
@@ -125,7 +143,7 @@ export async function hindcastRoutes(app: FastifyInstance, { services }: { servi
   addRoute(
     app,
     services,
-    { method: 'GET', url: '/gauges/:id/hindcasts', summary: "The gauge's hindcast jobs, newest first", tag: 'verification', role: 'read', params: GaugeParams },
+    { method: 'GET', url: '/gauges/:id/hindcasts', summary: "The gauge's hindcast jobs, newest first", tag: 'verification', role: 'read', params: GaugeParams, response: z.object({ gaugeId: z.string(), hindcasts: z.array(HindcastSummary) }) },
     async (req) => {
       const gauge = await requireGauge(db, req.params);
       const jobs = (await listJobs(db, gauge.id, null, 200)).filter((j) => j.kind === 'hindcast');
@@ -144,6 +162,7 @@ export async function hindcastRoutes(app: FastifyInstance, { services }: { servi
       role: 'read',
       params: HindcastParams,
       query: HindcastQuery,
+      response: HindcastSummary.extend({ params: z.unknown(), startedAt: z.string().nullable(), result: z.looseObject({}).nullable().describe('when succeeded: the comparison, size study, advice, warnings and scores (see the README)') }),
       responseTypes: ['application/json', 'text/csv', 'text/plain'],
     },
     async (req, reply) => {

@@ -3,8 +3,8 @@ import { z } from 'zod';
 import { getJob, listJobs, requestCancel } from '../store/jobs-repo.ts';
 import { addRoute, type Services } from './context.ts';
 import { invalid, notFound } from '../services/problem.ts';
-import { decodeCursor, encodeCursor, pageQuery } from './pagination.ts';
-import { GaugeId } from './schemas.ts';
+import { decodeCursor, encodeCursor, NextCursor, pageQuery } from './pagination.ts';
+import { GaugeId, JobAnswer } from './schemas.ts';
 
 const JobParams = z.object({ id: z.string() });
 const JobsQuery = z.strictObject({ gauge: GaugeId.optional(), ...pageQuery(50, 500) });
@@ -13,7 +13,7 @@ const JobsCursor = z.strictObject({ before: z.string().regex(/^\d{1,18}$/), gaug
 
 export async function jobRoutes(app: FastifyInstance, { services }: { services: Services }) {
   const { db } = services;
-  addRoute(app, services, { method: 'GET', url: '/jobs', summary: 'Background jobs (fits, archives, hindcasts), newest first, a page at a time (limit, cursor → next)', tag: 'jobs', role: 'read', query: JobsQuery }, async (req) => {
+  addRoute(app, services, { method: 'GET', url: '/jobs', summary: 'Background jobs (fits, archives, hindcasts), newest first, a page at a time (limit, cursor → next)', tag: 'jobs', role: 'read', query: JobsQuery, response: z.object({ jobs: z.array(JobAnswer), next: NextCursor }) }, async (req) => {
     const { limit, cursor } = req.query;
     const gauge = req.query.gauge ?? null;
     const after = cursor === undefined ? null : decodeCursor(cursor, JobsCursor);
@@ -22,13 +22,13 @@ export async function jobRoutes(app: FastifyInstance, { services }: { services: 
     const jobs = rows.slice(0, limit);
     return { jobs, next: rows.length > limit ? encodeCursor({ before: jobs[jobs.length - 1].id, gauge }) : null };
   });
-  addRoute(app, services, { method: 'GET', url: '/jobs/:id', summary: 'One job: status, stage, percent done, result or error', tag: 'jobs', role: 'read', params: JobParams }, async (req) => {
+  addRoute(app, services, { method: 'GET', url: '/jobs/:id', summary: 'One job: status, stage, percent done, result or error', tag: 'jobs', role: 'read', params: JobParams, response: JobAnswer }, async (req) => {
     const { id } = req.params;
     const job = await getJob(db, id);
     if (!job) throw notFound(`no job ${id}`);
     return job;
   });
-  addRoute(app, services, { method: 'POST', url: '/jobs/:id/cancel', summary: 'Ask a job to stop; a queued job is cancelled at once', tag: 'jobs', role: 'admin', params: JobParams }, async (req, reply) => {
+  addRoute(app, services, { method: 'POST', url: '/jobs/:id/cancel', summary: 'Ask a job to stop; a queued job is cancelled at once', tag: 'jobs', role: 'admin', params: JobParams, response: JobAnswer, status: 202 }, async (req, reply) => {
     const { id } = req.params;
     const job = await requestCancel(db, id);
     if (!job) throw notFound(`no job ${id}`);

@@ -8,7 +8,7 @@ import { getModelVersion, listModelVersions, versionArchiveSummaries, type Model
 import { GaugeParams, requireGauge } from './archive-common.ts';
 import { addRoute, type Services } from './context.ts';
 import { notFound } from '../services/problem.ts';
-import { Rfc3339 } from './schemas.ts';
+import { JobAnswer, ModelVersionAnswer, Rfc3339 } from './schemas.ts';
 
 const PeriodBody = z.strictObject({ from: Rfc3339, to: Rfc3339 }).refine((p) => Date.parse(p.from) < Date.parse(p.to), { message: 'from must be before to', path: ['to'] });
 
@@ -111,7 +111,7 @@ export async function modelRoutes(app: FastifyInstance, { services }: { services
     archives: (await versionArchiveSummaries(db, v.id)).map((a) => ({ kind: a.kind, leadMode: a.leadMode, ...a.summary })),
   });
 
-  addRoute(app, services, { method: 'POST', url: '/gauges/:id/models/fit', summary: 'Start fitting (and optionally tuning) a residual model; answers at once with a job', tag: 'models', role: 'admin', params: GaugeParams, body: FitBody, bodyOptional: true }, async (req, reply) => {
+  addRoute(app, services, { response: JobAnswer, status: 202, method: 'POST', url: '/gauges/:id/models/fit', summary: 'Start fitting (and optionally tuning) a residual model; answers at once with a job', tag: 'models', role: 'admin', params: GaugeParams, body: FitBody, bodyOptional: true }, async (req, reply) => {
     const gauge = await requireGauge(db, req.params);
     const body = req.body;
     const job = await enqueueJob(db, 'fit', gauge.id, body, req.principal?.tokenId ?? null);
@@ -119,7 +119,7 @@ export async function modelRoutes(app: FastifyInstance, { services }: { services
     return job;
   });
 
-  addRoute(app, services, { method: 'POST', url: '/gauges/:id/models/upload', summary: 'Upload an ONNX residual model trained elsewhere, with its feature spec; it is checked on archive rows first', tag: 'models', role: 'admin', params: GaugeParams, body: UploadBody }, async (req, reply) => {
+  addRoute(app, services, { response: ModelVersionAnswer, status: 201, method: 'POST', url: '/gauges/:id/models/upload', summary: 'Upload an ONNX residual model trained elsewhere, with its feature spec; it is checked on archive rows first', tag: 'models', role: 'admin', params: GaugeParams, body: UploadBody }, async (req, reply) => {
     const gauge = await requireGauge(db, req.params);
     const body = req.body;
     const id = await evaluateUpload(db, gauge, body, req.principal?.tokenId ?? null);
@@ -127,30 +127,30 @@ export async function modelRoutes(app: FastifyInstance, { services }: { services
     return withArchives((await getModelVersion(db, gauge.id, id))!);
   });
 
-  addRoute(app, services, { method: 'GET', url: '/gauges/:id/models', summary: "A gauge's residual model versions, newest first", tag: 'models', role: 'read', params: GaugeParams }, async (req) => {
+  addRoute(app, services, { response: z.object({ gaugeId: z.string(), versions: z.array(ModelVersionAnswer) }), method: 'GET', url: '/gauges/:id/models', summary: "A gauge's residual model versions, newest first", tag: 'models', role: 'read', params: GaugeParams }, async (req) => {
     const gauge = await requireGauge(db, req.params);
     return { gaugeId: gauge.id, versions: await listModelVersions(db, gauge.id) };
   });
 
-  addRoute(app, services, { method: 'GET', url: '/gauges/:id/models/:version', summary: 'One model version: feature spec, periods, trainer, validation scores, error archives', tag: 'models', role: 'read', params: VersionParams }, async (req) => {
+  addRoute(app, services, { response: ModelVersionAnswer, method: 'GET', url: '/gauges/:id/models/:version', summary: 'One model version: feature spec, periods, trainer, validation scores, error archives', tag: 'models', role: 'read', params: VersionParams }, async (req) => {
     const { id, version } = req.params;
     const v = await getModelVersion(db, id, version);
     if (!v) throw notFound(`no model version ${version} for gauge ${id}`);
     return withArchives(v);
   });
 
-  addRoute(app, services, { method: 'POST', url: '/gauges/:id/models/:version/activate', summary: 'Make a version the one that corrects new runs', tag: 'models', role: 'admin', params: VersionParams }, async (req) => {
+  addRoute(app, services, { response: ModelVersionAnswer, method: 'POST', url: '/gauges/:id/models/:version/activate', summary: 'Make a version the one that corrects new runs', tag: 'models', role: 'admin', params: VersionParams }, async (req) => {
     const { id, version } = req.params;
     return activateVersion(db, services.pool, id, version, app.log);
   });
 
-  addRoute(app, services, { method: 'POST', url: '/gauges/:id/models/rollback', summary: 'Re-activate the version that was active before the current one', tag: 'models', role: 'admin', params: GaugeParams }, async (req) => {
+  addRoute(app, services, { response: z.object({ rolledBackFrom: z.string().nullable(), active: ModelVersionAnswer }), method: 'POST', url: '/gauges/:id/models/rollback', summary: 'Re-activate the version that was active before the current one', tag: 'models', role: 'admin', params: GaugeParams }, async (req) => {
     const gauge = await requireGauge(db, req.params);
     return rollbackVersion(db, services.pool, gauge.id, app.log);
   });
 
   const RawArchiveBody = z.strictObject({ transform: Transform.default({ kind: 'log' }), templateLength: z.number().int().min(1).max(2000).default(240) });
-  addRoute(app, services, { method: 'POST', url: '/gauges/:id/raw-archive', summary: "Start building the raw members' error archive (used in degraded mode)", tag: 'models', role: 'admin', params: GaugeParams, body: RawArchiveBody, bodyOptional: true }, async (req, reply) => {
+  addRoute(app, services, { response: JobAnswer, status: 202, method: 'POST', url: '/gauges/:id/raw-archive', summary: "Start building the raw members' error archive (used in degraded mode)", tag: 'models', role: 'admin', params: GaugeParams, body: RawArchiveBody, bodyOptional: true }, async (req, reply) => {
     const gauge = await requireGauge(db, req.params);
     const body = req.body;
     const job = await enqueueJob(db, 'raw-archive', gauge.id, body, req.principal?.tokenId ?? null);

@@ -55,7 +55,7 @@ export async function observationRoutes(app: FastifyInstance, { services }: { se
   addRoute(
     app,
     services,
-    { method: 'GET', url: '/gauges/:id/observations', summary: 'Observed flow in a time window (JSON or CSV)', tag: 'archive', role: 'read', params: GaugeParams, query: TimeWindowQuery, responseTypes: ['application/json', 'text/csv'] },
+    { method: 'GET', url: '/gauges/:id/observations', summary: 'Observed flow in a time window (JSON or CSV)', tag: 'archive', role: 'read', params: GaugeParams, query: TimeWindowQuery, response: z.object({ gaugeId: z.string(), unit: z.literal('m3/s'), times: z.array(z.string()), values: z.array(z.number().nullable()), quality: z.array(z.string().nullable()) }), responseTypes: ['application/json', 'text/csv'] },
     async (req, reply) => {
       const gauge = await requireGauge(db, req.params);
       const { window, format } = readWindow(req.query);

@@ -15,10 +15,13 @@ export interface RouteDoc {
   /** The handler decodes the body itself (JSON or CSV), so addRoute leaves it as sent; the schema is for the document. */
   bodyDecodedByHandler?: boolean;
   bodyTypes?: string[];
+  /** The JSON answer's schema (the OpenAPI document's response schema is generated from it). */
   response?: z.ZodType;
   /** The route may be opened with a stream ticket (?ticket=, from POST /stream-tickets) instead of a bearer token. */
   acceptsStreamTicket?: boolean;
   responseTypes?: string[];
+  /** The success status (or statuses); 200 when not given, 204 means no body. */
+  status?: number | number[];
 }
 
 export class ApiDocs {
@@ -52,21 +55,8 @@ export class ApiDocs {
         tags: [r.tag],
         ...(parameters.length ? { parameters } : {}),
         ...(r.role === 'open' ? { security: [] } : { 'x-required-role': r.role }),
-        responses: {
-          '2XX': {
-            description: 'success',
-            content: Object.fromEntries(
-              (r.responseTypes ?? ['application/json']).map((t) => [
-                t,
-                t === 'application/json' && r.response ? { schema: toSchema(r.response, 'output') } : {},
-              ]),
-            ),
-          },
-          default: {
-            description: 'problem details (RFC 9457)',
-            content: { 'application/problem+json': { schema: { $ref: '#/components/schemas/Problem' } } },
-          },
-        },
+        ...(r.acceptsStreamTicket ? { security: [{ bearer: [] }, { streamTicket: [] }] } : {}),
+        responses: responsesOf(r),
       };
       if (r.body) {
         op.requestBody = {
@@ -86,7 +76,10 @@ export class ApiDocs {
       info,
       paths,
       components: {
-        securitySchemes: { bearer: { type: 'http', scheme: 'bearer' } },
+        securitySchemes: {
+          bearer: { type: 'http', scheme: 'bearer' },
+          streamTicket: { type: 'apiKey', in: 'query', name: 'ticket', description: 'single-use, about a minute, from POST /stream-tickets; GET /events only' },
+        },
         schemas: {
           Problem: {
             type: 'object',
@@ -106,6 +99,34 @@ export class ApiDocs {
       security: [{ bearer: [] }],
     };
   }
+}
+
+const problemResponse = (description: string) => ({
+  description,
+  content: { 'application/problem+json': { schema: { $ref: '#/components/schemas/Problem' } } },
+});
+
+/**
+ * The success answer(s) in every content type the route offers (JSON from the route's zod
+ * schema, other types as text) and the problem answers every route can give.
+ */
+function responsesOf(r: RouteDoc): Record<string, unknown> {
+  const out: Record<string, unknown> = {};
+  for (const status of [r.status ?? 200].flat()) {
+    if (status === 204) {
+      out['204'] = { description: 'done; no content' };
+      continue;
+    }
+    out[String(status)] = {
+      description: status === 201 ? 'created' : status === 202 ? 'accepted; follow the job' : 'success',
+      content: Object.fromEntries(
+        (r.responseTypes ?? ['application/json']).map((t) => [t, { schema: t === 'application/json' ? (r.response ? toSchema(r.response, 'output') : {}) : { type: 'string' } }]),
+      ),
+    };
+  }
+  out['4XX'] = problemResponse('problem details (RFC 9457): the request was refused (bad field, no or weak token, not found, conflict); `errors` names each field path or CSV line');
+  out['5XX'] = problemResponse('problem details (RFC 9457): the service could not answer now (busy: Retry-After; not ready; internal error)');
+  return out;
 }
 
 function toSchema(schema: z.ZodType, io: 'input' | 'output'): unknown {

@@ -5,11 +5,28 @@ import { listGaugeStatuses } from '../store/gauge-status-repo.ts';
 import { CAUTION } from '../services/caution.ts';
 import { addRoute, type Services } from './context.ts';
 import { isoUtc } from '../services/series-input.ts';
+import { z } from 'zod';
+import { DriftStatus } from './schemas.ts';
+
+const OverviewAnswer = z.object({
+  caution: z.string(),
+  attentionLevel: z.number(),
+  gauges: z.array(
+    z.object({
+      id: z.string(),
+      name: z.string(),
+      timeZone: z.string().describe("the gauge's IANA time zone, for showing times"),
+      status: DriftStatus,
+      latest: z.object({ id: z.string(), issueTime: z.string(), status: z.string() }).nullable(),
+      thresholds: z.array(z.object({ label: z.string(), value: z.number(), maxExceedance: z.number().nullable(), anyTime: z.number().nullable(), attention: z.boolean() })),
+    }),
+  ),
+});
 
 /** All gauges at a glance: each one's newest run and its highest probability per threshold. */
 export async function overviewRoutes(app: FastifyInstance, { services }: { services: Services }) {
   const { db } = services;
-  addRoute(app, services, { method: 'GET', url: '/overview', summary: "Every gauge with its newest run's highest exceedance probability per threshold and its status", tag: 'forecasts', role: 'read' }, async () => {
+  addRoute(app, services, { method: 'GET', url: '/overview', summary: "Every gauge with its newest run's highest exceedance probability per threshold and its status", tag: 'forecasts', role: 'read', response: OverviewAnswer }, async () => {
     const gauges = new Map((await listGauges(db)).map((g) => [g.id, g]));
     const rows = await latestSummaries(db);
     // Drift status as last stored by the drift watch (src/services/drift.ts).
@@ -23,6 +40,7 @@ export async function overviewRoutes(app: FastifyInstance, { services }: { servi
         return {
           id: g.id,
           name: g.name,
+          timeZone: g.timeZone,
           status: r.id ? (drift.get(g.id)?.status ?? 'insufficient-data') : 'no-forecast',
           latest: r.id ? { id: r.id, issueTime: isoUtc(r.issue_time!.getTime()), status: r.status } : null,
           thresholds: g.thresholds.map((t) => {

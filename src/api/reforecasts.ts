@@ -148,7 +148,7 @@ export async function reforecastRoutes(app: FastifyInstance, { services }: { ser
   addRoute(
     app,
     services,
-    { method: 'GET', url: '/gauges/:id/reforecasts', summary: 'Past forecast runs issued in a time window (JSON or CSV)', tag: 'archive', role: 'read', params: GaugeParams, query: TimeWindowQuery, responseTypes: ['application/json', 'text/csv'] },
+    { method: 'GET', url: '/gauges/:id/reforecasts', summary: 'Past forecast runs issued in a time window (JSON or CSV)', tag: 'archive', role: 'read', params: GaugeParams, query: TimeWindowQuery, response: z.object({ gaugeId: z.string(), unit: z.literal('m3/s'), timeStep: z.string(), runs: z.array(z.looseObject({ issueTime: z.string(), members: z.array(z.object({ id: z.string(), values: z.array(z.number().nullable()) })) })) }), responseTypes: ['application/json', 'text/csv'] },
     async (req, reply) => {
       const gauge = await requireGauge(db, req.params);
       const { window, format } = readWindow(req.query);

@@ -3,7 +3,7 @@ import { z } from 'zod';
 import { RunCorrection } from '../services/correct-run.ts';
 import { GaugeParams, requireGauge } from './archive-common.ts';
 import { addRoute, type Services } from './context.ts';
-import { MemberId, Rfc3339 } from './schemas.ts';
+import { ForecastAnswer, MemberId, Rfc3339 } from './schemas.ts';
 
 export const RunBody = z.strictObject({
   issueTime: Rfc3339,
@@ -39,7 +39,7 @@ export async function runRoutes(app: FastifyInstance, { services }: { services: 
   addRoute(
     app,
     services,
-    { method: 'POST', url: '/gauges/:id/runs', summary: 'Post a raw ensemble run; answers with corrected quantiles and exceedance probabilities', tag: 'forecasts', role: 'ingest', params: GaugeParams, body: RunBody },
+    { method: 'POST', url: '/gauges/:id/runs', summary: 'Post a raw ensemble run; answers with corrected quantiles and exceedance probabilities', tag: 'forecasts', role: 'ingest', params: GaugeParams, body: RunBody, response: ForecastAnswer, status: [201, 200] },
     async (req, reply) => {
       const started = performance.now();
       const body = req.body;

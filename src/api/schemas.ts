@@ -67,3 +67,145 @@ export const TimeWindowQuery = z.strictObject({
 
 /** A member is one parameter set of the raw model. */
 export const MemberId = z.string().regex(/^[A-Za-z0-9][A-Za-z0-9_.-]{0,63}$/, 'must be 1–64 letters, digits, _ . or -');
+
+// ── Answers ──────────────────────────────────────────────────────────────────────────────────
+// What the routes send back, as zod schemas: the OpenAPI document's response schemas are
+// generated from these (src/api/openapi.ts), and test/api/openapi.test.ts checks real answers
+// against the document. Nested reports whose parts are described in the README (scores,
+// verification, hindcasts) are documented by their top-level fields and stay open below them.
+
+const Time = z.string().describe('RFC 3339, UTC');
+const Open = z.record(z.string(), z.unknown());
+
+export const StoredThreshold = z.object({ label: z.string(), value: z.number() });
+
+export const GaugeAnswer = z.object({
+  id: z.string(),
+  name: z.string(),
+  catchmentAreaKm2: z.number(),
+  timeStep: z.string(),
+  stepSeconds: z.number().int(),
+  timeZone: z.string().describe('IANA time zone the page shows times in (UTC on the wire)'),
+  flowUnit: z.string(),
+  location: z.object({ latitude: z.number(), longitude: z.number(), elevationM: z.number().optional() }).nullable(),
+  thresholds: z.array(StoredThreshold),
+  updatingMaxAgeSteps: z.number().int(),
+  createdAt: Time,
+  updatedAt: Time,
+});
+
+export const DriftStatus = z.enum(['ok', 'drifting', 'insufficient-data', 'no-forecast']);
+
+export const GaugeStatusAnswer = z.object({
+  gaugeId: z.string(),
+  status: z.string(),
+  modelVersionId: z.string().nullable(),
+  reasons: z.array(z.string()),
+  evidence: Open,
+  computedAt: Time,
+});
+
+export const GaugeDetailAnswer = GaugeAnswer.extend({
+  archive: z.record(z.string(), z.number().int()).describe('values held per kind of archive data'),
+  status: DriftStatus,
+  drift: GaugeStatusAnswer.nullable(),
+});
+
+export const JobAnswer = z.object({
+  id: z.string(),
+  kind: z.string(),
+  gaugeId: z.string().nullable(),
+  params: z.unknown(),
+  status: z.enum(['queued', 'running', 'succeeded', 'failed', 'cancelled']),
+  stage: z.string(),
+  percent: z.number(),
+  cancelRequested: z.boolean(),
+  result: z.unknown(),
+  error: z.string().nullable(),
+  createdBy: z.string().nullable(),
+  claimedBy: z.string().nullable(),
+  heartbeatAt: Time.nullable(),
+  createdAt: Time,
+  startedAt: Time.nullable(),
+  finishedAt: Time.nullable(),
+});
+
+const Members = z.array(z.object({ id: z.string(), values: z.array(z.number()) }));
+
+/** One corrected run as stored and served (src/services/forecast-view.ts). */
+export const ForecastAnswer = z.object({
+  id: z.string(),
+  gaugeId: z.string(),
+  gaugeName: z.string(),
+  issueTime: Time,
+  createdAt: Time,
+  source: z.string(),
+  unit: z.literal('m3/s'),
+  timeStep: z.string(),
+  caution: z.string().describe('warnings are decided by the responsible local authority'),
+  status: z.enum(['corrected', 'degraded']),
+  degradedReason: z.string().nullable(),
+  modelVersion: z.object({ id: z.string(), label: z.string() }).nullable(),
+  errorArchive: z
+    .object({ id: z.string(), kind: z.enum(['corrected', 'raw']), leadMode: z.enum(['lead-free', 'per-lead', 'updating']), leadTimes: z.number(), cases: z.number(), templates: z.number() })
+    .optional(),
+  updating: z
+    .object({
+      status: z.enum(['on', 'off']),
+      reason: z.string().nullable(),
+      observation: z.object({ time: Time, value: z.number(), source: z.enum(['run', 'archive']), ageSteps: z.number() }).nullable(),
+      method: z.enum(['ar1', 'phi-per-lead']).nullable(),
+    })
+    .optional(),
+  seed: z.number(),
+  trajectories: z.number().int(),
+  attentionLevel: z.number(),
+  leadTimes: z.array(z.string()),
+  validTimes: z.array(Time),
+  quantiles: z.object({ probabilities: z.array(z.number()), values: z.array(z.array(z.number())) }),
+  thresholds: z.array(
+    z.object({
+      label: z.string(),
+      value: z.number(),
+      exceedance: z.array(z.number()),
+      exceedanceStandardError: z.array(z.number()).optional(),
+      anyTime: z.number(),
+      anyTimeStandardError: z.number().optional(),
+      firstLikelyLeadTime: z.string().nullable(),
+      attention: z.boolean(),
+    }),
+  ),
+  probabilityNote: z.string().optional(),
+  members: z.enum(['none', 'corrected']).optional().describe('present when members=none|corrected trimmed the member series'),
+  memberCount: z.number().int().optional().describe('members of the run, when the series were trimmed'),
+  ensemble: z
+    .object({ raw: Members.optional().describe('absent with members=corrected'), corrected: Members.nullable().describe('null for a degraded run') })
+    .optional()
+    .describe('absent with members=none'),
+  recent: z.object({ times: z.array(Time), observed: z.array(z.number().nullable()) }),
+  timings: z.object({ featuresMs: z.number(), inferenceMs: z.number(), stochasticMs: z.number(), totalMs: z.number() }),
+});
+
+export const RunSummaryAnswer = z.object({ label: z.string(), value: z.number(), maxExceedance: z.number(), anyTime: z.number().nullable(), attention: z.boolean() });
+
+export const ModelVersionAnswer = z.looseObject({
+  id: z.string(),
+  gaugeId: z.string(),
+  origin: z.enum(['fitted', 'uploaded']),
+  label: z.string(),
+  featureSpec: z.unknown(),
+  trainer: Open,
+  periods: Open,
+  scores: Open.describe('validation scores (see the README: residual models, updating, neighbours)'),
+  createdBy: z.string().nullable(),
+  createdAt: Time,
+  active: z.boolean(),
+  activatedAt: Time.nullable(),
+  parts: z.number().int(),
+  updating: z.unknown(),
+});
+
+/** What an archive write reports: values received and written (upserts by natural key). */
+export const IngestAnswer = z.looseObject({ gaugeId: z.string(), received: z.number().int(), written: z.number().int() });
+
+export const Series = z.object({ name: z.string(), unit: z.string().nullable(), values: z.array(z.union([z.number(), z.string(), z.null()])) });

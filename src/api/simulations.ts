@@ -51,7 +51,7 @@ export async function simulationRoutes(app: FastifyInstance, { services }: { ser
   addRoute(
     app,
     services,
-    { method: 'GET', url: '/gauges/:id/simulations', summary: 'Member simulations in a time window (JSON or CSV); members=a,b to choose', tag: 'archive', role: 'read', params: GaugeParams, query: SimulationsQuery, responseTypes: ['application/json', 'text/csv'] },
+    { method: 'GET', url: '/gauges/:id/simulations', summary: 'Member simulations in a time window (JSON or CSV); members=a,b to choose', tag: 'archive', role: 'read', params: GaugeParams, query: SimulationsQuery, response: z.object({ gaugeId: z.string(), unit: z.literal('m3/s'), times: z.array(z.string()), members: z.array(z.looseObject({ id: z.string(), values: z.array(z.number().nullable()) })) }), responseTypes: ['application/json', 'text/csv'] },
     async (req, reply) => {
       const gauge = await requireGauge(db, req.params);
       const q = req.query;

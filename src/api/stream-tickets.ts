@@ -26,7 +26,7 @@ export async function streamTicketRoutes(app: FastifyInstance, { services }: { s
   addRoute(
     app,
     services,
-    { method: 'POST', url: '/stream-tickets', summary: `A single-use ticket (valid ${STREAM_TICKET_SECONDS} s) that opens the event stream: GET /events?ticket=…`, tag: 'forecasts', role: 'read', response: StreamTicketAnswer },
+    { method: 'POST', url: '/stream-tickets', summary: `A single-use ticket (valid ${STREAM_TICKET_SECONDS} s) that opens the event stream: GET /events?ticket=…`, tag: 'forecasts', role: 'read', response: StreamTicketAnswer, status: 201 },
     async (req, reply) => {
       const principal = req.principal;
       // With AUTH=off there is no token to tie the ticket to, and /events needs none.

@@ -13,13 +13,13 @@ const TokenBody = z.strictObject({
 /** Tokens can also be managed over HTTP by an admin, so the embedded store need not be stopped. */
 export async function tokenRoutes(app: FastifyInstance, { services }: { services: Services }) {
   const { db } = services;
-  addRoute(app, services, { method: 'POST', url: '/tokens', summary: 'Create an access token (shown once)', tag: 'access', role: 'admin', body: TokenBody }, async (req, reply) => {
+  addRoute(app, services, { method: 'POST', url: '/tokens', summary: 'Create an access token (shown once)', tag: 'access', role: 'admin', body: TokenBody, response: z.object({ id: z.string(), role: z.enum(['admin', 'ingest', 'read']), name: z.string(), token: z.string().describe('shown this once; only its hash is kept') }), status: 201 }, async (req, reply) => {
     const body = req.body;
     const { id, token } = await createToken(db, body.role, body.name);
     reply.code(201);
     return { id, role: body.role, name: body.name, token };
   });
-  addRoute(app, services, { method: 'GET', url: '/tokens', summary: 'List access tokens (never the secrets)', tag: 'access', role: 'admin' }, async () => {
+  addRoute(app, services, { method: 'GET', url: '/tokens', summary: 'List access tokens (never the secrets)', tag: 'access', role: 'admin', response: z.object({ tokens: z.array(z.object({ id: z.string(), name: z.string(), role: z.enum(['admin', 'ingest', 'read']), createdAt: z.string(), lastUsedAt: z.string().nullable(), revokedAt: z.string().nullable() })) }) }, async () => {
     const rows = await listTokens(db);
     return {
       tokens: rows.map((t) => ({
@@ -33,7 +33,7 @@ export async function tokenRoutes(app: FastifyInstance, { services }: { services
     };
   });
   const Params = z.object({ id: z.string() });
-  addRoute(app, services, { method: 'DELETE', url: '/tokens/:id', summary: 'Revoke an access token', tag: 'access', role: 'admin', params: Params }, async (req, reply) => {
+  addRoute(app, services, { method: 'DELETE', url: '/tokens/:id', summary: 'Revoke an access token', tag: 'access', role: 'admin', params: Params, status: 204 }, async (req, reply) => {
     const { id } = req.params;
     if (!(await revokeToken(db, id))) throw notFound(`no active token ${id}`);
     reply.code(204);

@@ -8,7 +8,7 @@ import { addRoute, type Services } from './context.ts';
 import { chooseFormat, FormatOnly } from './formats.ts';
 import { scoresCsv, scoresText, sendReport, warningsText } from './report-formats.ts';
 import { warningRows } from './warning-tables.ts';
-import { Rfc3339 } from './schemas.ts';
+import { GaugeStatusAnswer, Rfc3339 } from './schemas.ts';
 
 const VerificationQuery = z
   .strictObject({
@@ -39,6 +39,22 @@ export async function verificationRoutes(app: FastifyInstance, { services }: { s
       role: 'read',
       params: GaugeParams,
       query: VerificationQuery,
+      response: z.looseObject({
+        gaugeId: z.string(),
+        unit: z.literal('m3/s'),
+        window: z.object({ from: z.string().nullable(), to: z.string().nullable() }),
+        leadRange: z.object({ min: z.number().nullable(), max: z.number().nullable() }),
+        source: z.string().nullable(),
+        runs: z.looseObject({ total: z.number(), verified: z.number() }),
+        degraded: z.looseObject({ runs: z.number(), cases: z.number() }),
+        thresholds: z.array(z.object({ label: z.string(), value: z.number() })),
+        comparison: z.looseObject({}).describe('raw, corrected and stochastic scores side by side'),
+        advice: z.looseObject({ recommendation: z.string() }),
+        warningScores: z.looseObject({}).nullable(),
+        caution: z.string(),
+        notes: z.array(z.string()),
+        drift: GaugeStatusAnswer.nullable(),
+      }),
       responseTypes: ['application/json', 'text/csv', 'text/plain'],
     },
     async (req, reply) => {

@@ -1,3 +1,4 @@
+import { Ajv2020 } from 'ajv/dist/2020.js';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { jobHandlers } from '../../src/jobs/handlers.ts';
 import { JobRunner } from '../../src/jobs/runner.ts';
@@ -215,6 +216,10 @@ describe('reading forecasts', () => {
     expect((await t.as('read', { method: 'GET', url: `${url}?members=none`, headers: { 'if-none-match': tags[1] } })).statusCode).toBe(304);
     expect((await t.as('read', { method: 'GET', url: `${url}?members=none`, headers: { 'if-none-match': tags[0] } })).statusCode).toBe(200);
     expect((await t.as('read', { method: 'GET', url: `/forecasts/${all.id}?members=none` })).json()).toEqual(none.json());
+    // each form is valid against the answer schema the OpenAPI document gives for this route
+    const doc = (await t.as(null, { method: 'GET', url: '/openapi.json' })).json();
+    const validate = new Ajv2020({ strict: false }).compile(doc.paths['/gauges/{id}/forecasts/latest'].get.responses['200'].content['application/json'].schema);
+    for (const body of [all, none.json(), corrected.json()]) expect(validate(body), JSON.stringify(validate.errors)).toBe(true);
     const bad = await t.as('read', { method: 'GET', url: `${url}?members=some` });
     expect(bad.statusCode).toBe(422);
     expect(bad.json().errors[0].path).toBe('query.members');
