@@ -13,6 +13,8 @@ import { CAUTION, overviewEntry, type Forecast, type OverviewGauge } from './fix
 export interface GaugeEntry {
   id: string;
   name: string;
+  /** IANA time zone the page shows the gauge's times in; UTC when absent. */
+  timeZone?: string;
   status: OverviewGauge['status'];
   thresholds: { label: string; value: number }[];
   latest: Forecast | null;
@@ -36,6 +38,11 @@ export interface FixtureServer {
   sendEvent(type: string, data: unknown): void;
   dropStreams(): void;
   close(): Promise<void>;
+}
+
+/** A small CSV standing in for the service's forecast CSV (its content is the service's business). */
+export function fixtureCsv(f: Forecast): string {
+  return `lead_time,valid_time,q50 (m3/s)\n${f.leadTimes.map((l, k) => `${l},${f.validTimes[k]},${f.quantiles.values[3][k]}`).join('\n')}\n`;
 }
 
 export async function startFixtureServer(readToken: string, gauges: GaugeEntry[]): Promise<FixtureServer> {
@@ -73,22 +80,38 @@ export async function startFixtureServer(readToken: string, gauges: GaugeEntry[]
     return { caution: CAUTION, gauges: [...byId.values()].map((g) => overviewEntry(g, g.latest)) };
   });
 
+  app.get('/gauges/:id', async (request) => {
+    requireRead(request);
+    const { id } = request.params as { id: string };
+    const g = byId.get(id);
+    if (!g) throw new Problem(404, 'not-found', 'Not found', `no gauge ${id}`);
+    return { id: g.id, name: g.name, timeZone: g.timeZone ?? 'UTC', thresholds: g.thresholds, status: g.status };
+  });
+
   app.get('/gauges/:id/forecasts/latest', async (request, reply) => {
     requireRead(request);
     const { id } = request.params as { id: string };
-    latestReads.set(id, (latestReads.get(id) ?? 0) + 1);
     const g = byId.get(id);
     if (!g) throw new Problem(404, 'not-found', 'Not found', `no gauge ${id}`);
     if (!g.latest) throw new Problem(404, 'not-found', 'Not found', `no forecast for gauge ${id}`);
+    if ((request.query as { format?: string }).format === 'csv') {
+      reply.type('text/csv; charset=utf-8');
+      return fixtureCsv(g.latest);
+    }
+    latestReads.set(id, (latestReads.get(id) ?? 0) + 1);
     reply.header('etag', `"${g.latest.id}"`);
     return g.latest;
   });
 
-  app.get('/gauges/:id/verification', async (request) => {
+  app.get('/gauges/:id/verification', async (request, reply) => {
     requireRead(request);
     const { id } = request.params as { id: string };
     const g = byId.get(id);
     if (!g || g.verification === undefined) throw new Problem(404, 'not-found', 'Not found', `no verification for gauge ${id}`);
+    if ((request.query as { format?: string }).format === 'csv') {
+      reply.type('text/csv; charset=utf-8');
+      return `gauge,verification\n${id},fixture\n`;
+    }
     return g.verification;
   });
 

@@ -20,6 +20,7 @@ export type Forecast = Omit<ForecastView, 'ensemble'> & { ensemble: { raw: Membe
 export interface OverviewGauge {
   id: string;
   name: string;
+  timeZone: string;
   status: 'ok' | 'drifting' | 'no-forecast' | 'insufficient-data';
   latest: null | { id: string; issueTime: string; status: 'corrected' | 'degraded' };
   thresholds: { label: string; value: number; maxExceedance: number | null; anyTime: number | null; attention: boolean }[];
@@ -133,12 +134,13 @@ export function makeForecast(o: ForecastOptions): Forecast {
 
 /** The overview entry of a gauge, from its latest forecast (or none). */
 export function overviewEntry(
-  g: { id: string; name: string; status: OverviewGauge['status']; thresholds: { label: string; value: number }[] },
+  g: { id: string; name: string; timeZone?: string; status: OverviewGauge['status']; thresholds: { label: string; value: number }[] },
   latest: Forecast | null,
 ): OverviewGauge {
   return {
     id: g.id,
     name: g.name,
+    timeZone: g.timeZone ?? 'UTC',
     status: g.status,
     latest: latest ? { id: latest.id, issueTime: latest.issueTime, status: latest.status } : null,
     thresholds: g.thresholds.map((t) => {

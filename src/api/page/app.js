@@ -52,10 +52,19 @@ async function loadOverview() {
   renderOverview(data);
 }
 
+/** Each gauge's time zone, read once per page (GET /gauges/:id). @type {Map<string, string>} */
+const zones = new Map();
+
 /** @param {string} id */
 async function loadGauge(id) {
   let data;
   try {
+    if (!zones.has(id)) {
+      /** @type {{ timeZone?: string }} */
+      const gauge = await getJson(`/gauges/${encodeURIComponent(id)}`);
+      zones.set(id, gauge.timeZone ?? 'UTC');
+    }
+    state.timeZone = zones.get(id) ?? 'UTC';
     data = await getJson(`/gauges/${encodeURIComponent(id)}/forecasts/latest`);
   } catch (err) {
     if (err instanceof HttpError && err.status === 404) {
@@ -71,7 +80,7 @@ async function loadGauge(id) {
   if (key === state.dataKey) return;
   state.data = data;
   state.dataKey = key;
-  renderGauge(data);
+  renderGauge(data, state.timeZone);
 }
 
 /**

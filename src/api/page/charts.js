@@ -186,7 +186,7 @@ function flowChart(f, width, x) {
     role: 'img',
     'aria-labelledby': `${titleId} ${descId}`,
   });
-  svg.append(s('title', { id: titleId }, `Forecast flow at ${f.gaugeName ?? f.gaugeId}, issued ${fmtTime(f.issueTime)}`));
+  svg.append(s('title', { id: titleId }, `Forecast flow at ${f.gaugeName ?? f.gaugeId}, issued ${fmtTime(f.issueTime, state.timeZone)}`));
   svg.append(s('desc', { id: descId }, describeFlow(f, probs, q, thresholds)));
 
   // grid and axes
@@ -361,7 +361,7 @@ function addHover(svg, f, xs, y0) {
     guide.setAttribute('x1', String(xs[j]));
     guide.setAttribute('x2', String(xs[j]));
     guide.setAttribute('visibility', 'visible');
-    lines[0].textContent = `${fmtLead(f.leadTimes[j])} · ${fmtTime(f.validTimes[j])}`;
+    lines[0].textContent = `${fmtLead(f.leadTimes[j])} · ${fmtTime(f.validTimes[j], state.timeZone)}`;
     lines[1].textContent = iMed >= 0 ? `median ${fmtFlow(q[iMed][j])} ${UNIT}` : '';
     lines[2].textContent = iLo >= 0 && iHi >= 0 ? `5–95 %: ${fmtFlow(q[iLo][j])} – ${fmtFlow(q[iHi][j])}` : '';
     thresholds.forEach((t, k) => {

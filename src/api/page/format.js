@@ -47,21 +47,57 @@ export function fmtProb(p) {
 /** @param {number} n */
 const pad2 = (n) => String(n).padStart(2, '0');
 
-/** @param {string | null | undefined} iso */
-export function fmtTime(iso) {
+/** @type {Map<string, Intl.DateTimeFormat | null>} */
+const zoneFormats = new Map();
+
+/**
+ * The wall-clock parts of an instant in an IANA time zone (null for UTC or an unknown zone: the
+ * callers then show UTC).
+ * @param {number} ms
+ * @param {string} zone
+ */
+function zoneParts(ms, zone) {
+  if (zone === 'UTC') return null;
+  let format = zoneFormats.get(zone);
+  if (format === undefined) {
+    try {
+      format = new Intl.DateTimeFormat('en-GB', { timeZone: zone, year: 'numeric', month: 'numeric', day: 'numeric', hour: '2-digit', minute: '2-digit', hourCycle: 'h23', timeZoneName: 'short' });
+    } catch {
+      format = null;
+    }
+    zoneFormats.set(zone, format);
+  }
+  if (!format) return null;
+  /** @type {Record<string, string>} */
+  const p = {};
+  for (const part of format.formatToParts(new Date(ms))) p[part.type] = part.value;
+  return { day: Number(p.day), month: Number(p.month) - 1, year: p.year, clock: `${p.hour}:${p.minute}`, zone: p.timeZoneName };
+}
+
+/**
+ * Date, clock time and zone: in the gauge's time zone when given, else UTC.
+ * @param {string | null | undefined} iso
+ * @param {string} [zone]
+ */
+export function fmtTime(iso, zone = 'UTC') {
   if (!iso) return '–';
   const d = new Date(iso);
   if (Number.isNaN(d.getTime())) return iso;
+  const z = zoneParts(d.getTime(), zone);
+  if (z) return `${z.day} ${MONTHS[z.month]} ${z.year} ${z.clock} ${z.zone}`;
   return `${d.getUTCDate()} ${MONTHS[d.getUTCMonth()]} ${d.getUTCFullYear()} ${pad2(d.getUTCHours())}:${pad2(d.getUTCMinutes())} UTC`;
 }
 
 /**
- * Day, month and clock time without year and zone, for table rows under a "(UTC)" heading.
+ * Day, month and clock time without year and zone, for table rows under a heading naming the zone.
  * @param {string} iso
+ * @param {string} [zone]
  */
-export function fmtShort(iso) {
+export function fmtShort(iso, zone = 'UTC') {
   const d = new Date(iso);
   if (Number.isNaN(d.getTime())) return iso ?? '–';
+  const z = zoneParts(d.getTime(), zone);
+  if (z) return `${z.day} ${MONTHS[z.month]} ${z.clock}`;
   return `${d.getUTCDate()} ${MONTHS[d.getUTCMonth()]} ${pad2(d.getUTCHours())}:${pad2(d.getUTCMinutes())}`;
 }
 
@@ -111,6 +147,19 @@ const STATUS_TEXT = {
   corrected: 'corrected',
   degraded: 'degraded',
 };
+
+/** What each drift status means and what to do about it (the badge's tooltip and note). */
+/** @type {Record<string, string>} */
+const STATUS_MEANING = {
+  ok: 'Recent forecasts, checked against the observations since, verify about as well as when the model was fitted. Nothing to do.',
+  drifting:
+    'Recent forecasts verify worse than when the model was fitted (bias, spread or skill moved away from the fitting level). Check the verification on the gauge page and consider refitting the model; until then read the probabilities with extra care.',
+  'insufficient-data': 'Too few recent forecasts have observations yet to tell whether they verify as well as when the model was fitted. Keep posting observations.',
+  'no-forecast': 'No forecast is stored for this gauge yet, so there is nothing to verify.',
+};
+
+/** @param {string | null | undefined} s */
+export const statusMeaning = (s) => (s ? STATUS_MEANING[s] : undefined) ?? '';
 
 /** @param {string | null | undefined} s */
 export const statusText = (s) => (s ? STATUS_TEXT[s] : undefined) ?? String(s ?? 'unknown');

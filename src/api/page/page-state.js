@@ -13,6 +13,7 @@
  * @typedef {object} OverviewGauge
  * @property {string} id
  * @property {string} name
+ * @property {string} [timeZone]  IANA zone the page shows the gauge's times in
  * @property {string} status
  * @property {{ id: string, issueTime: string, status: string } | null} latest
  * @property {{ label: string, value: number, maxExceedance: number | null, anyTime: number | null, attention: boolean }[]} thresholds
@@ -43,6 +44,7 @@ export function parseView(path) {
  * @property {View} view
  * @property {Forecast | Overview | null} data  what is shown: a forecast on a gauge view, the overview otherwise
  * @property {string} dataKey  the JSON of `data`, so an unchanged answer is not drawn again
+ * @property {string} timeZone  the shown gauge's IANA time zone (UTC until known)
  * @property {boolean} showRaw
  * @property {Promise<void> | null} loading
  * @property {boolean} again
@@ -56,6 +58,7 @@ export const state = {
   view: parseView(location.pathname),
   data: null,
   dataKey: '',
+  timeZone: 'UTC',
   showRaw: false,
   loading: null,
   again: false,

@@ -76,3 +76,22 @@ export async function getJson(url) {
   }
   return res.json();
 }
+
+/**
+ * Downloads a CSV answer of the service with the read token in the header (a plain link could not
+ * send it, and the token must not go into the address) and saves it under `filename`.
+ * @param {string} url
+ * @param {string} filename
+ */
+export async function downloadCsv(url, filename) {
+  const res = await fetch(url, { headers: authHeaders({ accept: 'text/csv' }), cache: 'no-store' });
+  if (!res.ok) throw new HttpError(res.status, res.statusText);
+  const href = URL.createObjectURL(await res.blob());
+  const a = document.createElement('a');
+  a.href = href;
+  a.download = filename;
+  document.body.append(a);
+  a.click();
+  a.remove();
+  window.setTimeout(() => URL.revokeObjectURL(href), 10_000);
+}

@@ -4,6 +4,7 @@
 // and ROC curve of the chosen threshold, CRPS and CRPS skill per lead time with interval bands,
 // and the PIT histogram. The answer is kept per gauge, so a live refresh of the forecast above
 // redraws it without asking again.
+import { csvLink } from './csv-link.js';
 import { h } from './dom.js';
 import { fmtLevel, fmtProb, UNIT } from './format.js';
 import { getJson, HttpError } from './service-requests.js';
@@ -62,7 +63,7 @@ export function verificationSection(gaugeId) {
   const have = loaded.get(gaugeId);
   if (have) {
     button.hidden = true;
-    render(have, body);
+    render(have, body, gaugeId);
   }
   return section;
 }
@@ -79,7 +80,7 @@ async function load(gaugeId, body, button) {
     const v = /** @type {Verification} */ (await getJson(`/gauges/${encodeURIComponent(gaugeId)}/verification`));
     loaded.set(gaugeId, v);
     button.hidden = true;
-    render(v, body);
+    render(v, body, gaugeId);
   } catch (err) {
     const text = err instanceof HttpError ? `${err.status}: ${err.message}` : String(err);
     body.replaceChildren(h('p', { class: 'problem', role: 'alert' }, `Could not load the verification: ${text}`));
@@ -90,8 +91,9 @@ async function load(gaugeId, body, button) {
 /**
  * @param {Verification} v
  * @param {HTMLElement} body
+ * @param {string} gaugeId
  */
-function render(v, body) {
+function render(v, body, gaugeId) {
   const w = v.warningScores;
   if (!w || w.cases === 0) {
     body.replaceChildren(h('p', { class: 'note', id: 'verification-empty' }, 'No stored run has observations to verify against yet.'));
@@ -128,6 +130,7 @@ function render(v, body) {
     h('p', { class: 'summary', id: 'verification-summary' }, `${w.runs} runs, ${w.cases} verified lead times, ${w.anyTimeRuns} runs with every lead time observed. Intervals: ${Math.round(w.settings.level * 100)} % over ${w.settings.replicates} block-bootstrap replicates in blocks of ${w.settings.blockLength} issues.`),
     h('p', { class: 'caution-inline' }, v.caution),
     h('div', { class: 'controls' }, h('label', { for: 'verification-threshold' }, 'Threshold '), pick, ' ', h('label', { for: 'verification-event' }, 'event '), kind),
+    h('p', { class: 'table-links' }, csvLink(`/gauges/${encodeURIComponent(gaugeId)}/verification?format=csv`, `${gaugeId}-verification.csv`, 'warning-table'), ' of the verification (all thresholds and stages)'),
     table,
     h('ul', { class: 'legend' }, SOURCES.map((src) => h('li', {}, h('span', { class: `key key-${src}` }), SOURCE_STYLES[src].name))),
     pictures,

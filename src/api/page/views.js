@@ -2,7 +2,8 @@
 // The page's two views: the overview of gauges ("/") and one gauge ("/view/:id").
 import { drawCharts, findProb, flowLegend, swatch } from './charts.js';
 import { h, show } from './dom.js';
-import { finite, fmtFlow, fmtLead, fmtLevel, fmtProb, fmtShort, fmtTime, statusText, UNIT } from './format.js';
+import { finite, fmtFlow, fmtLead, fmtLevel, fmtProb, fmtShort, fmtTime, statusMeaning, statusText, UNIT } from './format.js';
+import { csvLink } from './csv-link.js';
 import { setCaution } from './notices.js';
 import { state } from './page-state.js';
 import { verificationSection } from './verification-view.js';
@@ -13,6 +14,19 @@ import { verificationSection } from './verification-view.js';
  * @typedef {import('./page-state.js').Overview} Overview
  * @typedef {import('./page-state.js').OverviewGauge} OverviewGauge
  */
+
+/**
+ * A time in the gauge's zone, with UTC on hover.
+ * @param {string} iso
+ * @param {string} zone
+ * @param {boolean} [short]  without year and zone, under a heading that names the zone
+ */
+export function timeEl(iso, zone, short = false) {
+  return h('time', { datetime: iso, title: fmtTime(iso, 'UTC') }, short ? fmtShort(iso, zone) : fmtTime(iso, zone));
+}
+
+/** @param {string} id */
+const latestCsvUrl = (id) => `/gauges/${encodeURIComponent(id)}/forecasts/latest?format=csv`;
 
 /** @param {Overview} data */
 export function renderOverview(data) {
@@ -50,21 +64,23 @@ function gaugeCard(g) {
     h(
       'p',
       { class: 'meta' },
-      h('span', { class: `badge s-${g.status}` }, statusText(g.status)),
+      h('span', { class: `badge s-${g.status}`, title: statusMeaning(g.status) }, statusText(g.status)),
       g.latest
         ? h(
             'span',
             { class: 'latest' },
             'latest run ',
-            h('time', { datetime: g.latest.issueTime }, fmtTime(g.latest.issueTime)),
+            timeEl(g.latest.issueTime, g.timeZone ?? 'UTC'),
             ' · ',
             h('span', { class: `run-status r-${g.latest.status}` }, statusText(g.latest.status)),
           )
         : h('span', { class: 'latest' }, 'no forecast stored yet'),
     ),
+    g.status === 'drifting' ? h('p', { class: 'status-note' }, 'Drifting: recent forecasts verify worse than at fitting. Check the verification; consider a refit.') : null,
     thresholds.length
       ? thresholdTable(g, thresholds)
       : h('p', { class: 'note' }, 'No thresholds set.'),
+    g.latest ? h('p', { class: 'table-links' }, csvLink(latestCsvUrl(g.id), `${g.id}-forecast.csv`, `thr-${g.id}`), ' of the latest run') : null,
   );
 }
 
@@ -78,7 +94,7 @@ function thresholdTable(g, thresholds) {
     { class: 'thr-wrap' },
     h(
       'table',
-      { class: 'thr' },
+      { class: 'thr', id: `thr-${g.id}` },
       h('caption', { class: 'visually-hidden' }, `Chance of exceeding each threshold at ${g.name ?? g.id}`),
       h(
         'thead',
@@ -140,29 +156,33 @@ export function renderNoForecast(id, detail) {
 /**
  * The observation the run was updated on, or why it was not.
  * @param {Forecast} f
+ * @param {string} zone
  * @returns {string}
  */
-function updatingText(f) {
+function updatingText(f, zone) {
   const u = f.updating;
   if (!u) return 'no updating';
-  if (u.status === 'on' && u.observation) return `${u.observation.value} ${UNIT} observed ${fmtTime(u.observation.time)} (from the ${u.observation.source})`;
+  if (u.status === 'on' && u.observation) return `${u.observation.value} ${UNIT} observed ${fmtTime(u.observation.time, zone)} (from the ${u.observation.source})`;
   return `not updated: ${u.reason ?? 'no reason given'}`;
 }
 
-/** @param {Forecast} f */
-export function renderGauge(f) {
+/**
+ * @param {Forecast} f
+ * @param {string} zone  the gauge's IANA time zone
+ */
+export function renderGauge(f, zone) {
   document.title = `${f.gaugeName ?? f.gaugeId} — streamflow forecast`;
   setCaution(f.caution);
   const thresholds = f.thresholds ?? [];
   const facts = [
-    ['Issue time', h('time', { datetime: f.issueTime }, fmtTime(f.issueTime))],
+    ['Issue time', timeEl(f.issueTime, zone)],
     ['Status', h('span', { class: `run-status r-${f.status}` }, statusText(f.status))],
     ['Model version', f.modelVersion ? `${f.modelVersion.label} (${f.modelVersion.id})` : 'none'],
-    ['Updated on', updatingText(f)],
+    ['Updated on', updatingText(f, zone)],
     ['Seed', String(f.seed ?? '–')],
     ['Trajectories', String(f.trajectories ?? '–')],
     ['Members', String(f.ensemble?.corrected?.length ?? f.ensemble?.raw?.length ?? 0)],
-    ['Stored', fmtTime(f.createdAt)],
+    ['Stored', timeEl(f.createdAt, zone)],
     ['Source', f.source ?? '–'],
   ];
 
@@ -203,7 +223,12 @@ export function renderGauge(f) {
           ]
         : h('p', { class: 'note' }, 'No thresholds are set for this gauge.'),
     ),
-    h('section', { 'aria-labelledby': 'table-h' }, h('h2', { id: 'table-h' }, 'Numbers by lead time'), forecastTable(f)),
+    h(
+      'section',
+      { 'aria-labelledby': 'table-h' },
+      h('h2', { id: 'table-h' }, 'Numbers by lead time ', csvLink(latestCsvUrl(f.gaugeId), `${f.gaugeId}-forecast.csv`, 'forecast-table')),
+      forecastTable(f, zone),
+    ),
     verificationSection(f.gaugeId),
   );
   drawCharts();
@@ -230,8 +255,11 @@ function anyTimeItem(t, i, f) {
   );
 }
 
-/** @param {Forecast} f */
-function forecastTable(f) {
+/**
+ * @param {Forecast} f
+ * @param {string} zone
+ */
+function forecastTable(f, zone) {
   const probs = f.quantiles?.probabilities ?? [];
   /** @param {number} p */
   const row = (p) => findProb(probs, p);
@@ -260,7 +288,7 @@ function forecastTable(f) {
           'tr',
           {},
           h('th', { scope: 'col' }, 'Lead time'),
-          h('th', { scope: 'col' }, 'Valid time (UTC)'),
+          h('th', { scope: 'col' }, `Valid time (${zone})`),
           h('th', { scope: 'col', class: 'num' }, 'Median'),
           h('th', { scope: 'col', class: 'num' }, '5–95 % range'),
           thresholds.map((t) => h('th', { scope: 'col', class: 'num' }, `> ${t.label} (${fmtLevel(t.value)})`)),
@@ -274,7 +302,7 @@ function forecastTable(f) {
             'tr',
             {},
             h('th', { scope: 'row' }, fmtLead(lead)),
-            h('td', { class: 'when' }, h('time', { datetime: f.validTimes[j] }, fmtShort(f.validTimes[j]))),
+            h('td', { class: 'when' }, timeEl(f.validTimes[j], zone, true)),
             h('td', { class: 'num' }, iMed >= 0 ? fmtFlow(q[iMed][j]) : '–'),
             h('td', { class: 'num' }, iLo >= 0 && iHi >= 0 ? `${fmtFlow(q[iLo][j])} – ${fmtFlow(q[iHi][j])}` : '–'),
             thresholds.map((t) => {
