@@ -150,4 +150,27 @@ describe('serving with updating', () => {
     expect(text.statusCode).toBe(200);
     expect(text.body).toMatch(/updated on the observation of .* \(12\.5 m3\/s, from the run\)/);
   });
+
+  it('stored-run verification scores runs served with and without updating apart', async () => {
+    const v = (await t.as('read', { method: 'GET', url: `/gauges/${gaugeId}/verification` })).json();
+    const split = v.byUpdating;
+    // Runs above: several updated, two served without (stale observation, none at all).
+    expect(split.on.runs).toBeGreaterThanOrEqual(4);
+    expect(split.off.runs).toBe(2);
+    expect(split.on.runs + split.off.runs).toBe(v.runs.corrected);
+    const observed = split.on.byLead.filter((l: { cases: number }) => l.cases > 0);
+    expect(observed.length).toBeGreaterThan(0);
+    for (const l of observed) {
+      expect(l.crps.corrected).toBeGreaterThan(0);
+      expect(l.crps.stochastic).toBeGreaterThan(0);
+      expect(l.coverage95).toBeGreaterThanOrEqual(0);
+      expect(l.coverage95).toBeLessThanOrEqual(1);
+    }
+    expect(split.note).toMatch(/different runs/);
+    const csv = (await t.as('read', { method: 'GET', url: `/gauges/${gaugeId}/verification?format=csv` })).body;
+    expect(csv).toMatch(/\nruns served with updating,,,\d+,\d+\n/);
+    expect(csv).toMatch(/\nCRPS at lead 1 \(runs served with updating\),m3\/s,,[\d.]+,[\d.]+\n/);
+    const text = (await t.as('read', { method: 'GET', url: `/gauges/${gaugeId}/verification?format=text` })).body;
+    expect(text).toMatch(/Runs served with updating \(\d+\) and without \(2\)/);
+  });
 });
