@@ -97,6 +97,10 @@ describe('serving with updating', () => {
     expect(a.updating.status).toBe('on');
     expect(a.updating.observation).toEqual({ time: scenario.times[i], value: scenario.observedFlow[i], source: 'archive', ageSteps: 0 });
     expect(a.errorArchive.leadMode).toBe('updating');
+    // No past runs stored for this gauge: nothing measured the forecast-forcing error, and the answer says so.
+    expect(a.errorArchive.leadGrowth).toEqual({ source: 'none', note: expect.stringMatching(/no forecast-forcing error/) });
+    const text = await t.as('read', { method: 'GET', url: `/forecasts/${a.id}?format=text` });
+    expect(text.body).toMatch(/NOTE: the bands come from errors of pseudo-forecasts after updating, which carry no forecast-forcing error/);
     const row = (await t.db.query<{ v: number; s: string }>('select issue_observation_value as v, issue_observation_source as s from forecast_runs where id = $1', [a.id])).rows[0];
     expect(row).toEqual({ v: scenario.observedFlow[i], s: 'archive' });
   });
