@@ -54,7 +54,13 @@ try {
   for (let i = 0; i < past.length; i += 20) {
     const res = await send('POST', `/gauges/${gaugeId}/reforecasts`, {
       unit: 'm3/s',
-      runs: past.slice(i, i + 20).map((r) => ({ issueTime: r.issueTime, members: r.members.map((m) => ({ id: m.id, values: m.values.slice(m.warmupSteps) })) })),
+      // Each past run with the forecast forcings it was driven by (lead times only), so the per-lead
+      // archive and the lead growth see the forecast-forcing error.
+      runs: past.slice(i, i + 20).map((r) => ({
+        issueTime: r.issueTime,
+        members: r.members.map((m) => ({ id: m.id, values: m.values.slice(m.warmupSteps) })),
+        forcings: { precipitation: r.forcings.precipitation.slice(r.warmupSteps), air_temperature: r.forcings.air_temperature.slice(r.warmupSteps) },
+      })),
     });
     if (res.status >= 300) throw new Error(`reforecasts: ${JSON.stringify(res.body)}`);
   }
