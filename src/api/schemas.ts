@@ -147,7 +147,15 @@ export const ForecastAnswer = z.object({
   degradedReason: z.string().nullable(),
   modelVersion: z.object({ id: z.string(), label: z.string() }).nullable(),
   errorArchive: z
-    .object({ id: z.string(), kind: z.enum(['corrected', 'raw']), leadMode: z.enum(['lead-free', 'per-lead', 'updating']), leadTimes: z.number(), cases: z.number(), templates: z.number() })
+    .object({
+      id: z.string(),
+      kind: z.enum(['corrected', 'raw']),
+      leadMode: z.enum(['lead-free', 'per-lead', 'updating']),
+      leadTimes: z.number(),
+      cases: z.number(),
+      templates: z.number(),
+      leadGrowth: z.object({ source: z.enum(['past-runs', 'none']), note: z.string() }).optional().describe("where the errors' growth with lead time comes from"),
+    })
     .optional(),
   updating: z
     .object({
