@@ -25,7 +25,7 @@ import { Problem } from '../services/problem.ts';
 import { reforecastRoutes } from './reforecasts.ts';
 import { simulationRoutes } from './simulations.ts';
 import { streamTicketRoutes } from './stream-tickets.ts';
-import { withRedactedUrls } from './log-redaction.ts';
+import { redactUrl, withRedactedUrls } from './log-redaction.ts';
 import { tokenRoutes } from './token-routes.ts';
 import { verificationRoutes } from './verification.ts';
 
@@ -69,7 +69,7 @@ export async function buildApp(options: AppOptions): Promise<FastifyInstance> {
       .code(problem.status)
       .headers(problem.headers)
       .type('application/problem+json')
-      .send(problem.body(request.url));
+      .send(problem.body(redactUrl(request.url)));
   });
   app.setNotFoundHandler((request, reply) => {
     reply

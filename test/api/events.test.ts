@@ -191,6 +191,8 @@ describe('stream tickets', () => {
     const again = await t.app.inject({ method: 'GET', url });
     expect(again.statusCode).toBe(401);
     expect(again.json().errors[0].path).toBe('query.ticket');
+    // the problem's instance names the route, not the ticket
+    expect(again.json().instance).toBe('/events?ticket=[redacted]');
   });
 
   it('expire, and die with their token', async () => {
