@@ -157,6 +157,28 @@ describe('server-sent events', () => {
     await quiet.close();
   });
 
+  it('tells a client that missed more than it replays to reload (resync), then goes on live', async () => {
+    const start = (await t.db.query<{ n: string }>('select coalesce(max(event_seq), 0)::text as n from forecast_runs')).rows[0].n;
+    // more runs than REPLAY_LIMIT (500), stored in one statement
+    await t.db.query(
+      `insert into forecast_runs (id, gauge_id, issue_time, source, request_hash, status, seed, input, output, etag, summary, percentiles)
+       select md5('bulk' || i), $1, timestamptz '2030-01-01' + make_interval(days => i), 'bulk', md5('bulk' || i), 'degraded', i, '{}', '{}', '"x"', '[]'::jsonb, ''::bytea
+         from generate_series(1, 501) as i`,
+      [riverGauge.id],
+    );
+    const latest = (await t.db.query<{ n: string }>('select max(event_seq)::text as n from forecast_runs')).rows[0].n;
+    const s = await openStream(`${base}/events`, { authorization: `Bearer ${t.tokens.read}`, 'last-event-id': start });
+    await s.waitFor(1);
+    expect(s.events[0].event).toBe('resync');
+    expect(s.events[0].id).toBe(latest);
+    const run = await storeRun();
+    await s.waitFor(2);
+    expect(s.events).toHaveLength(2);
+    expect(JSON.parse(s.events[1].data).runId).toBe(run.id);
+    await s.close();
+    await t.db.query("delete from forecast_runs where source = 'bulk'");
+  });
+
   it('refuses a Last-Event-ID that is not one of its ids with problem details', async () => {
     const res = await t.as('read', { method: 'GET', url: '/events', headers: { 'last-event-id': 'abc' } });
     expect(res.statusCode).toBe(422);
