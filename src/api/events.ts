@@ -89,10 +89,13 @@ export async function eventRoutes(app: FastifyInstance, { services }: { services
           if (!res.writableEnded) res.write(`id: ${latest}\nevent: ready\ndata: ${JSON.stringify({ latestEventId: latest })}\n\n`);
         } else {
           const replay = await runEventsAfter(services.db, sent, REPLAY_LIMIT);
-          if (replay.more) {
-            // Too much was missed to send run by run: the client reloads what it shows instead.
-            sent = BigInt(replay.latest ?? '0');
-            if (!res.writableEnded) res.write(`id: ${replay.latest}\nevent: resync\ndata: ${JSON.stringify({ reason: `more than ${REPLAY_LIMIT} runs were stored since event ${resumeFrom}; reload` })}\n\n`);
+          const latest = replay.latest ?? '0';
+          // Too much was missed to send run by run, or the id is ahead of the store (restored from a
+          // backup, or another service's): the client reloads what it shows and counts from here.
+          const reason = replay.more ? `more than ${REPLAY_LIMIT} runs were stored since event ${resumeFrom}; reload` : sent > BigInt(latest) ? `event ${resumeFrom} is newer than any stored (${latest}); reload` : null;
+          if (reason) {
+            sent = BigInt(latest);
+            if (!res.writableEnded) res.write(`id: ${latest}\nevent: resync\ndata: ${JSON.stringify({ reason })}\n\n`);
           } else {
             for (const e of replay.events) write(e);
           }

@@ -177,6 +177,15 @@ describe('server-sent events', () => {
     expect(JSON.parse(s.events[1].data).runId).toBe(run.id);
     await s.close();
     await t.db.query("delete from forecast_runs where source = 'bulk'");
+
+    // an id ahead of the store (a restored backup) is not trusted: resync, then live runs arrive
+    const ahead = await openStream(`${base}/events?lastEventId=999999999`, { authorization: `Bearer ${t.tokens.read}` });
+    await ahead.waitFor(1);
+    expect(ahead.events[0].event).toBe('resync');
+    const next = await storeRun();
+    await ahead.waitFor(2);
+    expect(JSON.parse(ahead.events[1].data).runId).toBe(next.id);
+    await ahead.close();
   });
 
   it('refuses a Last-Event-ID that is not one of its ids with problem details', async () => {
