@@ -13,6 +13,8 @@ const ConfigSchema = z.object({
   LOG_LEVEL: z.enum(logLevels).default('info'),
   AUTH: z.enum(['on', 'off']).default('on'),
   BODY_LIMIT_MB: z.coerce.number().positive().max(512).default(64),
+  /** Bytes of request bodies received at once, all requests together; beyond it 503 with Retry-After. */
+  BODY_BUDGET_MB: z.coerce.number().positive().max(16_384).default(128),
   ATTENTION_LEVEL: z.coerce.number().min(0).max(1).default(0.3),
   MAX_TRAJECTORIES: z.coerce.number().int().min(10).max(100_000).default(5000),
   CORRECTION_QUEUE: z.coerce.number().int().min(1).max(10_000).default(32),
