@@ -4,6 +4,7 @@ import type { z } from 'zod';
 import type { Db } from '../store/db.ts';
 import { claimJob, failStaleJobs, finishJob, reportProgress, type Job } from '../store/jobs-repo.ts';
 import { CancelledError } from '../core/cancelled.ts';
+import { isStoreUnavailable } from '../store/unavailable.ts';
 
 export interface JobContext {
   db: Db;
@@ -65,6 +66,7 @@ export class JobRunner {
   private current: AbortController | null = null;
   private readonly taskTimers = new Set<NodeJS.Timeout>();
   private readonly taskRuns = new Set<Promise<void>>();
+  private lastOutageWarning = 0;
 
   constructor(
     private readonly db: Db,
@@ -131,7 +133,13 @@ export class JobRunner {
       await failStaleJobs(this.db, STALE_SECONDS);
       await this.drain();
     } catch (err) {
-      this.log.error({ err }, 'job runner poll failed');
+      // While the database is unreachable the poll fails every few hundred ms: one warn line per
+      // interval; polling goes on and picks up again when the server is back.
+      if (!isStoreUnavailable(err)) this.log.error({ err }, 'job runner poll failed');
+      else if (Date.now() - this.lastOutageWarning > 10_000) {
+        this.lastOutageWarning = Date.now();
+        this.log.warn({ err: (err as Error).message }, 'job runner cannot reach the database; polling on');
+      }
     }
   }
 

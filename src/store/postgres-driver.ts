@@ -5,7 +5,9 @@ import type { Db, Queryable } from './db.ts';
 pg.types.setTypeParser(pg.types.builtins.INT8, (v) => Number(v));
 
 export function openPostgres(connectionString: string, max = 10, onError: (err: Error) => void = (err) => console.error(`postgres: ${err.message}`)): Db {
-  const pool = new pg.Pool({ connectionString, max });
+  // A server that accepts no connection (stopped, unreachable) fails a request within 5 s instead
+  // of holding it until the client gives up; the request then answers 503 (src/store/unavailable.ts).
+  const pool = new pg.Pool({ connectionString, max, connectionTimeoutMillis: 5_000 });
   // An idle pooled connection can fail (server restart, dropped database); pg then emits 'error',
   // which would end the process if nobody listened. The pool replaces the connection by itself.
   pool.on('error', onError);
@@ -60,12 +62,16 @@ export function openPostgres(connectionString: string, max = 10, onError: (err: 
         };
         const out = await fn(tx);
         await client.query('commit');
+        client.release();
         return out;
       } catch (err) {
-        await client.query('rollback').catch(() => undefined);
+        // A connection that cannot even roll back is broken: the pool drops it instead of reusing it.
+        const broken = await client.query('rollback').then(
+          () => undefined,
+          (e: Error) => e,
+        );
+        client.release(broken);
         throw err;
-      } finally {
-        client.release();
       }
     },
     async listen(channel, onPayload) {
