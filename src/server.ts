@@ -36,7 +36,7 @@ export async function startService(config: Config, logger = pino({ level: config
     }
     const app = await buildApp({ db, config, logger });
     await app.listen({ port: config.PORT, host: config.HOST });
-    const runner = new JobRunner(db, jobHandlers, app.log, undefined, jobSchedule);
+    const runner = new JobRunner(db, jobHandlers, app.log, undefined, jobSchedule, config.JOB_STALE_SECONDS);
     await runner.start();
     const address = app.server.address();
     const port = typeof address === 'object' && address ? address.port : config.PORT;

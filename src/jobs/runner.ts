@@ -74,10 +74,11 @@ export class JobRunner {
     private readonly log: FastifyBaseLogger,
     private readonly pollMs = 500,
     private readonly tasks: ScheduledTask[] = [],
+    private readonly staleSeconds = STALE_SECONDS,
   ) {}
 
   async start(): Promise<void> {
-    const failed = await failStaleJobs(this.db, STALE_SECONDS);
+    const failed = await failStaleJobs(this.db, this.staleSeconds);
     if (failed.length) this.log.warn({ jobs: failed }, 'jobs interrupted by a stopped instance were marked failed');
     this.schedule();
     for (const task of this.tasks) this.repeat(task, task.firstMs);
@@ -130,7 +131,7 @@ export class JobRunner {
 
   private async tick(): Promise<void> {
     try {
-      await failStaleJobs(this.db, STALE_SECONDS);
+      await failStaleJobs(this.db, this.staleSeconds);
       await this.drain();
     } catch (err) {
       // While the database is unreachable the poll fails every few hundred ms: one warn line per

@@ -52,6 +52,21 @@ export function openPostgres(connectionString: string, max = 10, onError: (err: 
     },
     async transaction(fn) {
       const client = await pool.connect();
+      // A checked-out client whose connection drops between two queries (the server stops, the
+      // network fails) emits 'error'; unheard, that event would end the process. It is kept here
+      // and the connection is dropped from the pool on release.
+      let lost: Error | undefined;
+      const onLost = (err: Error) => {
+        lost ??= err;
+        onError(err);
+      };
+      client.on('error', onLost);
+      const release = (err?: Error) => {
+        const broken = err ?? lost;
+        // A broken client keeps the listener: it may still report its end while being discarded.
+        if (!broken) client.off('error', onLost);
+        client.release(broken);
+      };
       try {
         await client.query('begin');
         const tx: Queryable = {
@@ -62,7 +77,7 @@ export function openPostgres(connectionString: string, max = 10, onError: (err: 
         };
         const out = await fn(tx);
         await client.query('commit');
-        client.release();
+        release();
         return out;
       } catch (err) {
         // A connection that cannot even roll back is broken: the pool drops it instead of reusing it.
@@ -70,7 +85,7 @@ export function openPostgres(connectionString: string, max = 10, onError: (err: 
           () => undefined,
           (e: Error) => e,
         );
-        client.release(broken);
+        release(broken);
         throw err;
       }
     },
