@@ -97,6 +97,8 @@ export async function finishJob(db: Queryable, id: string, status: 'succeeded' |
 }
 
 export async function requestCancel(db: Queryable, id: string): Promise<Job | null> {
+  // Job ids are numbers: anything else names no job (and must not reach the bigint cast as an error).
+  if (!/^\d{1,18}$/.test(id)) return null;
   const { rows } = await db.query<Row>(
     `update jobs set cancel_requested = true,
        status = case when status = 'queued' then 'cancelled' else status end,

@@ -1,10 +1,12 @@
+import fc from 'fast-check';
 import type pg from 'pg';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { loadScenarioArchive } from '../../src/scenario/load-archive.ts';
 import { buildScenario } from '../../src/scenario/scenario.ts';
 import { scenarioRunBody } from '../helpers/scenario-send.ts';
 import { TcpProxy } from '../helpers/tcp-proxy.ts';
-import { checker, etagOf, httpSend, inParallel, waitForJob } from './helpers.ts';
+import { badRequests } from './bad-requests.ts';
+import { checker, etagOf, fingerprint, httpSend, inParallel, waitForJob } from './helpers.ts';
 import { faultServer, freshDatabase, send, startServiceProcess, type Answer, type ServiceProcess } from './service-process.ts';
 
 // The fault harness: the service runs as its own process on a fresh database of the real server,
@@ -12,6 +14,7 @@ import { faultServer, freshDatabase, send, startServiceProcess, type Answer, typ
 // server). It is killed with SIGKILL mid-ingest, mid-fit and during a burst of runs, restarted, and
 // the database is then read directly: every acknowledged write is there, nothing is half-written,
 // interrupted jobs end failed, and retries with the same Idempotency-Key get the same answer.
+// Last, 5,000 bad requests over every write route: each refused with a 4xx problem, nothing written.
 const server = faultServer();
 if (server.skipReason) console.warn(`[fault harness] skipped: ${server.skipReason}`);
 
@@ -194,5 +197,35 @@ describe.skipIf(!server.url)(`fault harness on the real PostgreSQL${server.skipR
     await checkRuns('outage', indices, answers);
     // The outage was logged at warn, not as an error per request.
     expect(svc.logs.filter((l) => Number(l.level) >= 50 && /request failed/.test(String(l.msg)))).toEqual([]);
+  });
+
+  it('5,000 bad requests over every write route: each refused with a 4xx problem, nothing written', async () => {
+    const templates = {
+      gaugeId,
+      memberIds: scenario.memberIds,
+      run: scenarioRunBody(scenario.forecastRun(last - 10), { trajectories: 50 }),
+      times: [scenario.times[last - 5], scenario.times[last - 4]],
+    };
+    // gauge_status is the service's own derived cache, refreshed on a timer; it is no request's write.
+    const state = async () => {
+      const f = await fingerprint(check);
+      delete f.gauge_status;
+      return f;
+    };
+    const before = await state();
+    const samples = fc.sample(badRequests(templates), { numRuns: 5000, seed: 14 });
+    const wrong: string[] = [];
+    await inParallel(samples.length, 8, async (i) => {
+      const r = samples[i];
+      const res = await send(svc.base, r.method, r.path, r.body, r.contentType ? { 'content-type': r.contentType } : {});
+      const problem = (res.headers.get('content-type') ?? '').startsWith('application/problem+json');
+      if (res.status < 400 || res.status >= 500 || !problem) {
+        wrong.push(`${r.method} ${r.path} (${r.why}; ${r.contentType ?? 'no body'}: ${(r.body ?? '').slice(0, 120)}) -> ${res.status} ${res.text.slice(0, 200)}`);
+      }
+    });
+    expect(samples).toHaveLength(5000);
+    const kinds = [...new Set(wrong.map((w) => w.replace(/^(\S+ \S+?)[/?].*?\((.*?);.*-> (\d+).*$/, '$1 ($2) -> $3')))];
+    expect(wrong.slice(0, 8), `${wrong.length} of 5000 answered wrongly; kinds: ${kinds.slice(0, 20).join(' | ')}`).toEqual([]);
+    expect(await state()).toEqual(before);
   });
 });
