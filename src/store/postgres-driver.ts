@@ -40,7 +40,8 @@ export function openPostgres(connectionString: string, max = 10, onError: (err: 
       for (const channel of handlers.keys()) await client.query(`listen ${quoteIdent(channel)}`);
     } catch (err) {
       onError(err as Error);
-      if (!closing) setTimeout(() => void relisten(), 5000).unref();
+      // Every second: notifications sent while no LISTEN connection is open are lost.
+      if (!closing) setTimeout(() => void relisten(), 1000).unref();
     }
   }
 
