@@ -9,7 +9,7 @@ import fc from 'fast-check';
  * - the JSON text cut short, or led by a control character (never valid JSON),
  * - a media type the route does not take,
  * - a CSV batch with a cell that is no number,
- * - route ids and query values that name nothing or are malformed.
+ * - route ids and query values that name nothing or are malformed, a job that already ended.
  * Impossible calendar dates and absurd magnitudes are left to their own tests.
  */
 export interface BadRequest {
@@ -109,6 +109,8 @@ export function badRequests(t: Templates): fc.Arbitrary<BadRequest> {
     fc.tuple(gauge, fc.string({ minLength: 1, maxLength: 20 })).map(([g, k]): BadRequest => ({ method: 'DELETE', path: `/gauges/${g}?${encodeURIComponent(`_${k}`)}=1`, why: 'unknown query key' })),
     fc.tuple(gauge, missingId).map(([g, v]): BadRequest => ({ method: 'POST', path: `/gauges/${g}/models/${v}/activate`, why: 'no such version' })),
     missingId.map((id): BadRequest => ({ method: 'POST', path: `/jobs/${id}/cancel`, why: 'no such job' })),
+    // The harness's first jobs (the interrupted fit, the raw-error archive) have ended by then.
+    fc.integer({ min: 1, max: 3 }).map((id): BadRequest => ({ method: 'POST', path: `/jobs/${id}/cancel`, why: 'job already ended (or none)' })),
     gauge.map((g): BadRequest => ({ method: 'POST', path: `/gauges/${g}/models/rollback`, why: 'no earlier version to go back to' })),
     missingId.map((id): BadRequest => ({ method: 'DELETE', path: `/tokens/${id}`, why: 'no such token' })),
   );
