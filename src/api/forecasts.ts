@@ -22,7 +22,6 @@ const FormatQuery = z.strictObject({
     .default('all')
     .describe('member series in the JSON: none (quantiles and probabilities only, the smallest answer), corrected, or all (raw and corrected, as stored)'),
 });
-const CACHE_MS = 5_000;
 
 interface SendableRun {
   etag: string;
@@ -59,11 +58,11 @@ function sendRun(req: FastifyRequest, reply: FastifyReply, run: SendableRun, for
 }
 
 export async function forecastRoutes(app: FastifyInstance, { services }: { services: Services }) {
-  const { db, events } = services;
-  // The newest run per gauge, cached briefly and dropped as soon as a new run is announced
-  // (LISTEN/NOTIFY reaches every instance); the database stays the only record.
-  const latest = new Map<string, { at: number; id: string } & SendableRun>();
-  events.subscribe((a) => latest.delete(a.gaugeId));
+  const { db } = services;
+  // The newest run's id is read on every request (one indexed row), so a run stored by any
+  // instance is served by every instance as soon as its post was answered; only the body (some
+  // 100 kB to 1 MB) is kept per gauge, by run id, and runs never change once stored.
+  const latest = new Map<string, { id: string } & SendableRun>();
 
   addRoute(
     app,
@@ -72,19 +71,17 @@ export async function forecastRoutes(app: FastifyInstance, { services }: { servi
     async (req, reply) => {
       const { id } = req.params;
       const { format, members } = req.query;
+      const tag = await latestRunTag(db, id);
+      if (!tag) {
+        latest.delete(id);
+        await requireGauge(db, req.params);
+        throw notFound(`gauge ${id} has no forecast yet`);
+      }
       let hit = latest.get(id);
-      if (!hit || Date.now() - hit.at > CACHE_MS) {
-        const tag = await latestRunTag(db, id);
-        if (!tag) {
-          await requireGauge(db, req.params);
-          throw notFound(`gauge ${id} has no forecast yet`);
-        }
-        if (hit && hit.id === tag.id) hit.at = Date.now();
-        else {
-          const run = await getRun(db, tag.id);
-          if (!run) throw notFound(`gauge ${id} has no forecast yet`);
-          hit = { at: Date.now(), id: run.id, etag: run.etag, output: run.output };
-        }
+      if (hit?.id !== tag.id) {
+        const run = await getRun(db, tag.id);
+        if (!run) throw notFound(`gauge ${id} has no forecast yet`);
+        hit = { id: run.id, etag: run.etag, output: run.output };
         latest.set(id, hit);
       }
       return sendRun(req, reply, hit, chooseFormat(req, format), members, 'private, max-age=10, must-revalidate');
