@@ -105,7 +105,7 @@ describe.skipIf(!onServer)('two instances on one PostgreSQL (skipped on the embe
     req.destroy();
     const event = text.split('\n\n').find((e) => e.includes(runId));
     expect(event).toBeDefined();
-    expect(event).toMatch(/^event: forecast\ndata: /);
+    expect(event).toMatch(/^id: \d+\nevent: forecast\ndata: /);
     expect(JSON.parse(event!.split('data: ')[1])).toMatchObject({ gaugeId, runId });
   });
 
