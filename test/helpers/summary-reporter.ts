@@ -3,7 +3,7 @@ import { storeEnvKey } from './store-env.ts';
 
 /** The store each project's tests ran on; postgres and page ask their global setup (postgres-setup.ts). */
 function storeOf(project: string): string {
-  if (project === 'compute') return 'no store (pure computation)';
+  if (project === 'compute') return 'no server (pure computation; a few use the embedded store in memory)';
   if (project === 'embedded') return 'embedded store (PGlite, in memory)';
   if (project === 'demo') return 'embedded store (PGlite) in a temporary data directory';
   return process.env[storeEnvKey(project)] ?? 'store unknown (its global setup did not run)';
