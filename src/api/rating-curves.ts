@@ -24,13 +24,32 @@ const RatingCurveBody = z.strictObject({
   note: z.string().trim().min(1).max(200).optional(),
 });
 
+const RatingCurveAnswer = z.object({
+  gaugeId: z.string(),
+  validFrom: z.string(),
+  units: z.object({ stage: z.literal('m'), flow: z.literal('m3/s') }),
+  segments: z.array(Segment),
+  stageRange: z.object({ from: z.number(), to: z.number() }),
+  flowRange: z.object({ from: z.number(), to: z.number() }),
+  joinTolerance: z.number(),
+  joins: z.array(z.object({ stage: z.number(), flowBelow: z.number(), flowAbove: z.number(), relativeJump: z.number() })).describe("each join's flow from the segment below and above"),
+  note: z.string().nullable(),
+  createdAt: z.string(),
+});
+
+const RatingCurveList = z.object({
+  gaugeId: z.string(),
+  inForce: z.string().nullable().describe('validFrom of the version in force now'),
+  versions: z.array(RatingCurveAnswer),
+});
+
 const VersionParams = z.object({ id: GaugeId, validFrom: Rfc3339 });
 
 /** A gauge's rating curves (stage → flow), versioned by valid-from time; use cases in src/services/rating.ts. */
 export async function ratingCurveRoutes(app: FastifyInstance, { services }: { services: Services }) {
   const { db } = services;
 
-  addRoute(app, services, { method: 'POST', url: '/gauges/:id/rating-curves', summary: 'Add a rating curve version (piecewise Q = a·(h − h0)^b)', tag: 'gauges', role: 'admin', params: GaugeParams, body: RatingCurveBody }, async (req, reply) => {
+  addRoute(app, services, { method: 'POST', url: '/gauges/:id/rating-curves', summary: 'Add a rating curve version (piecewise Q = a·(h − h0)^b)', tag: 'gauges', role: 'admin', params: GaugeParams, body: RatingCurveBody, response: RatingCurveAnswer }, async (req, reply) => {
     const { id } = req.params;
     const { validFrom, segments, joinTolerance, note } = req.body;
     const answer = await db.transaction((tx) => addRatingCurve(tx, id, { validFrom, segments, joinTolerance, note }));
@@ -38,7 +57,7 @@ export async function ratingCurveRoutes(app: FastifyInstance, { services }: { se
     return answer.curve;
   });
 
-  addRoute(app, services, { method: 'GET', url: '/gauges/:id/rating-curves', summary: "A gauge's rating curve versions and the one in force now", tag: 'gauges', role: 'read', params: GaugeParams }, async (req) => {
+  addRoute(app, services, { method: 'GET', url: '/gauges/:id/rating-curves', summary: "A gauge's rating curve versions and the one in force now", tag: 'gauges', role: 'read', params: GaugeParams, response: RatingCurveList }, async (req) => {
     const gauge = await requireGauge(db, req.params);
     return { gaugeId: gauge.id, inForce: gauge.ratingCurve?.validFrom ?? null, versions: (await listRatingCurves(db, gauge.id)).map(ratingCurveView) };
   });

@@ -159,4 +159,15 @@ describe('rating curves and thresholds in water level', () => {
     expect(res.json().detail).toMatch(/"bankfull" are water levels and need a rating curve/);
     expect((await t.as('read', { method: 'GET', url })).json().versions).toHaveLength(1);
   });
+
+  it('is in the OpenAPI document: the curve body and answer, thresholds in flow or level', async () => {
+    const doc = (await t.app.inject({ method: 'GET', url: '/openapi.json' })).json();
+    const path = doc.paths['/gauges/{id}/rating-curves'];
+    expect(Object.keys(path).sort()).toEqual(['get', 'post']);
+    expect(Object.keys(path.post.requestBody.content['application/json'].schema.properties)).toEqual(expect.arrayContaining(['validFrom', 'segments', 'joinTolerance']));
+    expect(Object.keys(path.post.responses['2XX'].content['application/json'].schema.properties)).toEqual(expect.arrayContaining(['stageRange', 'flowRange', 'joins']));
+    expect(doc.paths['/gauges/{id}/rating-curves/{validFrom}'].delete).toBeTruthy();
+    const threshold = doc.paths['/gauges'].post.requestBody.content['application/json'].schema.properties.thresholds.items;
+    expect(Object.keys(threshold.properties)).toEqual(['label', 'value', 'level']);
+  });
 });
