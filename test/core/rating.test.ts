@@ -1,9 +1,12 @@
 import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
+import { curveAt } from '../../src/core/rating/curve-at.ts';
 import { flowAtStage } from '../../src/core/rating/flow-at-stage.ts';
 import { stageRange, type RatingSegment } from '../../src/core/rating/rating-curve.ts';
 import { ratingProblems } from '../../src/core/rating/rating-problems.ts';
 import { stageAtFlow } from '../../src/core/rating/stage-at-flow.ts';
+import { thresholdProblems } from '../../src/core/rating/threshold-problems.ts';
+import { thresholdsInBothUnits } from '../../src/core/rating/threshold-units.ts';
 
 // The power-law form Q = a·(h − h0)^b per segment, as in ISO 18320 and the WMO Manual on Stream
 // Gauging (WMO-No. 1044), Vol. II (the form from memory; the documents were not at hand here).
@@ -94,5 +97,34 @@ describe('rating curve: validation', () => {
     expect(problems[0].message).toMatch(/jumps at the join at stage 2.5: 40 m3\/s from segment 0, 44 m3\/s from segment 1 \(9.09 %/);
     expect(ratingProblems(jump, 0.1).problems).toEqual([]);
     expect(ratingProblems([], 0.01).problems[0].message).toMatch(/at least one segment/);
+  });
+});
+
+describe('rating curve: versions and thresholds', () => {
+  it('takes the version in force at a time, and the first one before it (flagged)', () => {
+    const versions = [{ validFromMs: 100 }, { validFromMs: 200 }];
+    expect(curveAt(versions, 150)).toEqual({ version: versions[0], beforeFirst: false });
+    expect(curveAt(versions, 200)).toEqual({ version: versions[1], beforeFirst: false });
+    expect(curveAt(versions, 50)).toEqual({ version: versions[0], beforeFirst: true });
+    expect(curveAt([], 50)).toBeNull();
+  });
+
+  it('gives each threshold in both units, flagging a flow the curve cannot reach', () => {
+    const both = thresholdsInBothUnits([{ label: 'action', value: 22.5 }, { label: 'bankfull', level: 3.5 }, { label: 'record', value: 500 }], curve);
+    expect(both[0]).toEqual({ label: 'action', value: 22.5, flow: 22.5, level: 2, given: 'flow' }); // 0.5 + √2.25 (worked by hand)
+    expect(both[1].given).toBe('level');
+    expect(both[1].flow).toBeCloseTo(80 * Math.SQRT2, 9); // 40·2^1.5 (worked by hand)
+    expect(both[2]).toEqual({ label: 'record', value: 500, flow: 500, level: null, given: 'flow', outsideCurve: true });
+    expect(thresholdsInBothUnits([{ label: 'action', value: 22.5 }], null)).toEqual([{ label: 'action', value: 22.5, flow: 22.5, level: null, given: 'flow' }]);
+  });
+
+  it('names a level threshold outside any version, one without a curve, and flows that do not rise', () => {
+    const narrow = [{ ...curve[0], toStage: 1.5 }];
+    const outside = thresholdProblems([{ label: 'bankfull', level: 2 }], [{ name: 'A', segments: curve }, { name: 'B', segments: narrow }]);
+    expect(outside).toEqual([{ index: 0, field: 'level', message: 'threshold "bankfull" (2 m) lies outside the stage range 0.5–1.5 m of the rating curve B' }]);
+    expect(thresholdProblems([{ label: 'bankfull', level: 2 }], [])[0].message).toMatch(/no rating curve/);
+    // 2 m is 22.5 m³/s, below the flow threshold of 30 before it.
+    const order = thresholdProblems([{ label: 'action', value: 30 }, { label: 'bankfull', level: 2 }], [{ name: 'A', segments: curve }]);
+    expect(order).toEqual([{ index: 1, field: 'level', message: expect.stringMatching(/"bankfull" \(22.500 m3\/s under the rating curve A\) must be above "action" \(30.000 m3\/s\)/) }]);
   });
 });
