@@ -92,7 +92,7 @@ function send(res: ServerResponse, status: number, body: unknown): void {
 /** The client side, used by the token command: one JSON request over the socket. */
 export function askControlSocket(path: string, method: 'GET' | 'POST' | 'DELETE', url: string, body?: unknown): Promise<{ status: number; body: any }> {
   return new Promise((ok, fail) => {
-    const req = request({ socketPath: path, method, path: url, headers: { 'content-type': 'application/json' }, timeout: 10_000 }, (res) => {
+    const req = request({ socketPath: path, method, path: url, headers: { 'content-type': 'application/json' }, timeout: 60_000 }, (res) => {
       let text = '';
       res.setEncoding('utf8');
       res.on('data', (d) => (text += d));
@@ -104,7 +104,7 @@ export function askControlSocket(path: string, method: 'GET' | 'POST' | 'DELETE'
         }
       });
     });
-    req.on('timeout', () => req.destroy(new Error('the service did not answer on its control socket within 10 s')));
+    req.on('timeout', () => req.destroy(new Error('the service did not answer on its control socket within 60 s (it may be busy, e.g. writing a large archive upload); try again')));
     req.on('error', fail);
     req.end(body === undefined ? undefined : JSON.stringify(body));
   });
