@@ -19,7 +19,7 @@ async function runDemo(): Promise<{ output: string; exitCode: number | null; pag
   child.stdout.on('data', (d) => (output += d));
   child.stderr.on('data', (d) => (output += d));
   const exited = new Promise<number | null>((resolve) => child.on('exit', resolve));
-  const deadline = Date.now() + 170_000;
+  const deadline = Date.now() + 360_000; // a shared 2-core machine under load took 250 s
   while (!/demo ready/.test(output) && Date.now() < deadline && child.exitCode === null) await new Promise((r) => setTimeout(r, 250));
   expect(output, output).toMatch(/demo ready/);
   const pageUrl = /Page:\s+(\S+)#token=(\S+)/.exec(output)!;
@@ -70,5 +70,5 @@ describe.skipIf(process.env.TEST_STORE === 'postgres')('npm run demo', () => {
     // A second start reuses the tokens in the file.
     expect(second.output).toMatch(/tokens for the roles read, ingest and admin in \S+ \(only you may read it; reused\)/);
     expect(second.tokens).toEqual(first.tokens);
-  }, 400_000);
+  }, 800_000);
 });
