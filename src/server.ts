@@ -20,7 +20,12 @@ export interface RunningService {
 
 /** Opens the store, applies migrations, and listens. stop() finishes in-flight requests first. */
 export async function startService(config: Config, logger = pino({ level: config.LOG_LEVEL })): Promise<RunningService> {
-  const db = await openDb({ databaseUrl: config.DATABASE_URL, dataDir: config.DATA_DIR });
+  // A dropped connection is replaced by the pool; requests meanwhile answer 503 (logged there).
+  const db = await openDb({
+    databaseUrl: config.DATABASE_URL,
+    dataDir: config.DATA_DIR,
+    onConnectionError: (err) => logger.warn({ err: err.message }, 'a database connection was lost; the pool replaces it'),
+  });
   try {
     const applied = await migrate(db);
     if (applied.length) logger.info({ applied }, 'migrations applied');
@@ -32,7 +37,7 @@ export async function startService(config: Config, logger = pino({ level: config
     }
     const app = await buildApp({ db, config, logger });
     await app.listen({ port: config.PORT, host: config.HOST });
-    const runner = new JobRunner(db, jobHandlers, app.log, undefined, jobSchedule);
+    const runner = new JobRunner(db, jobHandlers, app.log, undefined, jobSchedule, config.JOB_STALE_SECONDS);
     await runner.start();
     // The embedded store is this process's alone: the token command reaches it through the service.
     let control: ControlSocket | null = null;
