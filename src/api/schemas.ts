@@ -32,18 +32,34 @@ export const Rfc3339 = z
   .regex(/^\d{4}-\d{2}-\d{2}T\d{2}:\d{2}(:\d{2}(\.\d+)?)?(Z|[+-]\d{2}:\d{2})$/, 'must be an RFC 3339 time with offset, e.g. 2024-05-01T00:00:00Z')
   .refine((s) => Number.isFinite(Date.parse(s)), 'not a valid date');
 
-export const Threshold = z.strictObject({
-  label: z.string().trim().min(1).max(60),
-  value: z.number().finite().positive(),
-});
+/** A flood threshold: a flow `value` (m3/s) or a water `level` (m, needs the gauge's rating curve). */
+export const Threshold = z
+  .strictObject({
+    label: z.string().trim().min(1).max(60),
+    value: z.number().finite().positive().optional().describe('flow, m3/s'),
+    level: z.number().finite().optional().describe('water level (stage), m; turned into flow through the rating curve'),
+  })
+  .superRefine((t, ctx) => {
+    if ((t.value === undefined) === (t.level === undefined)) {
+      ctx.addIssue({ code: 'custom', path: ['value'], message: 'give either value (flow, m3/s) or level (water level, m)' });
+    }
+  });
 
+/**
+ * Thresholds rise strictly in the list's order; here among neighbours in the same unit, and across
+ * units through the rating curves (src/services/rating.ts).
+ */
 export const Thresholds = z
   .array(Threshold)
   .max(10)
   .superRefine((list, ctx) => {
     for (let i = 1; i < list.length; i++) {
-      if (!(list[i].value > list[i - 1].value)) {
+      const [a, b] = [list[i - 1], list[i]];
+      if (a.value !== undefined && b.value !== undefined && !(b.value > a.value)) {
         ctx.addIssue({ code: 'custom', path: [i, 'value'], message: 'threshold values must be strictly increasing' });
+      }
+      if (a.level !== undefined && b.level !== undefined && !(b.level > a.level)) {
+        ctx.addIssue({ code: 'custom', path: [i, 'level'], message: 'threshold levels must be strictly increasing' });
       }
     }
     const seen = new Set<string>();
@@ -77,7 +93,14 @@ export const MemberId = z.string().regex(/^[A-Za-z0-9][A-Za-z0-9_.-]{0,63}$/, 'm
 const Time = z.string().describe('RFC 3339, UTC');
 const Open = z.record(z.string(), z.unknown());
 
-export const StoredThreshold = z.object({ label: z.string(), value: z.number() });
+export const StoredThreshold = z.object({
+  label: z.string(),
+  value: z.number().describe('flow, m3/s (the same as `flow`)'),
+  flow: z.number(),
+  level: z.number().nullable().describe('water level, m, through the rating curve in force now; null without one or outside it'),
+  given: z.enum(['flow', 'level']),
+  outsideCurve: z.literal(true).optional(),
+});
 
 export const GaugeAnswer = z.object({
   id: z.string(),
@@ -89,6 +112,7 @@ export const GaugeAnswer = z.object({
   flowUnit: z.string(),
   location: z.object({ latitude: z.number(), longitude: z.number(), elevationM: z.number().optional() }).nullable(),
   thresholds: z.array(StoredThreshold),
+  ratingCurve: z.object({ validFrom: Time, stageRange: z.object({ from: z.number(), to: z.number() }), versions: z.number().int() }).nullable(),
   updatingMaxAgeSteps: z.number().int(),
   createdAt: Time,
   updatedAt: Time,
@@ -170,11 +194,28 @@ export const ForecastAnswer = z.object({
   attentionLevel: z.number(),
   leadTimes: z.array(z.string()),
   validTimes: z.array(Time),
-  quantiles: z.object({ probabilities: z.array(z.number()), values: z.array(z.array(z.number())) }),
+  input: z
+    .object({
+      form: z.enum(['json', 'csv', 'netcdf']),
+      unit: z.string(),
+      conversion: z.object({ from: z.string(), to: z.literal('m3/s'), factor: z.number(), source: z.string() }).nullable(),
+      warmup: z.object({ stepsInRun: z.number(), stepsNeeded: z.number(), fromArchive: z.array(z.object({ series: z.string(), from: Time, to: Time, steps: z.number() })) }),
+    })
+    .optional()
+    .describe('how the run was read: form, unit, conversion, warm-up taken from the archive'),
+  quantiles: z.object({
+    probabilities: z.array(z.number()),
+    values: z.array(z.array(z.number())),
+    levels: z.array(z.array(z.number().nullable())).optional().describe('the same quantiles as water levels (m); absent without a rating curve'),
+  }),
+  ratingCurve: z.object({ validFrom: Time, beforeFirst: z.boolean(), stageUnit: z.literal('m') }).optional(),
   thresholds: z.array(
     z.object({
       label: z.string(),
       value: z.number(),
+      flow: z.number().optional(),
+      level: z.number().nullable().optional(),
+      given: z.enum(['flow', 'level']).optional(),
       exceedance: z.array(z.number()),
       exceedanceStandardError: z.array(z.number()).optional(),
       anyTime: z.number(),
