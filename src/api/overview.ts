@@ -18,7 +18,7 @@ const OverviewAnswer = z.object({
       timeZone: z.string().describe("the gauge's IANA time zone, for showing times"),
       status: DriftStatus,
       latest: z.object({ id: z.string(), issueTime: z.string(), status: z.string() }).nullable(),
-      thresholds: z.array(z.object({ label: z.string(), value: z.number(), maxExceedance: z.number().nullable(), anyTime: z.number().nullable(), attention: z.boolean() })),
+      thresholds: z.array(z.object({ label: z.string(), value: z.number(), level: z.number().nullable().optional().describe('water level, m, where the gauge has a rating curve'), maxExceedance: z.number().nullable(), anyTime: z.number().nullable(), attention: z.boolean() })),
     }),
   ),
 });

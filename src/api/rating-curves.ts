@@ -49,7 +49,7 @@ const VersionParams = z.object({ id: GaugeId, validFrom: Rfc3339 });
 export async function ratingCurveRoutes(app: FastifyInstance, { services }: { services: Services }) {
   const { db } = services;
 
-  addRoute(app, services, { method: 'POST', url: '/gauges/:id/rating-curves', summary: 'Add a rating curve version (piecewise Q = a·(h − h0)^b)', tag: 'gauges', role: 'admin', params: GaugeParams, body: RatingCurveBody, response: RatingCurveAnswer }, async (req, reply) => {
+  addRoute(app, services, { method: 'POST', url: '/gauges/:id/rating-curves', summary: 'Add a rating curve version (piecewise Q = a·(h − h0)^b)', tag: 'gauges', role: 'admin', params: GaugeParams, body: RatingCurveBody, response: RatingCurveAnswer, status: [201, 200] }, async (req, reply) => {
     const { id } = req.params;
     const { validFrom, segments, joinTolerance, note } = req.body;
     const answer = await db.transaction((tx) => addRatingCurve(tx, id, { validFrom, segments, joinTolerance, note }));
@@ -62,7 +62,7 @@ export async function ratingCurveRoutes(app: FastifyInstance, { services }: { se
     return { gaugeId: gauge.id, inForce: gauge.ratingCurve?.validFrom ?? null, versions: (await listRatingCurves(db, gauge.id)).map(ratingCurveView) };
   });
 
-  addRoute(app, services, { method: 'DELETE', url: '/gauges/:id/rating-curves/:validFrom', summary: 'Delete a rating curve version', tag: 'gauges', role: 'admin', params: VersionParams }, async (req, reply) => {
+  addRoute(app, services, { method: 'DELETE', url: '/gauges/:id/rating-curves/:validFrom', summary: 'Delete a rating curve version', tag: 'gauges', role: 'admin', params: VersionParams, status: 204 }, async (req, reply) => {
     const { id, validFrom } = req.params;
     await db.transaction((tx) => removeRatingCurve(tx, id, validFrom));
     reply.code(204);
