@@ -4,7 +4,7 @@ import { getRun, latestRunTag, listRuns } from '../store/forecasts-repo.ts';
 import { GaugeParams, requireGauge } from './archive-common.ts';
 import { addRoute, type Services } from './context.ts';
 import { forecastCsv, forecastText, type ForecastView } from '../services/forecast-view.ts';
-import { chooseFormat, FormatOnly, type Format } from './formats.ts';
+import { chooseFormat, FormatOnly, sendCaution, type Format } from './formats.ts';
 import { notFound } from '../services/problem.ts';
 import { Rfc3339 } from './schemas.ts';
 
@@ -15,6 +15,7 @@ const CACHE_MS = 5_000;
 function sendRun(req: FastifyRequest, reply: FastifyReply, run: { etag: string; output: string }, format: Format, cacheControl: string) {
   const etag = format === 'json' ? run.etag : `${run.etag.slice(0, -1)}-${format}"`;
   reply.header('etag', etag).header('cache-control', cacheControl).header('vary', 'accept');
+  sendCaution(reply);
   const match = req.headers['if-none-match'];
   if (match && match.split(',').some((t) => t.trim() === etag || t.trim() === '*')) {
     reply.code(304);

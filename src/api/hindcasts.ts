@@ -8,9 +8,9 @@ import { GaugeParams, requireGauge } from './archive-common.ts';
 import { addRoute, type Services } from './context.ts';
 import { conflict, notFound } from '../services/problem.ts';
 import { Rfc3339 } from './schemas.ts';
-import { chooseFormat, FormatOnly } from './formats.ts';
+import { chooseFormat, FormatOnly, sendCaution } from './formats.ts';
 import { CAUTION } from '../services/caution.ts';
-import { scoresCsv, scoresText, sendReport, sizeStudyText, warningsText } from './report-formats.ts';
+import { scoresCsv, scoresText, sendReport, sizeStudyText, warningsText, type ReportNote } from './report-formats.ts';
 import { warningRows } from './warning-tables.ts';
 
 const SourceEnum = z.enum(['raw', 'corrected', 'stochastic']);
@@ -154,6 +154,7 @@ export async function hindcastRoutes(app: FastifyInstance, { services }: { servi
       if (!job || job.kind !== 'hindcast' || job.gaugeId !== id) throw notFound(`gauge ${id} has no hindcast ${jobId}`);
       const chosen = chooseFormat(req, format);
       const body = { ...summary(job), params: job.params, startedAt: job.startedAt, result: job.result };
+      sendCaution(reply);
       if (chosen === 'json') return body;
       if (job.status !== 'succeeded' || !job.result) throw conflict(`hindcast ${jobId} is ${job.status}${job.status === 'running' ? ` (${job.stage}, ${Math.round(job.percent)} %)` : ''}; its scores are available as JSON status until it succeeds`);
       const r = job.result as HindcastResult;
@@ -166,7 +167,7 @@ export async function hindcastRoutes(app: FastifyInstance, { services }: { servi
         chosen,
         `${r.gaugeId}-hindcast-${jobId}`,
         body,
-        () => scoresCsv(r.comparison, [...header, `advice: ${r.advice.recommendation}`, ...r.warnings, CAUTION], r.warningScores ? warningRows(r.warningScores) : []),
+        () => scoresCsv(r.comparison, [...header.map((h): ReportNote => ['about', h]), ['advice', r.advice.recommendation], ...r.warnings.map((w): ReportNote => ['warning', w]), ['caution', CAUTION]], r.warningScores ? warningRows(r.warningScores) : []),
         () => `${scoresText(header, r.comparison, r.advice, r.warnings)}${sizeStudyText(r.sizeStudy).join('\n')}\n\n${warningsText(r.warningScores ?? null)}\n\n${CAUTION}\n`,
       );
     },

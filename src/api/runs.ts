@@ -4,6 +4,7 @@ import { RunCorrection } from '../services/correct-run.ts';
 import { GaugeParams, requireGauge } from './archive-common.ts';
 import { addRoute, type Services } from './context.ts';
 import { MemberId, Rfc3339 } from './schemas.ts';
+import { sendCaution } from './formats.ts';
 
 export const RunBody = z.strictObject({
   issueTime: Rfc3339,
@@ -45,6 +46,7 @@ export async function runRoutes(app: FastifyInstance, { services }: { services: 
       const body = req.body;
       const gauge = await requireGauge(db, req.params);
       const key = req.headers['idempotency-key'];
+      sendCaution(reply);
       const answer = await correction.correct(gauge, body, typeof key === 'string' ? key : null, req.log, started);
       if (!answer.created) {
         const { stored } = answer;

@@ -206,19 +206,35 @@ export function forecastText(f: ForecastView): string {
   ].join('\n');
 }
 
-/** CSV, one row per lead time: quantiles then exceedance probability per threshold. */
+/**
+ * CSV, one row per lead time: quantiles, exceedance probability per threshold, then what names the
+ * run and the caution in every row. No comment lines: Python's csv module and pandas read it as is
+ * (the caution also travels as the `Caution` HTTP header, src/api/formats.ts).
+ */
 export function forecastCsv(f: ForecastView): string {
   const header = [
     'lead_time',
     'valid_time',
     ...f.quantiles.probabilities.map((p) => `q${String(Math.round(p * 1000) / 10).replace('.', '_')} (m3/s)`),
     ...f.thresholds.map((t) => `p_exceed ${t.label} (${t.value} m3/s)`),
+    'gauge_id',
+    'issue_time',
+    'status',
+    'seed',
+    'caution',
   ];
-  const lines = [`# ${f.caution}`, `# gauge ${f.gaugeId}, issued ${f.issueTime}, status ${f.status}, seed ${f.seed}`, header.map((h) => (h.includes(',') ? `"${h}"` : h)).join(',')];
+  const lines = [header.map(csvCell).join(',')];
   f.leadTimes.forEach((lead, k) => {
-    lines.push([lead, f.validTimes[k], ...f.quantiles.values.map((row) => row[k]), ...f.thresholds.map((t) => t.exceedance[k])].join(','));
+    lines.push([lead, f.validTimes[k], ...f.quantiles.values.map((row) => row[k]), ...f.thresholds.map((t) => t.exceedance[k]), f.gaugeId, f.issueTime, f.status, f.seed, f.caution].map(csvCell).join(','));
   });
   return `${lines.join('\n')}\n`;
+}
+
+/** One CSV cell, quoted only when it must be (RFC 4180). */
+export function csvCell(value: string | number | null): string {
+  if (value === null) return '';
+  const s = String(value);
+  return /[",\n\r]/.test(s) ? `"${s.replace(/"/g, '""')}"` : s;
 }
 
 export { isoUtc };

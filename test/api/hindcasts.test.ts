@@ -134,7 +134,9 @@ describe('hindcast jobs', () => {
     expect(csv.statusCode).toBe(200);
     expect(csv.headers['content-type']).toContain('text/csv');
     const lines = csv.body.trim().split('\n').filter((l) => !l.startsWith('#'));
-    expect(lines[0]).toBe('score,unit,raw,corrected,stochastic');
+    expect(lines[0]).toBe('score,unit,raw,corrected,stochastic,note');
+    expect(lines.at(-1)).toMatch(/^caution,,,,,"?Guidance only/);
+    expect(csv.headers.caution).toMatch(/responsible local authority/);
     const crps = lines.find((l) => l.startsWith('CRPS,'))!.split(',');
     expect(Number(crps[4])).toBe(first.comparison.stochastic.crps.crps);
     const text = await get(id, '?format=text');

@@ -185,10 +185,14 @@ describe('reading forecasts', () => {
     const csv = await t.as('read', { method: 'GET', url: `/gauges/${gaugeId}/forecasts/latest?format=csv` });
     expect(csv.headers['content-type']).toContain('text/csv');
     const lines = csv.body.trim().split('\n');
-    expect(lines[0]).toMatch(/^# Guidance only/);
-    expect(lines[2].split(',')[0]).toBe('lead_time');
-    expect(lines).toHaveLength(3 + 10);
-    expect(Number(lines[3].split(',')[5])).toBe(latest.quantiles.values[3][0]);
+    // No comment lines: the header comes first, the caution travels in a column and a header.
+    expect(lines[0].split(',')[0]).toBe('lead_time');
+    expect(lines[0].endsWith(',gauge_id,issue_time,status,seed,caution')).toBe(true);
+    expect(lines).toHaveLength(1 + 10);
+    expect(Number(lines[1].split(',')[5])).toBe(latest.quantiles.values[3][0]);
+    expect(lines[1]).toContain(`,${gaugeId},${latest.issueTime},${latest.status},${latest.seed},`);
+    expect(lines[1]).toMatch(/responsible local authority/);
+    expect(csv.headers.caution).toBe(latest.caution);
 
     const text = await t.as('read', { method: 'GET', url: `/gauges/${gaugeId}/forecasts/latest`, headers: { accept: 'text/plain' } });
     expect(text.headers['content-type']).toContain('text/plain');
