@@ -28,6 +28,12 @@ export interface ForecastView {
    * not. Absent on runs stored before updating existed and for versions without an updater.
    */
   updating?: UpdatingUsed;
+  /**
+   * How the run was read: the body's form and unit, the conversion to m3/s if any, and the warm-up
+   * (what the run gave, what the model reads, what was taken from the stored archive). Absent on
+   * runs stored before it was recorded.
+   */
+  input?: RunInputUsed;
   seed: number;
   trajectories: number;
   attentionLevel: number;
@@ -65,6 +71,19 @@ export interface UpdatingUsed {
   method: 'ar1' | 'phi-per-lead' | null;
 }
 
+export interface RunInputUsed {
+  form: 'json' | 'csv' | 'netcdf';
+  /** The flow unit the body was in. */
+  unit: string;
+  /** Null when the body was in m3/s already. */
+  conversion: { from: string; to: 'm3/s'; factor: number; source: string } | null;
+  warmup: {
+    stepsInRun: number;
+    stepsNeeded: number;
+    fromArchive: { series: string; from: string; to: string; steps: number }[];
+  };
+}
+
 export interface ErrorArchiveUsed {
   id: string;
   kind: 'corrected' | 'raw';
@@ -90,6 +109,7 @@ export interface ViewInput {
   modelVersion: { id: string; label: string } | null;
   errorArchive?: ErrorArchiveUsed;
   updating?: UpdatingUsed;
+  input?: RunInputUsed;
   seed: number;
   nDraws: number;
   attentionLevel: number;
@@ -127,6 +147,7 @@ export function buildForecastView(v: ViewInput): ForecastView {
     modelVersion: v.modelVersion,
     errorArchive: v.errorArchive,
     ...(v.updating ? { updating: v.updating } : {}),
+    ...(v.input ? { input: v.input } : {}),
     seed: v.seed,
     trajectories: v.nDraws,
     attentionLevel: v.attentionLevel,
