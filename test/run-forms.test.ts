@@ -46,6 +46,7 @@ describe('NetCDF run bodies', () => {
     // float32 in the file: equal to the value written where it is exact in float32 (all of these are).
     members.forEach((m, i) => expect(m.values).toEqual(e.values_in_unit[i]));
     expect((run.json.forcings as Record<string, number[]>).precipitation).toEqual(e.precipitation);
+    expect((run.json.forcings as Record<string, number[]>).air_temperature).toEqual(e.air_temperature);
     // Converted by the service's factor, against numpy's product with 0.3048³.
     members.forEach((m, i) => m.values.forEach((v, k) => expect(v * flowUnit(e.unit)!.factor).toBeCloseTo(e.values_m3s[i][k], 10)));
     expect(run.where('body.members[1].values[2]')).toBe('variable flow[realization 1 (member p02), time 2 (2008-11-04T00:00:00Z)]');
@@ -60,6 +61,10 @@ describe('NetCDF run bodies', () => {
     const members = run.json.members as { id: string; values: (number | null)[] }[];
     expect(members.map((m) => m.id)).toEqual(e.members);
     members.forEach((m, i) => expect(m.values).toEqual(e.values_m3s[i]));
+    const forcings = run.json.forcings as Record<string, number[]>;
+    expect(forcings.precipitation).toEqual(e.precipitation);
+    // Kelvin to degrees Celsius: T(°C) = T(K) − 273.15 (SI brochure, 9th edition, 2.3.4).
+    forcings.air_temperature.forEach((v, k) => expect(v).toBeCloseTo(e.air_temperature_degC[k], 9));
   });
 
   it('refuses a file that is not NetCDF, and one whose times are off the step, naming the variable', async () => {

@@ -150,7 +150,7 @@ export function cfTimeUnits(units: string): { seconds: number; epochMs: number }
   return Number.isFinite(epochMs) ? { seconds, epochMs } : null;
 }
 
-const iso = (ms: number) => new Date(ms).toISOString().replace('.000Z', 'Z');
+const iso = (ms: number | undefined) => (ms !== undefined && Number.isFinite(ms) ? new Date(ms).toISOString().replace('.000Z', 'Z') : 'outside the file');
 
 /** A variable's values with its _FillValue and missing_value as null. */
 function withMissing(v: NetcdfVariable, values: (number | string)[]): (number | string | null)[] {

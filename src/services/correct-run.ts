@@ -7,7 +7,6 @@ import { createHash, randomUUID } from 'node:crypto';
 import { archiveReach, chooseArchive } from '../core/stochastic/archive-choice.ts';
 import type { RequiredInputs, RunInput } from '../core/features/features.ts';
 import { checkResidualSpec, isSequenceSpec, requiredRunInputs, specForcings, type ResidualSpec } from '../core/features/model-inputs.ts';
-import { warmupShortfall, withArchiveWarmup } from '../core/features/run-warmup.ts';
 import { DEFAULT_QUANTILE_PROBS } from '../core/stochastic/stochastic-stage.ts';
 import type { Config } from '../config.ts';
 import { listMembers, readObservations } from '../store/archive-repo.ts';
@@ -15,6 +14,7 @@ import type { Db, Queryable } from '../store/db.ts';
 import { findRunByIdempotencyKey, findRunByKey, insertRun, type StoredRun } from '../store/forecasts-repo.ts';
 import type { Gauge } from '../store/gauges-repo.ts';
 import { loadWarmupSlice } from '../store/warmup-slice.ts';
+import { fillWarmup, warmupGap, type WarmupSeries } from '../core/features/run-warmup.ts';
 import { archiveBytes, getActiveModelVersion, latestRawArchiveInfo, modelParts, versionArchiveInfo, type ArchiveInfo } from '../store/models-repo.ts';
 import { CorrectionError, PoolFullError, type ArchiveSource, type CorrectionPool, type CorrectionResult, type ModelSource } from '../workers/correction-pool.ts';
 import { buildForecastView } from './forecast-view.ts';
@@ -80,9 +80,10 @@ export interface WarmupUsed {
 /**
  * The run lengthened from the archive so each member and each forcing the model reads holds what
  * the model needs at or before issue time (the members' archived continuous simulations and the
- * archived forcings: what a run's warm-up holds anyway). `extra` more steps are read where the
- * archive has them (issue-time updating corrects the member at the observation's time too); only
- * a value the model itself needs and the archive lacks is an error, named by member and time.
+ * archived forcings: what a run's warm-up holds anyway); values missing in the run's own warm-up
+ * are filled from the archive too. `extra` more steps are read where the archive has them
+ * (issue-time updating corrects the member at the observation's time); only a value the model
+ * itself needs and neither the run nor the archive has is an error, named by member and time.
  */
 async function withArchiveWarmupFrom(
   db: Queryable,
@@ -97,47 +98,44 @@ async function withArchiveWarmupFrom(
   const need = requiredRunInputs(spec);
   const stepsInRun = run.members.length ? run.members[0].length - run.nLeads : 0;
   const used: WarmupUsed = { stepsInRun, stepsNeeded: need.simStepsToIssue, fromArchive: [] };
-  const want: RequiredInputs = {
-    ...need,
-    simStepsToIssue: need.simStepsToIssue > 0 ? need.simStepsToIssue + extra : 0,
-    forcings: need.forcings.map((f) => ({ name: f.name, stepsToIssue: f.stepsToIssue > 0 ? f.stepsToIssue + extra : 0 })),
-  };
-  if (warmupShortfall(run, want) === 0) return { run, used };
-  const steps = Math.max(want.simStepsToIssue, ...want.forcings.map((f) => f.stepsToIssue));
-  const slice = await loadWarmupSlice(db, gauge.id, gauge.stepSeconds, run.issueTime, steps, memberIds, specForcings(spec));
-  const longer = withArchiveWarmup(run, want, slice);
-  const stepMs = gauge.stepSeconds * 1000;
-  const at = (stepsBeforeIssue: number) => isoUtc(run.issueTime - stepsBeforeIssue * stepMs);
-  /** Checks the values put in front of one series; returns how many were added. */
-  const added = (before: ArrayLike<number>, after: ArrayLike<number>, needed: number, path: string, what: string) => {
-    const n = after.length - before.length;
-    if (n <= 0) return 0;
-    const have = before.length - run.nLeads;
-    const missing: string[] = [];
-    // Index j of the lengthened series is (after.length − nLeads − 1 − j) steps before issue.
-    for (let j = 0; j < n; j++) {
-      const back = after.length - run.nLeads - 1 - j;
-      if (back < needed && !Number.isFinite(after[j])) missing.push(at(back));
-    }
-    if (missing.length) {
-      errors.add(path, `the model reads ${needed} values of ${what} up to issue time; the run gives ${have} and the stored archive has none at ${missing.join(', ')}; post them to the archive or in the run's warm-up`);
-    }
-    return n;
-  };
-  longer.members.forEach((m, i) => {
-    const n = added(run.members[i], m, need.simStepsToIssue, memberPaths[i], `member ${memberIds[i]}'s simulated flow`);
-    if (i === 0 && n > 0) used.fromArchive.push({ series: 'simulated flow of each member', from: at(stepsInRun + n - 1), to: at(stepsInRun), steps: n });
+  const widen = (n: number) => (n > 0 ? n + extra : 0);
+  const want: RequiredInputs = { ...need, simStepsToIssue: widen(need.simStepsToIssue), forcings: need.forcings.map((f) => ({ name: f.name, stepsToIssue: widen(f.stepsToIssue) })) };
+  const flat = (f: unknown): f is ArrayLike<number> => !(Array.isArray(f) && f.length > 0 && (Array.isArray(f[0]) || ArrayBuffer.isView(f[0])));
+  // Series the model reads, with how many values at or before issue time it needs and may use.
+  const series: (Omit<WarmupSeries, 'archived'> & { name: string; path: string; key: number | string })[] = [];
+  run.members.forEach((m, i) => series.push({ name: `member ${memberIds[i]}'s simulated flow`, path: memberPaths[i], values: m, needed: need.simStepsToIssue, wanted: want.simStepsToIssue, key: i }));
+  need.forcings.forEach((f, j) => {
+    const given = run.forcings?.[f.name];
+    if (given && flat(given)) series.push({ name: f.name, path: `body.forcings.${f.name}`, values: given, needed: f.stepsToIssue, wanted: want.forcings[j].stepsToIssue, key: f.name });
   });
-  for (const f of need.forcings) {
-    const before = run.forcings?.[f.name];
-    const after = longer.forcings?.[f.name];
-    if (!before || !after || Array.isArray(before[0]) || ArrayBuffer.isView(before[0])) continue;
-    const b = before as ArrayLike<number>;
-    const n = added(b, after as ArrayLike<number>, f.stepsToIssue, `body.forcings.${f.name}`, f.name);
-    const have = b.length - run.nLeads;
-    if (n > 0) used.fromArchive.push({ series: f.name, from: at(have + n - 1), to: at(have), steps: n });
-  }
-  return { run: longer, used };
+  if (!series.some((x) => warmupGap({ ...x, archived: null }, run.nLeads))) return { run, used };
+  const steps = Math.max(1, ...series.map((x) => x.wanted));
+  const slice = await loadWarmupSlice(db, gauge.id, gauge.stepSeconds, run.issueTime, steps, memberIds, specForcings(spec));
+  const stepMs = gauge.stepSeconds * 1000;
+  const at = (back: number) => isoUtc(run.issueTime - back * stepMs);
+  const taken = new Map<number | string, number[]>();
+  const lengthened = series.map((x) => {
+    const archived = typeof x.key === 'number' ? slice.members[x.key] : (slice.forcings[x.key] ?? null);
+    const filled = fillWarmup({ ...x, archived }, run.nLeads, slice.steps);
+    if (filled.missing.length) {
+      errors.add(x.path, `the model reads ${x.needed} values of ${x.name} up to issue time; neither the run nor the stored archive has one at ${filled.missing.reverse().map(at).join(', ')}; post them to the archive or in the run's warm-up`);
+    }
+    taken.set(x.key, filled.taken);
+    return filled.values;
+  });
+  const members = run.members.map((_, i) => lengthened[i]);
+  const forcings: NonNullable<RunInput['forcings']> = { ...(run.forcings ?? {}) };
+  series.slice(run.members.length).forEach((x, j) => (forcings[x.key as string] = lengthened[run.members.length + j]));
+  // What the answer says: one line for the members when they took the same times, else one per member.
+  const span = (series: string, backs: number[]) => {
+    if (backs.length) used.fromArchive.push({ series, from: at(Math.max(...backs)), to: at(Math.min(...backs)), steps: backs.length });
+  };
+  const memberTakes = run.members.map((_, i) => taken.get(i) ?? []);
+  const same = memberTakes.every((b) => b.join() === memberTakes[0].join());
+  if (same) span('simulated flow of each member', memberTakes[0] ?? []);
+  else memberTakes.forEach((b, i) => span(`simulated flow of member ${memberIds[i]}`, b));
+  for (const x of series.slice(run.members.length)) span(x.name, taken.get(x.key) ?? []);
+  return { run: { ...run, members, forcings }, used };
 }
 
 /**
@@ -156,6 +154,15 @@ function archiveWarmupValues(given: RunInput, run: RunInput, memberIds: string[]
     if (before && after.length > before.length && !Array.isArray(after[0])) forcings[name] = front(before as ArrayLike<number>, after as ArrayLike<number>);
   }
   return Object.keys(members).length || Object.keys(forcings).length ? { members, forcings } : null;
+}
+
+/** A path into the lengthened run (`members[2].values[9]`) as the index of the posted body's value. */
+function bodyIndex(path: string, given: RunInput, run: RunInput): string {
+  const m = /^members\[(\d+)\]\.values\[(\d+)\]$/.exec(path);
+  if (!m) return path;
+  const i = +m[1];
+  const k = +m[2] - ((run.members[i]?.length ?? 0) - (given.members[i]?.length ?? 0));
+  return k >= 0 ? `members[${i}].values[${k}]` : `members[${i}].values (a value taken from the archive, ${-k} before the run's first)`;
 }
 
 /** Default seed: a hash of the run's natural key, so reposting the same run reproduces it. */
@@ -362,7 +369,7 @@ export class RunCorrection {
           result = await pool.correct(modelSource(active.id, active.featureSpec), archiveSource(used), run, { ...options, updating: updating?.correct ?? null });
         } catch (err) {
           if (err instanceof CorrectionError && err.path) {
-            throw invalid([{ path: `body.${err.path}`, message: `${err.message} (needed by model version ${active.id}'s feature spec)` }]);
+            throw invalid([{ path: `body.${bodyIndex(err.path, given, run)}`, message: `${err.message} (needed by model version ${active.id}'s feature spec)` }]);
           }
           if (err instanceof PoolFullError || !rawArchive) throw err;
           status = 'degraded';
