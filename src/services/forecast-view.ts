@@ -259,3 +259,28 @@ export function csvCell(value: string | number | null): string {
 }
 
 export { isoUtc };
+
+/** Midpoint levels (i − 0.5)/100 stored with every run (src/services/correct-run.ts). */
+export const STORED_LEVELS = Array.from({ length: 100 }, (_, i) => (i + 0.5) / 100);
+
+/** Every quantile a run stored: the levels it was asked for and the 100 midpoint levels, ascending. */
+export function storedQuantileSet(f: ForecastView, percentiles: number[][] | null): { probabilities: number[]; values: number[][] } {
+  const byLevel = new Map<number, number[]>();
+  f.quantiles.probabilities.forEach((p, q) => byLevel.set(p, f.quantiles.values[q]));
+  if (percentiles) {
+    STORED_LEVELS.forEach((p, j) => {
+      // float32 in the store: back to the 4 decimals the values were rounded to before storing.
+      if (![...byLevel.keys()].some((x) => Math.abs(x - p) < 1e-9)) byLevel.set(p, percentiles.map((row) => round(row[j])));
+    });
+  }
+  const probabilities = [...byLevel.keys()].sort((a, b) => a - b);
+  return { probabilities, values: probabilities.map((p) => byLevel.get(p)!) };
+}
+
+/** The quantile set as CSV: one row per lead time, one column per level, the caution in every row. */
+export function quantileSetCsv(f: ForecastView, set: { probabilities: number[]; values: number[][] }): string {
+  const header = ['lead_time', 'valid_time', ...set.probabilities.map((p) => `q${String(Math.round(p * 1000) / 10).replace('.', '_')} (m3/s)`), 'gauge_id', 'issue_time', 'caution'];
+  const lines = [header.map(csvCell).join(',')];
+  f.leadTimes.forEach((lead, k) => lines.push([lead, f.validTimes[k], ...set.values.map((row) => row[k]), f.gaugeId, f.issueTime, f.caution].map(csvCell).join(',')));
+  return `${lines.join('\n')}\n`;
+}

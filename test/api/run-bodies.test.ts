@@ -149,3 +149,37 @@ describe('CSV and NetCDF run bodies', () => {
     expect(f.input.conversion).toBeNull();
   });
 });
+
+describe('reading back the stored quantile set', () => {
+  it('gives every stored level (the 100 midpoint levels and the asked ones), or the levels named', async () => {
+    const posted = await post(leadsOnly(lastIndex - 28, { source: 'levels', seed: 3, trajectories: 400 }));
+    expect(posted.statusCode, posted.body).toBe(201);
+    const run = posted.json();
+    const url = `/forecasts/${run.id}/quantiles`;
+    const all = await t.as('read', { method: 'GET', url });
+    expect(all.statusCode, all.body).toBe(200);
+    const set = all.json().quantiles;
+    expect(set.probabilities).toHaveLength(100 + 7);
+    expect(set.probabilities[0]).toBe(0.005);
+    expect(set.probabilities.at(-1)).toBe(0.995);
+    for (let k = 0; k < run.leadTimes.length; k++) {
+      for (let q = 1; q < set.probabilities.length; q++) expect(set.values[q][k]).toBeGreaterThanOrEqual(set.values[q - 1][k] - 1e-4);
+    }
+    // The asked levels are the answer's own; the stored ones bracket them.
+    const at = (p: number) => set.values[set.probabilities.indexOf(p)];
+    expect(at(0.5)).toEqual(run.quantiles.values[3]);
+    at(0.5).forEach((m: number, k: number) => {
+      expect(at(0.495)[k]).toBeLessThanOrEqual(m + 1e-4);
+      expect(at(0.505)[k]).toBeGreaterThanOrEqual(m - 1e-4);
+    });
+    const two = (await t.as('read', { method: 'GET', url: `${url}?levels=0.005,0.995` })).json().quantiles;
+    expect(two.probabilities).toEqual([0.005, 0.995]);
+    const refused = await t.as('read', { method: 'GET', url: `${url}?levels=0.3` });
+    expect(refused.statusCode).toBe(422);
+    expect(refused.json().errors[0].path).toBe('query.levels');
+    const csv = await t.as('read', { method: 'GET', url: `${url}?format=csv` });
+    const lines = csv.body.trim().split('\n');
+    expect(lines).toHaveLength(1 + run.leadTimes.length);
+    expect(lines[0].split(',')).toHaveLength(2 + 107 + 3);
+  });
+});
