@@ -213,10 +213,18 @@ export function forecastText(f: ForecastView): string {
   const status = f.status === 'degraded' ? `DEGRADED: ${f.degradedReason}` : `corrected with model version ${f.modelVersion?.id} (${f.modelVersion?.label})`;
   const u = f.updating;
   const updating = !u ? [] : u.status === 'on' && u.observation ? [`updated on the observation of ${u.observation.time} (${u.observation.value} m3/s, from the ${u.observation.source})`] : [`updating off: ${u.reason}`];
+  const i = f.input;
+  const taken = i?.warmup.fromArchive.map((x) => `${x.series} ${x.from} – ${x.to}`).join('; ');
+  const input = !i
+    ? []
+    : [
+        `posted as ${i.form.toUpperCase()}${i.conversion ? `, flows converted from ${i.conversion.from} (× ${i.conversion.factor})` : ''}; ${taken ? `taken from the archive: ${taken}` : 'nothing taken from the archive'}`,
+      ];
   return [
     `${f.gaugeName} (${f.gaugeId}) — issued ${f.issueTime} — flows in m3/s`,
     `${status}; ${f.trajectories} trajectories, seed ${f.seed}`,
     ...updating,
+    ...input,
     `CAUTION: ${f.caution}`,
     '',
     line(header),
