@@ -1,6 +1,6 @@
 import type { FastifyInstance } from 'fastify';
 import { z } from 'zod';
-import { ensureForcingVariable, forcingUnits, readForcings, upsertForcing } from '../store/archive-repo.ts';
+import { ensureForcingVariable, forcingUnits, readForcings, upsertForcings } from '../store/archive-repo.ts';
 import { GaugeParams, readWindow, requireGauge, sendCsv, wantsCsv } from './archive-common.ts';
 import { addIngestRoute, timeColumnsFromCsv, timeColumnsFromJson, type TimeColumns } from './archive-ingest.ts';
 import { addRoute, type Services } from './context.ts';
@@ -55,11 +55,8 @@ export async function forcingRoutes(app: FastifyInstance, { services }: { servic
       return { times, columns };
     },
     store: async (tx, gauge, { times, columns }) => {
-      let written = 0;
-      for (const c of columns) {
-        await ensureForcingVariable(tx, gauge.id, c.name, c.unit);
-        written += await upsertForcing(tx, gauge.id, c.name, times, c.values);
-      }
+      for (const c of columns) await ensureForcingVariable(tx, gauge.id, c.name, c.unit);
+      const written = await upsertForcings(tx, gauge.id, times, columns);
       return { received: times.length * columns.length, written };
     },
   });

@@ -1,7 +1,7 @@
 import type { FastifyInstance } from 'fastify';
 import { z } from 'zod';
 import { formatDurationSeconds, parseDurationSeconds } from '../core/iso-duration.ts';
-import { forcingUnits, listMembers, readReforecasts, upsertReforecast, upsertReforecastForcing } from '../store/archive-repo.ts';
+import { forcingUnits, listMembers, readReforecasts, upsertReforecastForcings, upsertReforecasts } from '../store/archive-repo.ts';
 import { GaugeParams, readWindow, requireGauge, sendCsv, wantsCsv } from './archive-common.ts';
 import { addIngestRoute } from './archive-ingest.ts';
 import { addRoute, type Services } from './context.ts';
@@ -129,18 +129,11 @@ export async function reforecastRoutes(app: FastifyInstance, { services }: { ser
       return { issueMs, members, forcings };
     },
     store: async (tx, gauge, { issueMs, members, forcings }) => {
-      let written = 0;
-      let received = 0;
-      for (let r = 0; r < issueMs.length; r++) {
-        for (const m of members[r]) {
-          received += m.values.length;
-          written += await upsertReforecast(tx, gauge.id, issueMs[r], m.id, m.values);
-        }
-        for (const f of forcings[r]) {
-          received += f.values.length;
-          written += await upsertReforecastForcing(tx, gauge.id, issueMs[r], f.name, f.values);
-        }
-      }
+      // All runs of the batch in one upsert per table.
+      const runMembers = members.flatMap((ms, r) => ms.map((m) => ({ issueMs: issueMs[r], memberId: m.id, values: m.values })));
+      const runForcings = forcings.flatMap((fs, r) => fs.map((f) => ({ issueMs: issueMs[r], variable: f.name, values: f.values })));
+      const received = [...runMembers, ...runForcings].reduce((n, s) => n + s.values.length, 0);
+      const written = (await upsertReforecasts(tx, gauge.id, runMembers)) + (await upsertReforecastForcings(tx, gauge.id, runForcings));
       return { received, written };
     },
   });

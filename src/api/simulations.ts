@@ -1,6 +1,6 @@
 import type { FastifyInstance } from 'fastify';
 import { z } from 'zod';
-import { ensureMembers, readSimulations, upsertSimulation } from '../store/archive-repo.ts';
+import { ensureMembers, readSimulations, upsertSimulations } from '../store/archive-repo.ts';
 import { GaugeParams, readWindow, requireGauge, sendCsv, wantsCsv } from './archive-common.ts';
 import { addIngestRoute, timeColumnsFromCsv, timeColumnsFromJson, type TimeColumns } from './archive-ingest.ts';
 import { addRoute, type Services } from './context.ts';
@@ -41,8 +41,7 @@ export async function simulationRoutes(app: FastifyInstance, { services }: { ser
     }),
     store: async (tx, gauge, { times, columns }) => {
       await ensureMembers(tx, gauge.id, columns.map((c) => c.id));
-      let written = 0;
-      for (const c of columns) written += await upsertSimulation(tx, gauge.id, c.id, times, c.values);
+      const written = await upsertSimulations(tx, gauge.id, times, columns);
       return { received: times.length * columns.length, written };
     },
   });

@@ -1,6 +1,11 @@
 /** The one database interface the rest of the service uses, whatever the driver. */
 export interface Queryable {
   query<T = Record<string, unknown>>(sql: string, params?: unknown[]): Promise<{ rows: T[] }>;
+  /**
+   * Runs `sql` (a COPY … FROM STDIN) fed with text-format rows from `text`. Only a PostgreSQL
+   * server's transaction has it; callers fall back to batched inserts without it.
+   */
+  copyFrom?(sql: string, text: Iterable<string>): Promise<void>;
 }
 
 export interface Db extends Queryable {

@@ -1,4 +1,7 @@
+import { Readable } from 'node:stream';
+import { pipeline } from 'node:stream/promises';
 import pg from 'pg';
+import copyStreams from 'pg-copy-streams';
 import type { Db, Queryable } from './db.ts';
 
 // timestamptz and int8 come back as ISO strings / numbers we control, not driver-specific objects.
@@ -56,6 +59,10 @@ export function openPostgres(connectionString: string, max = 10, onError: (err: 
           async query(sql, params) {
             const result = await client.query(sql, params as unknown[]);
             return { rows: result.rows };
+          },
+          async copyFrom(sql, text) {
+            // pipeline waits for the server to accept each chunk (backpressure) and for COPY to end.
+            await pipeline(Readable.from(text, { objectMode: false }), client.query(copyStreams.from(sql)));
           },
         };
         const out = await fn(tx);
