@@ -380,3 +380,88 @@ export async function readReforecastForcings(db: Queryable, gaugeId: string, w: 
   );
   return rows;
 }
+
+/** Rows per page of a paged archive read: small enough that no page holds the event loop long. */
+export const archivePaging = { rows: 5_000 };
+
+type KeyPart = { expr: string; type: 'timestamptz' | 'text' | 'int' };
+
+/**
+ * Keyset pagination: runs `sql(after)` (which must order by the key) page by page, each page
+ * starting after the last row of the one before, so every page is an index range scan.
+ */
+async function* keysetPages<R>(q: Queryable, sql: (after: string) => string, params: unknown[], key: KeyPart[], keyOf: (row: R) => unknown[]): AsyncGenerator<R[]> {
+  let last: unknown[] | null = null;
+  const limit = archivePaging.rows;
+  for (;;) {
+    const p = [...params];
+    let after = '';
+    if (last) {
+      const slots = key.map((k, i) => {
+        p.push(k.type === 'timestamptz' ? new Date(last![i] as number).toISOString() : last![i]);
+        return `$${p.length}::${k.type}`;
+      });
+      after = ` and (${key.map((k) => k.expr).join(', ')}) > (${slots.join(', ')})`;
+    }
+    const { rows } = await q.query<R>(`${sql(after)} limit ${limit}`, p);
+    if (rows.length) yield rows;
+    if (rows.length < limit) return;
+    last = keyOf(rows[rows.length - 1]);
+  }
+}
+
+/** Observations in a window, in pages ordered by time. */
+export function pageObservations(q: Queryable, gaugeId: string, w: Window) {
+  const params: unknown[] = [gaugeId];
+  const where = windowSql('time', w, params);
+  return keysetPages<{ t: number; value: number | null; quality: string | null }>(
+    q,
+    (after) => `select ${epochMs('time')} as t, value, quality from observed_flow where gauge_id = $1${where}${after} order by time`,
+    params,
+    [{ expr: 'time', type: 'timestamptz' }],
+    (r) => [r.t],
+  );
+}
+
+/** One forcing variable in a window, in pages ordered by time. */
+export function pageForcing(q: Queryable, gaugeId: string, w: Window, variable: string) {
+  const params: unknown[] = [gaugeId, variable];
+  const where = windowSql('time', w, params);
+  return keysetPages<{ t: number; value: number | null }>(
+    q,
+    (after) => `select ${epochMs('time')} as t, value from forcing_values where gauge_id = $1 and variable = $2${where}${after} order by time`,
+    params,
+    [{ expr: 'time', type: 'timestamptz' }],
+    (r) => [r.t],
+  );
+}
+
+/** Member simulations in a window, in pages ordered by member and time. */
+export function pageSimulations(q: Queryable, gaugeId: string, w: Window, members?: string[]) {
+  const params: unknown[] = [gaugeId];
+  let where = windowSql('time', w, params);
+  if (members) {
+    params.push(members);
+    where += ` and member_id = any($${params.length}::text[])`;
+  }
+  return keysetPages<{ member_id: string; t: number; value: number | null }>(
+    q,
+    (after) => `select member_id, ${epochMs('time')} as t, value from member_simulations where gauge_id = $1${where}${after} order by member_id, time`,
+    params,
+    [{ expr: 'member_id', type: 'text' }, { expr: 'time', type: 'timestamptz' }],
+    (r) => [r.member_id, r.t],
+  );
+}
+
+/** Past runs issued in a window, in pages ordered by issue time, member and lead. */
+export function pageReforecasts(q: Queryable, gaugeId: string, w: Window) {
+  const params: unknown[] = [gaugeId];
+  const where = windowSql('issue_time', w, params);
+  return keysetPages<{ t: number; member_id: string; lead: number; value: number | null }>(
+    q,
+    (after) => `select ${epochMs('issue_time')} as t, member_id, lead, value from reforecasts where gauge_id = $1${where}${after} order by issue_time, member_id, lead`,
+    params,
+    [{ expr: 'issue_time', type: 'timestamptz' }, { expr: 'member_id', type: 'text' }, { expr: 'lead', type: 'int' }],
+    (r) => [r.t, r.member_id, r.lead],
+  );
+}

@@ -10,6 +10,13 @@ export interface Queryable {
 
 export interface Db extends Queryable {
   readonly kind: 'postgres' | 'embedded';
+  /**
+   * A long read in pages, as a generator: on a server every page comes from one read-only
+   * REPEATABLE READ transaction on one connection (one snapshot), held until the generator ends or
+   * is returned early; the embedded store (one connection for everyone) runs each page as its own
+   * query so other requests go between pages.
+   */
+  reading<T>(fn: (q: Queryable) => AsyncGenerator<T>): AsyncGenerator<T>;
   /** Runs fn in one transaction; use only the handle it is given inside it. */
   transaction<T>(fn: (tx: Queryable) => Promise<T>): Promise<T>;
   /** Subscribes to a NOTIFY channel; returns the unsubscribe function. */

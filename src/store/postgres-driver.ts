@@ -51,6 +51,23 @@ export function openPostgres(connectionString: string, max = 10, onError: (err: 
       const result = await pool.query(sql, params as unknown[]);
       return { rows: result.rows };
     },
+    async *reading(fn) {
+      const client = await pool.connect();
+      let done = false;
+      try {
+        await client.query('begin isolation level repeatable read read only');
+        yield* fn({
+          async query(sql, params) {
+            const result = await client.query(sql, params as unknown[]);
+            return { rows: result.rows };
+          },
+        });
+        done = true;
+      } finally {
+        await client.query(done ? 'commit' : 'rollback').catch(() => undefined);
+        client.release();
+      }
+    },
     async transaction(fn) {
       const client = await pool.connect();
       try {
