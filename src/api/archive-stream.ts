@@ -44,12 +44,8 @@ interface Series {
   v: number[];
 }
 
-/** The sorted union of the series' times. */
-function unionTimes(series: Series[]): Float64Array {
-  const set = new Set<number>();
-  for (const s of series) for (const t of s.t) set.add(t);
-  return Float64Array.from(set).sort();
-}
+/** The sorted union of times gathered page by page (a whole archive at once would hold the event loop). */
+const sortedTimes = (set: Set<number>) => Float64Array.from(set).sort();
 
 /** A series' values on the union axis `times` (null where it has none), by walking both in order. */
 function* onAxis(s: Series, times: Float64Array, item: (v: number) => string): Generator<string> {
@@ -63,8 +59,9 @@ function* onAxis(s: Series, times: Float64Array, item: (v: number) => string): G
 /** CSV rows `time,v1,v2,…` of series on a union axis, a chunk at a time. */
 function* csvRows(series: Series[], times: Float64Array): Generator<string> {
   const ptr = new Array<number>(series.length).fill(0);
-  for (let from = 0; from < times.length; from += CHUNK) {
-    const to = Math.min(times.length, from + CHUNK);
+  const rowsPerChunk = Math.max(1, Math.floor(CHUNK / (series.length + 1)));
+  for (let from = 0; from < times.length; from += rowsPerChunk) {
+    const to = Math.min(times.length, from + rowsPerChunk);
     let s = '';
     for (let i = from; i < to; i++) {
       s += isoUtc(times[i]);
@@ -112,15 +109,17 @@ export async function* observationsStream(db: Db, gaugeId: string, window: Windo
 export async function* simulationsStream(db: Db, gaugeId: string, window: Window, members: string[] | undefined, csv: boolean): AsyncGenerator<string> {
   // Members in the store's order, each with its own times.
   const list: (Series & { id: string })[] = [];
+  const union = new Set<number>();
   for await (const rows of db.reading((q) => pageSimulations(q, gaugeId, window, members))) {
     for (const r of rows) {
       let m = list[list.length - 1];
       if (!m || m.id !== r.member_id) list.push((m = { id: r.member_id, t: [], v: [] }));
       m.t.push(r.t);
       m.v.push(r.value ?? NaN);
+      union.add(r.t);
     }
   }
-  const times = unionTimes(list);
+  const times = sortedTimes(union);
   if (csv) {
     yield [`time`, ...list.map((m) => `${m.id} (m3/s)`)].join(',') + '\n';
     yield* csvRows(list, times);
@@ -144,6 +143,7 @@ export async function* simulationsStream(db: Db, gaugeId: string, window: Window
 export async function* forcingsStream(db: Db, gaugeId: string, window: Window, names: string[], units: Map<string, string>, csv: boolean): AsyncGenerator<string> {
   const known = [...new Set(names.filter((n) => units.has(n)))];
   const read = new Map<string, Series>();
+  const union = new Set<number>();
   for await (const [name, rows] of db.reading(async function* (q) {
     for (const name of known) for await (const rows of pageForcing(q, gaugeId, window, name)) yield [name, rows] as const;
   })) {
@@ -152,9 +152,10 @@ export async function* forcingsStream(db: Db, gaugeId: string, window: Window, n
     for (const r of rows) {
       s.t.push(r.t);
       s.v.push(r.value ?? NaN);
+      union.add(r.t);
     }
   }
-  const times = unionTimes([...read.values()]);
+  const times = sortedTimes(union);
   const empty: Series = { t: [], v: [] };
   const columns = names
     .map((name, k) => ({ name, last: names.lastIndexOf(name) === k }))
