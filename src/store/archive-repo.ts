@@ -382,7 +382,7 @@ export async function readReforecastForcings(db: Queryable, gaugeId: string, w: 
 }
 
 /** Rows per page of a paged archive read: small enough that no page holds the event loop long. */
-export const archivePaging = { rows: 5_000 };
+export const archivePaging = { rows: 1_000 };
 
 type KeyPart = { expr: string; type: 'timestamptz' | 'text' | 'int' };
 

@@ -93,7 +93,7 @@ beforeAll(async () => {
   await t.db.query(`delete from reforecasts where gauge_id = $1 and member_id = 'p01' and lead = 1 and issue_time = $2`, [id, times[4]]);
 });
 afterAll(async () => {
-  archivePaging.rows = 5_000;
+  archivePaging.rows = 1_000;
   await t?.close();
 });
 
