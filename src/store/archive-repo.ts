@@ -99,7 +99,8 @@ function onConflict(spec: ArchiveTable): string {
 
 /**
  * COPY path (PostgreSQL server). A batch whose key range holds no stored rows yet (the usual bulk
- * load) is copied straight into the table; otherwise it is copied into a session-local staging table
+ * load) is copied straight into the table (the ingest routes lock the gauge, so no other write of
+ * its archive comes between the check and the copy; if one did, the key would refuse it); otherwise it is copied into a session-local staging table
  * and merged with one INSERT … SELECT … ON CONFLICT DO UPDATE. Either way a row the table refuses
  * (a key repeated, a missing member) fails the statement and the transaction with it.
  */
