@@ -274,7 +274,7 @@ export function runStochasticStage(
   let error = archive.error;
   // With a lead scale the drawn errors are scaled per lead, so their terms are made per lead from
   // the neighbours' raw errors (scaleTerms) instead of once per case here.
-  const leadScale = leadFree ? archive.leadScale : undefined;
+  const leadScale = archive.leadScale;
   if (kind !== 0 && !leadScale) {
     // Per-case terms prepared once per call: exp(e) in log space, λ·e in Box–Cox space.
     const terms = workspace.f64('errorTerm', error.length);
@@ -464,7 +464,7 @@ export function runStochasticStage(
       }
     }
     kPerLead[h] = k;
-    if (leadScale) scaleTerms(kind, lambda, leadScale[Math.min(h, leadScale.length - 1)], nbErr, nMM, kStride, k);
+    if (leadScale) scaleTerms(kind, lambda, leadScale[Math.min(leadFree ? h : groupOfLead(h), leadScale.length - 1)], nbErr, nMM, kStride, k);
     if (k !== cumK) {
       kernelCumulative(kernel, k, cum);
       const cTop = cum[k - 1];
@@ -653,11 +653,18 @@ function shuffleWithinMembers(
  * Turns one lead's neighbour errors e (transform space) into the terms sampleLead adds, scaled by
  * the lead's factor g: g·e (additive), exp(g·e) (log), λ·g·e (Box–Cox).
  */
+/**
+ * Widens each member's k neighbour errors by g about their mean, m + g·(e − m): the forecast-forcing
+ * error they lack adds spread, not bias, so the neighbourhood's centre stays where it is.
+ */
 function scaleTerms(kind: number, lambda: number, g: number, nbErr: Float64Array, nMM: number, kStride: number, k: number): void {
   for (let mm = 0; mm < nMM; mm++) {
     const base = mm * kStride;
+    let m = 0;
+    for (let j = 0; j < k; j++) m += nbErr[base + j];
+    m /= k;
     for (let j = 0; j < k; j++) {
-      const e = g * nbErr[base + j];
+      const e = m + g * (nbErr[base + j] - m);
       nbErr[base + j] = kind === 1 ? Math.exp(e) : kind === 2 ? lambda * e : e;
     }
   }
