@@ -56,6 +56,13 @@ export function openPostgres(connectionString: string, max = 10, onError: (err: 
     },
     async *reading(fn) {
       const client = await pool.connect();
+      // As in transaction(): a connection lost while the read is held is heard, and dropped from the pool.
+      let lost: Error | undefined;
+      const onLost = (err: Error) => {
+        lost ??= err;
+        onError(err);
+      };
+      client.on('error', onLost);
       let done = false;
       try {
         await client.query('begin isolation level repeatable read read only');
@@ -67,8 +74,14 @@ export function openPostgres(connectionString: string, max = 10, onError: (err: 
         });
         done = true;
       } finally {
-        await client.query(done ? 'commit' : 'rollback').catch(() => undefined);
-        client.release();
+        // Also when the client went away mid-response (the generator is returned early): the snapshot ends here.
+        const ended = await client.query(done ? 'commit' : 'rollback').then(
+          () => undefined,
+          (e: Error) => e,
+        );
+        const broken = ended ?? lost;
+        if (!broken) client.off('error', onLost);
+        client.release(broken);
       }
     },
     async transaction(fn) {
