@@ -122,6 +122,7 @@ export async function forecastRoutes(app: FastifyInstance, { services }: { servi
       role: 'read',
       params: RunParams,
       query: LevelsQuery,
+      response: z.object({ runId: z.string(), gaugeId: z.string(), issueTime: z.string(), unit: z.literal('m3/s'), caution: z.string(), leadTimes: z.array(z.string()), validTimes: z.array(z.string()), quantiles: z.object({ probabilities: z.array(z.number()), values: z.array(z.array(z.number())) }) }),
       responseTypes: ['application/json', 'text/csv'],
     },
     async (req, reply) => {

@@ -234,6 +234,7 @@ export async function hindcastRoutes(app: FastifyInstance, { services }: { servi
       role: 'read',
       params: HindcastParams,
       query: IssuesQuery,
+      response: z.object({ gaugeId: z.string(), hindcast: z.string(), unit: z.literal('m3/s'), caution: z.string(), probabilities: z.array(z.number()), thresholds: z.array(z.looseObject({ label: z.string(), value: z.number() })), issues: z.array(z.looseObject({})).describe('per issue: observed flow, raw and corrected means, quantiles and exceedance per lead') }),
       responseTypes: ['application/json', 'text/csv'],
     },
     async (req, reply) => {
