@@ -168,6 +168,7 @@ function positiveInt(v: number, name: string): number {
 
 /** Tie-breaking keys hold a draw's position in a random permutation in their low 24 bits. */
 const TIE_SPAN = 2 ** 24;
+const INV_TIE_SPAN = 2 ** -24;
 
 export function runStochasticStage(
   archive: ErrorArchive,
@@ -628,14 +629,40 @@ function shuffleWithinMembers(
       const rk = rank[tBase[j] + h];
       rankKeys[p] = (rk === MISSING_RANK ? rng.nextInt(maxRank) : rk) * TIE_SPAN + tieOf[j];
     }
-    const gv = groupVals.subarray(s, e).sort();
-    const keys = rankKeys.subarray(s, e).sort();
-    for (let i = 0; i < e - s; i++) {
-      const j = drawOfTie[keys[i] % TIE_SPAN];
-      const v = gv[i];
+    sortRange(groupVals, s, e);
+    sortRange(rankKeys, s, e);
+    for (let p = s; p < e; p++) {
+      // The key's low 24 bits without `%`: keys pass 2^31, where `%` on doubles is a call to fmod.
+      const key = rankKeys[p];
+      const j = drawOfTie[key - Math.floor(key * INV_TIE_SPAN) * TIE_SPAN];
+      const v = groupVals[p];
       if (v > trajMax[j]) trajMax[j] = v;
       if (trajectories !== null) trajectories[j * H + h] = invLambdaOut ? boxCoxFlow(v, invLambdaOut, offset) : v;
     }
+  }
+}
+
+/** Below this many values an insertion sort beats a call of TypedArray.prototype.sort on a subarray. */
+const INSERTION_SORT_MAX = 48;
+
+/**
+ * Sorts a[s … e−1] ascending in place (values are finite and never −0, so the order equals
+ * TypedArray.prototype.sort's). A member's draws at one lead are a few dozen values: sorting
+ * them in place avoids a subarray object and a call into the runtime per member and lead.
+ */
+function sortRange(a: Float64Array, s: number, e: number): void {
+  if (e - s > INSERTION_SORT_MAX) {
+    a.subarray(s, e).sort();
+    return;
+  }
+  for (let i = s + 1; i < e; i++) {
+    const v = a[i];
+    let j = i - 1;
+    while (j >= s && a[j] > v) {
+      a[j + 1] = a[j];
+      j--;
+    }
+    a[j + 1] = v;
   }
 }
 
