@@ -21,6 +21,7 @@ import { buildForecastView } from './forecast-view.ts';
 import { decideUpdating, type UpdatingDecision } from './issue-updating.ts';
 import { conflict, ErrorList, invalid, Problem } from './problem.ts';
 import { checkFlowUnit, checkTimes, isoUtc } from './series-input.ts';
+import { StageClock } from './stage-clock.ts';
 
 /**
  * Stored with every run for verification: the quantiles at the midpoint levels (i − 0.5)/100,
@@ -53,7 +54,7 @@ export interface RunMetrics {
 }
 
 /** What the caller sends back: a new run, or the stored answer to an earlier identical request. */
-export type RunAnswer = { created: true; id: string; etag: string; output: string } | { created: false; stored: StoredRun };
+export type RunAnswer = { created: true; id: string; etag: string; output: string; stageMs: Record<string, number> } | { created: false; stored: StoredRun };
 
 /**
  * The run lengthened from the archive when the model is a sequence model whose window reaches
@@ -162,7 +163,10 @@ export class RunCorrection {
     if (idempotencyKey !== null && !/^[\x21-\x7e]{1,200}$/.test(idempotencyKey)) {
       throw invalid([{ path: 'headers.idempotency-key', message: 'must be 1–200 visible ASCII characters' }]);
     }
+    // Where the milliseconds go (the Server-Timing header; bench/correction.ts prints them).
+    const clock = new StageClock(started);
     const requestHash = createHash('sha256').update(JSON.stringify(body)).digest('hex');
+    clock.lap('hash');
     if (idempotencyKey) {
       const stored = await findRunByIdempotencyKey(db, idempotencyKey);
       if (stored) return { created: false, stored: replay(stored, requestHash, 'this Idempotency-Key') };
@@ -198,12 +202,15 @@ export class RunCorrection {
     if (rawArchive) reaches.push(Math.max(...rawChoice.map(archiveReach)));
     const horizonLimit = Math.min(...reaches);
     const known = new Set(memberIds);
+    clock.lap('reads');
     const given = checkRun(body, gauge, known, horizonLimit, config.MAX_TRAJECTORIES);
+    clock.lap('validate');
     // A sequence model's window may reach before the run's warm-up: the archive fills the rest.
     const run = active && correctedArchive ? await withWindowWarmup(db, gauge, active.featureSpec, given, body.members.map((m) => m.id)) : given;
     // Issue-time updating: the latest observation at or before issue time (the run's own wins).
     const updating: UpdatingDecision | null = active && correctedArchive ? await decideUpdating(db, gauge, active, given, body.warmupSteps, body.issueObservation) : null;
 
+    clock.lap('reads');
     const probs = body.quantiles ?? [...DEFAULT_QUANTILE_PROBS];
     const seed = body.seed ?? defaultSeed(gauge.id, isoUtc(run.issueTime), body.source);
     const options = {
@@ -260,6 +267,17 @@ export class RunCorrection {
       throw err;
     }
     if (status === 'degraded') metrics.degraded.inc({ reason: active ? 'model-failed' : 'no-model' });
+    // The pool's time less the worker's own parts: waiting for a worker and passing messages.
+    const rt = result.timings;
+    clock.lap('worker');
+    clock.add('worker', -(rt.featuresMs + rt.inferenceMs + rt.stochasticMs));
+    clock.add('features', rt.featuresMs);
+    clock.add('inference', rt.inferenceMs);
+    clock.add('stage-setup', rt.stage.setupMs);
+    clock.add('knn', rt.stage.knnMs);
+    clock.add('sampling', rt.stage.samplingMs);
+    clock.add('shuffle', rt.stage.shuffleMs);
+    clock.add('summary', rt.stage.summaryMs);
 
     const nQ = probs.length;
     const nAll = options.probs.length;
@@ -271,12 +289,14 @@ export class RunCorrection {
       percentiles.push(Array.from({ length: PERCENTILES.length }, (_, j) => Math.round(result.quantiles[k * nAll + nQ + j] * 1e4) / 1e4));
     }
     const stepMs = gauge.stepSeconds * 1000;
+    clock.lap('serialise');
     const recentRows = await readObservations(db, gauge.id, { fromMs: run.issueTime - 9 * stepMs, toMs: run.issueTime + 1 });
+    clock.lap('reads');
     const id = randomUUID();
     const createdAt = new Date().toISOString();
     const raw = new Float64Array(run.members.length * H);
     run.members.forEach((m, i) => raw.set(Float64Array.from({ length: H }, (_, k) => m[m.length - H + k]), i * H));
-    const timings = { ...result.timings, totalMs: 0 };
+    const timings = { featuresMs: rt.featuresMs, inferenceMs: rt.inferenceMs, stochasticMs: rt.stochasticMs, totalMs: 0 };
     const view = buildForecastView({
       id,
       gauge,
@@ -308,6 +328,7 @@ export class RunCorrection {
     const output = JSON.stringify(view);
     const etag = `"${createHash('sha256').update(output).digest('base64url').slice(0, 27)}"`;
     const summary = view.thresholds.map((t) => ({ label: t.label, value: t.value, maxExceedance: Math.max(0, ...t.exceedance), anyTime: t.anyTime, attention: t.attention }));
+    clock.lap('serialise');
     try {
       await db.transaction((tx) =>
         insertRun(tx, {
@@ -339,10 +360,11 @@ export class RunCorrection {
       if (stored) return { created: false, stored: replay(stored, requestHash, 'this run') };
       throw err;
     }
+    clock.lap('writes');
     metrics.runs.inc({ status });
     for (const [stage, ms] of Object.entries({ features: timings.featuresMs, inference: timings.inferenceMs, stochastic: timings.stochasticMs, total: timings.totalMs })) {
       metrics.stage.observe({ stage }, ms / 1000);
     }
-    return { created: true, id, etag, output };
+    return { created: true, id, etag, output, stageMs: clock.ms };
   }
 }

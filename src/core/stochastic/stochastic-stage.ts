@@ -88,6 +88,26 @@ export interface StochasticOptions {
   shuffle?: boolean;
   /** Return the N × nLeads trajectories (default false). */
   keepTrajectories?: boolean;
+  /** When given, the milliseconds spent in each part of the stage are added to it. */
+  timings?: StageTimings;
+}
+
+/** Where the stage's time goes (milliseconds, added to by each call that is given it). */
+export interface StageTimings {
+  /** Checks, transform of the members, random streams, template choice. */
+  setupMs: number;
+  /** Candidate cases per lead and the k nearest of each member. */
+  knnMs: number;
+  /** Kernel draws of the neighbours' errors. */
+  samplingMs: number;
+  /** The Schaake shuffle within members (and the trajectories' maxima). */
+  shuffleMs: number;
+  /** Sorting each lead's values, quantiles and exceedance probabilities. */
+  summaryMs: number;
+}
+
+export function emptyStageTimings(): StageTimings {
+  return { setupMs: 0, knnMs: 0, samplingMs: 0, shuffleMs: 0, summaryMs: 0 };
 }
 
 export interface StochasticResult {
@@ -176,6 +196,15 @@ export function runStochasticStage(
   options: StochasticOptions,
   workspace: StochasticWorkspace = new StochasticWorkspace(),
 ): StochasticResult {
+  // Clock reads only when asked for (about five per lead).
+  const timings = options.timings ?? null;
+  let clock = timings ? performance.now() : 0;
+  const lap = (): number => {
+    const now = performance.now();
+    const d = now - clock;
+    clock = now;
+    return d;
+  };
   // ---- validation ---------------------------------------------------------------------------
   const nModels = positiveInt(input.nModels ?? 1, 'nModels');
   const nMembers = positiveInt(input.nMembers, 'nMembers');
@@ -402,6 +431,7 @@ export function runStochasticStage(
   // Largest possible rank: series length (lead-free) or number of issue rows (per-lead ranks).
   const maxRank = leadFree ? archive.templateValues.length : Math.ceil(archive.templateValues.length / archive.nLeads);
   if (maxRank * TIE_SPAN > Number.MAX_SAFE_INTEGER) throw new RangeError('archive template series too long for the shuffle keys');
+  if (timings) timings.setupMs += lap();
   for (let h = 0; h < H; h++) {
     let k = kStride;
     if (S === 1) {
@@ -455,6 +485,7 @@ export function runStochasticStage(
       }
     }
     kPerLead[h] = k;
+    if (timings) timings.knnMs += lap();
     if (leadScale) scaleTerms(kind, lambda, leadScale[Math.min(h, leadScale.length - 1)], nbErr, nMM, kStride, k);
     if (k !== cumK) {
       kernelCumulative(kernel, k, cum);
@@ -469,6 +500,7 @@ export function runStochasticStage(
       cumK = k;
     }
     sampleLead(kind, rngState, N, slot, 16 * k, cum[k - 1], cum, guide, tx, h * nMM, nbErr, kStride, vals, offset, boxCoxFloor);
+    if (timings) timings.samplingMs += lap();
     if (shuffle) {
       shuffleWithinMembers(nMM, memberStart, byMember, vals, rank, tBase, h, tieOf, drawOfTie, maxRank, rngTies, groupVals, rankKeys, trajMax, trajectories, H, invLambdaOut, offset);
     } else {
@@ -478,11 +510,13 @@ export function runStochasticStage(
         if (trajectories) trajectories[j * H + h] = invLambdaOut ? boxCoxFlow(v, invLambdaOut, offset) : v;
       }
     }
+    if (timings) timings.shuffleMs += lap();
     sortNonNegative(vals, N, valsTmp, valsWords, tmpWords, counts);
     for (let q = 0; q < nP; q++) {
       quantiles[h * nP + q] = invLambdaOut ? boxCoxQuantile(vals, probs[q], N, invLambdaOut, offset) : quantileSorted(vals, probs[q], 0, N);
     }
     for (let ti = 0; ti < nT; ti++) exceedance[ti * H + h] = countAboveSorted(vals, workThresholds[ti], 0, N) / N;
+    if (timings) timings.summaryMs += lap();
   }
 
   const exceedanceAnyTime = new Float64Array(nT);
@@ -501,6 +535,7 @@ export function runStochasticStage(
     firstLikelyLead.push(first);
   }
 
+  if (timings) timings.summaryMs += lap();
   return {
     nLeads: H,
     nDraws: N,
