@@ -231,6 +231,10 @@ export class RunCorrection {
       },
     });
 
+    // The recent observations shown with the answer, read while the worker corrects.
+    const stepMs = gauge.stepSeconds * 1000;
+    const recentRead = readObservations(db, gauge.id, { fromMs: run.issueTime - 9 * stepMs, toMs: run.issueTime + 1 });
+    recentRead.catch(() => {}); // awaited below; a refused run must not leave it unhandled
     let result: CorrectionResult;
     let used: ArchiveInfo;
     let status: 'corrected' | 'degraded' = 'corrected';
@@ -288,9 +292,8 @@ export class RunCorrection {
       for (let q = 0; q < nQ; q++) quantiles[k * nQ + q] = result.quantiles[k * nAll + q];
       percentiles.push(Array.from({ length: PERCENTILES.length }, (_, j) => Math.round(result.quantiles[k * nAll + nQ + j] * 1e4) / 1e4));
     }
-    const stepMs = gauge.stepSeconds * 1000;
     clock.lap('serialise');
-    const recentRows = await readObservations(db, gauge.id, { fromMs: run.issueTime - 9 * stepMs, toMs: run.issueTime + 1 });
+    const recentRows = await recentRead;
     clock.lap('reads');
     const id = randomUUID();
     const createdAt = new Date().toISOString();
@@ -330,8 +333,7 @@ export class RunCorrection {
     const summary = view.thresholds.map((t) => ({ label: t.label, value: t.value, maxExceedance: Math.max(0, ...t.exceedance), anyTime: t.anyTime, attention: t.attention }));
     clock.lap('serialise');
     try {
-      await db.transaction((tx) =>
-        insertRun(tx, {
+      await insertRun(db, {
           id,
           gaugeId: gauge.id,
           issueTimeMs: run.issueTime,
@@ -352,8 +354,7 @@ export class RunCorrection {
               : body.issueObservation != null
                 ? { timeMs: run.issueTime, value: body.issueObservation, source: 'run' }
                 : null,
-        }),
-      );
+      });
     } catch (err) {
       // A concurrent identical post won the race: answer with what it stored.
       const stored = (idempotencyKey && (await findRunByIdempotencyKey(db, idempotencyKey))) || (await findRunByKey(db, gauge.id, run.issueTime, body.source));
