@@ -165,7 +165,8 @@ export class RunCorrection {
     }
     // Where the milliseconds go (the Server-Timing header; bench/correction.ts prints them).
     const clock = new StageClock(started);
-    const requestHash = createHash('sha256').update(JSON.stringify(body)).digest('hex');
+    const bodyJson = JSON.stringify(body);
+    const requestHash = createHash('sha256').update(bodyJson).digest('hex');
     clock.lap('hash');
     if (idempotencyKey) {
       const stored = await findRunByIdempotencyKey(db, idempotencyKey);
@@ -344,6 +345,7 @@ export class RunCorrection {
           modelVersionId: status === 'corrected' ? (active?.id ?? null) : null,
           seed,
           input: body,
+        inputJson: bodyJson,
           output,
           etag,
           summary,

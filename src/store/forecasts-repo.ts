@@ -53,6 +53,8 @@ export interface NewRun {
   modelVersionId: string | null;
   seed: number;
   input: unknown;
+  /** JSON.stringify(input) when the caller already has it (the request hash is made from it). */
+  inputJson?: string;
   output: string;
   etag: string;
   summary: unknown;
@@ -92,7 +94,7 @@ export async function insertRun(db: Queryable, r: NewRun): Promise<void> {
        returning id)
      select pg_notify('forecast_runs', $18) from stored`,
     [r.id, r.gaugeId, r.issueTimeMs / 1000, r.source, r.requestHash, r.idempotencyKey, r.status, r.modelVersionId, r.seed,
-      JSON.stringify(r.input), r.output, r.etag, JSON.stringify(r.summary), Buffer.from(encodePercentiles(r.percentiles)),
+      r.inputJson ?? JSON.stringify(r.input), r.output, r.etag, JSON.stringify(r.summary), Buffer.from(encodePercentiles(r.percentiles)),
       r.issueObservation ? r.issueObservation.timeMs / 1000 : null, r.issueObservation?.value ?? null, r.issueObservation?.source ?? null,
       JSON.stringify({ gaugeId: r.gaugeId, runId: r.id, issueTime: new Date(r.issueTimeMs).toISOString().replace('.000Z', 'Z') })],
   );
