@@ -187,7 +187,7 @@ try {
     ['shuffle', 'stochastic stage: Schaake shuffle'],
     ['summary', 'quantiles and probabilities'],
     ['serialise', 'answer built and serialised'],
-    ['writes', 'store writes (one transaction)'],
+    ['writes', 'store writes (one statement)'],
     ['total', 'total, first byte in to answer ready'],
   ];
   row('stage', 'median ms', 'minimum ms');
