@@ -199,7 +199,7 @@ export class TreeGrower {
   private awaitHelper(): void {
     const hp = this.helper!;
     const c = hp.start.control;
-    for (let spin = 0; spin < 200000 && Atomics.load(c, P.DONE) !== hp.seq; spin++);
+    for (let spin = 0; spin < 2000 && Atomics.load(c, P.DONE) !== hp.seq; spin++);
     for (let done = Atomics.load(c, P.DONE); done !== hp.seq; done = Atomics.load(c, P.DONE)) Atomics.wait(c, P.DONE, done);
   }
 

@@ -13,7 +13,7 @@ Atomics.notify(c, P.READY);
 let seen = 0;
 for (;;) {
   // A short spin before sleeping: the next command usually follows within microseconds.
-  for (let spin = 0; spin < 20000 && Atomics.load(c, P.COMMAND) === seen; spin++);
+  for (let spin = 0; spin < 2000 && Atomics.load(c, P.COMMAND) === seen; spin++);
   while (Atomics.load(c, P.COMMAND) === seen) Atomics.wait(c, P.COMMAND, seen);
   seen = Atomics.load(c, P.COMMAND);
   const op = c[P.OP];
