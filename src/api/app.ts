@@ -22,9 +22,12 @@ import { observationRoutes } from './observations.ts';
 import { ApiDocs } from './openapi.ts';
 import { docsRoutes } from './docs.ts';
 import { Problem } from '../services/problem.ts';
+import { isStoreUnavailable } from '../store/unavailable.ts';
+import { BodyBudget, limitBodiesInFlight, storeUnavailable, ThrottledWarnings } from './overload.ts';
 import { reforecastRoutes } from './reforecasts.ts';
 import { simulationRoutes } from './simulations.ts';
 import { tokenRoutes } from './token-routes.ts';
+import { ratingCurveRoutes } from './rating-curves.ts';
 import { verificationRoutes } from './verification.ts';
 
 export interface AppOptions {
@@ -59,10 +62,19 @@ export async function buildApp(options: AppOptions): Promise<FastifyInstance> {
   for (const type of ['text/csv', 'text/plain']) {
     app.addContentTypeParser(type, { parseAs: 'string' }, (_req, body, done) => done(null, body));
   }
+  // NetCDF run bodies (classic or NetCDF-4) arrive as bytes; src/api/run-forms.ts reads them.
+  for (const type of ['application/x-netcdf', 'application/netcdf']) {
+    app.addContentTypeParser(type, { parseAs: 'buffer' }, (_req, body, done) => done(null, body));
+  }
 
+  const warnings = new ThrottledWarnings(app.log);
   app.setErrorHandler((error, request, reply) => {
     const problem = toProblem(error);
-    if (problem.status >= 500) request.log.error({ err: error }, 'request failed');
+    // 503s (busy, store unavailable) are the service protecting itself, not faults: one warn line
+    // per interval and kind, never an error line per request.
+    if (problem.status === 503) {
+      warnings.note(problem.slug, { detail: problem.detail, cause: problem === error ? undefined : (error as Error).message }, 'answering 503');
+    } else if (problem.status >= 500) request.log.error({ err: error }, 'request failed');
     reply
       .code(problem.status)
       .headers(problem.headers)
@@ -77,11 +89,13 @@ export async function buildApp(options: AppOptions): Promise<FastifyInstance> {
   });
 
   app.addHook('onRequest', authHook(services));
+  limitBodiesInFlight(app, new BodyBudget(Math.round(config.BODY_BUDGET_MB * 1024 * 1024)));
 
   await app.register(healthRoutes, { services });
   await app.register(docsRoutes, { services });
   await app.register(tokenRoutes, { services });
   await app.register(gaugeRoutes, { services });
+  await app.register(ratingCurveRoutes, { services });
   await app.register(observationRoutes, { services });
   await app.register(forcingRoutes, { services });
   await app.register(simulationRoutes, { services });
@@ -102,12 +116,13 @@ export async function buildApp(options: AppOptions): Promise<FastifyInstance> {
 /** Maps anything thrown to RFC 9457 problem details; fastify's own errors keep their status. */
 function toProblem(error: unknown): Problem {
   if (error instanceof Problem) return error;
+  if (isStoreUnavailable(error)) return storeUnavailable();
   const e = error as { statusCode?: number; code?: string; message?: string };
   switch (e.code) {
     case 'FST_ERR_CTP_BODY_TOO_LARGE':
       return new Problem(413, 'payload-too-large', 'Payload too large', `${e.message}; split the batch into smaller ones`);
     case 'FST_ERR_CTP_INVALID_MEDIA_TYPE':
-      return new Problem(415, 'unsupported-media-type', 'Unsupported media type', `${e.message}; send application/json or text/csv`);
+      return new Problem(415, 'unsupported-media-type', 'Unsupported media type', `${e.message}; send application/json or text/csv (runs also application/x-netcdf)`);
     case 'FST_ERR_CTP_EMPTY_JSON_BODY':
       return new Problem(400, 'bad-request', 'Bad request', 'the JSON body is empty', [{ path: 'body', message: 'empty' }]);
   }

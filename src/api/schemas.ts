@@ -32,18 +32,34 @@ export const Rfc3339 = z
   .regex(/^\d{4}-\d{2}-\d{2}T\d{2}:\d{2}(:\d{2}(\.\d+)?)?(Z|[+-]\d{2}:\d{2})$/, 'must be an RFC 3339 time with offset, e.g. 2024-05-01T00:00:00Z')
   .refine((s) => Number.isFinite(Date.parse(s)), 'not a valid date');
 
-export const Threshold = z.strictObject({
-  label: z.string().trim().min(1).max(60),
-  value: z.number().finite().positive(),
-});
+/** A flood threshold: a flow `value` (m3/s) or a water `level` (m, needs the gauge's rating curve). */
+export const Threshold = z
+  .strictObject({
+    label: z.string().trim().min(1).max(60),
+    value: z.number().finite().positive().optional().describe('flow, m3/s'),
+    level: z.number().finite().optional().describe('water level (stage), m; turned into flow through the rating curve'),
+  })
+  .superRefine((t, ctx) => {
+    if ((t.value === undefined) === (t.level === undefined)) {
+      ctx.addIssue({ code: 'custom', path: ['value'], message: 'give either value (flow, m3/s) or level (water level, m)' });
+    }
+  });
 
+/**
+ * Thresholds rise strictly in the list's order; here among neighbours in the same unit, and across
+ * units through the rating curves (src/services/rating.ts).
+ */
 export const Thresholds = z
   .array(Threshold)
   .max(10)
   .superRefine((list, ctx) => {
     for (let i = 1; i < list.length; i++) {
-      if (!(list[i].value > list[i - 1].value)) {
+      const [a, b] = [list[i - 1], list[i]];
+      if (a.value !== undefined && b.value !== undefined && !(b.value > a.value)) {
         ctx.addIssue({ code: 'custom', path: [i, 'value'], message: 'threshold values must be strictly increasing' });
+      }
+      if (a.level !== undefined && b.level !== undefined && !(b.level > a.level)) {
+        ctx.addIssue({ code: 'custom', path: [i, 'level'], message: 'threshold levels must be strictly increasing' });
       }
     }
     const seen = new Set<string>();

@@ -2,12 +2,13 @@
 // loads the invented Corvane catchment's archive through the API, fits and activates a residual
 // model, posts the latest runs, prints the corrected table and the commands to try, and keeps
 // serving until Ctrl-C. A second start reuses what is stored.
-import { createToken } from '../api/tokens.ts';
 import { ConfigError, loadConfig } from '../config.ts';
 import { startService } from '../server.ts';
 import { DataDirLockedError } from '../store/embedded-driver.ts';
+import { demoTokens } from './demo-tokens.ts';
 import { loadScenarioArchive, type Send } from './load-archive.ts';
 import { buildScenario } from './scenario.ts';
+import { demoToday } from './demo-today.ts';
 
 const started = Date.now();
 const say = (line: string) => console.log(`[${((Date.now() - started) / 1000).toFixed(1).padStart(5)} s] ${line}`);
@@ -31,8 +32,10 @@ try {
 const { url, db } = service;
 say(`service listening on ${url} (${db.kind === 'embedded' ? `embedded PostgreSQL in ${config.DATA_DIR}` : 'PostgreSQL server'})`);
 
-const admin = (await createToken(db, 'admin', 'demo admin')).token;
-const read = (await createToken(db, 'read', 'demo reader')).token;
+// One token per role, kept in a 0600 file under the data directory (reused by a second start).
+const access = await demoTokens(db, config.DATA_DIR);
+const { admin, read } = access.tokens;
+say(`tokens for the roles read, ingest and admin in ${access.path} (only you may read it; ${access.made.length ? `new: ${access.made.join(', ')}` : 'reused'})`);
 const send: Send = async (method, path, body) => {
   const res = await fetch(`${url}${path}`, {
     method,
@@ -48,7 +51,7 @@ const g = scenario.gauge;
 const gaugeId = g.id;
 // "Today" in the scenario is three days before the largest flood of its last three years, so the
 // latest forecast has something to say; the archive loaded ends today.
-const today = floodEve(scenario.observedFlow, 3 * 365, 3);
+const today = demoToday(scenario);
 say(`scenario: ${g.name} (${g.catchmentAreaKm2} km², invented), ${scenario.times.length} days, ${scenario.memberIds.length} raw members`);
 
 const existing = await send('GET', `/gauges/${gaugeId}/models`);
@@ -109,22 +112,20 @@ for (let i = last - 9; i <= last; i++) {
 }
 say(`posted the raw runs of the last 10 days (${posted} new); the latest was issued ${scenario.times[last]} ("today" in the scenario)`);
 
-/** The index `lead` days before the highest observed flow within the final `span` days. */
-function floodEve(observed: (number | null)[], span: number, lead: number): number {
-  let peak = observed.length - span;
-  for (let i = peak; i < observed.length - 11; i++) if ((observed[i] ?? -1) > (observed[peak] ?? -1)) peak = i;
-  return peak - lead;
-}
-
 const table = await fetch(`${url}/gauges/${gaugeId}/forecasts/latest?format=text`, { headers: { authorization: `Bearer ${read}` } });
 console.log(`\n${await table.text()}`);
-console.log(`Try it (a read token was made for you; make more with npm run token -- create --role read):
-  export TOKEN=${read}
-  curl -s -H "authorization: Bearer $TOKEN" ${url}/gauges/${gaugeId}/forecasts/latest?format=text
-  curl -s -H "authorization: Bearer $TOKEN" ${url}/gauges/${gaugeId}/forecasts/latest?format=csv
-  curl -s -H "authorization: Bearer $TOKEN" ${url}/overview
-  curl -s -H "authorization: Bearer $TOKEN" ${url}/gauges/${gaugeId}/models
-  curl -sN -H "authorization: Bearer $TOKEN" ${url}/events          # waits for new runs
+const todayObserved = scenario.observedFlow[today];
+console.log(`Try it: one token per role (read, ingest, admin) is in ${access.path}; load them into your shell:
+  . ${access.path}
+  curl -s -H "authorization: Bearer $READ_TOKEN" ${url}/gauges/${gaugeId}/forecasts/latest?format=text
+  curl -s -H "authorization: Bearer $READ_TOKEN" ${url}/gauges/${gaugeId}/forecasts/latest?format=csv
+  curl -s -H "authorization: Bearer $READ_TOKEN" ${url}/overview
+  curl -s -H "authorization: Bearer $READ_TOKEN" ${url}/gauges/${gaugeId}/models
+  curl -sN -H "authorization: Bearer $READ_TOKEN" ${url}/events          # waits for new runs
+  # writing archive data needs the ingest role (this repeats today's stored observation, changing nothing):
+  curl -s -H "authorization: Bearer $INGEST_TOKEN" -H 'content-type: text/csv' \\
+    --data-binary $'time,flow (m3/s)\\n${scenario.times[today]},${todayObserved ?? ''}\\n' ${url}/gauges/${gaugeId}/observations
+More tokens, also while this runs: npm run token -- create --role read --name "wall screen"
 Page:  ${url}/view/${gaugeId}#token=${read}
 API:   ${url}/api  (OpenAPI at ${url}/openapi.json)
 

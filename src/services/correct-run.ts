@@ -5,9 +5,8 @@
 // the recent observations, and stored in one transaction.
 import { createHash, randomUUID } from 'node:crypto';
 import { archiveReach, chooseArchive, leadGrowthOf } from '../core/stochastic/archive-choice.ts';
-import type { RunInput } from '../core/features/features.ts';
-import { checkResidualSpec, isSequenceSpec, requiredRunInputs, specForcings } from '../core/features/model-inputs.ts';
-import { warmupShortfall, withArchiveWarmup } from '../core/features/run-warmup.ts';
+import type { RequiredInputs, RunInput } from '../core/features/features.ts';
+import { checkResidualSpec, isSequenceSpec, requiredRunInputs, specForcings, type ResidualSpec } from '../core/features/model-inputs.ts';
 import { DEFAULT_QUANTILE_PROBS } from '../core/stochastic/stochastic-stage.ts';
 import type { Config } from '../config.ts';
 import { listMembers, readObservations } from '../store/archive-repo.ts';
@@ -15,12 +14,15 @@ import type { Db, Queryable } from '../store/db.ts';
 import { findRunByIdempotencyKey, findRunByKey, insertRun, type StoredRun } from '../store/forecasts-repo.ts';
 import type { Gauge } from '../store/gauges-repo.ts';
 import { loadWarmupSlice } from '../store/warmup-slice.ts';
+import { fillWarmup, warmupGap, type WarmupSeries } from '../core/features/run-warmup.ts';
 import { archiveBytes, getActiveModelVersion, latestRawArchiveInfo, modelParts, versionArchiveInfo, type ArchiveInfo } from '../store/models-repo.ts';
 import { CorrectionError, PoolFullError, type ArchiveSource, type CorrectionPool, type CorrectionResult, type ModelSource } from '../workers/correction-pool.ts';
 import { buildForecastView } from './forecast-view.ts';
 import { decideUpdating, type UpdatingDecision } from './issue-updating.ts';
-import { conflict, ErrorList, invalid, Problem } from './problem.ts';
-import { checkFlowUnit, checkTimes, isoUtc } from './series-input.ts';
+import { ratingAtIssue } from './rating.ts';
+import { conflict, ErrorList, invalid, Problem, type FieldError } from './problem.ts';
+import { checkTimes, isoUtc } from './series-input.ts';
+import { flowUnit, type FlowUnit } from '../core/flow-units.ts';
 import { StageClock } from './stage-clock.ts';
 
 /**
@@ -45,6 +47,17 @@ export interface RunRequest {
   seasonalWindowDays: number | null;
 }
 
+/**
+ * A posted run whose shape the wire schema refused in places: the fields it could read, the others
+ * absent. The checks that need only the readable fields still run, so one answer lists every problem.
+ */
+export type RunDraft = Partial<Omit<RunRequest, 'members'>> & { members?: { id?: string; values?: unknown[] }[] };
+
+/** Where a run's body came from, for the answer (JSON, CSV or NetCDF). */
+export interface RunForm {
+  form: 'json' | 'csv' | 'netcdf';
+}
+
 /** Counters the use case feeds (the API's metrics registry). */
 export interface RunMetrics {
   rejectedBusy: { inc(): void };
@@ -56,30 +69,102 @@ export interface RunMetrics {
 /** What the caller sends back: a new run, or the stored answer to an earlier identical request. */
 export type RunAnswer = { created: true; id: string; etag: string; output: string; stageMs: Record<string, number> } | { created: false; stored: StoredRun };
 
+/** What the answer says about the run's warm-up: how much the run gave, how much the model reads, what came from the archive. */
+export interface WarmupUsed {
+  /** Values per member at or before issue time in the posted run. */
+  stepsInRun: number;
+  /** Values per member at or before issue time the residual model reads (0 when no model runs). */
+  stepsNeeded: number;
+  /** Series lengthened from the stored archive: the members' continuous simulations, and forcings. */
+  fromArchive: { series: string; from: string; to: string; steps: number }[];
+}
+
 /**
- * The run lengthened from the archive when the model is a sequence model whose window reaches
- * before the run's warm-up: the missing early steps are the members' archived continuous
- * simulations and the archived forcings (what a run's warm-up holds anyway). Other runs and
- * flat models pass as they are.
+ * The run lengthened from the archive so each member and each forcing the model reads holds what
+ * the model needs at or before issue time (the members' archived continuous simulations and the
+ * archived forcings: what a run's warm-up holds anyway); values missing in the run's own warm-up
+ * are filled from the archive too. `extra` more steps are read where the archive has them
+ * (issue-time updating corrects the member at the observation's time); only a value the model
+ * itself needs and neither the run nor the archive has is an error, named by member and time.
  */
-async function withWindowWarmup(db: Queryable, gauge: Gauge, featureSpec: unknown, run: RunInput, memberIds: string[]): Promise<RunInput> {
-  const spec = checkResidualSpec(featureSpec);
-  if (!isSequenceSpec(spec)) return run;
+async function withArchiveWarmupFrom(
+  db: Queryable,
+  gauge: Gauge,
+  spec: ResidualSpec,
+  run: RunInput,
+  memberIds: string[],
+  memberPaths: string[],
+  extra: number,
+  errors: ErrorList,
+): Promise<{ run: RunInput; used: WarmupUsed }> {
   const need = requiredRunInputs(spec);
-  if (warmupShortfall(run, need) === 0) return run;
-  const steps = Math.max(need.simStepsToIssue, ...need.forcings.map((f) => f.stepsToIssue));
-  const longer = withArchiveWarmup(run, need, await loadWarmupSlice(db, gauge.id, gauge.stepSeconds, run.issueTime, steps, memberIds, specForcings(spec)));
-  // Name the member whose early steps the archive cannot give, rather than an index in the lengthened series.
-  const stepMs = gauge.stepSeconds * 1000;
-  longer.members.forEach((m, i) => {
-    const added = m.length - run.members[i].length;
-    for (let j = 0; j < added; j++) {
-      if (Number.isFinite(m[j])) continue;
-      const at = isoUtc(run.issueTime - (m.length - run.nLeads - 1 - j) * stepMs);
-      throw invalid([{ path: `body.members[${i}].values`, message: `the model's ${spec.window}-step window needs ${need.simStepsToIssue} values up to issue time; the run gives ${run.members[i].length - run.nLeads} and the archive has no simulated value of member ${memberIds[i]} at ${at}` }]);
-    }
+  const stepsInRun = run.members.length ? run.members[0].length - run.nLeads : 0;
+  const used: WarmupUsed = { stepsInRun, stepsNeeded: need.simStepsToIssue, fromArchive: [] };
+  const widen = (n: number) => (n > 0 ? n + extra : 0);
+  const want: RequiredInputs = { ...need, simStepsToIssue: widen(need.simStepsToIssue), forcings: need.forcings.map((f) => ({ name: f.name, stepsToIssue: widen(f.stepsToIssue) })) };
+  const flat = (f: unknown): f is ArrayLike<number> => !(Array.isArray(f) && f.length > 0 && (Array.isArray(f[0]) || ArrayBuffer.isView(f[0])));
+  // Series the model reads, with how many values at or before issue time it needs and may use.
+  const series: (Omit<WarmupSeries, 'archived'> & { name: string; path: string; key: number | string })[] = [];
+  run.members.forEach((m, i) => series.push({ name: `member ${memberIds[i]}'s simulated flow`, path: memberPaths[i], values: m, needed: need.simStepsToIssue, wanted: want.simStepsToIssue, key: i }));
+  need.forcings.forEach((f, j) => {
+    const given = run.forcings?.[f.name];
+    if (given && flat(given)) series.push({ name: f.name, path: `body.forcings.${f.name}`, values: given, needed: f.stepsToIssue, wanted: want.forcings[j].stepsToIssue, key: f.name });
   });
-  return longer;
+  if (!series.some((x) => warmupGap({ ...x, archived: null }, run.nLeads))) return { run, used };
+  const steps = Math.max(1, ...series.map((x) => x.wanted));
+  const slice = await loadWarmupSlice(db, gauge.id, gauge.stepSeconds, run.issueTime, steps, memberIds, specForcings(spec));
+  const stepMs = gauge.stepSeconds * 1000;
+  const at = (back: number) => isoUtc(run.issueTime - back * stepMs);
+  const taken = new Map<number | string, number[]>();
+  const lengthened = series.map((x) => {
+    const archived = typeof x.key === 'number' ? slice.members[x.key] : (slice.forcings[x.key] ?? null);
+    const filled = fillWarmup({ ...x, archived }, run.nLeads, slice.steps);
+    if (filled.missing.length) {
+      errors.add(x.path, `the model reads ${x.needed} values of ${x.name} up to issue time; neither the run nor the stored archive has one at ${filled.missing.reverse().map(at).join(', ')}; post them to the archive or in the run's warm-up`);
+    }
+    taken.set(x.key, filled.taken);
+    return filled.values;
+  });
+  const members = run.members.map((_, i) => lengthened[i]);
+  const forcings: NonNullable<RunInput['forcings']> = { ...(run.forcings ?? {}) };
+  series.slice(run.members.length).forEach((x, j) => (forcings[x.key as string] = lengthened[run.members.length + j]));
+  // What the answer says: one line for the members when they took the same times, else one per member.
+  const span = (series: string, backs: number[]) => {
+    if (backs.length) used.fromArchive.push({ series, from: at(Math.max(...backs)), to: at(Math.min(...backs)), steps: backs.length });
+  };
+  const memberTakes = run.members.map((_, i) => taken.get(i) ?? []);
+  const same = memberTakes.every((b) => b.join() === memberTakes[0].join());
+  if (same) span('simulated flow of each member', memberTakes[0] ?? []);
+  else memberTakes.forEach((b, i) => span(`simulated flow of member ${memberIds[i]}`, b));
+  for (const x of series.slice(run.members.length)) span(x.name, taken.get(x.key) ?? []);
+  return { run: { ...run, members, forcings }, used };
+}
+
+/**
+ * The values the archive added in front of the run's series, stored with the run so it can be
+ * reproduced even if the archive changes later (null when nothing was added).
+ */
+function archiveWarmupValues(given: RunInput, run: RunInput, memberIds: string[]) {
+  const front = (before: ArrayLike<number>, after: ArrayLike<number>) => Array.from({ length: after.length - before.length }, (_, j) => (Number.isFinite(after[j]) ? after[j] : null));
+  const members: Record<string, (number | null)[]> = {};
+  run.members.forEach((m, i) => {
+    if (m.length > given.members[i].length) members[memberIds[i]] = front(given.members[i], m);
+  });
+  const forcings: Record<string, (number | null)[]> = {};
+  for (const [name, after] of Object.entries(run.forcings ?? {})) {
+    const before = given.forcings?.[name];
+    if (before && after.length > before.length && !Array.isArray(after[0])) forcings[name] = front(before as ArrayLike<number>, after as ArrayLike<number>);
+  }
+  return Object.keys(members).length || Object.keys(forcings).length ? { members, forcings } : null;
+}
+
+/** A path into the lengthened run (`members[2].values[9]`) as the index of the posted body's value. */
+function bodyIndex(path: string, given: RunInput, run: RunInput): string {
+  const m = /^members\[(\d+)\]\.values\[(\d+)\]$/.exec(path);
+  if (!m) return path;
+  const i = +m[1];
+  const k = +m[2] - ((run.members[i]?.length ?? 0) - (given.members[i]?.length ?? 0));
+  return k >= 0 ? `members[${i}].values[${k}]` : `members[${i}].values (a value taken from the archive, ${-k} before the run's first)`;
 }
 
 /** Default seed: a hash of the run's natural key, so reposting the same run reproduces it. */
@@ -87,34 +172,51 @@ function defaultSeed(gaugeId: string, issueTime: string, source: string): number
   return createHash('sha256').update(`${gaugeId}|${issueTime}|${source}`).digest().readUInt32BE(0) >>> 1;
 }
 
-function checkRun(body: RunRequest, gauge: Gauge, known: Set<string>, horizonLimit: number, maxTrajectories: number): RunInput {
-  const errors = new ErrorList();
-  checkFlowUnit(body.unit, 'body.unit', errors);
-  const issueMs = checkTimes([body.issueTime], gauge.stepSeconds, () => 'body.issueTime', errors)[0];
-  const length = body.members[0].values.length;
-  const nLeads = length - body.warmupSteps;
-  if (nLeads < 1) errors.add('body.warmupSteps', `is ${body.warmupSteps} but members[0] has only ${length} values; at least one lead time is needed`);
-  if (nLeads > horizonLimit) errors.add('body.members[0].values', `has ${nLeads} lead times; the error archive covers at most ${horizonLimit}`);
+/**
+ * Checks a run's values against the gauge and its archives, adding every problem to `errors`.
+ * Fields the wire schema refused are absent and their checks are skipped (already reported).
+ * Flows are converted to m³/s; forcings may hold the lead times only (the archive gives the rest).
+ */
+function checkRun(body: RunDraft, gauge: Gauge, known: Set<string>, horizonLimit: number, maxTrajectories: number, errors: ErrorList): { run: RunInput; unit: FlowUnit | null } {
+  let unit: FlowUnit | null = null;
+  if (body.unit !== undefined) {
+    unit = flowUnit(body.unit);
+    if (!unit) errors.add('body.unit', `not a flow unit the service takes: ${JSON.stringify(body.unit)}; use m3/s (or m3 s-1), l/s (L s-1) or ft3/s (ft3 s-1, cfs)`);
+  }
+  const factor = unit?.factor ?? 1;
+  const issueMs = body.issueTime === undefined ? NaN : checkTimes([body.issueTime], gauge.stepSeconds, () => 'body.issueTime', errors)[0];
+  const warmupSteps = body.warmupSteps ?? 0;
+  const given = body.members ?? [];
+  const length = given[0]?.values?.length ?? 0;
+  const nLeads = length - warmupSteps;
+  if (given[0]?.values) {
+    if (nLeads < 1) errors.add('body.warmupSteps', `is ${warmupSteps} but members[0] has only ${length} values; at least one lead time is needed`);
+    if (nLeads > horizonLimit) errors.add('body.members[0].values', `has ${nLeads} lead times; the error archive covers at most ${horizonLimit}`);
+  }
   if (body.trajectories !== undefined && body.trajectories > maxTrajectories) errors.add('body.trajectories', `at most ${maxTrajectories}`);
   const seen = new Set<string>();
-  const members = body.members.map((m, i) => {
-    if (!known.has(m.id)) errors.add(`body.members[${i}].id`, `unknown member ${m.id}; the gauge's members are those in its simulation archive`);
-    if (seen.has(m.id)) errors.add(`body.members[${i}].id`, `member ${m.id} appears twice`);
-    seen.add(m.id);
-    if (m.values.length !== length) errors.add(`body.members[${i}].values`, `has ${m.values.length} values but members[0] has ${length}`);
-    const out = new Float64Array(m.values.length);
-    m.values.forEach((v, k) => {
-      const atLead = k >= body.warmupSteps;
+  const members = given.map((m, i) => {
+    if (m.id !== undefined) {
+      if (!known.has(m.id)) errors.add(`body.members[${i}].id`, `unknown member ${m.id}; the gauge's members are those in its simulation archive`);
+      if (seen.has(m.id)) errors.add(`body.members[${i}].id`, `member ${m.id} appears twice`);
+      seen.add(m.id);
+    }
+    const values = m.values ?? [];
+    if (m.values && values.length !== length) errors.add(`body.members[${i}].values`, `has ${values.length} values but members[0] has ${length}`);
+    const out = new Float64Array(values.length);
+    values.forEach((v, k) => {
+      const atLead = k >= warmupSteps;
       if (v === null && !atLead) out[k] = NaN;
       else if (typeof v !== 'number' || !Number.isFinite(v)) errors.add(`body.members[${i}].values[${k}]`, atLead ? `must be a finite flow (lead times cannot be missing), got ${JSON.stringify(v)}` : `must be a finite number or null, got ${JSON.stringify(v)}`);
       else if (v < 0) errors.add(`body.members[${i}].values[${k}]`, `flow cannot be negative (${v})`);
-      else out[k] = v;
+      else out[k] = v * factor;
     });
     return out;
   });
   const forcings: Record<string, Float64Array> = {};
   for (const [name, values] of Object.entries(body.forcings ?? {})) {
-    if (values.length !== length) errors.add(`body.forcings.${name}`, `has ${values.length} values but the members have ${length} (warm-up then lead times)`);
+    // A forcing ends at the last lead time: the lead times alone, or warm-up and lead times.
+    if (nLeads >= 1 && values.length < nLeads) errors.add(`body.forcings.${name}`, `has ${values.length} values; give at least one per lead time (${nLeads}), optionally after the warm-up`);
     forcings[name] = Float64Array.from(values, (v, k) => {
       if (v === null) return NaN;
       if (typeof v !== 'number' || !Number.isFinite(v)) {
@@ -125,8 +227,8 @@ function checkRun(body: RunRequest, gauge: Gauge, known: Set<string>, horizonLim
       return v;
     });
   }
-  errors.throwIfAny();
-  return { issueTime: issueMs, nLeads, members, forcings, issueObservation: body.issueObservation ?? null };
+  const observation = body.issueObservation === undefined || body.issueObservation === null ? null : body.issueObservation * factor;
+  return { run: { issueTime: issueMs, nLeads, members, forcings, issueObservation: observation }, unit };
 }
 
 /** What the answer says about updating: what was used, or why not (degraded runs are never updated). */
@@ -158,28 +260,38 @@ export class RunCorrection {
    * Corrects and stores one run, or answers with the stored one for a repeated request.
    * `log` gets a warning when the residual model fails; `started` (performance.now()) times the answer.
    */
-  async correct(gauge: Gauge, body: RunRequest, idempotencyKey: string | null, log: { warn: (o: object, msg: string) => void }, started = performance.now()): Promise<RunAnswer> {
+  async correct(
+    gauge: Gauge,
+    draft: RunDraft,
+    shapeErrors: FieldError[],
+    idempotencyKey: string | null,
+    log: { warn: (o: object, msg: string) => void },
+    started = performance.now(),
+    form: RunForm['form'] = 'json',
+  ): Promise<RunAnswer> {
     const { db, config, pool, metrics } = this.deps;
-    if (idempotencyKey !== null && !/^[\x21-\x7e]{1,200}$/.test(idempotencyKey)) {
-      throw invalid([{ path: 'headers.idempotency-key', message: 'must be 1–200 visible ASCII characters' }]);
-    }
+    const errors = new ErrorList();
+    for (const e of shapeErrors) errors.add(e.path, e.message);
+    if (idempotencyKey !== null && !/^[\x21-\x7e]{1,200}$/.test(idempotencyKey)) errors.add('headers.idempotency-key', 'must be 1–200 visible ASCII characters');
     // Where the milliseconds go (the Server-Timing header; bench/correction.ts prints them).
     const clock = new StageClock(started);
-    const bodyJson = JSON.stringify(body);
-    const requestHash = createHash('sha256').update(bodyJson).digest('hex');
+    const requestHash = createHash('sha256').update(JSON.stringify(draft)).digest('hex');
     clock.lap('hash');
-    if (idempotencyKey) {
-      const stored = await findRunByIdempotencyKey(db, idempotencyKey);
-      if (stored) return { created: false, stored: replay(stored, requestHash, 'this Idempotency-Key') };
+    // An earlier identical request answers from the store (only a well-formed body can be one).
+    if (!errors.items.length) {
+      const body = draft as RunRequest;
+      if (idempotencyKey) {
+        const stored = await findRunByIdempotencyKey(db, idempotencyKey);
+        if (stored) return { created: false, stored: replay(stored, requestHash, 'this Idempotency-Key') };
+      }
+      const byKey = await findRunByKey(db, gauge.id, Date.parse(body.issueTime), body.source);
+      if (byKey) return { created: false, stored: replay(byKey, requestHash, `issue time ${body.issueTime} from source ${body.source}`) };
     }
-    const issueMsPre = Date.parse(body.issueTime);
-    const byKey = await findRunByKey(db, gauge.id, issueMsPre, body.source);
-    if (byKey) return { created: false, stored: replay(byKey, requestHash, `issue time ${body.issueTime} from source ${body.source}`) };
 
     // Which correction: the active model with its archive, else degraded on the raw archive.
     // Each prefers its per-lead archive (errors of past runs at each lead time) when the run's
     // lead times fit within it, else the lead-free one (continuous simulations).
-    const asked = body.members[0].values.length - body.warmupSteps;
+    const asked = Math.max(1, (draft.members?.[0]?.values?.length ?? 1) - (draft.warmupSteps ?? 0));
     const active = await getActiveModelVersion(db, gauge.id);
     // Independent look-ups, sent together (the pg driver runs them on separate connections).
     const [correctedPerLead, correctedLeadFree, rawPerLead, rawLeadFree, memberIds] = await Promise.all([
@@ -194,6 +306,7 @@ export class RunCorrection {
     const correctedArchive = correctedChoice ? chooseArchive(correctedChoice[0], correctedChoice[1], asked, config.PER_LEAD_MIN_RUNS) : null;
     const rawArchive = chooseArchive(rawChoice[0], rawChoice[1], asked, config.PER_LEAD_MIN_RUNS);
     if (!correctedArchive && !rawArchive) {
+      errors.throwIfAny();
       throw new Problem(409, 'no-correction-available', 'No correction available', `gauge ${gauge.id} has no active residual model and no raw error archive; fit a model (POST /gauges/${gauge.id}/models/fit) or build the raw archive (POST /gauges/${gauge.id}/raw-archive)`);
     }
     // Both the corrected path and its degraded fallback must be able to serve the run; each
@@ -204,13 +317,36 @@ export class RunCorrection {
     const horizonLimit = Math.min(...reaches);
     const known = new Set(memberIds);
     clock.lap('reads');
-    const given = checkRun(body, gauge, known, horizonLimit, config.MAX_TRAJECTORIES);
+    const checked = checkRun(draft, gauge, known, horizonLimit, config.MAX_TRAJECTORIES, errors);
     clock.lap('validate');
-    // A sequence model's window may reach before the run's warm-up: the archive fills the rest.
-    const run = active && correctedArchive ? await withWindowWarmup(db, gauge, active.featureSpec, given, body.members.map((m) => m.id)) : given;
+    const given = checked.run;
+    // The model's inputs before issue time that the run does not carry come from the archive
+    // (all members and forcings at once, so every missing time is named in one answer).
+    let run = given;
+    let warmup: WarmupUsed = { stepsInRun: Math.max(0, (given.members[0]?.length ?? 0) - given.nLeads), stepsNeeded: 0, fromArchive: [] };
+    const spec = active && correctedArchive ? checkResidualSpec(active.featureSpec) : null;
+    if (spec) {
+      const need = requiredRunInputs(spec);
+      for (const f of need.forcings) {
+        if (!(f.name in (draft.forcings ?? {}))) errors.add(`body.forcings.${f.name}`, `model version ${active!.id} reads forecast ${f.name}: give one value per lead time (earlier values come from the archive)`);
+      }
+      const ids = (draft.members ?? []).map((m) => m.id);
+      const readable = Number.isFinite(given.issueTime) && given.nLeads >= 1 && ids.every((id) => id !== undefined && known.has(id));
+      if (readable) {
+        // Issue-time updating corrects the member at the observation's time: read that far back too.
+        const extra = active!.updating && !isSequenceSpec(spec) ? gauge.updatingMaxAgeSteps + 1 : 0;
+        const paths = ids.map((_, i) => `body.members[${i}].values`);
+        ({ run, used: warmup } = await withArchiveWarmupFrom(db, gauge, spec, given, ids as string[], paths, extra, errors));
+      } else warmup.stepsNeeded = need.simStepsToIssue;
+    }
+    errors.throwIfAny();
+    const body = draft as RunRequest;
     // Issue-time updating: the latest observation at or before issue time (the run's own wins).
-    const updating: UpdatingDecision | null = active && correctedArchive ? await decideUpdating(db, gauge, active, given, body.warmupSteps, body.issueObservation) : null;
+    const updating: UpdatingDecision | null =
+      active && correctedArchive ? await decideUpdating(db, gauge, active, run, run.members[0].length - run.nLeads, run.issueObservation) : null;
 
+    // Thresholds given as water levels become flows through the rating curve in force at issue time.
+    const rating = await ratingAtIssue(db, gauge, run.issueTime);
     clock.lap('reads');
     const probs = body.quantiles ?? [...DEFAULT_QUANTILE_PROBS];
     const seed = body.seed ?? defaultSeed(gauge.id, isoUtc(run.issueTime), body.source);
@@ -219,7 +355,7 @@ export class RunCorrection {
       seed,
       nDraws: body.trajectories ?? 1000,
       probs: [...probs, ...PERCENTILES],
-      thresholds: gauge.thresholds.map((t) => t.value),
+      thresholds: rating.thresholds.map((t) => t.value),
       seasonalWindowDays: body.seasonalWindowDays,
     };
     const archiveSource = (a: ArchiveInfo): ArchiveSource => ({ archiveId: a.id, load: () => archiveBytes(db, a.id) });
@@ -247,7 +383,7 @@ export class RunCorrection {
           result = await pool.correct(modelSource(active.id, active.featureSpec), archiveSource(used), run, { ...options, updating: updating?.correct ?? null });
         } catch (err) {
           if (err instanceof CorrectionError && err.path) {
-            throw invalid([{ path: `body.${err.path}`, message: `${err.message} (needed by model version ${active.id}'s feature spec)` }]);
+            throw invalid([{ path: `body.${bodyIndex(err.path, given, run)}`, message: `${err.message} (needed by model version ${active.id}'s feature spec)` }]);
           }
           if (err instanceof PoolFullError || !rawArchive) throw err;
           status = 'degraded';
@@ -303,7 +439,8 @@ export class RunCorrection {
     const timings = { featuresMs: rt.featuresMs, inferenceMs: rt.inferenceMs, stochasticMs: rt.stochasticMs, totalMs: 0 };
     const view = buildForecastView({
       id,
-      gauge,
+      gauge: { ...gauge, thresholds: rating.thresholds },
+      ratingCurve: rating.curve,
       issueTimeMs: run.issueTime,
       createdAt,
       source: body.source,
@@ -318,6 +455,12 @@ export class RunCorrection {
       probs,
       nLeads: H,
       memberIds: body.members.map((m) => m.id),
+      input: {
+        form,
+        unit: checked.unit?.name ?? 'm3/s',
+        conversion: checked.unit && checked.unit.factor !== 1 ? { from: checked.unit.name, to: 'm3/s', factor: checked.unit.factor, source: checked.unit.source! } : null,
+        warmup,
+      },
       raw,
       corrected: status === 'corrected' ? result.corrected : null,
       quantiles,
@@ -344,8 +487,7 @@ export class RunCorrection {
           status,
           modelVersionId: status === 'corrected' ? (active?.id ?? null) : null,
           seed,
-          input: body,
-        inputJson: bodyJson,
+          input: { ...body, form, archiveWarmup: archiveWarmupValues(given, run, body.members.map((m) => m.id)) },
           output,
           etag,
           summary,
@@ -353,8 +495,8 @@ export class RunCorrection {
           issueObservation:
             updating?.stored && (status === 'corrected' || updating.stored.source === 'run')
               ? updating.stored
-              : body.issueObservation != null
-                ? { timeMs: run.issueTime, value: body.issueObservation, source: 'run' }
+              : run.issueObservation != null
+                ? { timeMs: run.issueTime, value: run.issueObservation, source: 'run' }
                 : null,
       });
     } catch (err) {

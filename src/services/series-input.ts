@@ -63,7 +63,7 @@ export function checkValues(
 /** A CSV cell as a number: empty = missing (null); anything else must be a finite number. */
 export function csvNumber(cell: string): number | null | string {
   const s = cell.trim();
-  if (s === '' || s.toLowerCase() === 'null') return null;
+  if (s === '' || (s.length === 4 && s.toLowerCase() === 'null')) return null;
   const n = Number(s);
   return Number.isFinite(n) ? n : s;
 }

@@ -53,8 +53,6 @@ export interface NewRun {
   modelVersionId: string | null;
   seed: number;
   input: unknown;
-  /** JSON.stringify(input) when the caller already has it (the request hash is made from it). */
-  inputJson?: string;
   output: string;
   etag: string;
   summary: unknown;
@@ -94,7 +92,7 @@ export async function insertRun(db: Queryable, r: NewRun): Promise<void> {
        returning id)
      select pg_notify('forecast_runs', $18) from stored`,
     [r.id, r.gaugeId, r.issueTimeMs / 1000, r.source, r.requestHash, r.idempotencyKey, r.status, r.modelVersionId, r.seed,
-      r.inputJson ?? JSON.stringify(r.input), r.output, r.etag, JSON.stringify(r.summary), Buffer.from(encodePercentiles(r.percentiles)),
+      JSON.stringify(r.input), r.output, r.etag, JSON.stringify(r.summary), Buffer.from(encodePercentiles(r.percentiles)),
       r.issueObservation ? r.issueObservation.timeMs / 1000 : null, r.issueObservation?.value ?? null, r.issueObservation?.source ?? null,
       JSON.stringify({ gaugeId: r.gaugeId, runId: r.id, issueTime: new Date(r.issueTimeMs).toISOString().replace('.000Z', 'Z') })],
   );
@@ -163,4 +161,12 @@ export async function latestSummaries(db: Queryable) {
       order by g.id`,
   );
   return rows.map((r) => ({ ...r, summary: r.summary === null ? null : RunSummary.parse(r.summary) }));
+}
+
+/** A stored run's answer and its stored midpoint-level quantiles per lead time (null when not stored). */
+export async function getRunWithPercentiles(db: Queryable, id: string): Promise<{ output: string; etag: string; percentiles: number[][] | null } | null> {
+  const { rows } = await db.query<{ output: string; etag: string; percentiles: Uint8Array | null }>('select output, etag, percentiles from forecast_runs where id = $1', [id]);
+  const r = rows[0];
+  if (!r) return null;
+  return { output: r.output, etag: r.etag, percentiles: r.percentiles && r.percentiles.byteLength ? decodePercentiles(r.percentiles) : null };
 }

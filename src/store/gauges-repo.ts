@@ -1,5 +1,9 @@
+import { curveAt } from '../core/rating/curve-at.ts';
+import { stageRange } from '../core/rating/rating-curve.ts';
+import { thresholdsInBothUnits, type GivenThreshold, type ThresholdInBothUnits } from '../core/rating/threshold-units.ts';
 import type { Queryable } from './db.ts';
 import { Thresholds } from './json-columns.ts';
+import { listAllRatingCurves, listRatingCurves, type RatingCurveVersion } from './rating-repo.ts';
 
 export interface Gauge {
   id: string;
@@ -10,7 +14,13 @@ export interface Gauge {
   timeZone: string;
   flowUnit: string;
   location: { latitude: number; longitude: number; elevationM?: number } | null;
-  thresholds: { label: string; value: number }[];
+  /**
+   * Flood thresholds in flow and, where the gauge has a rating curve, in water level, through the
+   * curve version in force now (a run converts with the version in force at its issue time).
+   */
+  thresholds: ThresholdInBothUnits[];
+  /** The rating curve version in force now, or null without one. */
+  ratingCurve: { validFrom: string; stageRange: { from: number; to: number }; versions: number } | null;
   /** Issue-time updating uses the latest observation at most this many steps before issue time. */
   updatingMaxAgeSteps: number;
   createdAt: string;
@@ -28,13 +38,14 @@ interface GaugeRow {
   latitude: number | null;
   longitude: number | null;
   elevation_m: number | null;
-  thresholds: { label: string; value: number }[] | string;
+  thresholds: unknown;
   updating_max_age_steps: number;
   created_at: Date;
   updated_at: Date;
 }
 
-function fromRow(r: GaugeRow): Gauge {
+function fromRow(r: GaugeRow, curves: RatingCurveVersion[]): Gauge {
+  const inForce = curveAt(curves, Date.now());
   return {
     id: r.id,
     name: r.name,
@@ -47,14 +58,26 @@ function fromRow(r: GaugeRow): Gauge {
       r.latitude === null || r.longitude === null
         ? null
         : { latitude: r.latitude, longitude: r.longitude, ...(r.elevation_m === null ? {} : { elevationM: r.elevation_m }) },
-    thresholds: Thresholds.parse(r.thresholds),
+    thresholds: thresholdsInBothUnits(Thresholds.parse(r.thresholds), inForce?.version.segments ?? null),
+    ratingCurve: inForce
+      ? { validFrom: new Date(inForce.version.validFromMs).toISOString().replace('.000Z', 'Z'), stageRange: stageRange(inForce.version.segments), versions: curves.length }
+      : null,
     updatingMaxAgeSteps: r.updating_max_age_steps ?? 2,
     createdAt: r.created_at.toISOString(),
     updatedAt: r.updated_at.toISOString(),
   };
 }
 
-export type GaugeInput = Omit<Gauge, 'createdAt' | 'updatedAt' | 'updatingMaxAgeSteps'> & { updatingMaxAgeSteps?: number };
+export type GaugeInput = Omit<Gauge, 'createdAt' | 'updatedAt' | 'updatingMaxAgeSteps' | 'thresholds' | 'ratingCurve'> & {
+  updatingMaxAgeSteps?: number;
+  thresholds: (GivenThreshold | ThresholdInBothUnits)[];
+};
+
+/** What is stored of a threshold: the unit it was given in, never the converted number. */
+function asGiven(t: GivenThreshold | ThresholdInBothUnits): GivenThreshold {
+  if ('given' in t) return t.given === 'level' ? { label: t.label, level: t.level! } : { label: t.label, value: t.flow };
+  return t.level !== undefined ? { label: t.label, level: t.level } : { label: t.label, value: t.value! };
+}
 
 export async function insertGauge(db: Queryable, g: GaugeInput): Promise<Gauge> {
   const { rows } = await db.query<GaugeRow>(
@@ -63,7 +86,7 @@ export async function insertGauge(db: Queryable, g: GaugeInput): Promise<Gauge> 
      values ($1,$2,$3,$4,$5,$6,$7,$8,$9,$10,$11::jsonb,$12) returning *`,
     params(g),
   );
-  return fromRow(rows[0]);
+  return fromRow(rows[0], await listRatingCurves(db, g.id));
 }
 
 export async function updateGauge(db: Queryable, g: GaugeInput): Promise<Gauge> {
@@ -73,7 +96,7 @@ export async function updateGauge(db: Queryable, g: GaugeInput): Promise<Gauge> 
      where id=$1 returning *`,
     params(g),
   );
-  return fromRow(rows[0]);
+  return fromRow(rows[0], await listRatingCurves(db, g.id));
 }
 
 function params(g: GaugeInput): unknown[] {
@@ -88,18 +111,19 @@ function params(g: GaugeInput): unknown[] {
     g.location?.latitude ?? null,
     g.location?.longitude ?? null,
     g.location?.elevationM ?? null,
-    JSON.stringify(g.thresholds),
+    JSON.stringify(g.thresholds.map(asGiven)),
     g.updatingMaxAgeSteps ?? 2,
   ];
 }
 
 export async function getGauge(db: Queryable, id: string, forUpdate = false): Promise<Gauge | null> {
   const { rows } = await db.query<GaugeRow>(`select * from gauges where id = $1${forUpdate ? ' for update' : ''}`, [id]);
-  return rows[0] ? fromRow(rows[0]) : null;
+  return rows[0] ? fromRow(rows[0], await listRatingCurves(db, id)) : null;
 }
 
 export async function listGauges(db: Queryable): Promise<Gauge[]> {
-  return (await db.query<GaugeRow>('select * from gauges order by id')).rows.map(fromRow);
+  const curves = await listAllRatingCurves(db);
+  return (await db.query<GaugeRow>('select * from gauges order by id')).rows.map((r) => fromRow(r, curves.get(r.id) ?? []));
 }
 
 /** How much archive a gauge holds, per kind; step changes look at it. */

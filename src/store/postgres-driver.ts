@@ -1,11 +1,16 @@
+import { Readable } from 'node:stream';
+import { pipeline } from 'node:stream/promises';
 import pg from 'pg';
+import copyStreams from 'pg-copy-streams';
 import type { Db, Queryable } from './db.ts';
 
 // timestamptz and int8 come back as ISO strings / numbers we control, not driver-specific objects.
 pg.types.setTypeParser(pg.types.builtins.INT8, (v) => Number(v));
 
 export function openPostgres(connectionString: string, max = 10, onError: (err: Error) => void = (err) => console.error(`postgres: ${err.message}`)): Db {
-  const pool = new pg.Pool({ connectionString, max });
+  // A server that accepts no connection (stopped, unreachable) fails a request within 5 s instead
+  // of holding it until the client gives up; the request then answers 503 (src/store/unavailable.ts).
+  const pool = new pg.Pool({ connectionString, max, connectionTimeoutMillis: 5_000 });
   // An idle pooled connection can fail (server restart, dropped database); pg then emits 'error',
   // which would end the process if nobody listened. The pool replaces the connection by itself.
   pool.on('error', onError);
@@ -38,7 +43,8 @@ export function openPostgres(connectionString: string, max = 10, onError: (err: 
       for (const channel of handlers.keys()) await client.query(`listen ${quoteIdent(channel)}`);
     } catch (err) {
       onError(err as Error);
-      if (!closing) setTimeout(() => void relisten(), 5000).unref();
+      // Every second: notifications sent while no LISTEN connection is open are lost.
+      if (!closing) setTimeout(() => void relisten(), 1000).unref();
     }
   }
 
@@ -48,8 +54,53 @@ export function openPostgres(connectionString: string, max = 10, onError: (err: 
       const result = await pool.query(sql, params as unknown[]);
       return { rows: result.rows };
     },
+    async *reading(fn) {
+      const client = await pool.connect();
+      // As in transaction(): a connection lost while the read is held is heard, and dropped from the pool.
+      let lost: Error | undefined;
+      const onLost = (err: Error) => {
+        lost ??= err;
+        onError(err);
+      };
+      client.on('error', onLost);
+      let done = false;
+      try {
+        await client.query('begin isolation level repeatable read read only');
+        yield* fn({
+          async query(sql, params) {
+            const result = await client.query(sql, params as unknown[]);
+            return { rows: result.rows };
+          },
+        });
+        done = true;
+      } finally {
+        // Also when the client went away mid-response (the generator is returned early): the snapshot ends here.
+        const ended = await client.query(done ? 'commit' : 'rollback').then(
+          () => undefined,
+          (e: Error) => e,
+        );
+        const broken = ended ?? lost;
+        if (!broken) client.off('error', onLost);
+        client.release(broken);
+      }
+    },
     async transaction(fn) {
       const client = await pool.connect();
+      // A checked-out client whose connection drops between two queries (the server stops, the
+      // network fails) emits 'error'; unheard, that event would end the process. It is kept here
+      // and the connection is dropped from the pool on release.
+      let lost: Error | undefined;
+      const onLost = (err: Error) => {
+        lost ??= err;
+        onError(err);
+      };
+      client.on('error', onLost);
+      const release = (err?: Error) => {
+        const broken = err ?? lost;
+        // A broken client keeps the listener: it may still report its end while being discarded.
+        if (!broken) client.off('error', onLost);
+        client.release(broken);
+      };
       try {
         await client.query('begin');
         const tx: Queryable = {
@@ -57,15 +108,23 @@ export function openPostgres(connectionString: string, max = 10, onError: (err: 
             const result = await client.query(sql, params as unknown[]);
             return { rows: result.rows };
           },
+          async copyFrom(sql, text) {
+            // pipeline waits for the server to accept each chunk (backpressure) and for COPY to end.
+            await pipeline(Readable.from(text, { objectMode: false }), client.query(copyStreams.from(sql)));
+          },
         };
         const out = await fn(tx);
         await client.query('commit');
+        release();
         return out;
       } catch (err) {
-        await client.query('rollback').catch(() => undefined);
+        // A connection that cannot even roll back is broken: the pool drops it instead of reusing it.
+        const broken = await client.query('rollback').then(
+          () => undefined,
+          (e: Error) => e,
+        );
+        release(broken);
         throw err;
-      } finally {
-        client.release();
       }
     },
     async listen(channel, onPayload) {
