@@ -83,23 +83,26 @@ export function decodePercentiles(bytes: Uint8Array): number[][] {
 const RUN_EVENT_LOCK = 7305015;
 
 /**
- * Stores a run and announces it (NOTIFY is delivered when the transaction commits). The insert
- * first takes a transaction lock, so a run's event number is never below that of a run committed
- * before it: a client resuming after event n misses no run (the lock is held only for the insert).
+ * Stores a run and announces it, in one statement (one round trip; atomic on its own, and the
+ * NOTIFY is delivered when it commits). The run's event number is drawn only after a transaction
+ * lock is taken, so it is never below that of a run committed before it: a client resuming after
+ * event n misses no run (the lock is held only to the end of this insert's transaction).
  */
-export async function insertRun(tx: Queryable, r: NewRun): Promise<void> {
-  await tx.query('select pg_advisory_xact_lock($1)', [RUN_EVENT_LOCK]);
-  const { rows } = await tx.query<{ event_seq: string | number }>(
-    `insert into forecast_runs (id, gauge_id, issue_time, source, request_hash, idempotency_key, status, model_version_id, seed,
-                                input, output, etag, summary, percentiles, issue_observation_time, issue_observation_value, issue_observation_source)
-     values ($1, $2, to_timestamp($3), $4, $5, $6, $7, $8, $9, $10, $11, $12, $13::jsonb, $14, to_timestamp($15), $16, $17)
-     returning event_seq`,
+export async function insertRun(db: Queryable, r: NewRun): Promise<void> {
+  await db.query(
+    `with stored as (
+       insert into forecast_runs (id, gauge_id, issue_time, source, request_hash, idempotency_key, status, model_version_id, seed,
+                                  input, output, etag, summary, percentiles, issue_observation_time, issue_observation_value, issue_observation_source,
+                                  event_seq)
+       values ($1, $2, to_timestamp($3), $4, $5, $6, $7, $8, $9, $10, $11, $12, $13::jsonb, $14, to_timestamp($15), $16, $17,
+               (select nextval(pg_get_serial_sequence('forecast_runs', 'event_seq')) from (select pg_advisory_xact_lock($19)) as locked))
+       returning id, gauge_id, event_seq)
+     select pg_notify('forecast_runs', json_build_object('eventId', event_seq::text, 'gaugeId', gauge_id, 'runId', id, 'issueTime', $18::text)::text) from stored`,
     [r.id, r.gaugeId, r.issueTimeMs / 1000, r.source, r.requestHash, r.idempotencyKey, r.status, r.modelVersionId, r.seed,
       JSON.stringify(r.input), r.output, r.etag, JSON.stringify(r.summary), Buffer.from(encodePercentiles(r.percentiles)),
-      r.issueObservation ? r.issueObservation.timeMs / 1000 : null, r.issueObservation?.value ?? null, r.issueObservation?.source ?? null],
+      r.issueObservation ? r.issueObservation.timeMs / 1000 : null, r.issueObservation?.value ?? null, r.issueObservation?.source ?? null,
+      new Date(r.issueTimeMs).toISOString().replace('.000Z', 'Z'), RUN_EVENT_LOCK],
   );
-  const announcement: RunEvent = { eventId: String(rows[0].event_seq), gaugeId: r.gaugeId, runId: r.id, issueTime: new Date(r.issueTimeMs).toISOString().replace('.000Z', 'Z') };
-  await tx.query(`select pg_notify('forecast_runs', $1)`, [JSON.stringify(announcement)]);
 }
 
 /** A stored run as a server-sent event: its event number (decimal text) and what it announces. */
