@@ -7,6 +7,7 @@ import { forecastCsv, forecastText, type ForecastView } from '../services/foreca
 import { chooseFormat, FormatOnly, type Format } from './formats.ts';
 import { notFound } from '../services/problem.ts';
 import { Rfc3339 } from './schemas.ts';
+import { rfc3339Ms } from '../core/rfc3339.ts';
 
 const FormatQuery = z.strictObject({ format: FormatOnly });
 const CACHE_MS = 5_000;
@@ -88,7 +89,7 @@ export async function forecastRoutes(app: FastifyInstance, { services }: { servi
     async (req) => {
       const gauge = await requireGauge(db, req.params);
       const q = req.query;
-      const runs = await listRuns(db, gauge.id, q.from ? Date.parse(q.from) : undefined, q.to ? Date.parse(q.to) : undefined, q.limit);
+      const runs = await listRuns(db, gauge.id, q.from ? rfc3339Ms(q.from) : undefined, q.to ? rfc3339Ms(q.to) : undefined, q.limit);
       return { gaugeId: gauge.id, runs };
     },
   );

@@ -12,6 +12,7 @@ import { chooseFormat, FormatOnly } from './formats.ts';
 import { CAUTION } from '../services/caution.ts';
 import { scoresCsv, scoresText, sendReport, sizeStudyText, warningsText } from './report-formats.ts';
 import { warningRows } from './warning-tables.ts';
+import { rfc3339Ms } from '../core/rfc3339.ts';
 
 const SourceEnum = z.enum(['raw', 'corrected', 'stochastic']);
 
@@ -50,7 +51,7 @@ const HindcastBody = z
       })
       .default({ sources: ['corrected', 'stochastic'], sizes: [5, 10, 25, 50, 100], repeats: 20 }),
   })
-  .refine((b) => !(b.from && b.to) || Date.parse(b.from) < Date.parse(b.to), { message: 'from must be before to', path: ['to'] })
+  .refine((b) => !(b.from && b.to) || rfc3339Ms(b.from) < rfc3339Ms(b.to), { message: 'from must be before to', path: ['to'] })
   .refine((b) => b.minLead === undefined || b.maxLead === undefined || b.minLead <= b.maxLead, { message: 'minLead must not exceed maxLead', path: ['maxLead'] });
 
 const HindcastParams = z.object({ id: GaugeParams.shape.id, jobId: z.string().regex(/^\d{1,18}$/, 'must be a job id') });

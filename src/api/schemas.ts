@@ -1,5 +1,6 @@
 import { z } from 'zod';
 import { parseDurationSeconds } from '../core/iso-duration.ts';
+import { parseRfc3339 } from '../core/rfc3339.ts';
 
 /** Shared pieces of the wire format. */
 
@@ -29,8 +30,7 @@ export const FlowUnit = z
 
 export const Rfc3339 = z
   .string()
-  .regex(/^\d{4}-\d{2}-\d{2}T\d{2}:\d{2}(:\d{2}(\.\d+)?)?(Z|[+-]\d{2}:\d{2})$/, 'must be an RFC 3339 time with offset, e.g. 2024-05-01T00:00:00Z')
-  .refine((s) => Number.isFinite(Date.parse(s)), 'not a valid date');
+  .refine((s) => parseRfc3339(s) !== null, 'must be a real RFC 3339 time with offset, e.g. 2024-05-01T00:00:00Z (impossible days such as 02-30 and hours such as 24:00 are refused)');
 
 export const Threshold = z.strictObject({
   label: z.string().trim().min(1).max(60),

@@ -21,6 +21,7 @@ import { buildForecastView } from './forecast-view.ts';
 import { decideUpdating, type UpdatingDecision } from './issue-updating.ts';
 import { conflict, ErrorList, invalid, Problem } from './problem.ts';
 import { checkFlowUnit, checkTimes, isoUtc } from './series-input.ts';
+import { rfc3339Ms } from '../core/rfc3339.ts';
 
 /**
  * Stored with every run for verification: the quantiles at the midpoint levels (i − 0.5)/100,
@@ -167,7 +168,7 @@ export class RunCorrection {
       const stored = await findRunByIdempotencyKey(db, idempotencyKey);
       if (stored) return { created: false, stored: replay(stored, requestHash, 'this Idempotency-Key') };
     }
-    const issueMsPre = Date.parse(body.issueTime);
+    const issueMsPre = rfc3339Ms(body.issueTime);
     const byKey = await findRunByKey(db, gauge.id, issueMsPre, body.source);
     if (byKey) return { created: false, stored: replay(byKey, requestHash, `issue time ${body.issueTime} from source ${body.source}`) };
 

@@ -1,12 +1,13 @@
+import { parseRfc3339 } from '../core/rfc3339.ts';
 import type { ErrorList } from './problem.ts';
 
-const RFC3339 = /^\d{4}-\d{2}-\d{2}T\d{2}:\d{2}(:\d{2}(\.\d+)?)?(Z|[+-]\d{2}:\d{2})$/;
-
-/** Parses one RFC 3339 time; NaN when it is not one. */
+/** Parses one RFC 3339 time strictly (src/core/rfc3339.ts); NaN when it is not a real one. */
 export function parseTime(text: unknown): number {
-  if (typeof text !== 'string' || !RFC3339.test(text)) return NaN;
-  return Date.parse(text);
+  return parseRfc3339(text) ?? NaN;
 }
+
+/** What a refused time is told. */
+export const TIME_MESSAGE = 'not a real RFC 3339 time with offset, e.g. 2024-05-01T00:00:00Z (impossible days such as 02-30 and hours such as 24:00 are refused, not rolled over)';
 
 /**
  * Checks a batch's times: RFC 3339 with offset, on the gauge's step (multiples of the step from
@@ -20,7 +21,7 @@ export function checkTimes(times: readonly unknown[], stepSeconds: number, where
     const t = parseTime(times[i]);
     out[i] = t;
     if (Number.isNaN(t)) {
-      errors.add(where(i), `not an RFC 3339 time with offset: ${JSON.stringify(times[i])}`);
+      errors.add(where(i), `${TIME_MESSAGE}: ${JSON.stringify(times[i])}`);
     } else if (t % stepMs !== 0) {
       errors.add(where(i), `${times[i]} is not on the gauge's time step of ${stepSeconds} s (times are multiples of the step from 1970-01-01T00:00:00Z)`);
     } else if (i > 0 && !Number.isNaN(out[i - 1])) {
