@@ -137,9 +137,10 @@ function updatingAnswer(status: 'corrected' | 'degraded', u: UpdatingDecision | 
 }
 
 /** The stored answer of an earlier identical request, or a conflict when the request differs. */
-function replay(stored: StoredRun, requestHash: string, what: string): StoredRun {
+function replay(stored: StoredRun, requestHash: string, what: string, path?: string): StoredRun {
   if (stored.requestHash !== requestHash) {
-    throw conflict(`${what} was already used for a run with different content (run ${stored.id}); nothing was changed`);
+    const detail = `${what} was already used for a run with different content (run ${stored.id}); nothing was changed`;
+    throw conflict(detail, path ? [{ path, message: 'already used with a different body; send a new key for a new request' }] : []);
   }
   return stored;
 }
@@ -165,8 +166,8 @@ export class RunCorrection {
     }
     const requestHash = createHash('sha256').update(JSON.stringify(body)).digest('hex');
     if (idempotencyKey) {
-      const stored = await findRunByIdempotencyKey(db, idempotencyKey);
-      if (stored) return { created: false, stored: replay(stored, requestHash, 'this Idempotency-Key') };
+      const stored = await findRunByIdempotencyKey(db, gauge.id, idempotencyKey);
+      if (stored) return { created: false, stored: replay(stored, requestHash, `this Idempotency-Key on gauge ${gauge.id}`, 'headers.idempotency-key') };
     }
     const issueMsPre = rfc3339Ms(body.issueTime);
     const byKey = await findRunByKey(db, gauge.id, issueMsPre, body.source);
@@ -336,7 +337,7 @@ export class RunCorrection {
       );
     } catch (err) {
       // A concurrent identical post won the race: answer with what it stored.
-      const stored = (idempotencyKey && (await findRunByIdempotencyKey(db, idempotencyKey))) || (await findRunByKey(db, gauge.id, run.issueTime, body.source));
+      const stored = (idempotencyKey && (await findRunByIdempotencyKey(db, gauge.id, idempotencyKey))) || (await findRunByKey(db, gauge.id, run.issueTime, body.source));
       if (stored) return { created: false, stored: replay(stored, requestHash, 'this run') };
       throw err;
     }
