@@ -20,8 +20,8 @@ import { CorrectionError, PoolFullError, type ArchiveSource, type CorrectionPool
 import { buildForecastView } from './forecast-view.ts';
 import { decideUpdating, type UpdatingDecision } from './issue-updating.ts';
 import { conflict, ErrorList, invalid, Problem } from './problem.ts';
-import { checkFlowUnit, checkTimes, isoUtc } from './series-input.ts';
-import { rfc3339Ms } from '../core/rfc3339.ts';
+import { FLOAT32_MAX, flowLimit, forcingLimit, valueProblem } from './plausible-values.ts';
+import { checkFlowUnit, checkTimes, checkValues, isoUtc, knownForcingUnits } from './series-input.ts';
 
 /**
  * Stored with every run for verification: the quantiles at the midpoint levels (i − 0.5)/100,
@@ -87,46 +87,61 @@ function defaultSeed(gaugeId: string, issueTime: string, source: string): number
   return createHash('sha256').update(`${gaugeId}|${issueTime}|${source}`).digest().readUInt32BE(0) >>> 1;
 }
 
-function checkRun(body: RunRequest, gauge: Gauge, known: Set<string>, horizonLimit: number, maxTrajectories: number): RunInput {
+/**
+ * The run's own values, checked before anything is looked up: times, unit, lengths, and every
+ * value finite and plausible for the gauge (src/services/plausible-values.ts).
+ */
+function checkRunValues(body: RunRequest, gauge: Gauge): { issueMs: number; members: Float64Array[]; forcings: Record<string, Float64Array> } {
   const errors = new ErrorList();
   checkFlowUnit(body.unit, 'body.unit', errors);
   const issueMs = checkTimes([body.issueTime], gauge.stepSeconds, () => 'body.issueTime', errors)[0];
   const length = body.members[0].values.length;
-  const nLeads = length - body.warmupSteps;
-  if (nLeads < 1) errors.add('body.warmupSteps', `is ${body.warmupSteps} but members[0] has only ${length} values; at least one lead time is needed`);
-  if (nLeads > horizonLimit) errors.add('body.members[0].values', `has ${nLeads} lead times; the error archive covers at most ${horizonLimit}`);
-  if (body.trajectories !== undefined && body.trajectories > maxTrajectories) errors.add('body.trajectories', `at most ${maxTrajectories}`);
-  const seen = new Set<string>();
+  const flow = flowLimit(gauge);
   const members = body.members.map((m, i) => {
-    if (!known.has(m.id)) errors.add(`body.members[${i}].id`, `unknown member ${m.id}; the gauge's members are those in its simulation archive`);
-    if (seen.has(m.id)) errors.add(`body.members[${i}].id`, `member ${m.id} appears twice`);
-    seen.add(m.id);
     if (m.values.length !== length) errors.add(`body.members[${i}].values`, `has ${m.values.length} values but members[0] has ${length}`);
     const out = new Float64Array(m.values.length);
     m.values.forEach((v, k) => {
       const atLead = k >= body.warmupSteps;
       if (v === null && !atLead) out[k] = NaN;
       else if (typeof v !== 'number' || !Number.isFinite(v)) errors.add(`body.members[${i}].values[${k}]`, atLead ? `must be a finite flow (lead times cannot be missing), got ${JSON.stringify(v)}` : `must be a finite number or null, got ${JSON.stringify(v)}`);
-      else if (v < 0) errors.add(`body.members[${i}].values[${k}]`, `flow cannot be negative (${v})`);
-      else out[k] = v;
+      else {
+        const problem = valueProblem(v, flow);
+        if (problem) errors.add(`body.members[${i}].values[${k}]`, problem);
+        else out[k] = v;
+      }
     });
     return out;
   });
   const forcings: Record<string, Float64Array> = {};
   for (const [name, values] of Object.entries(body.forcings ?? {})) {
     if (values.length !== length) errors.add(`body.forcings.${name}`, `has ${values.length} values but the members have ${length} (warm-up then lead times)`);
-    forcings[name] = Float64Array.from(values, (v, k) => {
-      if (v === null) return NaN;
-      if (typeof v !== 'number' || !Number.isFinite(v)) {
-        errors.add(`body.forcings.${name}[${k}]`, `must be a finite number or null, got ${JSON.stringify(v)}`);
-        return NaN;
-      }
-      if (v < 0 && (name === 'precipitation' || name === 'potential_evaporation')) errors.add(`body.forcings.${name}[${k}]`, `${name} cannot be negative (${v})`);
-      return v;
-    });
+    const unit = knownForcingUnits[name]?.unit ?? '';
+    forcings[name] = checkValues(values, forcingLimit(gauge, name, unit), (k) => `body.forcings.${name}[${k}]`, errors);
+  }
+  if (body.issueObservation != null) {
+    const problem = valueProblem(body.issueObservation, flow);
+    if (problem) errors.add('body.issueObservation', problem);
   }
   errors.throwIfAny();
-  return { issueTime: issueMs, nLeads, members, forcings, issueObservation: body.issueObservation ?? null };
+  return { issueMs, members, forcings };
+}
+
+/** The checks that need the gauge's members and archives. */
+function checkRun(body: RunRequest, values: ReturnType<typeof checkRunValues>, known: Set<string>, horizonLimit: number, maxTrajectories: number): RunInput {
+  const errors = new ErrorList();
+  const length = body.members[0].values.length;
+  const nLeads = length - body.warmupSteps;
+  if (nLeads < 1) errors.add('body.warmupSteps', `is ${body.warmupSteps} but members[0] has only ${length} values; at least one lead time is needed`);
+  if (nLeads > horizonLimit) errors.add('body.members[0].values', `has ${nLeads} lead times; the error archive covers at most ${horizonLimit}`);
+  if (body.trajectories !== undefined && body.trajectories > maxTrajectories) errors.add('body.trajectories', `at most ${maxTrajectories}`);
+  const seen = new Set<string>();
+  body.members.forEach((m, i) => {
+    if (!known.has(m.id)) errors.add(`body.members[${i}].id`, `unknown member ${m.id}; the gauge's members are those in its simulation archive`);
+    if (seen.has(m.id)) errors.add(`body.members[${i}].id`, `member ${m.id} appears twice`);
+    seen.add(m.id);
+  });
+  errors.throwIfAny();
+  return { issueTime: values.issueMs, nLeads, members: values.members, forcings: values.forcings, issueObservation: body.issueObservation ?? null };
 }
 
 /** What the answer says about updating: what was used, or why not (degraded runs are never updated). */
@@ -169,8 +184,8 @@ export class RunCorrection {
       const stored = await findRunByIdempotencyKey(db, gauge.id, idempotencyKey);
       if (stored) return { created: false, stored: replay(stored, requestHash, `this Idempotency-Key on gauge ${gauge.id}`, 'headers.idempotency-key') };
     }
-    const issueMsPre = rfc3339Ms(body.issueTime);
-    const byKey = await findRunByKey(db, gauge.id, issueMsPre, body.source);
+    const values = checkRunValues(body, gauge);
+    const byKey = await findRunByKey(db, gauge.id, values.issueMs, body.source);
     if (byKey) return { created: false, stored: replay(byKey, requestHash, `issue time ${body.issueTime} from source ${body.source}`) };
 
     // Which correction: the active model with its archive, else degraded on the raw archive.
@@ -200,7 +215,7 @@ export class RunCorrection {
     if (rawArchive) reaches.push(Math.max(...rawChoice.map(archiveReach)));
     const horizonLimit = Math.min(...reaches);
     const known = new Set(memberIds);
-    const given = checkRun(body, gauge, known, horizonLimit, config.MAX_TRAJECTORIES);
+    const given = checkRun(body, values, known, horizonLimit, config.MAX_TRAJECTORIES);
     // A sequence model's window may reach before the run's warm-up: the archive fills the rest.
     const run = active && correctedArchive ? await withWindowWarmup(db, gauge, active.featureSpec, given, body.members.map((m) => m.id)) : given;
     // Issue-time updating: the latest observation at or before issue time (the run's own wins).
@@ -271,6 +286,12 @@ export class RunCorrection {
     for (let k = 0; k < H; k++) {
       for (let q = 0; q < nQ; q++) quantiles[k * nQ + q] = result.quantiles[k * nAll + q];
       percentiles.push(Array.from({ length: PERCENTILES.length }, (_, j) => Math.round(result.quantiles[k * nAll + nQ + j] * 1e4) / 1e4));
+    }
+    // Last guard of "no non-finite value is ever stored": the quantiles go to float32 bytes and the
+    // answer; values within the plausible limits cannot get here, so this is a refusal, not a repair.
+    const storable = (v: number) => Number.isFinite(v) && Math.abs(v) <= FLOAT32_MAX;
+    if (!quantiles.every(storable) || !percentiles.every((row) => row.every(storable)) || !result.exceedance.every(Number.isFinite)) {
+      throw invalid([{ path: 'body.members', message: 'the correction of these values gave quantiles that cannot be stored (not finite or beyond float32); nothing was stored' }]);
     }
     const stepMs = gauge.stepSeconds * 1000;
     const recentRows = await readObservations(db, gauge.id, { fromMs: run.issueTime - 9 * stepMs, toMs: run.issueTime + 1 });

@@ -1,4 +1,5 @@
 import { parseRfc3339 } from '../core/rfc3339.ts';
+import { valueProblem, type ValueLimit } from './plausible-values.ts';
 import type { ErrorList } from './problem.ts';
 
 /** Parses one RFC 3339 time strictly (src/core/rfc3339.ts); NaN when it is not a real one. */
@@ -34,37 +35,34 @@ export function checkTimes(times: readonly unknown[], stepSeconds: number, where
 }
 
 /**
- * Checks values: finite numbers or null (missing); negative values are refused where the quantity
- * cannot be negative. Returns a Float64Array with NaN for missing.
+ * Checks values: finite numbers or null (missing), within the quantity's plausible range for the
+ * gauge (src/services/plausible-values.ts). Returns a Float64Array with NaN for missing.
  */
-export function checkValues(
-  values: readonly unknown[],
-  opts: { nonNegative: boolean; quantity: string },
-  where: (i: number) => string,
-  errors: ErrorList,
-): Float64Array {
+export function checkValues(values: readonly unknown[], limit: ValueLimit, where: (i: number) => string, errors: ErrorList): Float64Array {
   const out = new Float64Array(values.length);
   for (let i = 0; i < values.length; i++) {
     const v = values[i];
     if (v === null) {
       out[i] = NaN;
-    } else if (typeof v !== 'number' || !Number.isFinite(v)) {
-      errors.add(where(i), `${opts.quantity} must be a finite number or null, got ${JSON.stringify(v) ?? String(v)}`);
-      if (errors.full) break;
-    } else if (opts.nonNegative && v < 0) {
-      errors.add(where(i), `${opts.quantity} cannot be negative (${v})`);
-      if (errors.full) break;
-    } else {
-      out[i] = v;
+      continue;
     }
+    const problem = typeof v !== 'number' || !Number.isFinite(v) ? `${limit.quantity} must be a finite number or null, got ${JSON.stringify(v) ?? String(v)}` : valueProblem(v, limit);
+    if (problem) {
+      errors.add(where(i), problem);
+      if (errors.full) break;
+    } else out[i] = v as number;
   }
   return out;
 }
 
-/** A CSV cell as a number: empty = missing (null); anything else must be a finite number. */
+/** A plain decimal, optionally with an exponent: no hex, binary, Infinity, NaN, separators or junk. */
+const DECIMAL = /^[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?$/;
+
+/** A CSV cell as a number: empty = missing (null); anything else must be a plain decimal (else the text is returned, for the error). */
 export function csvNumber(cell: string): number | null | string {
   const s = cell.trim();
   if (s === '' || s.toLowerCase() === 'null') return null;
+  if (!DECIMAL.test(s)) return s;
   const n = Number(s);
   return Number.isFinite(n) ? n : s;
 }
