@@ -23,6 +23,7 @@ import { ApiDocs } from './openapi.ts';
 import { docsRoutes } from './docs.ts';
 import { Problem } from '../services/problem.ts';
 import { reforecastRoutes } from './reforecasts.ts';
+import { checkRequestTarget, clientErrorHandler, frameworkErrors, jsonDepthExceeds, pathOf, requestSerializer, tooDeep } from './request-shape.ts';
 import { simulationRoutes } from './simulations.ts';
 import { tokenRoutes } from './token-routes.ts';
 import { verificationRoutes } from './verification.ts';
@@ -36,11 +37,15 @@ export interface AppOptions {
 
 export async function buildApp(options: AppOptions): Promise<FastifyInstance> {
   const { db, config } = options;
+  // Requests are logged with credential query parameters redacted (this serializer wins over fastify's).
+  const logger = options.logger?.child({}, { serializers: { req: requestSerializer } });
   const app = Fastify({
-    ...(options.logger ? { loggerInstance: options.logger } : { logger: false }),
+    ...(logger ? { loggerInstance: logger } : { logger: false }),
     bodyLimit: Math.round(config.BODY_LIMIT_MB * 1024 * 1024),
     return503OnClosing: true,
     routerOptions: { ignoreTrailingSlash: true },
+    frameworkErrors,
+    clientErrorHandler,
   });
   const events = new ForecastEvents();
   await events.start(db);
@@ -56,6 +61,13 @@ export async function buildApp(options: AppOptions): Promise<FastifyInstance> {
     services.metrics.latency.observe({ route }, reply.elapsedTime / 1000);
   });
 
+  // fastify's JSON parser (with its prototype-poisoning checks), behind a nesting limit.
+  const parseJson = app.getDefaultJsonParser('error', 'error');
+  app.removeContentTypeParser('application/json');
+  app.addContentTypeParser('application/json', { parseAs: 'string' }, (req, body, done) => {
+    if (jsonDepthExceeds(body as string)) done(tooDeep(), undefined);
+    else parseJson(req, body as string, done);
+  });
   for (const type of ['text/csv', 'text/plain']) {
     app.addContentTypeParser(type, { parseAs: 'string' }, (_req, body, done) => done(null, body));
   }
@@ -67,15 +79,16 @@ export async function buildApp(options: AppOptions): Promise<FastifyInstance> {
       .code(problem.status)
       .headers(problem.headers)
       .type('application/problem+json')
-      .send(problem.body(request.url));
+      .send(problem.body(pathOf(request.url)));
   });
   app.setNotFoundHandler((request, reply) => {
     reply
       .code(404)
       .type('application/problem+json')
-      .send(new Problem(404, 'not-found', 'Not found', `no route ${request.method} ${request.url.split('?')[0]}`).body());
+      .send(new Problem(404, 'not-found', 'Not found', `no route ${request.method} ${pathOf(request.url)}`).body());
   });
 
+  app.addHook('onRequest', checkRequestTarget);
   app.addHook('onRequest', authHook(services));
 
   await app.register(healthRoutes, { services });
