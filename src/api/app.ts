@@ -25,6 +25,7 @@ import { Problem } from '../services/problem.ts';
 import { reforecastRoutes } from './reforecasts.ts';
 import { checkRequestTarget, clientErrorHandler, frameworkErrors, jsonDepthExceeds, pathOf, requestSerializer, tooDeep } from './request-shape.ts';
 import { simulationRoutes } from './simulations.ts';
+import { TokenRevocations } from './token-revocations.ts';
 import { tokenRoutes } from './token-routes.ts';
 import { verificationRoutes } from './verification.ts';
 
@@ -49,10 +50,13 @@ export async function buildApp(options: AppOptions): Promise<FastifyInstance> {
   });
   const events = new ForecastEvents();
   await events.start(db);
+  const revocations = new TokenRevocations();
+  await revocations.start(db);
   const pool = new CorrectionPool(config.WORKERS, config.CORRECTION_QUEUE);
-  const services: Services = { db, config, docs: new ApiDocs(), pool, metrics: new Metrics(), events };
+  const services: Services = { db, config, docs: new ApiDocs(), pool, metrics: new Metrics(), events, revocations };
   app.addHook('onClose', async () => {
     await events.close();
+    await revocations.close();
     await pool.close();
   });
   app.addHook('onResponse', async (request, reply) => {
