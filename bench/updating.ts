@@ -55,7 +55,15 @@ if (withPastRuns) {
     const j = ids.indexOf(m.id);
     for (let h = 0; h < H; h++) values[(u * ids.length + j) * H + h] = m.values[m.warmupSteps + h];
   }));
-  reforecasts = { issueTimes: Float64Array.from(runs, (r) => Date.parse(r.issueTime)), nLeads: H, memberIds: ids, values };
+  // With the forecast forcings each run was driven by, so their feature rows carry the forcing error.
+  const forcings: Record<string, Float64Array> = {};
+  for (const name of ['precipitation', 'air_temperature'] as const) {
+    forcings[name] = new Float64Array(runs.length * H);
+    runs.forEach((r, u) => {
+      for (let h = 0; h < H; h++) forcings[name][u * H + h] = r.forcings[name][r.warmupSteps + h];
+    });
+  }
+  reforecasts = { issueTimes: Float64Array.from(runs, (r) => Date.parse(r.issueTime)), nLeads: H, memberIds: ids, values, forcings };
   console.log(`past runs given to the fit: ${runs.length} weekly runs issued in the validation period`);
 }
 const fit = await fitResidualModel(fitSeries, {

@@ -1,6 +1,7 @@
 // How verification reports are written out: the main scores side by side as CSV or a fixed-width
 // text table (stored-run verification and hindcasts share them), and the choice among JSON, CSV and text.
 import type { FastifyReply } from 'fastify';
+import type { UpdatingSplit } from '../core/correction/updating-split.ts';
 import type { ComparisonReport, SizeStudyResult, SourceReport, StochasticAdvice, WarningReport } from '../core/verification/index.ts';
 import type { Format } from './formats.ts';
 import { warningText } from './warning-tables.ts';
@@ -135,4 +136,37 @@ export function sizeStudyText(studies: SizeStudyResult[] | null): string[] {
 /** The warnings section of a text report (src/api/warning-tables.ts). */
 export function warningsText(w: WarningReport | null): string {
   return w ? warningText(w, textTable).join('\n') : 'Warnings: no corrected run issued with the gauge\'s present thresholds to verify.';
+}
+
+/** Stored runs apart by issue-time updating, as score rows in the raw / corrected / stochastic columns. */
+export function byUpdatingRows(split: UpdatingSplit | null): ScoreRow[] {
+  if (!split) return [];
+  const rows: ScoreRow[] = [];
+  for (const [group, label] of [['on', 'served with updating'], ['off', 'served without updating']] as const) {
+    rows.push({ score: `runs ${label}`, unit: '', values: [null, split[group].runs, split[group].runs] });
+    for (const l of split[group].byLead) {
+      if (!l.cases) continue;
+      rows.push({ score: `CRPS at lead ${l.lead} (runs ${label})`, unit: 'm3/s', values: [null, l.crps.corrected, l.crps.stochastic] });
+      rows.push({ score: `coverage of the 95 % band at lead ${l.lead} (runs ${label})`, unit: '', values: [null, null, l.coverage95] });
+    }
+  }
+  return rows;
+}
+
+/** The same as a text table, one line per lead. */
+export function byUpdatingText(split: (UpdatingSplit & { note: string }) | null): string {
+  if (!split) return '';
+  const f = (x: number | null) => fmt(x);
+  const n = Math.max(split.on.byLead.length, split.off.byLead.length);
+  const rows = Array.from({ length: n }, (_, k) => {
+    const on = split.on.byLead[k];
+    const off = split.off.byLead[k];
+    return [String(k + 1), String(on?.cases ?? 0), f(on?.crps.stochastic ?? null), f(on?.coverage95 ?? null), String(off?.cases ?? 0), f(off?.crps.stochastic ?? null), f(off?.coverage95 ?? null)];
+  });
+  return [
+    `Runs served with updating (${split.on.runs}) and without (${split.off.runs}), stochastic stage:`,
+    ...textTable(['lead', 'cases on', 'CRPS on', '95 % coverage on', 'cases off', 'CRPS off', '95 % coverage off'], rows),
+    split.note,
+    '',
+  ].join('\n');
 }

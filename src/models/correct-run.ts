@@ -102,7 +102,8 @@ export async function correctRun(
   const stage = runStochasticStage(
     archive,
     // With updating, each member draws from the archive's stratum of its own issue-time error.
-    { members: stageInput, nModels: sessions.length || 1, nMembers: nM, nLeads: H, dayOfYear: doy, ...(issueError ? { issueError } : {}) },
+    // An observation j steps old makes lead h lead h + j from it, in the updater and in the archive.
+    { members: stageInput, nModels: sessions.length || 1, nMembers: nM, nLeads: H, dayOfYear: doy, ...(issueError ? { issueError, leadOffset: options.updating!.ageSteps } : {}) },
     { seed: options.seed, nDraws: options.nDraws, probs: options.probs, thresholds: options.thresholds, seasonalWindowDays: options.seasonalWindowDays },
     workspace,
   );

@@ -397,7 +397,7 @@ function spreadIndices(n: number, k: number): number[] {
   return Array.from({ length: k }, (_, i) => Math.round((i * (n - 1)) / Math.max(1, k - 1)));
 }
 
-/** Scales each lead's errors in place by √(1 + τ_h²/V_h); returns the factors (τ² past its length: its last value). */
+/** Each lead's factor √(1 + τ_h²/V_h), V_h the variance of its errors (τ² past its length: its last value). */
 function errorGrowth(errors: Float64Array, rows: number, L: number, tau2: ArrayLike<number>): Float64Array {
   const g = new Float64Array(L).fill(1);
   for (let k = 0; k < L; k++) {
@@ -414,7 +414,6 @@ function errorGrowth(errors: Float64Array, rows: number, L: number, tau2: ArrayL
     const v = n > 1 ? (ss - (s * s) / n) / (n - 1) : 0;
     const t = tau2[Math.min(k, tau2.length - 1)];
     if (v > 0 && t > 0) g[k] = Math.sqrt(1 + t / v);
-    for (let r = 0; r < rows; r++) errors[r * L + k] *= g[k];
   }
   return g;
 }
@@ -466,12 +465,14 @@ export function updatedArchive(
   const errorMatrix = new Float64Array(rows * L).fill(NaN);
   for (let i = 0; i < rows * L; i++) errorMatrix[i] = transformedError(transform, observed[i], updated[i]);
   // Pseudo-forecast errors lack the forecast-forcing error. Where past runs measured its variance
-  // τ_h², each lead's errors are scaled by g_h = √(1 + τ_h²/V_h), V_h their own variance, so their
-  // variance becomes V_h + τ_h² (the lead-free archive's lead growth, src/core/stochastic/lead-growth.ts, applied
-  // here to the updated errors because the stage applies it to lead-free archives only).
+  // τ_h², the stage widens each lead's drawn errors by g_h = √(1 + τ_h²/V_h), V_h their own variance,
+  // about their neighbours' mean (the archive's leadScale; src/core/stochastic/lead-growth.ts), so
+  // their variance becomes about V_h + τ_h² and the centre stays. (The few past-run cases, which
+  // carry that error already, are widened too.)
   const growth = forcingErrorVariance && forcingErrorVariance.length ? errorGrowth(errorMatrix, rows, L, forcingErrorVariance) : null;
   // (a copy: the builder fills template gaps in the matrix it is given)
   const archive = archiveFromErrorMatrix({ nIssues: rows, nLeads: L, predictor: updated, error: errorMatrix.slice(), dayOfYear, transform, issueError: rowError });
+  if (growth) archive.leadScale = growth;
   // Rebuild the case order: input order is row-major (row, lead) over finite cases, grouped by
   // lead × stratum and sorted by predictor within a group (ties by input order).
   const S = archiveStrata(archive);

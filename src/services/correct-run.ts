@@ -4,7 +4,7 @@
 // worker pool (falling back to degraded when the model fails), shaped into the served view with
 // the recent observations, and stored in one transaction.
 import { createHash, randomUUID } from 'node:crypto';
-import { archiveReach, chooseArchive } from '../core/stochastic/archive-choice.ts';
+import { archiveReach, chooseArchive, leadGrowthOf } from '../core/stochastic/archive-choice.ts';
 import type { RunInput } from '../core/features/features.ts';
 import { checkResidualSpec, isSequenceSpec, requiredRunInputs, specForcings } from '../core/features/model-inputs.ts';
 import { warmupShortfall, withArchiveWarmup } from '../core/features/run-warmup.ts';
@@ -310,7 +310,7 @@ export class RunCorrection {
       degradedReason,
       modelVersion: status === 'corrected' && active ? { id: active.id, label: active.label } : null,
       updating: updatingAnswer(status, updating, degradedReason),
-      errorArchive: { id: used!.id, kind: used!.kind, leadMode: used!.leadMode, leadTimes: archiveReach(used!), cases: Number(used!.summary.cases ?? 0), templates: Number(used!.summary.templates ?? 0) },
+      errorArchive: { id: used!.id, kind: used!.kind, leadMode: used!.leadMode, leadTimes: archiveReach(used!), cases: Number(used!.summary.cases ?? 0), templates: Number(used!.summary.templates ?? 0), leadGrowth: leadGrowthOf(used!) },
       seed,
       nDraws: result.nDraws,
       attentionLevel: config.ATTENTION_LEVEL,

@@ -1,3 +1,4 @@
+import type { LeadGrowthUsed } from '../core/stochastic/archive-choice.ts';
 import { formatDurationSeconds } from '../core/iso-duration.ts';
 import { COARSE_TRAJECTORIES, monteCarloStandardError } from '../core/stochastic/stochastic-stage.ts';
 import { CAUTION } from './caution.ts';
@@ -72,6 +73,8 @@ export interface ErrorArchiveUsed {
   leadTimes: number;
   cases: number;
   templates: number;
+  /** Where the errors' growth with lead time comes from (absent on runs stored before it was recorded). */
+  leadGrowth?: LeadGrowthUsed;
 }
 
 const round = (x: number, digits = 4) => {
@@ -202,6 +205,7 @@ export function forecastText(f: ForecastView): string {
     f.thresholds.some((t) => t.attention) ? `! = probability at or above the attention level (${pct(f.attentionLevel)})` : `no threshold reaches the attention level (${pct(f.attentionLevel)})`,
     `sampling error of each probability: at most ±${round(50 / Math.sqrt(f.trajectories), 1)} points (one standard error, ${f.trajectories} trajectories)`,
     ...(f.probabilityNote ? [`NOTE: ${f.probabilityNote}`] : []),
+    ...(f.errorArchive?.leadGrowth?.source === 'none' ? [`NOTE: the bands come from ${f.errorArchive.leadGrowth.note}`] : []),
     '',
   ].join('\n');
 }

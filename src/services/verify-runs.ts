@@ -1,6 +1,7 @@
 // Use case: verify stored runs. Every stored run's lead times are matched with the observations at
 // their valid times and raw, corrected and stochastic are compared side by side (core
 // compareForecasts, streamed page by page), with the stochastic-stage advice.
+import { updatingSplit, type UpdatingSplit } from '../core/correction/updating-split.ts';
 import { formatDurationSeconds } from '../core/iso-duration.ts';
 import { adviseStochasticStage, createComparison, midpointProbs, type ComparisonReport, type StochasticAdvice, type WarningReport } from '../core/verification/index.ts';
 import { readObservations } from '../store/archive-repo.ts';
@@ -28,6 +29,9 @@ export const DEGRADED_HANDLING =
 
 export const STOCHASTIC_FROM = 'The stochastic stage is scored from the quantiles stored with each run at the 100 midpoint levels (i − 0.5)/100, as a 100-member ensemble.';
 
+export const BY_UPDATING_NOTE =
+  'Runs served with and without issue-time updating, scored apart. They are different runs, not the same issues both ways: updating is off only when no observation recent enough was stored or the version has no updater. A hindcast scores the same issues both ways.';
+
 export interface StoredVerification {
   gaugeId: string;
   unit: 'm3/s';
@@ -39,6 +43,12 @@ export interface StoredVerification {
   stochasticFrom: string;
   thresholds: { label: string; value: number }[];
   comparison: ComparisonReport;
+  /**
+   * The same runs apart by whether they were served with issue-time updating; null when none was.
+   * Different runs, not the same issues both ways (a hindcast gives that): updating is off only
+   * when no recent observation was stored or the version has no updater.
+   */
+  byUpdating: (UpdatingSplit & { note: string }) | null;
   advice: StochasticAdvice;
   /** The warnings (src/services/verify-warnings.ts); null when no corrected run has been issued with the gauge's thresholds. */
   warningScores: (WarningReport & { references: { climatology: string; rates: string | null }; skipped: { degraded: number; thresholdsChanged: number } }) | null;
@@ -67,6 +77,8 @@ export async function verifyStoredRuns(
   const minK = (q.minLead ?? 1) - 1;
   const maxK = (q.maxLead ?? Infinity) - 1;
   const runs = { total: 0, verified: 0, corrected: 0, degraded: 0, sources: {} as Record<string, number>, modelVersions: new Map<string | null, number>() };
+  const split = updatingSplit();
+  let anyUpdated = false;
   let degradedCases = 0;
   const grids = new Map<number, Float64Array>();
   let rawBuf = new Float64Array(64);
@@ -95,6 +107,10 @@ export async function verifyStoredRuns(
         corBuf = new Float64Array(M);
       }
       let verified = false;
+      if (r.status === 'corrected' && r.corrected) {
+        split.addRun(r.updated);
+        anyUpdated ||= r.updated;
+      }
       r.validTimes.forEach((vt, k) => {
         const y = obs.get(rfc3339Ms(vt));
         if (y === undefined) return;
@@ -111,6 +127,7 @@ export async function verifyStoredRuns(
         let probs = grids.get(values.length);
         if (!probs && values.length) grids.set(values.length, (probs = midpointProbs(values.length)));
         comparison.add({ lead: k, observation: y, raw, corrected: cor, stochasticQuantiles: probs ? { probs, values } : null, validTime: vt });
+        if (k >= minK && k <= maxK) split.addCase(r.updated, k, y, cor, values.length ? values : null);
       });
       if (verified) runs.verified++;
       warnings.addRun(r);
@@ -140,6 +157,7 @@ export async function verifyStoredRuns(
     stochasticFrom: STOCHASTIC_FROM,
     thresholds: gauge.thresholds,
     comparison: report,
+    byUpdating: anyUpdated ? { ...split.result(), note: BY_UPDATING_NOTE } : null,
     advice,
     warningScores: w.report ? { ...w.report, references: w.references, skipped: w.skipped } : null,
     caution: CAUTION,

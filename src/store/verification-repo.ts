@@ -18,6 +18,8 @@ export interface RunForVerification {
   corrected: { id: string; values: number[] }[] | null;
   /** Per lead, the stochastic stage's quantiles at the midpoint levels (i − 0.5)/K. */
   percentiles: number[][];
+  /** Whether the run was served with issue-time updating (its answer's updating.status was 'on'). */
+  updated: boolean;
   /** The thresholds' probabilities as issued (per lead and at any time); null when the output has none. */
   issued: { label: string; value: number; exceedance: number[]; anyTime: number }[] | null;
 }
@@ -58,9 +60,11 @@ export async function readRunsForVerification(db: Queryable, p: RunPage): Promis
     ensemble: unknown;
     thresholds: unknown;
     percentiles: Uint8Array;
+    updating: string | null;
   }>(
     // The output text is parsed once per row (the limited subquery is not flattened into the outer one).
-    `select id, t, source, status, model_version_id, o->'validTimes' as valid_times, o->'ensemble' as ensemble, o->'thresholds' as thresholds, percentiles
+    `select id, t, source, status, model_version_id, o->'validTimes' as valid_times, o->'ensemble' as ensemble, o->'thresholds' as thresholds, percentiles,
+            o->'updating'->>'status' as updating
        from (select id, issue_time, (extract(epoch from issue_time) * 1000)::float8 as t, source, status,
                     model_version_id::text as model_version_id, output::jsonb as o, percentiles
                from forecast_runs where gauge_id = $1${where}
@@ -80,6 +84,7 @@ export async function readRunsForVerification(db: Queryable, p: RunPage): Promis
       raw: ensemble.raw,
       corrected: ensemble.corrected,
       percentiles: decodePercentiles(r.percentiles),
+      updated: r.updating === 'on',
       issued: r.thresholds === null || r.thresholds === undefined ? null : RunIssuedThresholds.parse(r.thresholds),
     };
   });

@@ -97,6 +97,10 @@ describe('serving with updating', () => {
     expect(a.updating.status).toBe('on');
     expect(a.updating.observation).toEqual({ time: scenario.times[i], value: scenario.observedFlow[i], source: 'archive', ageSteps: 0 });
     expect(a.errorArchive.leadMode).toBe('updating');
+    // No past runs stored for this gauge: nothing measured the forecast-forcing error, and the answer says so.
+    expect(a.errorArchive.leadGrowth).toEqual({ source: 'none', note: expect.stringMatching(/no forecast-forcing error/) });
+    const text = await t.as('read', { method: 'GET', url: `/forecasts/${a.id}?format=text` });
+    expect(text.body).toMatch(/NOTE: the bands come from errors of pseudo-forecasts after updating, which carry no forecast-forcing error/);
     const row = (await t.db.query<{ v: number; s: string }>('select issue_observation_value as v, issue_observation_source as s from forecast_runs where id = $1', [a.id])).rows[0];
     expect(row).toEqual({ v: scenario.observedFlow[i], s: 'archive' });
   });
@@ -149,5 +153,28 @@ describe('serving with updating', () => {
     const text = await t.as('read', { method: 'GET', url: `/forecasts/${a.id}?format=text` });
     expect(text.statusCode).toBe(200);
     expect(text.body).toMatch(/updated on the observation of .* \(12\.5 m3\/s, from the run\)/);
+  });
+
+  it('stored-run verification scores runs served with and without updating apart', async () => {
+    const v = (await t.as('read', { method: 'GET', url: `/gauges/${gaugeId}/verification` })).json();
+    const split = v.byUpdating;
+    // Runs above: several updated, two served without (stale observation, none at all).
+    expect(split.on.runs).toBeGreaterThanOrEqual(4);
+    expect(split.off.runs).toBe(2);
+    expect(split.on.runs + split.off.runs).toBe(v.runs.corrected);
+    const observed = split.on.byLead.filter((l: { cases: number }) => l.cases > 0);
+    expect(observed.length).toBeGreaterThan(0);
+    for (const l of observed) {
+      expect(l.crps.corrected).toBeGreaterThan(0);
+      expect(l.crps.stochastic).toBeGreaterThan(0);
+      expect(l.coverage95).toBeGreaterThanOrEqual(0);
+      expect(l.coverage95).toBeLessThanOrEqual(1);
+    }
+    expect(split.note).toMatch(/different runs/);
+    const csv = (await t.as('read', { method: 'GET', url: `/gauges/${gaugeId}/verification?format=csv` })).body;
+    expect(csv).toMatch(/\nruns served with updating,,,\d+,\d+\n/);
+    expect(csv).toMatch(/\nCRPS at lead 1 \(runs served with updating\),m3\/s,,[\d.]+,[\d.]+\n/);
+    const text = (await t.as('read', { method: 'GET', url: `/gauges/${gaugeId}/verification?format=text` })).body;
+    expect(text).toMatch(/Runs served with updating \(\d+\) and without \(2\)/);
   });
 });

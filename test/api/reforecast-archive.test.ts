@@ -205,7 +205,7 @@ describe('serving chooses the archive by the run\'s lead count', () => {
     const res = await post(runBody(issue, sim, LEADS));
     expect(res.statusCode, res.body).toBe(201);
     const stored = (await versionArchive(t.db, versionId, 'corrected', 'per-lead'))!;
-    expect(res.json().errorArchive).toEqual({ id: stored.id, kind: 'corrected', leadMode: 'per-lead', leadTimes: LEADS, cases: stored.summary.cases, templates: stored.summary.templates });
+    expect(res.json().errorArchive).toEqual({ id: stored.id, kind: 'corrected', leadMode: 'per-lead', leadTimes: LEADS, cases: stored.summary.cases, templates: stored.summary.templates, leadGrowth: { source: 'past-runs', note: expect.stringMatching(/past runs at each lead time/) } });
     // Existing fields are unchanged.
     expect(res.json()).toMatchObject({ status: 'corrected', modelVersion: { id: versionId } });
     expect(res.json().leadTimes).toHaveLength(LEADS);

@@ -1,5 +1,5 @@
 import { describe, expect, it } from 'vitest';
-import { chooseArchive, MIN_PER_LEAD_RUNS, type ArchiveOption } from '../../src/core/stochastic/archive-choice.ts';
+import { chooseArchive, leadGrowthOf, MIN_PER_LEAD_RUNS, type ArchiveOption } from '../../src/core/stochastic/archive-choice.ts';
 
 const perLead = (issues: number, nLeads = 10): ArchiveOption => ({ leadMode: 'per-lead', summary: { nLeads, issues } });
 const leadFree = (templateLength = 30): ArchiveOption => ({ leadMode: 'lead-free', summary: { templateLength } });
@@ -24,5 +24,15 @@ describe('choosing the error archive for a run', () => {
     expect(chooseArchive(small, leadFree(5), 8)).toBe(small);
     expect(chooseArchive(small, null, 8)).toBe(small);
     expect(chooseArchive(null, f, 8)).toBe(f);
+  });
+});
+
+describe('where the errors growth with lead time comes from', () => {
+  it('past runs measure it; continuous simulations and pseudo-forecasts alone do not', () => {
+    expect(leadGrowthOf({ leadMode: 'per-lead', summary: {} }).source).toBe('past-runs');
+    expect(leadGrowthOf({ leadMode: 'lead-free', summary: { leadScale: [1, 1.2] } }).source).toBe('past-runs');
+    expect(leadGrowthOf({ leadMode: 'lead-free', summary: { leadScale: null } })).toEqual({ source: 'none', note: expect.stringMatching(/continuous simulations, which carry no forecast-forcing error/) });
+    expect(leadGrowthOf({ leadMode: 'updating', summary: { leadGrowth: [1, 1.5] } }).note).toMatch(/pseudo-forecasts after updating, widened/);
+    expect(leadGrowthOf({ leadMode: 'updating', summary: { leadGrowth: null } }).source).toBe('none');
   });
 });

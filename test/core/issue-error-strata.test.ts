@@ -56,3 +56,39 @@ describe('the stochastic stage conditioned on the issue-time error', () => {
     expect(() => runStochasticStage(archive, { members: [50, 50, 50, 50], nMembers: 2, nLeads: 2, issueError: [0] }, { seed: 1 })).toThrow(/issueError/);
   });
 });
+
+describe('an issue-time observation some steps old', () => {
+  // Invented per-lead archive: the error's sd at lead h (0-based) is h + 1, so the 5–95 % band of
+  // N(0, (h + 1)²) is 2·1.645·(h + 1) wide (normal quantile 1.6449, scipy.stats.norm.ppf(0.95), python3-scipy 1.10.1).
+  const H = 4;
+  const g = createPrng(7);
+  const nIssues = 4000;
+  const predictor = new Float64Array(nIssues * H);
+  const error = new Float64Array(nIssues * H);
+  for (let i = 0; i < nIssues * H; i++) {
+    predictor[i] = 20 + 60 * g.nextFloat();
+    error[i] = ((i % H) + 1) * g.normal();
+  }
+  const archive = archiveFromErrorMatrix({ nIssues, nLeads: H, predictor, error, dayOfYear: new Array(nIssues * H).fill(1), transform: { kind: 'none' } });
+  const widths = (leadOffset: number | undefined) => {
+    const r = runStochasticStage(archive, { members: [50, 50, 50], nMembers: 1, nLeads: 3, ...(leadOffset === undefined ? {} : { leadOffset }) }, { seed: 5, nDraws: 6000, probs: [0.05, 0.95], shuffle: false, k: 2000, kernel: 'uniform' });
+    return [0, 1, 2].map((h) => r.quantiles[h * 2 + 1] - r.quantiles[h * 2]);
+  };
+
+  it('draws lead h from the archive lead h + age, the last lead past the end', () => {
+    // 2000 equally weighted neighbours: within 8 % (neighbouring leads differ by 25–100 %).
+    const near = (w: number, sd: number) => expect(Math.abs(w / (2 * 1.6449 * sd) - 1)).toBeLessThan(0.08);
+    const fresh = widths(undefined);
+    fresh.forEach((w, h) => near(w, h + 1));
+    const twoOld = widths(2);
+    // Lead 0 of a run updated on a 2-step-old observation is lead 2 from it; leads 1, 2 pass the end (lead 3).
+    near(twoOld[0], 3);
+    near(twoOld[1], 4);
+    near(twoOld[2], 4);
+  });
+
+  it('refuses a negative or fractional age', () => {
+    expect(() => runStochasticStage(archive, { members: [50, 50, 50], nMembers: 1, nLeads: 3, leadOffset: -1 }, { seed: 1, shuffle: false })).toThrow(/leadOffset/);
+    expect(() => runStochasticStage(archive, { members: [50, 50, 50], nMembers: 1, nLeads: 3, leadOffset: 0.5 }, { seed: 1, shuffle: false })).toThrow(/leadOffset/);
+  });
+});

@@ -1,5 +1,5 @@
 import { describe, expect, it } from 'vitest';
-import { buildArchiveFromSeries } from '../../src/core/stochastic/error-archive.ts';
+import { archiveFromErrorMatrix, buildArchiveFromSeries } from '../../src/core/stochastic/error-archive.ts';
 import { leadGrowthScale } from '../../src/core/stochastic/lead-growth.ts';
 import { createPrng } from '../../src/core/prng.ts';
 import { runStochasticStage } from '../../src/core/stochastic/stochastic-stage.ts';
@@ -28,5 +28,39 @@ describe('error growth with lead time for lead-free archives', () => {
     // Same neighbours and draws: every error is multiplied by 1.5 exactly, so the band is too.
     expect(width(grown, 1) / width(plain, 1)).toBeCloseTo(1.5, 6);
     expect(width(grown, 2) / width(plain, 2)).toBeCloseTo(1.5, 6);
+  });
+
+  it('widens the errors about their neighbours\' mean, so biased errors keep their centre', () => {
+    // Invented: the archive's errors are 3 + 2·N(0, 1), a bias the residual model left. A forecast-forcing
+    // error adds spread, not bias, so the grown band's median stays at 50 + 3 (old behaviour: 50 + 2·3).
+    const g = createPrng(9);
+    const S = 20000;
+    const corrected = Float64Array.from({ length: S }, () => 40 + 20 * g.nextFloat());
+    const observed = Float64Array.from(corrected, (c) => c + 3 + 2 * g.normal());
+    const a = buildArchiveFromSeries({ corrected, observed, dayOfYear: Array.from({ length: S }, () => 1), templateLength: 2 });
+    a.leadScale = Float64Array.from([1, 2]);
+    const r = runStochasticStage(a, { members: [50, 50], nMembers: 1, nLeads: 2 }, { seed: 2, nDraws: 20000, probs: [0.05, 0.5, 0.95], kernel: 'uniform' });
+    expect(r.quantiles[1]).toBeCloseTo(53, 0);
+    expect(r.quantiles[4]).toBeCloseTo(53, 0);
+    // 5–95 % width 2·1.645·σ: σ = 2 at lead 1, 4 at lead 2 (normal quantile from scipy.stats.norm.ppf, python3-scipy 1.10.1).
+    expect((r.quantiles[2] - r.quantiles[0]) / (2 * 1.6449 * 2)).toBeCloseTo(1, 1);
+    expect((r.quantiles[5] - r.quantiles[3]) / (2 * 1.6449 * 4)).toBeCloseTo(1, 1);
+  });
+
+  it('per-lead archives (pseudo-forecasts after updating) take the scale of the archive lead they draw from', () => {
+    const g = createPrng(11);
+    const n = 6000;
+    const H = 3;
+    const predictor = Float64Array.from({ length: n * H }, () => 40 + 20 * g.nextFloat());
+    const error = Float64Array.from({ length: n * H }, () => g.normal());
+    const a = archiveFromErrorMatrix({ nIssues: n, nLeads: H, predictor, error, dayOfYear: new Array(n * H).fill(1), transform: { kind: 'none' } });
+    a.leadScale = Float64Array.from([1, 2, 3]);
+    const width = (leadOffset: number) => {
+      const r = runStochasticStage(a, { members: [50], nMembers: 1, nLeads: 1, leadOffset }, { seed: 3, nDraws: 20000, probs: [0.05, 0.95], kernel: 'uniform', k: 3000, shuffle: false });
+      return (r.quantiles[1] - r.quantiles[0]) / (2 * 1.6449);
+    };
+    expect(width(0)).toBeCloseTo(1, 1);
+    expect(width(1) / 2).toBeCloseTo(1, 1);
+    expect(width(2) / 3).toBeCloseTo(1, 1);
   });
 });

@@ -28,3 +28,33 @@ export function chooseArchive<A extends ArchiveOption>(perLead: A | null, leadFr
   if (perLead && nLeads <= archiveReach(perLead)) return perLead;
   return leadFree ?? perLead;
 }
+
+/** How an archive's errors grow with lead time, as a run's answer states it. */
+export interface LeadGrowthUsed {
+  /** 'past-runs': measured on stored past runs; 'none': the errors do not grow with lead. */
+  source: 'past-runs' | 'none';
+  note: string;
+}
+
+/**
+ * Where a served archive's growth with lead time comes from. Errors of continuous simulations
+ * (lead-free) and pseudo-forecasts (updating) lack the forecast-forcing error; past runs measure it
+ * (lead-growth.ts). Without past runs nothing measures it, and the answer says so.
+ */
+export function leadGrowthOf(a: ArchiveOption): LeadGrowthUsed {
+  if (a.leadMode === 'per-lead') return { source: 'past-runs', note: 'errors of stored past runs at each lead time, forecast-forcing error included' };
+  const scale = a.leadMode === 'lead-free' ? a.summary.leadScale : a.summary.leadGrowth;
+  if (Array.isArray(scale) && scale.length) {
+    return {
+      source: 'past-runs',
+      note:
+        a.leadMode === 'lead-free'
+          ? 'errors of the continuous simulations, widened at each lead time by the forecast-forcing error stored past runs show'
+          : 'errors of pseudo-forecasts after updating, widened at each lead time by the forecast-forcing error stored past runs show',
+    };
+  }
+  return {
+    source: 'none',
+    note: `errors of ${a.leadMode === 'lead-free' ? 'the continuous simulations' : 'pseudo-forecasts after updating'}, which carry no forecast-forcing error: with no past runs stored, the bands beyond the first lead times are likely too narrow; store past runs with their forecast forcings (POST /gauges/:id/reforecasts) and refit`,
+  };
+}

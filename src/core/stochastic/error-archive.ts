@@ -58,9 +58,10 @@ export interface ErrorArchive {
   /** Edges of the issue-error strata (transform space, ascending); absent = one stratum. */
   issueErrorEdges?: Float64Array;
   /**
-   * Lead-free archives: factor per lead (index h; leads past the end use the last) by which the
-   * stage scales the drawn errors, so bands grow with lead as forecast errors do (see
-   * lead-growth.ts); absent = errors do not grow with lead.
+   * Factor per lead (index h, the archive's lead for per-lead archives; leads past the end use the
+   * last) by which the stage widens the drawn errors about their neighbours' mean, so bands grow
+   * with lead as forecast errors do and the centre stays (see lead-growth.ts): archives of errors
+   * without forecast-forcing error (continuous simulations, pseudo-forecasts). Absent = no growth.
    */
   leadScale?: Float64Array;
 }
@@ -417,7 +418,6 @@ export function validateArchive(a: ErrorArchive): void {
     if (!(typeof kScale === 'number' && kScale > 0 && Number.isFinite(kScale))) throw new RangeError('neighbour kScale must be a positive number');
   }
   if (a.leadScale !== undefined) {
-    if (a.nLeads !== 0) throw new RangeError('a lead scale is for lead-free archives');
     if (a.leadScale.length === 0) throw new RangeError('leadScale must not be empty');
     for (const g of a.leadScale) if (!(Number.isFinite(g) && g > 0)) throw new RangeError('leadScale factors must be positive and finite');
   }

@@ -66,6 +66,12 @@ export interface StochasticInput {
    * member draws from the stratum of its own issue error (unknown: the middle one).
    */
   issueError?: ArrayLike<number>;
+  /**
+   * Steps between the issue-time error's observation and the issue time (per-lead archives only;
+   * default 0). Lead h of the run is lead h + leadOffset from that observation, so it draws from
+   * the archive's lead h + leadOffset, the last lead where that passes the archive's end.
+   */
+  leadOffset?: number;
 }
 
 export interface StochasticOptions {
@@ -191,6 +197,10 @@ export function runStochasticStage(
   if (!leadFree && H > archive.nLeads) {
     throw new RangeError(`forecast has ${H} lead times but the archive covers ${archive.nLeads}`);
   }
+  const leadOffset = input.leadOffset ?? 0;
+  if (!(Number.isInteger(leadOffset) && leadOffset >= 0)) throw new RangeError('leadOffset must be a non-negative integer');
+  // The archive's lead group serving the run's lead h.
+  const groupOfLead = (h: number): number => (leadFree ? 0 : Math.min(h + leadOffset, archive.nLeads - 1));
   const window = options.seasonalWindowDays ?? null;
   if (window !== null && !(window >= 0)) throw new RangeError('seasonalWindowDays must be ≥ 0');
   const doy = workspace.f64('doy', H);
@@ -236,10 +246,10 @@ export function runStochasticStage(
   for (let g = 0; g < nGroups; g++) maxGroup = Math.max(maxGroup, groupStart[g + 1] - groupStart[g]);
   const kStride = Math.max(1, kFor(maxGroup));
   for (let h = 0; h < H; h++) {
-    const lg = leadFree ? 0 : h;
+    const lg = groupOfLead(h);
     for (let st = 0; st < S; st++) {
       if (stratumUsed[st] && groupStart[lg * S + st + 1] === groupStart[lg * S + st]) {
-        throw new RangeError(S > 1 ? `the archive has no cases for lead ${h} in issue-error stratum ${st}` : `the archive has no cases for lead ${h}`);
+        throw new RangeError(S > 1 ? `the archive has no cases for lead ${lg} in issue-error stratum ${st}` : `the archive has no cases for lead ${lg}`);
       }
     }
   }
@@ -264,7 +274,7 @@ export function runStochasticStage(
   let error = archive.error;
   // With a lead scale the drawn errors are scaled per lead, so their terms are made per lead from
   // the neighbours' raw errors (scaleTerms) instead of once per case here.
-  const leadScale = leadFree ? archive.leadScale : undefined;
+  const leadScale = archive.leadScale;
   if (kind !== 0 && !leadScale) {
     // Per-case terms prepared once per call: exp(e) in log space, λ·e in Box–Cox space.
     const terms = workspace.f64('errorTerm', error.length);
@@ -404,7 +414,7 @@ export function runStochasticStage(
   for (let h = 0; h < H; h++) {
     let k = kStride;
     if (S === 1) {
-      const g = leadFree ? 0 : h;
+      const g = groupOfLead(h);
       const gs = groupStart[g];
       const ge = groupStart[g + 1];
       // The window's centre follows the lead's day of year in steps of a tenth of the window (at
@@ -438,8 +448,8 @@ export function runStochasticStage(
       if (window !== null) for (let d = 1; d <= 366; d++) inWindow[d] = circularDayDistance(d, doy[h]) <= window ? 1 : 0;
       for (let st = 0; st < S; st++) {
         if (!stratumUsed[st]) continue;
-        const gs = groupStart[h * S + st];
-        const ge = groupStart[h * S + st + 1];
+        const gs = groupStart[groupOfLead(h) * S + st];
+        const ge = groupStart[groupOfLead(h) * S + st + 1];
         const p = cPAll.subarray(st * cStride, (st + 1) * cStride);
         const e = cEAll.subarray(st * cStride, (st + 1) * cStride);
         const nc = window !== null ? gatherInWindow(predictor, error, caseDoy, gs, ge, inWindow, p, e) : 0;
@@ -454,7 +464,7 @@ export function runStochasticStage(
       }
     }
     kPerLead[h] = k;
-    if (leadScale) scaleTerms(kind, lambda, leadScale[Math.min(h, leadScale.length - 1)], nbErr, nMM, kStride, k);
+    if (leadScale) scaleTerms(kind, lambda, leadScale[Math.min(leadFree ? h : groupOfLead(h), leadScale.length - 1)], nbErr, nMM, kStride, k);
     if (k !== cumK) {
       kernelCumulative(kernel, k, cum);
       const cTop = cum[k - 1];
@@ -643,11 +653,18 @@ function shuffleWithinMembers(
  * Turns one lead's neighbour errors e (transform space) into the terms sampleLead adds, scaled by
  * the lead's factor g: g·e (additive), exp(g·e) (log), λ·g·e (Box–Cox).
  */
+/**
+ * Widens each member's k neighbour errors by g about their mean, m + g·(e − m): the forecast-forcing
+ * error they lack adds spread, not bias, so the neighbourhood's centre stays where it is.
+ */
 function scaleTerms(kind: number, lambda: number, g: number, nbErr: Float64Array, nMM: number, kStride: number, k: number): void {
   for (let mm = 0; mm < nMM; mm++) {
     const base = mm * kStride;
+    let m = 0;
+    for (let j = 0; j < k; j++) m += nbErr[base + j];
+    m /= k;
     for (let j = 0; j < k; j++) {
-      const e = g * nbErr[base + j];
+      const e = m + g * (nbErr[base + j] - m);
       nbErr[base + j] = kind === 1 ? Math.exp(e) : kind === 2 ? lambda * e : e;
     }
   }
