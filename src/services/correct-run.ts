@@ -91,8 +91,7 @@ function defaultSeed(gaugeId: string, issueTime: string, source: string): number
  * The run's own values, checked before anything is looked up: times, unit, lengths, and every
  * value finite and plausible for the gauge (src/services/plausible-values.ts).
  */
-function checkRunValues(body: RunRequest, gauge: Gauge): { issueMs: number; members: Float64Array[]; forcings: Record<string, Float64Array> } {
-  const errors = new ErrorList();
+function checkRunValues(body: RunRequest, gauge: Gauge, errors: ErrorList): { issueMs: number; members: Float64Array[]; forcings: Record<string, Float64Array> } {
   checkFlowUnit(body.unit, 'body.unit', errors);
   const issueMs = checkTimes([body.issueTime], gauge.stepSeconds, () => 'body.issueTime', errors)[0];
   const length = body.members[0].values.length;
@@ -122,13 +121,11 @@ function checkRunValues(body: RunRequest, gauge: Gauge): { issueMs: number; memb
     const problem = valueProblem(body.issueObservation, flow);
     if (problem) errors.add('body.issueObservation', problem);
   }
-  errors.throwIfAny();
   return { issueMs, members, forcings };
 }
 
-/** The checks that need the gauge's members and archives. */
-function checkRun(body: RunRequest, values: ReturnType<typeof checkRunValues>, known: Set<string>, horizonLimit: number, maxTrajectories: number): RunInput {
-  const errors = new ErrorList();
+/** The checks that need the gauge's members and archives; throws with these and the value checks' errors together. */
+function checkRun(body: RunRequest, values: ReturnType<typeof checkRunValues>, known: Set<string>, horizonLimit: number, maxTrajectories: number, errors: ErrorList): RunInput {
   const length = body.members[0].values.length;
   const nLeads = length - body.warmupSteps;
   if (nLeads < 1) errors.add('body.warmupSteps', `is ${body.warmupSteps} but members[0] has only ${length} values; at least one lead time is needed`);
@@ -184,7 +181,11 @@ export class RunCorrection {
       const stored = await findRunByIdempotencyKey(db, gauge.id, idempotencyKey);
       if (stored) return { created: false, stored: replay(stored, requestHash, `this Idempotency-Key on gauge ${gauge.id}`, 'headers.idempotency-key') };
     }
-    const values = checkRunValues(body, gauge);
+    // The run's own values are checked first (so a bad run is refused even where no correction is
+    // possible); their errors are sent together with those of the checks against the archive.
+    const errors = new ErrorList();
+    const values = checkRunValues(body, gauge, errors);
+    if (Number.isNaN(values.issueMs)) errors.throwIfAny();
     const byKey = await findRunByKey(db, gauge.id, values.issueMs, body.source);
     if (byKey) return { created: false, stored: replay(byKey, requestHash, `issue time ${body.issueTime} from source ${body.source}`) };
 
@@ -206,6 +207,7 @@ export class RunCorrection {
     const correctedArchive = correctedChoice ? chooseArchive(correctedChoice[0], correctedChoice[1], asked, config.PER_LEAD_MIN_RUNS) : null;
     const rawArchive = chooseArchive(rawChoice[0], rawChoice[1], asked, config.PER_LEAD_MIN_RUNS);
     if (!correctedArchive && !rawArchive) {
+      errors.throwIfAny();
       throw new Problem(409, 'no-correction-available', 'No correction available', `gauge ${gauge.id} has no active residual model and no raw error archive; fit a model (POST /gauges/${gauge.id}/models/fit) or build the raw archive (POST /gauges/${gauge.id}/raw-archive)`);
     }
     // Both the corrected path and its degraded fallback must be able to serve the run; each
@@ -215,7 +217,7 @@ export class RunCorrection {
     if (rawArchive) reaches.push(Math.max(...rawChoice.map(archiveReach)));
     const horizonLimit = Math.min(...reaches);
     const known = new Set(memberIds);
-    const given = checkRun(body, values, known, horizonLimit, config.MAX_TRAJECTORIES);
+    const given = checkRun(body, values, known, horizonLimit, config.MAX_TRAJECTORIES, errors);
     // A sequence model's window may reach before the run's warm-up: the archive fills the rest.
     const run = active && correctedArchive ? await withWindowWarmup(db, gauge, active.featureSpec, given, body.members.map((m) => m.id)) : given;
     // Issue-time updating: the latest observation at or before issue time (the run's own wins).
