@@ -1,6 +1,7 @@
 import { z } from 'zod';
 import { parseDurationSeconds } from '../core/iso-duration.ts';
 import { parseRfc3339 } from '../core/rfc3339.ts';
+import { FLOAT32_MAX } from '../services/plausible-values.ts';
 
 /** Shared pieces of the wire format. */
 
@@ -34,7 +35,8 @@ export const Rfc3339 = z
 
 export const Threshold = z.strictObject({
   label: z.string().trim().min(1).max(60),
-  value: z.number().finite().positive(),
+  // At most what a float32 holds: thresholds are compared with the stored float32 quantiles.
+  value: z.number().finite().positive().max(FLOAT32_MAX),
 });
 
 export const Thresholds = z

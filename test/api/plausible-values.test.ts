@@ -142,6 +142,9 @@ describe('plausible values', () => {
     expect(bad.statusCode).toBe(422);
     const paths = bad.json().errors.map((e: { path: string }) => e.path);
     expect(paths).toEqual(expect.arrayContaining(['body.maxFlow', 'body.airTemperatureRange.max']));
+    const huge = await t.as('admin', { method: 'PATCH', url: `/gauges/${id}`, payload: { thresholds: [{ label: 'beyond float32', value: 1e39 }] } });
+    expect(huge.statusCode).toBe(422);
+    expect(huge.json().errors[0].path).toBe('body.thresholds[0].value');
     const doc = (await t.as(null, { method: 'GET', url: '/openapi.json' })).json();
     const props = doc.paths['/gauges'].post.requestBody.content['application/json'].schema.properties;
     expect(Object.keys(props)).toEqual(expect.arrayContaining(['maxFlow', 'maxPrecipitation', 'airTemperatureRange']));
