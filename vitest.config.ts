@@ -25,6 +25,12 @@ export default defineConfig({
         test: { name: 'embedded', include: storeTests, env: { TEST_STORE: 'embedded' } },
       },
       {
+        // The fault harness: the service as a child process on the real PostgreSQL, killed and cut
+        // off; skipped with the reason when no server is reachable.
+        extends: true,
+        test: { name: 'faults', include: ['test/faults/**/*.test.ts'], env: { TEST_STORE: 'postgres' }, globalSetup: ['test/helpers/postgres-setup.ts'], testTimeout: 120_000 },
+      },
+      {
         extends: true,
         test: { name: 'demo', include: ['test/demo/**/*.test.ts'], env: { TEST_STORE: 'embedded' } },
       },

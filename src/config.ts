@@ -13,10 +13,14 @@ const ConfigSchema = z.object({
   LOG_LEVEL: z.enum(logLevels).default('info'),
   AUTH: z.enum(['on', 'off']).default('on'),
   BODY_LIMIT_MB: z.coerce.number().positive().max(512).default(64),
+  /** Bytes of request bodies received at once, all requests together; beyond it 503 with Retry-After. */
+  BODY_BUDGET_MB: z.coerce.number().positive().max(16_384).default(128),
   ATTENTION_LEVEL: z.coerce.number().min(0).max(1).default(0.3),
   MAX_TRAJECTORIES: z.coerce.number().int().min(10).max(100_000).default(5000),
   CORRECTION_QUEUE: z.coerce.number().int().min(1).max(10_000).default(32),
   WORKERS: z.coerce.number().int().min(1).max(64).default(2),
+  /** A running job whose heartbeat (every 3 s) is older than this was left by a dead instance and is marked failed. */
+  JOB_STALE_SECONDS: z.coerce.number().int().min(5).max(3600).default(30),
   /** Past runs a per-lead error archive needs before it serves runs (see src/core/stochastic/archive-choice.ts). */
   PER_LEAD_MIN_RUNS: z.coerce.number().int().min(1).max(1_000_000).default(300),
 });

@@ -19,7 +19,12 @@ export interface RunningService {
 
 /** Opens the store, applies migrations, and listens. stop() finishes in-flight requests first. */
 export async function startService(config: Config, logger = pino({ level: config.LOG_LEVEL })): Promise<RunningService> {
-  const db = await openDb({ databaseUrl: config.DATABASE_URL, dataDir: config.DATA_DIR });
+  // A dropped connection is replaced by the pool; requests meanwhile answer 503 (logged there).
+  const db = await openDb({
+    databaseUrl: config.DATABASE_URL,
+    dataDir: config.DATA_DIR,
+    onConnectionError: (err) => logger.warn({ err: err.message }, 'a database connection was lost; the pool replaces it'),
+  });
   try {
     const applied = await migrate(db);
     if (applied.length) logger.info({ applied }, 'migrations applied');
@@ -31,7 +36,7 @@ export async function startService(config: Config, logger = pino({ level: config
     }
     const app = await buildApp({ db, config, logger });
     await app.listen({ port: config.PORT, host: config.HOST });
-    const runner = new JobRunner(db, jobHandlers, app.log, undefined, jobSchedule);
+    const runner = new JobRunner(db, jobHandlers, app.log, undefined, jobSchedule, config.JOB_STALE_SECONDS);
     await runner.start();
     const address = app.server.address();
     const port = typeof address === 'object' && address ? address.port : config.PORT;

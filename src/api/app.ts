@@ -22,6 +22,8 @@ import { observationRoutes } from './observations.ts';
 import { ApiDocs } from './openapi.ts';
 import { docsRoutes } from './docs.ts';
 import { Problem } from '../services/problem.ts';
+import { isStoreUnavailable } from '../store/unavailable.ts';
+import { BodyBudget, limitBodiesInFlight, storeUnavailable, ThrottledWarnings } from './overload.ts';
 import { reforecastRoutes } from './reforecasts.ts';
 import { checkRequestTarget, clientErrorHandler, frameworkErrors, jsonDepthExceeds, pathOf, requestSerializer, tooDeep } from './request-shape.ts';
 import { simulationRoutes } from './simulations.ts';
@@ -76,9 +78,14 @@ export async function buildApp(options: AppOptions): Promise<FastifyInstance> {
     app.addContentTypeParser(type, { parseAs: 'string' }, (_req, body, done) => done(null, body));
   }
 
+  const warnings = new ThrottledWarnings(app.log);
   app.setErrorHandler((error, request, reply) => {
     const problem = toProblem(error);
-    if (problem.status >= 500) request.log.error({ err: error }, 'request failed');
+    // 503s (busy, store unavailable) are the service protecting itself, not faults: one warn line
+    // per interval and kind, never an error line per request.
+    if (problem.status === 503) {
+      warnings.note(problem.slug, { detail: problem.detail, cause: problem === error ? undefined : (error as Error).message }, 'answering 503');
+    } else if (problem.status >= 500) request.log.error({ err: error }, 'request failed');
     reply
       .code(problem.status)
       .headers(problem.headers)
@@ -94,6 +101,7 @@ export async function buildApp(options: AppOptions): Promise<FastifyInstance> {
 
   app.addHook('onRequest', checkRequestTarget);
   app.addHook('onRequest', authHook(services));
+  limitBodiesInFlight(app, new BodyBudget(Math.round(config.BODY_BUDGET_MB * 1024 * 1024)));
 
   await app.register(healthRoutes, { services });
   await app.register(docsRoutes, { services });
@@ -119,6 +127,7 @@ export async function buildApp(options: AppOptions): Promise<FastifyInstance> {
 /** Maps anything thrown to RFC 9457 problem details; fastify's own errors keep their status. */
 function toProblem(error: unknown): Problem {
   if (error instanceof Problem) return error;
+  if (isStoreUnavailable(error)) return storeUnavailable();
   const e = error as { statusCode?: number; code?: string; message?: string };
   switch (e.code) {
     case 'FST_ERR_CTP_BODY_TOO_LARGE':

@@ -8,8 +8,7 @@ export interface RunAnnouncement {
 
 /**
  * New runs are announced through PostgreSQL LISTEN/NOTIFY, so every service instance hears of
- * runs stored by any instance; this process then tells its server-sent-event clients and drops
- * its cached copy of that gauge's latest run.
+ * runs stored by any instance; this process then tells its server-sent-event clients.
  */
 export class ForecastEvents {
   private listeners = new Set<(a: RunAnnouncement) => void>();

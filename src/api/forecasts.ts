@@ -10,7 +10,6 @@ import { Rfc3339 } from './schemas.ts';
 import { rfc3339Ms } from '../core/rfc3339.ts';
 
 const FormatQuery = z.strictObject({ format: FormatOnly });
-const CACHE_MS = 5_000;
 
 /** Sends a stored run in the chosen format with a strong ETag per representation; 304 when unchanged. */
 function sendRun(req: FastifyRequest, reply: FastifyReply, run: { etag: string; output: string }, format: Format, cacheControl: string) {
@@ -35,11 +34,11 @@ function sendRun(req: FastifyRequest, reply: FastifyReply, run: { etag: string; 
 }
 
 export async function forecastRoutes(app: FastifyInstance, { services }: { services: Services }) {
-  const { db, events } = services;
-  // The newest run per gauge, cached briefly and dropped as soon as a new run is announced
-  // (LISTEN/NOTIFY reaches every instance); the database stays the only record.
-  const latest = new Map<string, { at: number; id: string; etag: string; output: string }>();
-  events.subscribe((a) => latest.delete(a.gaugeId));
+  const { db } = services;
+  // The newest run's id is read on every request (one indexed row), so a run stored by any
+  // instance is served by every instance as soon as its post was answered; only the body (some
+  // 100 kB to 1 MB) is kept per gauge, by run id, and runs never change once stored.
+  const latest = new Map<string, { id: string; etag: string; output: string }>();
 
   addRoute(
     app,
@@ -48,19 +47,17 @@ export async function forecastRoutes(app: FastifyInstance, { services }: { servi
     async (req, reply) => {
       const { id } = req.params;
       const { format } = req.query;
+      const tag = await latestRunTag(db, id);
+      if (!tag) {
+        latest.delete(id);
+        await requireGauge(db, req.params);
+        throw notFound(`gauge ${id} has no forecast yet`);
+      }
       let hit = latest.get(id);
-      if (!hit || Date.now() - hit.at > CACHE_MS) {
-        const tag = await latestRunTag(db, id);
-        if (!tag) {
-          await requireGauge(db, req.params);
-          throw notFound(`gauge ${id} has no forecast yet`);
-        }
-        if (hit && hit.id === tag.id) hit.at = Date.now();
-        else {
-          const run = await getRun(db, tag.id);
-          if (!run) throw notFound(`gauge ${id} has no forecast yet`);
-          hit = { at: Date.now(), id: run.id, etag: run.etag, output: run.output };
-        }
+      if (hit?.id !== tag.id) {
+        const run = await getRun(db, tag.id);
+        if (!run) throw notFound(`gauge ${id} has no forecast yet`);
+        hit = { id: run.id, etag: run.etag, output: run.output };
         latest.set(id, hit);
       }
       return sendRun(req, reply, hit, chooseFormat(req, format), 'private, max-age=10, must-revalidate');

@@ -2,7 +2,7 @@ import type { FastifyInstance } from 'fastify';
 import { z } from 'zod';
 import { getJob, listJobs, requestCancel } from '../store/jobs-repo.ts';
 import { addRoute, type Services } from './context.ts';
-import { notFound } from '../services/problem.ts';
+import { conflict, notFound } from '../services/problem.ts';
 import { GaugeId } from './schemas.ts';
 
 const JobParams = z.object({ id: z.string() });
@@ -23,7 +23,11 @@ export async function jobRoutes(app: FastifyInstance, { services }: { services: 
   addRoute(app, services, { method: 'POST', url: '/jobs/:id/cancel', summary: 'Ask a job to stop; a queued job is cancelled at once', tag: 'jobs', role: 'admin', params: JobParams }, async (req, reply) => {
     const { id } = req.params;
     const job = await requestCancel(db, id);
-    if (!job) throw notFound(`no job ${id}`);
+    if (!job) {
+      const ended = await getJob(db, id);
+      if (!ended) throw notFound(`no job ${id}`);
+      throw conflict(`job ${id} already ended (${ended.status}); nothing was changed`);
+    }
     reply.code(202);
     return job;
   });

@@ -4,6 +4,7 @@ import type { z } from 'zod';
 import type { Db } from '../store/db.ts';
 import { claimJob, failStaleJobs, finishJob, reportProgress, type Job } from '../store/jobs-repo.ts';
 import { CancelledError } from '../core/cancelled.ts';
+import { isStoreUnavailable } from '../store/unavailable.ts';
 
 export interface JobContext {
   db: Db;
@@ -65,6 +66,7 @@ export class JobRunner {
   private current: AbortController | null = null;
   private readonly taskTimers = new Set<NodeJS.Timeout>();
   private readonly taskRuns = new Set<Promise<void>>();
+  private lastOutageWarning = 0;
 
   constructor(
     private readonly db: Db,
@@ -72,10 +74,11 @@ export class JobRunner {
     private readonly log: FastifyBaseLogger,
     private readonly pollMs = 500,
     private readonly tasks: ScheduledTask[] = [],
+    private readonly staleSeconds = STALE_SECONDS,
   ) {}
 
   async start(): Promise<void> {
-    const failed = await failStaleJobs(this.db, STALE_SECONDS);
+    const failed = await failStaleJobs(this.db, this.staleSeconds);
     if (failed.length) this.log.warn({ jobs: failed }, 'jobs interrupted by a stopped instance were marked failed');
     this.schedule();
     for (const task of this.tasks) this.repeat(task, task.firstMs);
@@ -128,10 +131,16 @@ export class JobRunner {
 
   private async tick(): Promise<void> {
     try {
-      await failStaleJobs(this.db, STALE_SECONDS);
+      await failStaleJobs(this.db, this.staleSeconds);
       await this.drain();
     } catch (err) {
-      this.log.error({ err }, 'job runner poll failed');
+      // While the database is unreachable the poll fails every few hundred ms: one warn line per
+      // interval; polling goes on and picks up again when the server is back.
+      if (!isStoreUnavailable(err)) this.log.error({ err }, 'job runner poll failed');
+      else if (Date.now() - this.lastOutageWarning > 10_000) {
+        this.lastOutageWarning = Date.now();
+        this.log.warn({ err: (err as Error).message }, 'job runner cannot reach the database; polling on');
+      }
     }
   }
 

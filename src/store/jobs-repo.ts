@@ -96,12 +96,15 @@ export async function finishJob(db: Queryable, id: string, status: 'succeeded' |
   );
 }
 
+/** Asks a queued or running job to stop; a job that already ended is left as it is (answers null). */
 export async function requestCancel(db: Queryable, id: string): Promise<Job | null> {
+  // Job ids are numbers: anything else names no job (and must not reach the bigint cast as an error).
+  if (!/^\d{1,18}$/.test(id)) return null;
   const { rows } = await db.query<Row>(
     `update jobs set cancel_requested = true,
        status = case when status = 'queued' then 'cancelled' else status end,
        finished_at = case when status = 'queued' then now() else finished_at end
-     where id = $1 returning *`,
+     where id = $1 and status in ('queued', 'running') returning *`,
     [id],
   );
   return rows[0] ? fromRow(rows[0]) : null;

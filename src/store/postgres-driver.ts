@@ -5,7 +5,9 @@ import type { Db, Queryable } from './db.ts';
 pg.types.setTypeParser(pg.types.builtins.INT8, (v) => Number(v));
 
 export function openPostgres(connectionString: string, max = 10, onError: (err: Error) => void = (err) => console.error(`postgres: ${err.message}`)): Db {
-  const pool = new pg.Pool({ connectionString, max });
+  // A server that accepts no connection (stopped, unreachable) fails a request within 5 s instead
+  // of holding it until the client gives up; the request then answers 503 (src/store/unavailable.ts).
+  const pool = new pg.Pool({ connectionString, max, connectionTimeoutMillis: 5_000 });
   // An idle pooled connection can fail (server restart, dropped database); pg then emits 'error',
   // which would end the process if nobody listened. The pool replaces the connection by itself.
   pool.on('error', onError);
@@ -38,7 +40,8 @@ export function openPostgres(connectionString: string, max = 10, onError: (err: 
       for (const channel of handlers.keys()) await client.query(`listen ${quoteIdent(channel)}`);
     } catch (err) {
       onError(err as Error);
-      if (!closing) setTimeout(() => void relisten(), 5000).unref();
+      // Every second: notifications sent while no LISTEN connection is open are lost.
+      if (!closing) setTimeout(() => void relisten(), 1000).unref();
     }
   }
 
@@ -50,6 +53,21 @@ export function openPostgres(connectionString: string, max = 10, onError: (err: 
     },
     async transaction(fn) {
       const client = await pool.connect();
+      // A checked-out client whose connection drops between two queries (the server stops, the
+      // network fails) emits 'error'; unheard, that event would end the process. It is kept here
+      // and the connection is dropped from the pool on release.
+      let lost: Error | undefined;
+      const onLost = (err: Error) => {
+        lost ??= err;
+        onError(err);
+      };
+      client.on('error', onLost);
+      const release = (err?: Error) => {
+        const broken = err ?? lost;
+        // A broken client keeps the listener: it may still report its end while being discarded.
+        if (!broken) client.off('error', onLost);
+        client.release(broken);
+      };
       try {
         await client.query('begin');
         const tx: Queryable = {
@@ -60,12 +78,16 @@ export function openPostgres(connectionString: string, max = 10, onError: (err: 
         };
         const out = await fn(tx);
         await client.query('commit');
+        release();
         return out;
       } catch (err) {
-        await client.query('rollback').catch(() => undefined);
+        // A connection that cannot even roll back is broken: the pool drops it instead of reusing it.
+        const broken = await client.query('rollback').then(
+          () => undefined,
+          (e: Error) => e,
+        );
+        release(broken);
         throw err;
-      } finally {
-        client.release();
       }
     },
     async listen(channel, onPayload) {

@@ -1,3 +1,5 @@
+import { Writable } from 'node:stream';
+import pino from 'pino';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { jobHandlers } from '../../src/jobs/handlers.ts';
 import { JobRunner } from '../../src/jobs/runner.ts';
@@ -8,11 +10,13 @@ import { injectSend } from '../helpers/scenario-send.ts';
 
 // A queue of one: a second run arriving while one is being corrected gets 503 with Retry-After.
 let t: TestApp;
+const lines: { level: number; kind?: string; answeredSinceLastLine?: number }[] = [];
+const logger = pino({ level: 'info' }, new Writable({ write(chunk, _e, done) { lines.push(JSON.parse(String(chunk))); done(); } }));
 const scenario = buildScenario({ seed: 21, years: 3, members: 5 });
 const gaugeId = scenario.gauge.id;
 
 beforeAll(async () => {
-  t = await makeTestApp({ CORRECTION_QUEUE: '1', WORKERS: '1', MAX_TRAJECTORIES: '100000' });
+  t = await makeTestApp({ CORRECTION_QUEUE: '1', WORKERS: '1', MAX_TRAJECTORIES: '100000' }, { logger });
   await loadScenarioArchive(injectSend(t), scenario);
   // No model: runs are corrected in degraded mode on the raw-error archive.
   const job = await t.as('admin', { method: 'POST', url: `/gauges/${gaugeId}/raw-archive`, payload: { templateLength: 20 } });
@@ -50,5 +54,10 @@ describe('a bounded correction queue', () => {
     expect(Number(rows[0].n)).toBe(done.length);
     const metrics = (await t.as('read', { method: 'GET', url: '/metrics' })).body;
     expect(metrics).toMatch(new RegExp(`sft_correction_rejected_busy_total ${busy.length}`));
+    // Refusals are logged at warn once per interval, never at error per request (issue 14).
+    expect(lines.filter((l) => l.level >= 50)).toEqual([]);
+    const warned = lines.filter((l) => l.kind === 'busy');
+    expect(warned).toHaveLength(1);
+    expect(warned[0].level).toBe(40);
   });
 });

@@ -1,4 +1,4 @@
-import type { FastifyInstance, InjectOptions, LightMyRequestResponse } from 'fastify';
+import type { FastifyBaseLogger, FastifyInstance, InjectOptions, LightMyRequestResponse } from 'fastify';
 import { buildApp } from '../../src/api/app.ts';
 import { createToken } from '../../src/api/tokens.ts';
 import { loadConfig, type Config } from '../../src/config.ts';
@@ -12,10 +12,10 @@ export interface TestApp extends TestDb {
   as(role: 'admin' | 'ingest' | 'read' | null, opts: InjectOptions): Promise<LightMyRequestResponse>;
 }
 
-export async function makeTestApp(env: Record<string, string> = {}): Promise<TestApp> {
+export async function makeTestApp(env: Record<string, string> = {}, options: { logger?: FastifyBaseLogger } = {}): Promise<TestApp> {
   const store = await openTestDb();
   const config = loadConfig({ DATA_DIR: '/tmp/sft-test-unused', ...env });
-  const app = await buildApp({ db: store.db, config });
+  const app = await buildApp({ db: store.db, config, logger: options.logger });
   const tokens = {
     admin: (await createToken(store.db, 'admin', 'test admin')).token,
     ingest: (await createToken(store.db, 'ingest', 'test ingest')).token,
