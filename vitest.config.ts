@@ -1,8 +1,9 @@
 import { defineConfig } from 'vitest/config';
 
 // Computation tests run once; everything that touches the store runs twice: on a real PostgreSQL
-// server (TEST_DATABASE_URL, else a testcontainers PostgreSQL, else it falls back to the embedded
-// store and says so) and on the embedded store, so the default for newcomers stays honest.
+// server (TEST_DATABASE_URL, else the one answering on 127.0.0.1:5432, else a testcontainers
+// PostgreSQL, else it falls back to the embedded store and says so loudly) and on the embedded store.
+// The summary reporter's last lines name the store each project ran on.
 const storeTests = ['test/api/**/*.test.ts', 'test/store/**/*.test.ts', 'test/jobs/**/*.test.ts'];
 
 export default defineConfig({

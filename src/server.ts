@@ -1,6 +1,7 @@
 import pino from 'pino';
 import type { FastifyInstance } from 'fastify';
 import { buildApp } from './api/app.ts';
+import { startControlSocket, type ControlSocket } from './api/control-socket.ts';
 import { jobHandlers, jobSchedule } from './jobs/handlers.ts';
 import { JobRunner } from './jobs/runner.ts';
 import type { Config } from './config.ts';
@@ -38,6 +39,12 @@ export async function startService(config: Config, logger = pino({ level: config
     await app.listen({ port: config.PORT, host: config.HOST });
     const runner = new JobRunner(db, jobHandlers, app.log, undefined, jobSchedule, config.JOB_STALE_SECONDS);
     await runner.start();
+    // The embedded store is this process's alone: the token command reaches it through the service.
+    let control: ControlSocket | null = null;
+    if (db.kind === 'embedded') {
+      control = await startControlSocket(db, config.DATA_DIR).catch((err: Error) => ({ path: null, reason: err.message, close: async () => {} }));
+      if (control.reason) logger.warn(`no control socket for the token command (${control.reason}): manage tokens with POST /tokens while the service runs`);
+    }
     const address = app.server.address();
     const port = typeof address === 'object' && address ? address.port : config.PORT;
     const host = config.HOST.includes(':') ? `[${config.HOST}]` : config.HOST;
@@ -49,6 +56,7 @@ export async function startService(config: Config, logger = pino({ level: config
       url: `http://${host}:${port}`,
       stop: () =>
         (stopping ??= (async () => {
+          await control?.close();
           await runner.stop();
           await app.close();
           await db.close();

@@ -29,6 +29,7 @@ import { checkRequestTarget, clientErrorHandler, frameworkErrors, jsonDepthExcee
 import { simulationRoutes } from './simulations.ts';
 import { TokenRevocations } from './token-revocations.ts';
 import { tokenRoutes } from './token-routes.ts';
+import { ratingCurveRoutes } from './rating-curves.ts';
 import { verificationRoutes } from './verification.ts';
 
 export interface AppOptions {
@@ -107,6 +108,7 @@ export async function buildApp(options: AppOptions): Promise<FastifyInstance> {
   await app.register(docsRoutes, { services });
   await app.register(tokenRoutes, { services });
   await app.register(gaugeRoutes, { services });
+  await app.register(ratingCurveRoutes, { services });
   await app.register(observationRoutes, { services });
   await app.register(forcingRoutes, { services });
   await app.register(simulationRoutes, { services });

@@ -7,6 +7,7 @@ import { getGaugeStatus } from '../store/gauge-status-repo.ts';
 import { hasRuns } from '../store/verification-repo.ts';
 import { addRoute, type Services } from './context.ts';
 import { conflict, notFound } from '../services/problem.ts';
+import { checkThresholds } from '../services/rating.ts';
 import { FlowUnit, GaugeId, IsoDuration, Location, Thresholds, TimeZone } from './schemas.ts';
 
 const GaugeFields = {
@@ -63,6 +64,7 @@ export async function gaugeRoutes(app: FastifyInstance, { services }: { services
     };
     return db.transaction(async (tx) => {
       if (await getGauge(tx, body.id, true)) throw conflict(`gauge ${body.id} exists; change it with PATCH /gauges/${body.id}`, [{ path: 'body.id', message: 'already exists' }]);
+      await checkThresholds(tx, body.id, body.thresholds);
       const gauge = await insertGauge(tx, input);
       reply.code(201).header('location', `/gauges/${gauge.id}`);
       return gaugeView(gauge);
@@ -89,6 +91,7 @@ export async function gaugeRoutes(app: FastifyInstance, { services }: { services
     return db.transaction(async (tx) => {
       const gauge = await getGauge(tx, id, true);
       if (!gauge) throw notFound(`no gauge ${id}`);
+      if (patch.thresholds) await checkThresholds(tx, id, patch.thresholds);
       const next: GaugeInput = { ...gauge, ...patch, location: patch.location === undefined ? gauge.location : patch.location };
       next.stepSeconds = parseDurationSeconds(next.timeStep)!;
       if (next.stepSeconds !== gauge.stepSeconds) {

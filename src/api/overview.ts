@@ -27,7 +27,7 @@ export async function overviewRoutes(app: FastifyInstance, { services }: { servi
           latest: r.id ? { id: r.id, issueTime: isoUtc(r.issue_time!.getTime()), status: r.status } : null,
           thresholds: g.thresholds.map((t) => {
             const s = summary.find((x) => x.label === t.label);
-            return { label: t.label, value: t.value, maxExceedance: s?.maxExceedance ?? null, anyTime: s?.anyTime ?? null, attention: s?.attention ?? false };
+            return { label: t.label, value: t.value, level: t.level, maxExceedance: s?.maxExceedance ?? null, anyTime: s?.anyTime ?? null, attention: s?.attention ?? false };
           }),
         };
       }),

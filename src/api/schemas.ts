@@ -33,19 +33,35 @@ export const Rfc3339 = z
   .string()
   .refine((s) => parseRfc3339(s) !== null, 'must be a real RFC 3339 time with offset, e.g. 2024-05-01T00:00:00Z (impossible days such as 02-30 and hours such as 24:00 are refused)');
 
-export const Threshold = z.strictObject({
-  label: z.string().trim().min(1).max(60),
-  // At most what a float32 holds: thresholds are compared with the stored float32 quantiles.
-  value: z.number().finite().positive().max(FLOAT32_MAX),
-});
+/** A flood threshold: a flow `value` (m3/s) or a water `level` (m, needs the gauge's rating curve). */
+export const Threshold = z
+  .strictObject({
+    label: z.string().trim().min(1).max(60),
+    // At most what a float32 holds: flows are compared with the stored float32 quantiles.
+    value: z.number().finite().positive().max(FLOAT32_MAX).optional().describe('flow, m3/s'),
+    level: z.number().finite().optional().describe('water level (stage), m; turned into flow through the rating curve'),
+  })
+  .superRefine((t, ctx) => {
+    if ((t.value === undefined) === (t.level === undefined)) {
+      ctx.addIssue({ code: 'custom', path: ['value'], message: 'give either value (flow, m3/s) or level (water level, m)' });
+    }
+  });
 
+/**
+ * Thresholds rise strictly in the list's order; here among neighbours in the same unit, and across
+ * units through the rating curves (src/services/rating.ts).
+ */
 export const Thresholds = z
   .array(Threshold)
   .max(10)
   .superRefine((list, ctx) => {
     for (let i = 1; i < list.length; i++) {
-      if (!(list[i].value > list[i - 1].value)) {
+      const [a, b] = [list[i - 1], list[i]];
+      if (a.value !== undefined && b.value !== undefined && !(b.value > a.value)) {
         ctx.addIssue({ code: 'custom', path: [i, 'value'], message: 'threshold values must be strictly increasing' });
+      }
+      if (a.level !== undefined && b.level !== undefined && !(b.level > a.level)) {
+        ctx.addIssue({ code: 'custom', path: [i, 'level'], message: 'threshold levels must be strictly increasing' });
       }
     }
     const seen = new Set<string>();

@@ -1,14 +1,9 @@
 import type { FastifyInstance } from 'fastify';
 import { z } from 'zod';
-import { listTokens, revokeToken } from '../store/tokens-repo.ts';
+import { revokeToken } from '../store/tokens-repo.ts';
 import { addRoute, type Services } from './context.ts';
 import { notFound } from '../services/problem.ts';
-import { createToken } from './tokens.ts';
-
-const TokenBody = z.strictObject({
-  role: z.enum(['admin', 'ingest', 'read']),
-  name: z.string().min(1).max(100),
-});
+import { createToken, listedTokens, TokenRequest as TokenBody } from './tokens.ts';
 
 /** Tokens can also be managed over HTTP by an admin, so the embedded store need not be stopped. */
 export async function tokenRoutes(app: FastifyInstance, { services }: { services: Services }) {
@@ -19,19 +14,9 @@ export async function tokenRoutes(app: FastifyInstance, { services }: { services
     reply.code(201);
     return { id, role: body.role, name: body.name, token };
   });
-  addRoute(app, services, { method: 'GET', url: '/tokens', summary: 'List access tokens (never the secrets)', tag: 'access', role: 'admin' }, async () => {
-    const rows = await listTokens(db);
-    return {
-      tokens: rows.map((t) => ({
-        id: t.id,
-        name: t.name,
-        role: t.role,
-        createdAt: t.created_at.toISOString(),
-        lastUsedAt: t.last_used_at?.toISOString() ?? null,
-        revokedAt: t.revoked_at?.toISOString() ?? null,
-      })),
-    };
-  });
+  addRoute(app, services, { method: 'GET', url: '/tokens', summary: 'List access tokens (never the secrets)', tag: 'access', role: 'admin' }, async () => ({
+    tokens: await listedTokens(db),
+  }));
   const Params = z.object({ id: z.string() });
   addRoute(app, services, { method: 'DELETE', url: '/tokens/:id', summary: 'Revoke an access token', tag: 'access', role: 'admin', params: Params }, async (req, reply) => {
     const { id } = req.params;

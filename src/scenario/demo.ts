@@ -2,10 +2,10 @@
 // loads the invented Corvane catchment's archive through the API, fits and activates a residual
 // model, posts the latest runs, prints the corrected table and the commands to try, and keeps
 // serving until Ctrl-C. A second start reuses what is stored.
-import { createToken } from '../api/tokens.ts';
 import { ConfigError, loadConfig } from '../config.ts';
 import { startService } from '../server.ts';
 import { DataDirLockedError } from '../store/embedded-driver.ts';
+import { demoTokens } from './demo-tokens.ts';
 import { loadScenarioArchive, type Send } from './load-archive.ts';
 import { buildScenario } from './scenario.ts';
 
@@ -31,8 +31,10 @@ try {
 const { url, db } = service;
 say(`service listening on ${url} (${db.kind === 'embedded' ? `embedded PostgreSQL in ${config.DATA_DIR}` : 'PostgreSQL server'})`);
 
-const admin = (await createToken(db, 'admin', 'demo admin')).token;
-const read = (await createToken(db, 'read', 'demo reader')).token;
+// One token per role, kept in a 0600 file under the data directory (reused by a second start).
+const access = await demoTokens(db, config.DATA_DIR);
+const { admin, read } = access.tokens;
+say(`tokens for the roles read, ingest and admin in ${access.path} (only you may read it; ${access.made.length ? `new: ${access.made.join(', ')}` : 'reused'})`);
 const send: Send = async (method, path, body) => {
   const res = await fetch(`${url}${path}`, {
     method,
@@ -118,13 +120,18 @@ function floodEve(observed: (number | null)[], span: number, lead: number): numb
 
 const table = await fetch(`${url}/gauges/${gaugeId}/forecasts/latest?format=text`, { headers: { authorization: `Bearer ${read}` } });
 console.log(`\n${await table.text()}`);
-console.log(`Try it (a read token was made for you; make more with npm run token -- create --role read):
-  export TOKEN=${read}
-  curl -s -H "authorization: Bearer $TOKEN" ${url}/gauges/${gaugeId}/forecasts/latest?format=text
-  curl -s -H "authorization: Bearer $TOKEN" ${url}/gauges/${gaugeId}/forecasts/latest?format=csv
-  curl -s -H "authorization: Bearer $TOKEN" ${url}/overview
-  curl -s -H "authorization: Bearer $TOKEN" ${url}/gauges/${gaugeId}/models
-  curl -sN -H "authorization: Bearer $TOKEN" ${url}/events          # waits for new runs
+const todayObserved = scenario.observedFlow[today];
+console.log(`Try it: one token per role (read, ingest, admin) is in ${access.path}; load them into your shell:
+  . ${access.path}
+  curl -s -H "authorization: Bearer $READ_TOKEN" ${url}/gauges/${gaugeId}/forecasts/latest?format=text
+  curl -s -H "authorization: Bearer $READ_TOKEN" ${url}/gauges/${gaugeId}/forecasts/latest?format=csv
+  curl -s -H "authorization: Bearer $READ_TOKEN" ${url}/overview
+  curl -s -H "authorization: Bearer $READ_TOKEN" ${url}/gauges/${gaugeId}/models
+  curl -sN -H "authorization: Bearer $READ_TOKEN" ${url}/events          # waits for new runs
+  # writing archive data needs the ingest role (this repeats today's stored observation, changing nothing):
+  curl -s -H "authorization: Bearer $INGEST_TOKEN" -H 'content-type: text/csv' \\
+    --data-binary $'time,flow (m3/s)\\n${scenario.times[today]},${todayObserved ?? ''}\\n' ${url}/gauges/${gaugeId}/observations
+More tokens, also while this runs: npm run token -- create --role read --name "wall screen"
 Page:  ${url}/view/${gaugeId}#token=${read}
 API:   ${url}/api  (OpenAPI at ${url}/openapi.json)
 

@@ -19,6 +19,7 @@ import { archiveBytes, getActiveModelVersion, latestRawArchiveInfo, modelParts, 
 import { CorrectionError, PoolFullError, type ArchiveSource, type CorrectionPool, type CorrectionResult, type ModelSource } from '../workers/correction-pool.ts';
 import { buildForecastView } from './forecast-view.ts';
 import { decideUpdating, type UpdatingDecision } from './issue-updating.ts';
+import { ratingAtIssue } from './rating.ts';
 import { conflict, ErrorList, invalid, Problem } from './problem.ts';
 import { FLOAT32_MAX, flowLimit, forcingLimit, valueProblem } from './plausible-values.ts';
 import { checkFlowUnit, checkTimes, checkValues, isoUtc, knownForcingUnits } from './series-input.ts';
@@ -223,6 +224,8 @@ export class RunCorrection {
     // Issue-time updating: the latest observation at or before issue time (the run's own wins).
     const updating: UpdatingDecision | null = active && correctedArchive ? await decideUpdating(db, gauge, active, given, body.warmupSteps, body.issueObservation) : null;
 
+    // Thresholds given as water levels become flows through the rating curve in force at issue time.
+    const rating = await ratingAtIssue(db, gauge, run.issueTime);
     const probs = body.quantiles ?? [...DEFAULT_QUANTILE_PROBS];
     const seed = body.seed ?? defaultSeed(gauge.id, isoUtc(run.issueTime), body.source);
     const options = {
@@ -230,7 +233,7 @@ export class RunCorrection {
       seed,
       nDraws: body.trajectories ?? 1000,
       probs: [...probs, ...PERCENTILES],
-      thresholds: gauge.thresholds.map((t) => t.value),
+      thresholds: rating.thresholds.map((t) => t.value),
       seasonalWindowDays: body.seasonalWindowDays,
     };
     const archiveSource = (a: ArchiveInfo): ArchiveSource => ({ archiveId: a.id, load: () => archiveBytes(db, a.id) });
@@ -304,7 +307,8 @@ export class RunCorrection {
     const timings = { ...result.timings, totalMs: 0 };
     const view = buildForecastView({
       id,
-      gauge,
+      gauge: { ...gauge, thresholds: rating.thresholds },
+      ratingCurve: rating.curve,
       issueTimeMs: run.issueTime,
       createdAt,
       source: body.source,

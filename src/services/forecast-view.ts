@@ -1,5 +1,8 @@
 import type { LeadGrowthUsed } from '../core/stochastic/archive-choice.ts';
 import { formatDurationSeconds } from '../core/iso-duration.ts';
+import type { RatingSegment } from '../core/rating/rating-curve.ts';
+import { stageAtFlow } from '../core/rating/stage-at-flow.ts';
+import { roundLevel } from '../core/rating/threshold-units.ts';
 import { COARSE_TRAJECTORIES, monteCarloStandardError } from '../core/stochastic/stochastic-stage.ts';
 import { CAUTION } from './caution.ts';
 import { isoUtc } from './series-input.ts';
@@ -34,7 +37,13 @@ export interface ForecastView {
   attentionLevel: number;
   leadTimes: string[];
   validTimes: string[];
-  quantiles: { probabilities: number[]; values: number[][] };
+  /**
+   * `levels`: the same quantiles as water levels (m) through the rating curve in force at issue time
+   * (`ratingCurve`), null where a flow lies outside the curve; absent without a curve.
+   */
+  quantiles: { probabilities: number[]; values: number[][]; levels?: (number | null)[][] };
+  /** The rating curve version the levels came from (absent without one); beforeFirst: issued before its valid-from. */
+  ratingCurve?: { validFrom: string; beforeFirst: boolean; stageUnit: 'm' };
   /**
    * Per threshold: P(flow > value) per lead and at any time in the horizon, each with its
    * Monte-Carlo standard error √(p(1 − p)/trajectories) (binomial; an upper bound with several members,
@@ -42,7 +51,13 @@ export interface ForecastView {
    */
   thresholds: {
     label: string;
+    /** The flow compared with, m3/s (`flow` is the same number). */
     value: number;
+    flow?: number;
+    /** Water level, m, where the gauge has a rating curve (null outside it or without one). */
+    level?: number | null;
+    /** The unit the threshold was set in. */
+    given?: 'flow' | 'level';
     exceedance: number[];
     exceedanceStandardError?: number[];
     anyTime: number;
@@ -84,7 +99,9 @@ const round = (x: number, digits = 4) => {
 
 export interface ViewInput {
   id: string;
-  gauge: { id: string; name: string; timeStep: string; stepSeconds: number; thresholds: { label: string; value: number }[] };
+  gauge: { id: string; name: string; timeStep: string; stepSeconds: number; thresholds: { label: string; value: number; level?: number | null; given?: 'flow' | 'level' }[] };
+  /** The rating curve in force at issue time, for levels beside flows. */
+  ratingCurve?: { validFrom: string; beforeFirst: boolean; segments: readonly RatingSegment[] } | null;
   issueTimeMs: number;
   createdAt: string;
   source: string;
@@ -138,7 +155,9 @@ export function buildForecastView(v: ViewInput): ForecastView {
     quantiles: {
       probabilities: v.probs,
       values: v.probs.map((_, q) => Array.from({ length: H }, (_, k) => round(v.quantiles[k * v.probs.length + q]))),
+      ...(v.ratingCurve ? { levels: quantileLevels(v, v.ratingCurve.segments) } : {}),
     },
+    ...(v.ratingCurve ? { ratingCurve: { validFrom: v.ratingCurve.validFrom, beforeFirst: v.ratingCurve.beforeFirst, stageUnit: 'm' as const } } : {}),
     thresholds: v.gauge.thresholds.map((t, j) => {
       const anyTime = round(v.anyTime[j]);
       const first = v.firstLikelyLead[j];
@@ -146,6 +165,9 @@ export function buildForecastView(v: ViewInput): ForecastView {
       return {
         label: t.label,
         value: t.value,
+        flow: t.value,
+        level: t.level ?? null,
+        given: t.given ?? 'flow',
         exceedance,
         exceedanceStandardError: exceedance.map((p) => round(monteCarloStandardError(p, v.nDraws))),
         anyTime,
@@ -159,6 +181,16 @@ export function buildForecastView(v: ViewInput): ForecastView {
     recent: v.recent,
     timings: v.timings,
   };
+}
+
+/** Each quantile as a water level through the curve; null outside its flow range (no extrapolation). */
+function quantileLevels(v: ViewInput, segments: readonly RatingSegment[]): (number | null)[][] {
+  return v.probs.map((_, q) =>
+    Array.from({ length: v.nLeads }, (_, k) => {
+      const level = stageAtFlow(segments, v.quantiles[k * v.probs.length + q]);
+      return Number.isNaN(level) ? null : roundLevel(level);
+    }),
+  );
 }
 
 function coarseNote(n: number): string {
@@ -178,15 +210,20 @@ export function forecastText(f: ForecastView): string {
   const lo = quantileRow(f, 0.05);
   const hi = quantileRow(f, 0.95);
   const num = (x: number | undefined) => (x === undefined ? '–' : x >= 100 ? x.toFixed(0) : x >= 10 ? x.toFixed(1) : x.toFixed(2));
-  const header = ['lead', 'valid time (UTC)', 'median', '5–95 % range', ...f.thresholds.map((t) => `P>${t.label} (${t.value})`)];
+  // With a rating curve, the median also as a water level and each threshold in both units.
+  const levels = f.quantiles.levels;
+  const medianLevel = levels ? levels[f.quantiles.probabilities.findIndex((x) => Math.abs(x - 0.5) < 1e-9)] : undefined;
+  const withLevel = medianLevel !== undefined;
+  const header = ['lead', 'valid time (UTC)', 'median', ...(withLevel ? ['median level (m)'] : []), '5–95 % range', ...f.thresholds.map((t) => `P>${t.label} (${t.level === undefined || t.level === null ? t.value : thresholdUnits(t)})`)];
   const rows = f.leadTimes.map((lead, k) => [
     lead,
     f.validTimes[k].replace('T', ' ').replace(/:00Z$/, 'Z'),
     num(median?.[k]),
+    ...(withLevel ? [medianLevel[k] === null ? 'off curve' : medianLevel[k]!.toFixed(2)] : []),
     `${num(lo?.[k])} – ${num(hi?.[k])}`,
     ...f.thresholds.map((t) => pct(t.exceedance[k])),
   ]);
-  rows.push(['any time', 'in the horizon', '', '', ...f.thresholds.map((t) => `${pct(t.anyTime)}${t.attention ? ' !' : ''}`)]);
+  rows.push(['any time', 'in the horizon', '', ...(withLevel ? [''] : []), '', ...f.thresholds.map((t) => `${pct(t.anyTime)}${t.attention ? ' !' : ''}`)]);
   const widths = header.map((h, i) => Math.max(h.length, ...rows.map((r) => r[i].length)));
   const line = (cells: string[]) => cells.map((c, i) => (i < 2 ? c.padEnd(widths[i]) : c.padStart(widths[i]))).join('  ').trimEnd();
   const status = f.status === 'degraded' ? `DEGRADED: ${f.degradedReason}` : `corrected with model version ${f.modelVersion?.id} (${f.modelVersion?.label})`;
@@ -210,13 +247,18 @@ export function forecastText(f: ForecastView): string {
   ].join('\n');
 }
 
+/** A threshold's flow, and its water level where the gauge has a rating curve: `85.3 m3/s = 2.4 m`. */
+function thresholdUnits(t: ForecastView['thresholds'][number]): string {
+  return t.level === undefined || t.level === null ? `${t.value} m3/s` : `${t.value} m3/s = ${t.level} m`;
+}
+
 /** CSV, one row per lead time: quantiles then exceedance probability per threshold. */
 export function forecastCsv(f: ForecastView): string {
   const header = [
     'lead_time',
     'valid_time',
     ...f.quantiles.probabilities.map((p) => `q${String(Math.round(p * 1000) / 10).replace('.', '_')} (m3/s)`),
-    ...f.thresholds.map((t) => `p_exceed ${t.label} (${t.value} m3/s)`),
+    ...f.thresholds.map((t) => `p_exceed ${t.label} (${thresholdUnits(t)})`),
   ];
   const lines = [`# ${f.caution}`, `# gauge ${f.gaugeId}, issued ${f.issueTime}, status ${f.status}, seed ${f.seed}`, header.map((h) => (h.includes(',') ? `"${h}"` : h)).join(',')];
   f.leadTimes.forEach((lead, k) => {

@@ -43,7 +43,7 @@ export interface LimitsInForce {
 }
 
 export function limitsInForce(g: Gauge): LimitsInForce {
-  const basis = Math.max(g.archiveMaxFlow ?? 0, ...g.thresholds.map((t) => t.value));
+  const basis = Math.max(g.archiveMaxFlow ?? 0, ...g.thresholds.map((t) => t.value).filter(Number.isFinite));
   const maxFlow =
     g.maxFlow !== null
       ? { value: g.maxFlow, source: 'gauge' as const }

@@ -1,5 +1,9 @@
+import { curveAt } from '../core/rating/curve-at.ts';
+import { stageRange } from '../core/rating/rating-curve.ts';
+import { thresholdsInBothUnits, type GivenThreshold, type ThresholdInBothUnits } from '../core/rating/threshold-units.ts';
 import type { Queryable } from './db.ts';
 import { Thresholds } from './json-columns.ts';
+import { listAllRatingCurves, listRatingCurves, type RatingCurveVersion } from './rating-repo.ts';
 
 export interface Gauge {
   id: string;
@@ -10,7 +14,13 @@ export interface Gauge {
   timeZone: string;
   flowUnit: string;
   location: { latitude: number; longitude: number; elevationM?: number } | null;
-  thresholds: { label: string; value: number }[];
+  /**
+   * Flood thresholds in flow and, where the gauge has a rating curve, in water level, through the
+   * curve version in force now (a run converts with the version in force at its issue time).
+   */
+  thresholds: ThresholdInBothUnits[];
+  /** The rating curve version in force now, or null without one. */
+  ratingCurve: { validFrom: string; stageRange: { from: number; to: number }; versions: number } | null;
   /** Issue-time updating uses the latest observation at most this many steps before issue time. */
   updatingMaxAgeSteps: number;
   /** Flow cap in m³/s set on the gauge; null = derived from the archive (src/services/plausible-values.ts). */
@@ -36,7 +46,7 @@ interface GaugeRow {
   latitude: number | null;
   longitude: number | null;
   elevation_m: number | null;
-  thresholds: { label: string; value: number }[] | string;
+  thresholds: unknown;
   updating_max_age_steps: number;
   max_flow: number | null;
   max_precipitation: number | null;
@@ -47,7 +57,8 @@ interface GaugeRow {
   updated_at: Date;
 }
 
-function fromRow(r: GaugeRow): Gauge {
+function fromRow(r: GaugeRow, curves: RatingCurveVersion[]): Gauge {
+  const inForce = curveAt(curves, Date.now());
   return {
     id: r.id,
     name: r.name,
@@ -60,7 +71,10 @@ function fromRow(r: GaugeRow): Gauge {
       r.latitude === null || r.longitude === null
         ? null
         : { latitude: r.latitude, longitude: r.longitude, ...(r.elevation_m === null ? {} : { elevationM: r.elevation_m }) },
-    thresholds: Thresholds.parse(r.thresholds),
+    thresholds: thresholdsInBothUnits(Thresholds.parse(r.thresholds), inForce?.version.segments ?? null),
+    ratingCurve: inForce
+      ? { validFrom: new Date(inForce.version.validFromMs).toISOString().replace('.000Z', 'Z'), stageRange: stageRange(inForce.version.segments), versions: curves.length }
+      : null,
     updatingMaxAgeSteps: r.updating_max_age_steps ?? 2,
     maxFlow: r.max_flow ?? null,
     maxPrecipitation: r.max_precipitation ?? null,
@@ -71,12 +85,19 @@ function fromRow(r: GaugeRow): Gauge {
   };
 }
 
-export type GaugeInput = Omit<Gauge, 'createdAt' | 'updatedAt' | 'updatingMaxAgeSteps' | 'maxFlow' | 'maxPrecipitation' | 'airTemperatureRange' | 'archiveMaxFlow'> & {
+export type GaugeInput = Omit<Gauge, 'createdAt' | 'updatedAt' | 'updatingMaxAgeSteps' | 'thresholds' | 'ratingCurve' | 'maxFlow' | 'maxPrecipitation' | 'airTemperatureRange' | 'archiveMaxFlow'> & {
   updatingMaxAgeSteps?: number;
+  thresholds: (GivenThreshold | ThresholdInBothUnits)[];
   maxFlow?: number | null;
   maxPrecipitation?: number | null;
   airTemperatureRange?: { min: number; max: number } | null;
 };
+
+/** What is stored of a threshold: the unit it was given in, never the converted number. */
+function asGiven(t: GivenThreshold | ThresholdInBothUnits): GivenThreshold {
+  if ('given' in t) return t.given === 'level' ? { label: t.label, level: t.level! } : { label: t.label, value: t.flow };
+  return t.level !== undefined ? { label: t.label, level: t.level } : { label: t.label, value: t.value! };
+}
 
 export async function insertGauge(db: Queryable, g: GaugeInput): Promise<Gauge> {
   const { rows } = await db.query<GaugeRow>(
@@ -86,7 +107,7 @@ export async function insertGauge(db: Queryable, g: GaugeInput): Promise<Gauge> 
      values ($1,$2,$3,$4,$5,$6,$7,$8,$9,$10,$11::jsonb,$12,$13,$14,$15,$16) returning *`,
     params(g),
   );
-  return fromRow(rows[0]);
+  return fromRow(rows[0], await listRatingCurves(db, g.id));
 }
 
 export async function updateGauge(db: Queryable, g: GaugeInput): Promise<Gauge> {
@@ -97,7 +118,7 @@ export async function updateGauge(db: Queryable, g: GaugeInput): Promise<Gauge> 
      where id=$1 returning *`,
     params(g),
   );
-  return fromRow(rows[0]);
+  return fromRow(rows[0], await listRatingCurves(db, g.id));
 }
 
 function params(g: GaugeInput): unknown[] {
@@ -112,7 +133,7 @@ function params(g: GaugeInput): unknown[] {
     g.location?.latitude ?? null,
     g.location?.longitude ?? null,
     g.location?.elevationM ?? null,
-    JSON.stringify(g.thresholds),
+    JSON.stringify(g.thresholds.map(asGiven)),
     g.updatingMaxAgeSteps ?? 2,
     g.maxFlow ?? null,
     g.maxPrecipitation ?? null,
@@ -123,11 +144,12 @@ function params(g: GaugeInput): unknown[] {
 
 export async function getGauge(db: Queryable, id: string, forUpdate = false): Promise<Gauge | null> {
   const { rows } = await db.query<GaugeRow>(`select * from gauges where id = $1${forUpdate ? ' for update' : ''}`, [id]);
-  return rows[0] ? fromRow(rows[0]) : null;
+  return rows[0] ? fromRow(rows[0], await listRatingCurves(db, id)) : null;
 }
 
 export async function listGauges(db: Queryable): Promise<Gauge[]> {
-  return (await db.query<GaugeRow>('select * from gauges order by id')).rows.map(fromRow);
+  const curves = await listAllRatingCurves(db);
+  return (await db.query<GaugeRow>('select * from gauges order by id')).rows.map((r) => fromRow(r, curves.get(r.id) ?? []));
 }
 
 /** How much archive a gauge holds, per kind; step changes look at it. */

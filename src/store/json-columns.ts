@@ -32,8 +32,17 @@ export const ArchiveSummary = z.looseObject({
   transform: z.unknown().optional(),
 });
 
-/** gauges.thresholds (the embedded store may hand JSON text back). */
-export const Thresholds = z.preprocess((v) => (typeof v === 'string' ? JSON.parse(v) : v), z.array(z.object({ label: z.string(), value: z.number() })));
+/** gauges.thresholds (the embedded store may hand JSON text back): each a flow `value` (m3/s) or a water `level` (m). */
+export const Thresholds = z.preprocess(
+  (v) => (typeof v === 'string' ? JSON.parse(v) : v),
+  z.array(z.union([z.object({ label: z.string(), value: z.number() }), z.object({ label: z.string(), level: z.number() })])),
+);
+
+/** rating_curves.segments. */
+export const RatingSegmentsColumn = z.preprocess(
+  (v) => (typeof v === 'string' ? JSON.parse(v) : v),
+  z.array(z.object({ fromStage: z.number(), toStage: z.number(), a: z.number(), b: z.number(), h0: z.number() })),
+);
 
 /** gauge_status.reasons. */
 export const Reasons = z.array(z.string());
