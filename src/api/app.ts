@@ -78,6 +78,10 @@ export async function buildApp(options: AppOptions): Promise<FastifyInstance> {
   for (const type of ['text/csv', 'text/plain']) {
     app.addContentTypeParser(type, { parseAs: 'string' }, (_req, body, done) => done(null, body));
   }
+  // NetCDF run bodies (classic or NetCDF-4) arrive as bytes; src/api/run-forms.ts reads them.
+  for (const type of ['application/x-netcdf', 'application/netcdf']) {
+    app.addContentTypeParser(type, { parseAs: 'buffer' }, (_req, body, done) => done(null, body));
+  }
 
   const warnings = new ThrottledWarnings(app.log);
   app.setErrorHandler((error, request, reply) => {
@@ -135,7 +139,7 @@ function toProblem(error: unknown): Problem {
     case 'FST_ERR_CTP_BODY_TOO_LARGE':
       return new Problem(413, 'payload-too-large', 'Payload too large', `${e.message}; split the batch into smaller ones`);
     case 'FST_ERR_CTP_INVALID_MEDIA_TYPE':
-      return new Problem(415, 'unsupported-media-type', 'Unsupported media type', `${e.message}; send application/json or text/csv`);
+      return new Problem(415, 'unsupported-media-type', 'Unsupported media type', `${e.message}; send application/json or text/csv (runs also application/x-netcdf)`);
     case 'FST_ERR_CTP_EMPTY_JSON_BODY':
       return new Problem(400, 'bad-request', 'Bad request', 'the JSON body is empty', [{ path: 'body', message: 'empty' }]);
   }

@@ -1,4 +1,4 @@
-import type { FastifyReply, FastifyRequest } from 'fastify';
+import type { FastifyRequest } from 'fastify';
 import { z } from 'zod';
 import type { Queryable } from '../store/db.ts';
 import { getGauge, type Gauge } from '../store/gauges-repo.ts';
@@ -40,9 +40,4 @@ export function readWindow(q: { from?: string; to?: string; format?: 'json' | 'c
     toMs: q.to ? rfc3339Ms(q.to) : undefined,
   };
   return { window, format: q.format };
-}
-
-export function sendCsv(reply: FastifyReply, filename: string, lines: string[]): string {
-  reply.type('text/csv; charset=utf-8').header('content-disposition', `inline; filename="${filename}"`);
-  return lines.join('\n') + '\n';
 }

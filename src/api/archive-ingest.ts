@@ -11,7 +11,7 @@ import type { Queryable } from '../store/db.ts';
 import type { Gauge } from '../store/gauges-repo.ts';
 import { bodyFormat, GaugeParams, requireGauge } from './archive-common.ts';
 import { addRoute, type Services } from './context.ts';
-import { parseCsv, splitHeader } from './csv.ts';
+import { parseCsv, splitHeader, type CsvTable } from './csv.ts';
 import { parseWith } from './validate.ts';
 
 /** A time axis with named columns of values on it, and where each part was in the request. */
@@ -58,19 +58,37 @@ export function timeColumnsFromCsv(text: string, errors: ErrorList, options: { n
   if (!valueCols.length) errors.add('line 1', options.noColumns);
   const columns = valueCols.map((cell, k) => {
     const { name, unit } = splitHeader(cell);
-    const text = options.textColumns?.includes(name) ?? false;
     if (valueCols.findIndex((c) => splitHeader(c).name === name) !== k) errors.add(`line 1, column ${name}`, options.duplicate(name));
-    return { name, unit, values: table.rows.map((r) => (text ? r.cells[k + 1].trim() || null : csvNumber(r.cells[k + 1]))) };
+    return { name, unit, values: new Array<unknown>(table.rows.length) };
   });
+  const { times } = fillColumns(table, columns, options.textColumns ?? []);
   if (!table.rows.length) errors.add('line 2', 'no data rows');
   return {
     headers: valueCols,
-    times: table.rows.map((r) => r.cells[0].trim()),
+    times,
     columns,
     timeWhere: (i) => `line ${table.rows[i].line}, column time`,
     valueWhere: (k, i) => `line ${table.rows[i].line}, column ${columns[k].name}`,
     columnWhere: (k) => `line 1, column ${columns[k].name}`,
   };
+}
+
+/**
+ * Fills the value columns row by row (one pass over the table, cells read where they lie) and
+ * answers the time column. Cells are numbers by csvNumber, or trimmed text (empty = null) in a
+ * text column.
+ */
+function fillColumns(table: CsvTable, columns: { name: string; values: unknown[] }[], textNames: string[]): { times: string[]; textColumns: boolean[] } {
+  const rows = table.rows;
+  const times = new Array<string>(rows.length);
+  const textColumns = columns.map((c) => textNames.includes(c.name));
+  const nc = columns.length;
+  for (let i = 0; i < rows.length; i++) {
+    const cells = rows[i].cells;
+    times[i] = cells[0].trim();
+    for (let k = 0; k < nc; k++) columns[k].values[i] = textColumns[k] ? cells[k + 1].trim() || null : csvNumber(cells[k + 1]);
+  }
+  return { times, textColumns };
 }
 
 export interface IngestResult {

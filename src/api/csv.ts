@@ -69,9 +69,5 @@ export function splitHeader(cell: string): { name: string; unit: string | null }
   return m ? { name: m[1].trim(), unit: m[2].trim() } : { name: cell.trim(), unit: null };
 }
 
-/** Quotes a cell only when it must be. */
-export function csvCell(value: string | number | null): string {
-  if (value === null) return '';
-  const s = String(value);
-  return /[",\n\r]/.test(s) ? `"${s.replace(/"/g, '""')}"` : s;
-}
+/** Quotes a cell only when it must be (one definition, shared with the services' CSV writers). */
+export { csvCell } from '../services/forecast-view.ts';

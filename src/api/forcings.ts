@@ -1,12 +1,13 @@
 import type { FastifyInstance } from 'fastify';
 import { z } from 'zod';
-import { ensureForcingVariable, forcingUnits, readForcings, upsertForcing } from '../store/archive-repo.ts';
-import { GaugeParams, readWindow, requireGauge, sendCsv, wantsCsv } from './archive-common.ts';
+import { ensureForcingVariable, forcingUnits, upsertForcings } from '../store/archive-repo.ts';
+import { forcingsStream, sendStream } from './archive-stream.ts';
+import { GaugeParams, readWindow, requireGauge, wantsCsv } from './archive-common.ts';
 import { addIngestRoute, timeColumnsFromCsv, timeColumnsFromJson, type TimeColumns } from './archive-ingest.ts';
 import { addRoute, type Services } from './context.ts';
 import { TimeWindowQuery } from './schemas.ts';
 import { forcingLimit } from '../services/plausible-values.ts';
-import { checkTimes, checkValues, isoUtc, knownForcingUnits } from '../services/series-input.ts';
+import { checkTimes, checkValues, knownForcingUnits } from '../services/series-input.ts';
 
 const VariableName = z.string().regex(/^[a-z][a-z0-9_]{0,47}$/, 'must be lowercase letters, digits and underscores, e.g. precipitation');
 
@@ -56,11 +57,8 @@ export async function forcingRoutes(app: FastifyInstance, { services }: { servic
       return { times, columns };
     },
     store: async (tx, gauge, { times, columns }) => {
-      let written = 0;
-      for (const c of columns) {
-        await ensureForcingVariable(tx, gauge.id, c.name, c.unit);
-        written += await upsertForcing(tx, gauge.id, c.name, times, c.values);
-      }
+      for (const c of columns) await ensureForcingVariable(tx, gauge.id, c.name, c.unit);
+      const written = await upsertForcings(tx, gauge.id, times, columns);
       return { received: times.length * columns.length, written };
     },
   });
@@ -76,22 +74,8 @@ export async function forcingRoutes(app: FastifyInstance, { services }: { servic
       const { window } = readWindow({ from: q.from, to: q.to });
       const units = await forcingUnits(db, gauge.id);
       const names = q.variables ? q.variables.split(',').map((s) => s.trim()) : [...units.keys()].sort();
-      const rows = await readForcings(db, gauge.id, window, names);
-      // Pivot to one time axis: the union of every variable's times.
-      const timeSet = [...new Set(rows.map((r) => r.t))].sort((a, b) => a - b);
-      const index = new Map(timeSet.map((t, i) => [t, i]));
-      const columns = names
-        .filter((n) => units.has(n))
-        .map((name) => ({ name, unit: units.get(name)!, values: new Array<number | null>(timeSet.length).fill(null) }));
-      const byName = new Map(columns.map((c) => [c.name, c]));
-      for (const r of rows) byName.get(r.variable)!.values[index.get(r.t)!] = r.value;
-      if (wantsCsv(req, q.format)) {
-        return sendCsv(reply, `${gauge.id}-forcings.csv`, [
-          ['time', ...columns.map((c) => `${c.name} (${c.unit})`)].join(','),
-          ...timeSet.map((t, i) => [isoUtc(t), ...columns.map((c) => c.values[i] ?? '')].join(',')),
-        ]);
-      }
-      return { gaugeId: gauge.id, times: timeSet.map(isoUtc), variables: columns };
+      const csv = wantsCsv(req, q.format);
+      return sendStream(reply, forcingsStream(db, gauge.id, window, names, units, csv), csv ? `${gauge.id}-forcings.csv` : undefined);
     },
   );
 }

@@ -1,11 +1,11 @@
 import type { FastifyInstance, FastifyReply, FastifyRequest } from 'fastify';
 import { z } from 'zod';
-import { getRun, latestRunTag, listRuns } from '../store/forecasts-repo.ts';
+import { getRun, getRunWithPercentiles, latestRunTag, listRuns } from '../store/forecasts-repo.ts';
 import { GaugeParams, requireGauge } from './archive-common.ts';
 import { addRoute, type Services } from './context.ts';
-import { forecastCsv, forecastText, type ForecastView } from '../services/forecast-view.ts';
-import { chooseFormat, FormatOnly, type Format } from './formats.ts';
-import { notFound } from '../services/problem.ts';
+import { forecastCsv, forecastText, quantileSetCsv, storedQuantileSet, type ForecastView } from '../services/forecast-view.ts';
+import { chooseFormat, FormatOnly, sendCaution, type Format } from './formats.ts';
+import { invalid, notFound } from '../services/problem.ts';
 import { Rfc3339 } from './schemas.ts';
 import { rfc3339Ms } from '../core/rfc3339.ts';
 
@@ -15,6 +15,7 @@ const FormatQuery = z.strictObject({ format: FormatOnly });
 function sendRun(req: FastifyRequest, reply: FastifyReply, run: { etag: string; output: string }, format: Format, cacheControl: string) {
   const etag = format === 'json' ? run.etag : `${run.etag.slice(0, -1)}-${format}"`;
   reply.header('etag', etag).header('cache-control', cacheControl).header('vary', 'accept');
+  sendCaution(reply);
   const match = req.headers['if-none-match'];
   if (match && match.split(',').some((t) => t.trim() === etag || t.trim() === '*')) {
     reply.code(304);
@@ -75,6 +76,50 @@ export async function forecastRoutes(app: FastifyInstance, { services }: { servi
       const run = await getRun(db, runId);
       if (!run) throw notFound(`no run ${runId}`);
       return sendRun(req, reply, run, chooseFormat(req, format), 'private, max-age=86400, immutable');
+    },
+  );
+
+  const LevelsQuery = z.strictObject({
+    /** `all` (the default): every stored level; or a comma-separated list of stored levels. */
+    levels: z
+      .string()
+      .regex(/^(all|0?\.\d+(,\s*0?\.\d+)*)$/, 'all, or probability levels such as 0.005,0.5,0.995')
+      .default('all'),
+    format: z.enum(['json', 'csv']).optional(),
+  });
+  addRoute(
+    app,
+    services,
+    {
+      method: 'GET',
+      url: '/forecasts/:runId/quantiles',
+      summary: "A stored run's full quantile set: the levels it was asked for and the 100 midpoint levels (i − 0.5)/100 stored for verification (JSON or CSV); levels=all or a list",
+      tag: 'forecasts',
+      role: 'read',
+      params: RunParams,
+      query: LevelsQuery,
+      responseTypes: ['application/json', 'text/csv'],
+    },
+    async (req, reply) => {
+      const { runId } = req.params;
+      const run = await getRunWithPercentiles(db, runId);
+      if (!run) throw notFound(`no run ${runId}`);
+      const view = JSON.parse(run.output) as ForecastView;
+      let set = storedQuantileSet(view, run.percentiles);
+      if (req.query.levels !== 'all') {
+        const asked = req.query.levels.split(',').map((x) => Number(x.trim()));
+        const rows = asked.map((p) => set.probabilities.findIndex((x) => Math.abs(x - p) < 1e-9));
+        const missing = asked.filter((_, i) => rows[i] < 0);
+        if (missing.length) throw invalid([{ path: 'query.levels', message: `not stored with this run: ${missing.join(', ')}; stored are ${set.probabilities.length} levels (levels=all lists them)` }]);
+        set = { probabilities: rows.map((i) => set.probabilities[i]), values: rows.map((i) => set.values[i]) };
+      }
+      sendCaution(reply);
+      reply.header('cache-control', 'private, max-age=86400, immutable').header('vary', 'accept');
+      if (chooseFormat(req, req.query.format) === 'csv') {
+        reply.type('text/csv; charset=utf-8');
+        return quantileSetCsv(view, set);
+      }
+      return { runId, gaugeId: view.gaugeId, issueTime: view.issueTime, unit: view.unit, caution: view.caution, leadTimes: view.leadTimes, validTimes: view.validTimes, quantiles: set };
     },
   );
 

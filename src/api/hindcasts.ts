@@ -1,16 +1,17 @@
 import type { FastifyInstance } from 'fastify';
 import { z } from 'zod';
 import type { ComparisonReport, SizeStudyResult, StochasticAdvice, WarningReport } from '../core/verification/index.ts';
-import { requestHindcast } from '../services/hindcast.ts';
+import { hindcastIssues, requestHindcast, type HindcastIssue, type PerIssueInfo } from '../services/hindcast.ts';
+import { csvCell } from './csv.ts';
 import { HindcastJobParams } from '../services/hindcast-params.ts';
 import { getJob, listJobs, type Job } from '../store/jobs-repo.ts';
 import { GaugeParams, requireGauge } from './archive-common.ts';
 import { addRoute, type Services } from './context.ts';
 import { conflict, notFound } from '../services/problem.ts';
 import { Rfc3339 } from './schemas.ts';
-import { chooseFormat, FormatOnly } from './formats.ts';
+import { chooseFormat, FormatOnly, sendCaution } from './formats.ts';
 import { CAUTION } from '../services/caution.ts';
-import { scoresCsv, scoresText, sendReport, sizeStudyText, warningsText } from './report-formats.ts';
+import { scoresCsv, scoresText, sendReport, sizeStudyText, warningsText, type ReportNote } from './report-formats.ts';
 import { warningRows } from './warning-tables.ts';
 import { rfc3339Ms } from '../core/rfc3339.ts';
 
@@ -56,6 +57,9 @@ const HindcastBody = z
 
 const HindcastParams = z.object({ id: GaugeParams.shape.id, jobId: z.string().regex(/^\d{1,18}$/, 'must be a job id') });
 const HindcastQuery = z.strictObject({ format: FormatOnly });
+const IssuesQuery = z
+  .strictObject({ format: z.enum(['json', 'csv']).optional(), from: Rfc3339.optional(), to: Rfc3339.optional() })
+  .refine((q) => !(q.from && q.to) || rfc3339Ms(q.from) < rfc3339Ms(q.to), { message: 'from must be before to', path: ['to'] });
 
 /** What a finished hindcast job stores as its result (see src/services/hindcast.ts). */
 interface HindcastResult {
@@ -75,6 +79,33 @@ interface HindcastResult {
   /** Absent on hindcasts stored before warnings were scored. */
   warningScores?: WarningReport | null;
   caution?: string;
+  thresholds: { label: string; value: number }[];
+  /** Absent on hindcasts stored before each issue's output was kept. */
+  perIssue?: PerIssueInfo;
+}
+
+/** The per-issue download as CSV: one row per issue and lead time, the caution in every row. */
+function issuesCsv(r: HindcastResult, perIssue: PerIssueInfo, issues: HindcastIssue[]): string {
+  const q = (p: number) => `q${String(Math.round(p * 1000) / 10).replace('.', '_')} (m3/s)`;
+  const header = [
+    'issue_time',
+    'lead_time',
+    'valid_time',
+    'observed (m3/s)',
+    'raw_mean (m3/s)',
+    'corrected_mean (m3/s)',
+    ...perIssue.probabilities.map(q),
+    ...r.thresholds.map((t) => `p_exceed ${t.label} (${t.value} m3/s)`),
+    ...r.thresholds.map((t) => `p_exceed_any_time ${t.label} (${t.value} m3/s)`),
+    'caution',
+  ];
+  const lines = [header.map(csvCell).join(',')];
+  for (const issue of issues) {
+    for (const l of issue.leads) {
+      lines.push([issue.issueTime, l.leadTime, l.validTime, l.observed, l.rawMean, l.correctedMean, ...l.quantiles, ...l.exceedance, ...issue.anyTime, CAUTION].map(csvCell).join(','));
+    }
+  }
+  return `${lines.join('\n')}\n`;
 }
 
 const href = (gaugeId: string, jobId: string) => `/gauges/${gaugeId}/hindcasts/${jobId}`;
@@ -155,6 +186,7 @@ export async function hindcastRoutes(app: FastifyInstance, { services }: { servi
       if (!job || job.kind !== 'hindcast' || job.gaugeId !== id) throw notFound(`gauge ${id} has no hindcast ${jobId}`);
       const chosen = chooseFormat(req, format);
       const body = { ...summary(job), params: job.params, startedAt: job.startedAt, result: job.result };
+      sendCaution(reply);
       if (chosen === 'json') return body;
       if (job.status !== 'succeeded' || !job.result) throw conflict(`hindcast ${jobId} is ${job.status}${job.status === 'running' ? ` (${job.stage}, ${Math.round(job.percent)} %)` : ''}; its scores are available as JSON status until it succeeds`);
       const r = job.result as HindcastResult;
@@ -167,9 +199,50 @@ export async function hindcastRoutes(app: FastifyInstance, { services }: { servi
         chosen,
         `${r.gaugeId}-hindcast-${jobId}`,
         body,
-        () => scoresCsv(r.comparison, [...header, `advice: ${r.advice.recommendation}`, ...r.warnings, CAUTION], r.warningScores ? warningRows(r.warningScores) : []),
+        () => scoresCsv(r.comparison, [...header.map((h): ReportNote => ['about', h]), ['advice', r.advice.recommendation], ...r.warnings.map((w): ReportNote => ['warning', w]), ['caution', CAUTION]], r.warningScores ? warningRows(r.warningScores) : []),
         () => `${scoresText(header, r.comparison, r.advice, r.warnings)}${sizeStudyText(r.sizeStudy).join('\n')}\n\n${warningsText(r.warningScores ?? null)}\n\n${CAUTION}\n`,
       );
+    },
+  );
+
+  addRoute(
+    app,
+    services,
+    {
+      method: 'GET',
+      url: '/gauges/:id/hindcasts/:jobId/issues',
+      summary: "A finished hindcast's output issue by issue (JSON, or CSV with one row per issue and lead time): observed flow, raw and corrected ensemble means, the stochastic stage's quantiles and exceedance probabilities; from/to choose issue times",
+      tag: 'verification',
+      role: 'read',
+      params: HindcastParams,
+      query: IssuesQuery,
+      responseTypes: ['application/json', 'text/csv'],
+    },
+    async (req, reply) => {
+      const { id, jobId } = req.params;
+      const gauge = await requireGauge(db, { id });
+      const job = await getJob(db, jobId);
+      if (!job || job.kind !== 'hindcast' || job.gaugeId !== id) throw notFound(`gauge ${id} has no hindcast ${jobId}`);
+      if (job.status !== 'succeeded' || !job.result) throw conflict(`hindcast ${jobId} is ${job.status}; its issues can be read once it has succeeded`);
+      const r = job.result as HindcastResult;
+      if (!r.perIssue) throw notFound(`hindcast ${jobId} was stored before each issue's output was kept; run it again to read it issue by issue`);
+      const q = req.query;
+      const issues = await hindcastIssues(db, jobId, { horizon: r.horizon, perIssue: r.perIssue, thresholds: r.thresholds }, gauge.stepSeconds, q.from ? rfc3339Ms(q.from) : undefined, q.to ? rfc3339Ms(q.to) : undefined);
+      sendCaution(reply);
+      reply.header('vary', 'accept');
+      if (chooseFormat(req, q.format) === 'csv') {
+        reply.type('text/csv; charset=utf-8').header('content-disposition', `attachment; filename="${id}-hindcast-${jobId}-issues.csv"`);
+        return issuesCsv(r, r.perIssue, issues);
+      }
+      return {
+        gaugeId: id,
+        hindcast: jobId,
+        unit: 'm3/s',
+        caution: CAUTION,
+        probabilities: r.perIssue.probabilities,
+        thresholds: r.thresholds,
+        issues,
+      };
     },
   );
 }

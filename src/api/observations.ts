@@ -1,14 +1,14 @@
 import type { FastifyInstance } from 'fastify';
 import { z } from 'zod';
 import { scheduleGaugeStatusRefresh } from '../services/drift.ts';
-import { readObservations, upsertObservations } from '../store/archive-repo.ts';
-import { GaugeParams, readWindow, requireGauge, sendCsv, wantsCsv } from './archive-common.ts';
+import { upsertObservations } from '../store/archive-repo.ts';
+import { observationsStream, sendStream } from './archive-stream.ts';
+import { GaugeParams, readWindow, requireGauge, wantsCsv } from './archive-common.ts';
 import { addIngestRoute, timeColumnsFromCsv, timeColumnsFromJson, type TimeColumns } from './archive-ingest.ts';
 import { addRoute, type Services } from './context.ts';
-import { csvCell } from './csv.ts';
 import { TimeWindowQuery } from './schemas.ts';
 import { flowLimit } from '../services/plausible-values.ts';
-import { checkFlowUnit, checkTimes, checkValues, isoUtc } from '../services/series-input.ts';
+import { checkFlowUnit, checkTimes, checkValues } from '../services/series-input.ts';
 import { raiseArchiveMaxFlow } from '../store/gauges-repo.ts';
 
 const ObservationsBody = z.strictObject({
@@ -65,20 +65,8 @@ export async function observationRoutes(app: FastifyInstance, { services }: { se
     async (req, reply) => {
       const gauge = await requireGauge(db, req.params);
       const { window, format } = readWindow(req.query);
-      const rows = await readObservations(db, gauge.id, window);
-      if (wantsCsv(req, format)) {
-        return sendCsv(reply, `${gauge.id}-observations.csv`, [
-          'time,flow (m3/s),quality',
-          ...rows.map((r) => `${isoUtc(r.t)},${r.value ?? ''},${csvCell(r.quality)}`),
-        ]);
-      }
-      return {
-        gaugeId: gauge.id,
-        unit: 'm3/s',
-        times: rows.map((r) => isoUtc(r.t)),
-        values: rows.map((r) => r.value),
-        quality: rows.map((r) => r.quality),
-      };
+      const csv = wantsCsv(req, format);
+      return sendStream(reply, observationsStream(db, gauge.id, window, csv), csv ? `${gauge.id}-observations.csv` : undefined);
     },
   );
 }

@@ -72,7 +72,9 @@ export class ApiDocs {
           content: Object.fromEntries(
             (r.bodyTypes ?? ['application/json']).map((t) => [
               t,
-              t === 'application/json' ? { schema: toSchema(r.body!, 'input') } : { schema: { type: 'string' } },
+              t === 'application/json'
+                ? { schema: toSchema(r.body!, 'input') }
+                : { schema: t === 'application/x-netcdf' ? { type: 'string', contentMediaType: t, contentEncoding: 'binary' } : { type: 'string' } },
             ]),
           ),
         };

@@ -1,15 +1,16 @@
 import type { FastifyInstance } from 'fastify';
 import { z } from 'zod';
 import { formatDurationSeconds, parseDurationSeconds } from '../core/iso-duration.ts';
-import { forcingUnits, listMembers, readReforecasts, upsertReforecast, upsertReforecastForcing } from '../store/archive-repo.ts';
-import { GaugeParams, readWindow, requireGauge, sendCsv, wantsCsv } from './archive-common.ts';
+import { forcingUnits, listMembers, upsertReforecastForcings, upsertReforecasts } from '../store/archive-repo.ts';
+import { reforecastsStream, sendStream } from './archive-stream.ts';
+import { GaugeParams, readWindow, requireGauge, wantsCsv } from './archive-common.ts';
 import { addIngestRoute } from './archive-ingest.ts';
 import { addRoute, type Services } from './context.ts';
 import { parseCsv, splitHeader } from './csv.ts';
 import { ErrorList } from '../services/problem.ts';
 import { MemberId, TimeWindowQuery } from './schemas.ts';
 import { flowLimit, forcingLimit } from '../services/plausible-values.ts';
-import { checkFlowUnit, checkTimes, checkValues, csvNumber, isoUtc } from '../services/series-input.ts';
+import { checkFlowUnit, checkTimes, checkValues, csvNumber } from '../services/series-input.ts';
 
 const ReforecastsBody = z.strictObject({
   unit: z.string(),
@@ -130,18 +131,11 @@ export async function reforecastRoutes(app: FastifyInstance, { services }: { ser
       return { issueMs, members, forcings };
     },
     store: async (tx, gauge, { issueMs, members, forcings }) => {
-      let written = 0;
-      let received = 0;
-      for (let r = 0; r < issueMs.length; r++) {
-        for (const m of members[r]) {
-          received += m.values.length;
-          written += await upsertReforecast(tx, gauge.id, issueMs[r], m.id, m.values);
-        }
-        for (const f of forcings[r]) {
-          received += f.values.length;
-          written += await upsertReforecastForcing(tx, gauge.id, issueMs[r], f.name, f.values);
-        }
-      }
+      // All runs of the batch in one upsert per table.
+      const runMembers = members.flatMap((ms, r) => ms.map((m) => ({ issueMs: issueMs[r], memberId: m.id, values: m.values })));
+      const runForcings = forcings.flatMap((fs, r) => fs.map((f) => ({ issueMs: issueMs[r], variable: f.name, values: f.values })));
+      const received = [...runMembers, ...runForcings].reduce((n, s) => n + s.values.length, 0);
+      const written = (await upsertReforecasts(tx, gauge.id, runMembers)) + (await upsertReforecastForcings(tx, gauge.id, runForcings));
       return { received, written };
     },
   });
@@ -153,32 +147,8 @@ export async function reforecastRoutes(app: FastifyInstance, { services }: { ser
     async (req, reply) => {
       const gauge = await requireGauge(db, req.params);
       const { window, format } = readWindow(req.query);
-      const rows = await readReforecasts(db, gauge.id, window);
-      if (wantsCsv(req, format)) {
-        return sendCsv(reply, `${gauge.id}-reforecasts.csv`, [
-          'issue_time,member,lead_time,flow (m3/s)',
-          ...rows.map((r) => `${isoUtc(r.t)},${r.member_id},${formatDurationSeconds(r.lead * gauge.stepSeconds)},${r.value ?? ''}`),
-        ]);
-      }
-      const runs: { issueTime: string; members: { id: string; values: (number | null)[] }[] }[] = [];
-      let lastT = NaN;
-      let lastMember = '';
-      for (const r of rows) {
-        if (r.t !== lastT) {
-          runs.push({ issueTime: isoUtc(r.t), members: [] });
-          lastT = r.t;
-          lastMember = '';
-        }
-        const run = runs[runs.length - 1];
-        if (r.member_id !== lastMember) {
-          run.members.push({ id: r.member_id, values: [] });
-          lastMember = r.member_id;
-        }
-        const values = run.members[run.members.length - 1].values;
-        while (values.length < r.lead - 1) values.push(null);
-        values.push(r.value);
-      }
-      return { gaugeId: gauge.id, unit: 'm3/s', timeStep: gauge.timeStep, runs };
+      const csv = wantsCsv(req, format);
+      return sendStream(reply, reforecastsStream(db, gauge, window, csv), csv ? `${gauge.id}-reforecasts.csv` : undefined);
     },
   );
 }

@@ -3,7 +3,7 @@
 import type { FastifyReply } from 'fastify';
 import type { UpdatingSplit } from '../core/correction/updating-split.ts';
 import type { ComparisonReport, SizeStudyResult, SourceReport, StochasticAdvice, WarningReport } from '../core/verification/index.ts';
-import type { Format } from './formats.ts';
+import { sendCaution, type Format } from './formats.ts';
 import { warningText } from './warning-tables.ts';
 
 export interface ScoreRow {
@@ -59,13 +59,20 @@ export function scoreRows(report: ComparisonReport): ScoreRow[] {
   return rows;
 }
 
-const csvField = (v: string) => (/[",\n]/.test(v) ? `"${v.replace(/"/g, '""')}"` : v);
+const csvField = (v: string) => (/[",\n\r]/.test(v) ? `"${v.replace(/"/g, '""')}"` : v);
 
-/** CSV of the scores; `extra` rows (the warnings) follow in the same columns. */
-export function scoresCsv(report: ComparisonReport, comments: string[], extra: ScoreRow[] = []): string {
-  const lines = comments.map((c) => `# ${c.replace(/\n/g, ' ')}`);
-  lines.push('score,unit,raw,corrected,stochastic');
-  for (const r of [...scoreRows(report), ...extra]) lines.push([r.score, r.unit, ...r.values.map((v) => (v === null ? '' : String(v)))].map(csvField).join(','));
+/** A line of words that travels with a score table: what it is, the advice, a warning, the caution. */
+export type ReportNote = [kind: 'about' | 'advice' | 'note' | 'warning' | 'caution', text: string];
+
+/**
+ * CSV of the scores; `extra` rows (the warnings) follow in the same columns, then one row per note
+ * with its kind as the score and its words in the `note` column. No comment lines, so Python's csv
+ * module and pandas read it as is.
+ */
+export function scoresCsv(report: ComparisonReport, notes: ReportNote[], extra: ScoreRow[] = []): string {
+  const lines = ['score,unit,raw,corrected,stochastic,note'];
+  for (const r of [...scoreRows(report), ...extra]) lines.push([r.score, r.unit, ...r.values.map((v) => (v === null ? '' : String(v))), ''].map(csvField).join(','));
+  for (const [kind, text] of notes) lines.push([kind, '', '', '', '', text.replace(/\s*\n\s*/g, ' ')].map(csvField).join(','));
   return `${lines.join('\n')}\n`;
 }
 
@@ -104,6 +111,7 @@ export function scoresText(title: string[], report: ComparisonReport, advice: St
 /** The report as JSON, CSV or text, as the request asked. */
 export function sendReport(reply: FastifyReply, format: Format, filename: string, json: unknown, csv: () => string, text: () => string): unknown {
   reply.header('vary', 'accept');
+  sendCaution(reply);
   if (format === 'csv') {
     reply.type('text/csv; charset=utf-8').header('content-disposition', `inline; filename="${filename}.csv"`);
     return csv();

@@ -1,12 +1,13 @@
 import type { FastifyInstance } from 'fastify';
 import { z } from 'zod';
-import { ensureMembers, readSimulations, upsertSimulation } from '../store/archive-repo.ts';
-import { GaugeParams, readWindow, requireGauge, sendCsv, wantsCsv } from './archive-common.ts';
+import { ensureMembers, upsertSimulations } from '../store/archive-repo.ts';
+import { sendStream, simulationsStream } from './archive-stream.ts';
+import { GaugeParams, readWindow, requireGauge, wantsCsv } from './archive-common.ts';
 import { addIngestRoute, timeColumnsFromCsv, timeColumnsFromJson, type TimeColumns } from './archive-ingest.ts';
 import { addRoute, type Services } from './context.ts';
 import { MemberId, TimeWindowQuery } from './schemas.ts';
 import { flowLimit } from '../services/plausible-values.ts';
-import { checkFlowUnit, checkTimes, checkValues, isoUtc } from '../services/series-input.ts';
+import { checkFlowUnit, checkTimes, checkValues } from '../services/series-input.ts';
 import { raiseArchiveMaxFlow } from '../store/gauges-repo.ts';
 
 const SimulationsBody = z.strictObject({
@@ -43,11 +44,8 @@ export async function simulationRoutes(app: FastifyInstance, { services }: { ser
     }),
     store: async (tx, gauge, { times, columns }) => {
       await ensureMembers(tx, gauge.id, columns.map((c) => c.id));
-      let written = 0;
-      for (const c of columns) {
-        written += await upsertSimulation(tx, gauge.id, c.id, times, c.values);
-        await raiseArchiveMaxFlow(tx, gauge.id, c.values);
-      }
+      const written = await upsertSimulations(tx, gauge.id, times, columns);
+      for (const c of columns) await raiseArchiveMaxFlow(tx, gauge.id, c.values);
       return { received: times.length * columns.length, written };
     },
   });
@@ -61,23 +59,9 @@ export async function simulationRoutes(app: FastifyInstance, { services }: { ser
       const gauge = await requireGauge(db, req.params);
       const q = req.query;
       const { window } = readWindow({ from: q.from, to: q.to });
-      const rows = await readSimulations(db, gauge.id, window, q.members?.split(',').map((s) => s.trim()));
-      const timeSet = [...new Set(rows.map((r) => r.t))].sort((a, b) => a - b);
-      const index = new Map(timeSet.map((t, i) => [t, i]));
-      const members = new Map<string, (number | null)[]>();
-      for (const r of rows) {
-        let values = members.get(r.member_id);
-        if (!values) members.set(r.member_id, (values = new Array(timeSet.length).fill(null)));
-        values[index.get(r.t)!] = r.value;
-      }
-      const list = [...members].map(([id, values]) => ({ id, values }));
-      if (wantsCsv(req, q.format)) {
-        return sendCsv(reply, `${gauge.id}-simulations.csv`, [
-          ['time', ...list.map((m) => `${m.id} (m3/s)`)].join(','),
-          ...timeSet.map((t, i) => [isoUtc(t), ...list.map((m) => m.values[i] ?? '')].join(',')),
-        ]);
-      }
-      return { gaugeId: gauge.id, unit: 'm3/s', times: timeSet.map(isoUtc), members: list };
+      const csv = wantsCsv(req, q.format);
+      const members = q.members?.split(',').map((s) => s.trim());
+      return sendStream(reply, simulationsStream(db, gauge.id, window, members, csv), csv ? `${gauge.id}-simulations.csv` : undefined);
     },
   );
 }

@@ -6,7 +6,7 @@ import { getGaugeStatus } from '../store/gauge-status-repo.ts';
 import { GaugeParams, requireGauge } from './archive-common.ts';
 import { addRoute, type Services } from './context.ts';
 import { chooseFormat, FormatOnly } from './formats.ts';
-import { byUpdatingRows, byUpdatingText, scoresCsv, scoresText, sendReport, warningsText } from './report-formats.ts';
+import { byUpdatingRows, byUpdatingText, scoresCsv, scoresText, sendReport, warningsText, type ReportNote } from './report-formats.ts';
 import { warningRows } from './warning-tables.ts';
 import { Rfc3339 } from './schemas.ts';
 import { rfc3339Ms } from '../core/rfc3339.ts';
@@ -63,7 +63,7 @@ export async function verificationRoutes(app: FastifyInstance, { services }: { s
         chooseFormat(req, q.format),
         `${gauge.id}-verification`,
         { ...v, drift },
-        () => scoresCsv(v.comparison, [...header, `advice: ${v.advice.recommendation}`, v.stochasticFrom, v.caution], [...(v.warningScores ? warningRows(v.warningScores) : []), ...byUpdatingRows(v.byUpdating)]),
+        () => scoresCsv(v.comparison, [...header.map((h): ReportNote => ['about', h]), ['advice', v.advice.recommendation], ['note', v.stochasticFrom], ['caution', v.caution]], [...(v.warningScores ? warningRows(v.warningScores) : []), ...byUpdatingRows(v.byUpdating)]),
         () => `${scoresText(header, v.comparison, v.advice, [v.stochasticFrom, ...v.notes])}\n${byUpdatingText(v.byUpdating)}${warningsText(v.warningScores)}\n\n${v.caution}\n`,
       );
     },

@@ -10,7 +10,7 @@ import { FeatureInputError, type RunInput } from '../core/features/features.ts';
 import { checkResidualSpec, continuousInputs, inputWidth, isSequenceSpec, requiredRunInputs, rowShape, servingInputs, specForcings, type ResidualSpec } from '../core/features/model-inputs.ts';
 import { CancelledError } from '../core/cancelled.ts';
 import { correctedMember } from '../core/correction/corrected-member.ts';
-import { createStochasticWorkspace } from '../core/stochastic/stochastic-stage.ts';
+import { createStochasticWorkspace, DEFAULT_QUANTILE_PROBS, type StochasticResult } from '../core/stochastic/stochastic-stage.ts';
 import {
   adviseStochasticStage,
   createComparison,
@@ -108,12 +108,51 @@ export interface HindcastOutput {
   driftReference: DriftReference | null;
   /** Per lead: without and with issue-time updating (absent without an updater). */
   updating?: UpdatingByLead | null;
+  /**
+   * Each used issue's output, as served: per lead (observed, raw mean, corrected mean, the stage's
+   * quantiles at `probs`, P(flow > threshold) per threshold), then per threshold P(exceeded at any
+   * lead); [issue·(H·fieldsPerLead + T) + …], NaN where missing.
+   */
+  perIssue: { probs: number[]; fieldsPerLead: number; values: Float64Array };
   timings: { correctionMs: number; stageMs: number; verificationMs: number; reportMs: number; totalMs: number };
 }
 
 export type Progress = (p: { stage: string; percent: number }) => void;
 
 const ROWS_PER_BATCH = 100_000;
+
+/** Quantile levels kept for each issue of a hindcast: the ones a served run gives by default. */
+const PER_ISSUE_PROBS = DEFAULT_QUANTILE_PROBS;
+
+/** Gathers each issue's output as the per-issue table (see HindcastOutput.perIssue). */
+function perIssueCollector(I: number, M: number, K: number, H: number, T: number, observedAt: (s: number, h: number) => number) {
+  const nQ = PER_ISSUE_PROBS.length;
+  const fieldsPerLead = 3 + nQ + T;
+  const perIssue = H * fieldsPerLead + T;
+  const values = new Float64Array(I * perIssue).fill(NaN);
+  return {
+    fieldsPerLead,
+    values,
+    add(s: number, raw: Float64Array, corrected: Float64Array, stage: StochasticResult | null) {
+      const base = s * perIssue;
+      for (let h = 0; h < H; h++) {
+        const o = base + h * fieldsPerLead;
+        let r = 0;
+        for (let m = 0; m < M; m++) r += raw[m * H + h];
+        let c = 0;
+        for (let km = 0; km < K * M; km++) c += corrected[km * H + h];
+        values[o] = observedAt(s, h);
+        values[o + 1] = r / M;
+        values[o + 2] = c / (K * M);
+        if (stage) {
+          for (let q = 0; q < nQ; q++) values[o + 3 + q] = stage.quantiles[h * nQ + q];
+          for (let t = 0; t < T; t++) values[o + 3 + nQ + t] = stage.exceedance[t * H + h];
+        }
+      }
+      if (stage) for (let t = 0; t < T; t++) values[base + H * fieldsPerLead + t] = stage.exceedanceAnyTime[t];
+    },
+  };
+}
 
 /**
  * Runs the hindcast. Simulation mode: issue i's pseudo-forecast of member m is the member's
@@ -309,6 +348,7 @@ export async function computeHindcast(input: HindcastTaskInput, progress: Progre
       if (!ok) notUpdated++;
     };
     const withUpdating: UpdatingPassCollector | null = upd ? updatingPassScores(I, H) : null;
+    const perIssue = perIssueCollector(I, M, K, H, settings.thresholds.length, (s, h) => observed[s * H + h]);
     const tStage = performance.now();
     const summary = runHindcast(
       {
@@ -322,7 +362,8 @@ export async function computeHindcast(input: HindcastTaskInput, progress: Progre
         correct: upd ? correctUpdated : correct,
         ...(upd ? { issueError: () => lastIssueError } : {}),
         archive: upd ? upd.archive : archive,
-        stochastic: { seed: settings.seed, nDraws: settings.nDraws, seasonalWindowDays: settings.seasonalWindowDays },
+        stochastic: { seed: settings.seed, nDraws: settings.nDraws, seasonalWindowDays: settings.seasonalWindowDays, probs: PER_ISSUE_PROBS, thresholds: settings.thresholds },
+        onIssue: (s, o) => perIssue.add(s, o.raw, o.corrected, o.stage),
       },
       (c, issue) => {
         if (issue !== lastIssue) {
@@ -398,6 +439,7 @@ export async function computeHindcast(input: HindcastTaskInput, progress: Progre
       warnings: warningReport,
       driftReference,
       updating,
+      perIssue: { probs: [...PER_ISSUE_PROBS], fieldsPerLead: perIssue.fieldsPerLead, values: perIssue.values },
       timings: { correctionMs, stageMs, verificationMs, reportMs, totalMs: performance.now() - t0 },
     };
   } finally {

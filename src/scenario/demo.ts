@@ -8,6 +8,7 @@ import { DataDirLockedError } from '../store/embedded-driver.ts';
 import { demoTokens } from './demo-tokens.ts';
 import { loadScenarioArchive, type Send } from './load-archive.ts';
 import { buildScenario } from './scenario.ts';
+import { demoToday } from './demo-today.ts';
 
 const started = Date.now();
 const say = (line: string) => console.log(`[${((Date.now() - started) / 1000).toFixed(1).padStart(5)} s] ${line}`);
@@ -50,7 +51,7 @@ const g = scenario.gauge;
 const gaugeId = g.id;
 // "Today" in the scenario is three days before the largest flood of its last three years, so the
 // latest forecast has something to say; the archive loaded ends today.
-const today = floodEve(scenario.observedFlow, 3 * 365, 3);
+const today = demoToday(scenario);
 say(`scenario: ${g.name} (${g.catchmentAreaKm2} km², invented), ${scenario.times.length} days, ${scenario.memberIds.length} raw members`);
 
 const existing = await send('GET', `/gauges/${gaugeId}/models`);
@@ -110,13 +111,6 @@ for (let i = last - 9; i <= last; i++) {
   else if (res.status !== 200) throw new Error(`posting the run of ${run.issueTime} failed: ${JSON.stringify(res.body)}`);
 }
 say(`posted the raw runs of the last 10 days (${posted} new); the latest was issued ${scenario.times[last]} ("today" in the scenario)`);
-
-/** The index `lead` days before the highest observed flow within the final `span` days. */
-function floodEve(observed: (number | null)[], span: number, lead: number): number {
-  let peak = observed.length - span;
-  for (let i = peak; i < observed.length - 11; i++) if ((observed[i] ?? -1) > (observed[peak] ?? -1)) peak = i;
-  return peak - lead;
-}
 
 const table = await fetch(`${url}/gauges/${gaugeId}/forecasts/latest?format=text`, { headers: { authorization: `Bearer ${read}` } });
 console.log(`\n${await table.text()}`);

@@ -32,6 +32,12 @@ export interface ForecastView {
    * not. Absent on runs stored before updating existed and for versions without an updater.
    */
   updating?: UpdatingUsed;
+  /**
+   * How the run was read: the body's form and unit, the conversion to m3/s if any, and the warm-up
+   * (what the run gave, what the model reads, what was taken from the stored archive). Absent on
+   * runs stored before it was recorded.
+   */
+  input?: RunInputUsed;
   seed: number;
   trajectories: number;
   attentionLevel: number;
@@ -81,6 +87,19 @@ export interface UpdatingUsed {
   method: 'ar1' | 'phi-per-lead' | null;
 }
 
+export interface RunInputUsed {
+  form: 'json' | 'csv' | 'netcdf';
+  /** The flow unit the body was in. */
+  unit: string;
+  /** Null when the body was in m3/s already. */
+  conversion: { from: string; to: 'm3/s'; factor: number; source: string } | null;
+  warmup: {
+    stepsInRun: number;
+    stepsNeeded: number;
+    fromArchive: { series: string; from: string; to: string; steps: number }[];
+  };
+}
+
 export interface ErrorArchiveUsed {
   id: string;
   kind: 'corrected' | 'raw';
@@ -110,6 +129,7 @@ export interface ViewInput {
   modelVersion: { id: string; label: string } | null;
   errorArchive?: ErrorArchiveUsed;
   updating?: UpdatingUsed;
+  input?: RunInputUsed;
   seed: number;
   nDraws: number;
   attentionLevel: number;
@@ -147,6 +167,7 @@ export function buildForecastView(v: ViewInput): ForecastView {
     modelVersion: v.modelVersion,
     errorArchive: v.errorArchive,
     ...(v.updating ? { updating: v.updating } : {}),
+    ...(v.input ? { input: v.input } : {}),
     seed: v.seed,
     trajectories: v.nDraws,
     attentionLevel: v.attentionLevel,
@@ -229,10 +250,18 @@ export function forecastText(f: ForecastView): string {
   const status = f.status === 'degraded' ? `DEGRADED: ${f.degradedReason}` : `corrected with model version ${f.modelVersion?.id} (${f.modelVersion?.label})`;
   const u = f.updating;
   const updating = !u ? [] : u.status === 'on' && u.observation ? [`updated on the observation of ${u.observation.time} (${u.observation.value} m3/s, from the ${u.observation.source})`] : [`updating off: ${u.reason}`];
+  const i = f.input;
+  const taken = i?.warmup.fromArchive.map((x) => `${x.series} ${x.from} – ${x.to}`).join('; ');
+  const input = !i
+    ? []
+    : [
+        `posted as ${i.form.toUpperCase()}${i.conversion ? `, flows converted from ${i.conversion.from} (× ${i.conversion.factor})` : ''}; ${taken ? `taken from the archive: ${taken}` : 'nothing taken from the archive'}`,
+      ];
   return [
     `${f.gaugeName} (${f.gaugeId}) — issued ${f.issueTime} — flows in m3/s`,
     `${status}; ${f.trajectories} trajectories, seed ${f.seed}`,
     ...updating,
+    ...input,
     `CAUTION: ${f.caution}`,
     '',
     line(header),
@@ -252,19 +281,60 @@ function thresholdUnits(t: ForecastView['thresholds'][number]): string {
   return t.level === undefined || t.level === null ? `${t.value} m3/s` : `${t.value} m3/s = ${t.level} m`;
 }
 
-/** CSV, one row per lead time: quantiles then exceedance probability per threshold. */
+/**
+ * CSV, one row per lead time: quantiles, exceedance probability per threshold, then what names the
+ * run and the caution in every row. No comment lines: Python's csv module and pandas read it as is
+ * (the caution also travels as the `Caution` HTTP header, src/api/formats.ts).
+ */
 export function forecastCsv(f: ForecastView): string {
   const header = [
     'lead_time',
     'valid_time',
     ...f.quantiles.probabilities.map((p) => `q${String(Math.round(p * 1000) / 10).replace('.', '_')} (m3/s)`),
     ...f.thresholds.map((t) => `p_exceed ${t.label} (${thresholdUnits(t)})`),
+    'gauge_id',
+    'issue_time',
+    'status',
+    'seed',
+    'caution',
   ];
-  const lines = [`# ${f.caution}`, `# gauge ${f.gaugeId}, issued ${f.issueTime}, status ${f.status}, seed ${f.seed}`, header.map((h) => (h.includes(',') ? `"${h}"` : h)).join(',')];
+  const lines = [header.map(csvCell).join(',')];
   f.leadTimes.forEach((lead, k) => {
-    lines.push([lead, f.validTimes[k], ...f.quantiles.values.map((row) => row[k]), ...f.thresholds.map((t) => t.exceedance[k])].join(','));
+    lines.push([lead, f.validTimes[k], ...f.quantiles.values.map((row) => row[k]), ...f.thresholds.map((t) => t.exceedance[k]), f.gaugeId, f.issueTime, f.status, f.seed, f.caution].map(csvCell).join(','));
   });
   return `${lines.join('\n')}\n`;
 }
 
+/** One CSV cell, quoted only when it must be (RFC 4180). */
+export function csvCell(value: string | number | null): string {
+  if (value === null) return '';
+  const s = String(value);
+  return /[",\n\r]/.test(s) ? `"${s.replace(/"/g, '""')}"` : s;
+}
+
 export { isoUtc };
+
+/** Midpoint levels (i − 0.5)/100 stored with every run (src/services/correct-run.ts). */
+export const STORED_LEVELS = Array.from({ length: 100 }, (_, i) => (i + 0.5) / 100);
+
+/** Every quantile a run stored: the levels it was asked for and the 100 midpoint levels, ascending. */
+export function storedQuantileSet(f: ForecastView, percentiles: number[][] | null): { probabilities: number[]; values: number[][] } {
+  const byLevel = new Map<number, number[]>();
+  f.quantiles.probabilities.forEach((p, q) => byLevel.set(p, f.quantiles.values[q]));
+  if (percentiles) {
+    STORED_LEVELS.forEach((p, j) => {
+      // float32 in the store: back to the 4 decimals the values were rounded to before storing.
+      if (![...byLevel.keys()].some((x) => Math.abs(x - p) < 1e-9)) byLevel.set(p, percentiles.map((row) => round(row[j])));
+    });
+  }
+  const probabilities = [...byLevel.keys()].sort((a, b) => a - b);
+  return { probabilities, values: probabilities.map((p) => byLevel.get(p)!) };
+}
+
+/** The quantile set as CSV: one row per lead time, one column per level, the caution in every row. */
+export function quantileSetCsv(f: ForecastView, set: { probabilities: number[]; values: number[][] }): string {
+  const header = ['lead_time', 'valid_time', ...set.probabilities.map((p) => `q${String(Math.round(p * 1000) / 10).replace('.', '_')} (m3/s)`), 'gauge_id', 'issue_time', 'caution'];
+  const lines = [header.map(csvCell).join(',')];
+  f.leadTimes.forEach((lead, k) => lines.push([lead, f.validTimes[k], ...set.values.map((row) => row[k]), f.gaugeId, f.issueTime, f.caution].map(csvCell).join(',')));
+  return `${lines.join('\n')}\n`;
+}

@@ -11,6 +11,7 @@ import { readObservations, readReforecasts } from '../store/archive-repo.ts';
 import { loadArchiveSeries } from '../store/archive-series.ts';
 import type { Db } from '../store/db.ts';
 import { saveDriftReference } from '../store/gauge-status-repo.ts';
+import { insertHindcastIssues, readHindcastIssues } from '../store/hindcast-issues-repo.ts';
 import { getGauge, type Gauge } from '../store/gauges-repo.ts';
 import { enqueueJob, type Job } from '../store/jobs-repo.ts';
 import { getActiveModelVersion, getModelVersion, modelParts, versionArchive } from '../store/models-repo.ts';
@@ -223,6 +224,11 @@ export async function runHindcast(db: Db, job: { id: string; gaugeId: string }, 
 
   const used = out.issues.used;
   const usedTimes = Array.from(out.issues.usedIndex, (i) => t0 + i * stepMs);
+  // Each issue's output, kept so the hindcast can be read back issue by issue (all or nothing).
+  const perIssueWidth = H * out.perIssue.fieldsPerLead + gauge.thresholds.length;
+  await db.transaction((tx) =>
+    insertHindcastIssues(tx, job.id, usedTimes.map((t, s) => ({ issueTimeMs: t, values: out.perIssue.values.subarray(s * perIssueWidth, (s + 1) * perIssueWidth) }))),
+  );
   const inCalibration = overlapping(usedTimes, stepMs, H, calibration);
   const inValidation = overlapping(usedTimes, stepMs, H, validation);
   const warnings: string[] = [];
@@ -302,6 +308,52 @@ export async function runHindcast(db: Db, job: { id: string; gaugeId: string }, 
       ? { ...out.updating, note: `${out.updating.note} Updated on the observation at each issue time.` }
       : { status: 'not run', reason: version.updating ? `the updated members' error archive does not reach ${H} lead times` : `model version ${version.id} has no issue-time updater` },
     driftReference,
+    perIssue: {
+      issues: usedTimes.length,
+      probabilities: out.perIssue.probs,
+      note: 'each issue as a served run would have said it: observed flow, raw and corrected ensemble means, the stochastic stage\'s quantiles and exceedance probabilities (with issue-time updating where the version has it)',
+      href: `/gauges/${gauge.id}/hindcasts/${job.id}/issues`,
+    },
     timings: Object.fromEntries(Object.entries(out.timings).map(([k, v]) => [k, Math.round(v)])),
   };
+}
+
+/** What a hindcast's result says about its per-issue output (absent on hindcasts stored before it). */
+export interface PerIssueInfo {
+  issues: number;
+  probabilities: number[];
+}
+
+/** One issue of a hindcast, as the download gives it. */
+export interface HindcastIssue {
+  issueTime: string;
+  leads: { leadTime: string; validTime: string; observed: number | null; rawMean: number | null; correctedMean: number | null; quantiles: (number | null)[]; exceedance: (number | null)[] }[];
+  anyTime: (number | null)[];
+}
+
+const num = (x: number, digits = 4) => (Number.isFinite(x) ? Math.round(x * 10 ** digits) / 10 ** digits : null);
+
+/** A hindcast's stored issues in [fromMs, toMs), decoded with its horizon, levels and thresholds. */
+export async function hindcastIssues(db: Db, jobId: string, r: { horizon: number; perIssue: PerIssueInfo; thresholds: { label: string; value: number }[] }, stepSeconds: number, fromMs?: number, toMs?: number): Promise<HindcastIssue[]> {
+  const H = r.horizon;
+  const nQ = r.perIssue.probabilities.length;
+  const T = r.thresholds.length;
+  const F = 3 + nQ + T;
+  const stepMs = stepSeconds * 1000;
+  return (await readHindcastIssues(db, jobId, fromMs, toMs)).map(({ issueTimeMs, values }) => ({
+    issueTime: iso(issueTimeMs),
+    leads: Array.from({ length: H }, (_, h) => {
+      const o = h * F;
+      return {
+        leadTime: formatDurationSeconds((h + 1) * stepSeconds),
+        validTime: iso(issueTimeMs + (h + 1) * stepMs),
+        observed: num(values[o]),
+        rawMean: num(values[o + 1]),
+        correctedMean: num(values[o + 2]),
+        quantiles: Array.from({ length: nQ }, (_, q) => num(values[o + 3 + q])),
+        exceedance: Array.from({ length: T }, (_, t) => num(values[o + 3 + nQ + t])),
+      };
+    }),
+    anyTime: Array.from({ length: T }, (_, t) => num(values[H * F + t])),
+  }));
 }

@@ -61,7 +61,7 @@ const DECIMAL = /^[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?$/;
 /** A CSV cell as a number: empty = missing (null); anything else must be a plain decimal (else the text is returned, for the error). */
 export function csvNumber(cell: string): number | null | string {
   const s = cell.trim();
-  if (s === '' || s.toLowerCase() === 'null') return null;
+  if (s === '' || (s.length === 4 && s.toLowerCase() === 'null')) return null;
   if (!DECIMAL.test(s)) return s;
   const n = Number(s);
   return Number.isFinite(n) ? n : s;

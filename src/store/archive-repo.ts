@@ -1,58 +1,240 @@
 import type { Queryable } from './db.ts';
 
-/** Rows per statement: large enough to be fast, small enough to keep each parameter modest. */
+/** Rows per statement on the batched-insert path: large enough to be fast, small enough to keep each parameter modest. */
 const CHUNK = 20_000;
 
-const seconds = (ms: Float64Array, from: number, to: number) => Array.from(ms.subarray(from, to), (t) => t / 1000);
-const nullable = (v: Float64Array, from: number, to: number) =>
-  Array.from(v.subarray(from, to), (x) => (Number.isNaN(x) ? null : x));
+/** From this many rows on, the PostgreSQL server gets the batch by COPY; smaller batches keep batched inserts. */
+export const COPY_MIN_ROWS = 2_000;
 
-/** Runs one statement per chunk of rows and adds up the rows each wrote. */
-async function inChunks(n: number, write: (from: number, to: number) => Promise<{ rows: { n: number }[] }>): Promise<number> {
+/** Characters of COPY text per write: big enough to be cheap, small enough that no write holds the event loop. */
+const COPY_TEXT_CHUNK = 1 << 20;
+
+/**
+ * A table's rows in groups: every row of a group shares the `labels` (e.g. a member id, or an issue
+ * time and a member id), then an axis value (a time, or a lead 1, 2, …), a value (NaN = missing),
+ * and optionally one text column (observation quality).
+ */
+interface ArchiveTable {
+  table: string;
+  /** Label columns, then the axis column, the value column, and the optional text column. */
+  labels: { column: string; timestamp?: boolean }[];
+  axis: { column: string; timestamp: boolean };
+  text?: string;
+  /** The natural key (after gauge_id); on conflict `value` (and `text`) are updated where they differ. */
+  key: string[];
+}
+
+interface RowGroup {
+  /** One per label column; timestamps as epoch milliseconds. */
+  labels: (string | number)[];
+  /** Axis values: epoch milliseconds for a time axis; null for leads 1..values.length. */
+  axisMs: Float64Array | null;
+  values: Float64Array;
+  text?: (string | null)[] | null;
+  /** Leads start at leadOffset + 1 (a part of a longer run cut by chunkGroups). */
+  leadOffset?: number;
+}
+
+/** ISO 8601 UTC text as PostgreSQL reads a timestamptz; one Date per distinct time in a batch. */
+function timestampText(ms: number, cache: Map<number, string>): string {
+  let s = cache.get(ms);
+  if (s === undefined) cache.set(ms, (s = new Date(ms).toISOString()));
+  return s;
+}
+
+/** COPY text format: backslash, tab, newline and carriage return are escaped; null is \N. */
+function copyEscape(s: string | null): string {
+  if (s === null) return '\\N';
+  return /[\\\t\n\r]/.test(s) ? s.replace(/[\\\t\n\r]/g, (c) => (c === '\\' ? '\\\\' : c === '\t' ? '\\t' : c === '\n' ? '\\n' : '\\r')) : s;
+}
+
+/** The batch as COPY text lines (gauge_id, labels…, axis, value[, text]), yielded about COPY_TEXT_CHUNK characters at a time. */
+function* copyLines(spec: ArchiveTable, gaugeId: string, groups: RowGroup[]): Generator<string> {
+  const times = new Map<number, string>();
+  const gauge = copyEscape(gaugeId);
+  let out = '';
+  for (const g of groups) {
+    const prefix = [gauge, ...g.labels.map((l, k) => (spec.labels[k].timestamp ? timestampText(l as number, times) : copyEscape(String(l))))].join('\t') + '\t';
+    const n = g.values.length;
+    for (let i = 0; i < n; i++) {
+      const axis = g.axisMs ? timestampText(g.axisMs[i], times) : String((g.leadOffset ?? 0) + i + 1);
+      const v = g.values[i];
+      out += prefix + axis + (Number.isNaN(v) ? '\t\\N' : '\t' + v);
+      if (spec.text) out += '\t' + copyEscape(g.text ? g.text[i] : null);
+      out += '\n';
+      if (out.length >= COPY_TEXT_CHUNK) {
+        yield out;
+        out = '';
+      }
+    }
+  }
+  if (out) yield out;
+}
+
+const rowCount = (groups: RowGroup[]) => groups.reduce((n, g) => n + g.values.length, 0);
+
+/**
+ * The one archive upsert: inserts the groups' rows, and on a natural-key conflict updates the value
+ * (and text) only where it differs, so re-sending the same batch changes nothing. Answers how many
+ * rows it inserted or changed. All of it happens in the caller's transaction: a failure anywhere
+ * rolls back the whole batch.
+ */
+async function upsertGroups(tx: Queryable, spec: ArchiveTable, gaugeId: string, groups: RowGroup[]): Promise<number> {
+  const n = rowCount(groups);
+  if (n === 0) return 0;
+  if (tx.copyFrom && n >= COPY_MIN_ROWS) return copyGroups(tx as Required<Queryable>, spec, gaugeId, groups, n);
   let written = 0;
-  for (let from = 0; from < n; from += CHUNK) written += Number((await write(from, Math.min(from + CHUNK, n))).rows[0].n);
+  for (const part of chunkGroups(groups, CHUNK)) written += await insertGroups(tx, spec, gaugeId, part);
   return written;
 }
 
-/** A column of an upsert: one value for the whole batch, or one per row (a Postgres array of `type`). */
-type UpsertColumn = { column: string; timestamp?: boolean } & ({ value: unknown } | { type: 'float8' | 'int' | 'text'; rows: (from: number, to: number) => unknown[] });
+const valueColumns = (spec: ArchiveTable) => ['value', ...(spec.text ? [spec.text] : [])];
+const allColumns = (spec: ArchiveTable) => ['gauge_id', ...spec.labels.map((l) => l.column), spec.axis.column, ...valueColumns(spec)];
+
+function onConflict(spec: ArchiveTable): string {
+  const update = valueColumns(spec);
+  return `on conflict (gauge_id, ${spec.key.join(', ')}) do update set ${update.map((c) => `${c} = excluded.${c}`).join(', ')}
+          where ${update.map((c) => `${spec.table}.${c} is distinct from excluded.${c}`).join(' or ')}`;
+}
 
 /**
- * The one archive upsert: inserts rows given column by column, and on a natural-key conflict
- * updates the `update` columns only where they differ, so re-sending the same batch changes
- * nothing. Answers how many rows it inserted or changed. `timestamp` columns are epoch seconds.
+ * COPY path (PostgreSQL server). A batch whose key range holds no stored rows yet (the usual bulk
+ * load) is copied straight into the table (the ingest routes lock the gauge, so no other write of
+ * its archive comes between the check and the copy; if one did, the key would refuse it); otherwise it is copied into a session-local staging table
+ * and merged with one INSERT … SELECT … ON CONFLICT DO UPDATE. Either way a row the table refuses
+ * (a key repeated, a missing member) fails the statement and the transaction with it.
  */
-async function upsertRows(tx: Queryable, table: string, key: string[], update: string[], n: number, columns: UpsertColumn[]): Promise<number> {
-  return inChunks(n, (from, to) => {
-    const params: unknown[] = [];
-    const select: string[] = [];
-    const arrays: string[] = [];
-    const names: string[] = [];
-    for (const c of columns) {
-      let expr: string;
-      if ('value' in c) {
-        params.push(c.value);
-        expr = `$${params.length}`;
-      } else {
-        params.push(c.rows(from, to));
-        arrays.push(`$${params.length}::${c.type}[]`);
-        expr = `u${names.length}`;
-        names.push(expr);
-      }
-      select.push(c.timestamp ? `to_timestamp(${expr})` : expr);
-    }
-    return tx.query<{ n: number }>(
-      `with w as (
-         insert into ${table} (${columns.map((c) => c.column).join(', ')})
-         select ${select.join(', ')} from unnest(${arrays.join(', ')}) as u(${names.join(', ')})
-         on conflict (${key.join(', ')}) do update set ${update.map((c) => `${c} = excluded.${c}`).join(', ')}
-         where ${update.map((c) => `${table}.${c} is distinct from excluded.${c}`).join(' or ')}
-         returning 1)
-       select count(*)::int as n from w`,
-      params,
-    );
-  });
+async function copyGroups(tx: Required<Queryable>, spec: ArchiveTable, gaugeId: string, groups: RowGroup[], n: number): Promise<number> {
+  const columns = allColumns(spec).join(', ');
+  if (!(await anyStored(tx, spec, gaugeId, groups))) {
+    await tx.copyFrom(`copy ${spec.table} (${columns}) from stdin`, copyLines(spec, gaugeId, groups));
+    return n;
+  }
+  const stage = `stage_${spec.table}`;
+  // One staging table per connection and table, emptied at every commit: no catalog churn per batch.
+  await tx.query(`create temp table if not exists ${stage} (like ${spec.table}) on commit delete rows`);
+  await tx.query(`truncate ${stage}`);
+  await tx.copyFrom(`copy ${stage} (${columns}) from stdin`, copyLines(spec, gaugeId, groups));
+  const { rows } = await tx.query<{ n: number }>(
+    `with w as (insert into ${spec.table} (${columns}) select ${columns} from ${stage} ${onConflict(spec)} returning 1)
+     select count(*)::int as n from w`,
+  );
+  return Number(rows[0].n);
 }
+
+/** Whether any stored row shares a label and lies in the batch's axis range (a cheap, conservative overlap test on the key index). */
+async function anyStored(tx: Queryable, spec: ArchiveTable, gaugeId: string, groups: RowGroup[]): Promise<boolean> {
+  const params: unknown[] = [gaugeId];
+  let where = 'gauge_id = $1';
+  spec.labels.forEach((l, k) => {
+    const distinct = [...new Set(groups.map((g) => g.labels[k]))];
+    params.push(l.timestamp ? distinct.map((ms) => new Date(ms as number).toISOString()) : distinct.map(String));
+    where += ` and ${l.column} = any($${params.length}::${l.timestamp ? 'timestamptz' : 'text'}[])`;
+  });
+  let lo = Infinity;
+  let hi = -Infinity;
+  for (const g of groups) {
+    const len = g.values.length;
+    if (!len) continue;
+    const first = g.axisMs ? g.axisMs[0] : 1;
+    const last = g.axisMs ? g.axisMs[len - 1] : len;
+    lo = Math.min(lo, first, last);
+    hi = Math.max(hi, first, last);
+  }
+  if (spec.axis.timestamp) {
+    params.push(new Date(lo).toISOString(), new Date(hi).toISOString());
+    where += ` and ${spec.axis.column} between $${params.length - 1}::timestamptz and $${params.length}::timestamptz`;
+  } else {
+    params.push(lo, hi);
+    where += ` and ${spec.axis.column} between $${params.length - 1}::int and $${params.length}::int`;
+  }
+  const { rows } = await tx.query(`select 1 from ${spec.table} where ${where} limit 1`, params);
+  return rows.length > 0;
+}
+
+/** Splits groups into parts of at most `size` rows (a long group is cut, keeping its labels and axis positions). */
+function* chunkGroups(groups: RowGroup[], size: number): Generator<RowGroup[]> {
+  let part: RowGroup[] = [];
+  let rows = 0;
+  for (const g of groups) {
+    for (let from = 0; from < g.values.length; ) {
+      const to = Math.min(g.values.length, from + size - rows);
+      part.push({
+        labels: g.labels,
+        axisMs: g.axisMs ? g.axisMs.subarray(from, to) : null,
+        values: g.values.subarray(from, to),
+        text: g.text ? g.text.slice(from, to) : g.text,
+        leadOffset: (g.leadOffset ?? 0) + from,
+      });
+      rows += to - from;
+      from = to;
+      if (rows >= size) {
+        yield part;
+        part = [];
+        rows = 0;
+      }
+    }
+  }
+  if (part.length) yield part;
+}
+
+/** Batched-insert path (embedded store, small batches): one INSERT … SELECT FROM unnest(…) per part. */
+async function insertGroups(tx: Queryable, spec: ArchiveTable, gaugeId: string, groups: RowGroup[]): Promise<number> {
+  const labels = spec.labels.map(() => [] as unknown[]);
+  const axis: number[] = [];
+  const values: (number | null)[] = [];
+  const text: (string | null)[] = [];
+  for (const g of groups) {
+    const offset = g.leadOffset ?? 0;
+    for (let i = 0; i < g.values.length; i++) {
+      g.labels.forEach((l, k) => labels[k].push(spec.labels[k].timestamp ? (l as number) / 1000 : l));
+      axis.push(g.axisMs ? g.axisMs[i] / 1000 : offset + i + 1);
+      const v = g.values[i];
+      values.push(Number.isNaN(v) ? null : v);
+      if (spec.text) text.push(g.text ? g.text[i] : null);
+    }
+  }
+  const params: unknown[] = [gaugeId];
+  const arrays: string[] = [];
+  const select: string[] = ['$1'];
+  const add = (array: unknown[], type: string, timestamp: boolean) => {
+    params.push(array);
+    arrays.push(`$${params.length}::${type}[]`);
+    const name = `u${arrays.length}`;
+    select.push(timestamp ? `to_timestamp(${name})` : name);
+  };
+  spec.labels.forEach((l, k) => add(labels[k], l.timestamp ? 'float8' : 'text', !!l.timestamp));
+  add(axis, spec.axis.timestamp ? 'float8' : 'int', spec.axis.timestamp);
+  add(values, 'float8', false);
+  if (spec.text) add(text, 'text', false);
+  const names = arrays.map((_, i) => `u${i + 1}`);
+  const { rows } = await tx.query<{ n: number }>(
+    `with w as (
+       insert into ${spec.table} (${allColumns(spec).join(', ')})
+       select ${select.join(', ')} from unnest(${arrays.join(', ')}) as u(${names.join(', ')})
+       ${onConflict(spec)}
+       returning 1)
+     select count(*)::int as n from w`,
+    params,
+  );
+  return Number(rows[0].n);
+}
+
+const OBSERVATIONS: ArchiveTable = { table: 'observed_flow', labels: [], axis: { column: 'time', timestamp: true }, text: 'quality', key: ['time'] };
+const FORCINGS: ArchiveTable = { table: 'forcing_values', labels: [{ column: 'variable' }], axis: { column: 'time', timestamp: true }, key: ['variable', 'time'] };
+const SIMULATIONS: ArchiveTable = { table: 'member_simulations', labels: [{ column: 'member_id' }], axis: { column: 'time', timestamp: true }, key: ['member_id', 'time'] };
+const REFORECASTS: ArchiveTable = {
+  table: 'reforecasts',
+  labels: [{ column: 'issue_time', timestamp: true }, { column: 'member_id' }],
+  axis: { column: 'lead', timestamp: false },
+  key: ['issue_time', 'member_id', 'lead'],
+};
+const REFORECAST_FORCINGS: ArchiveTable = {
+  table: 'reforecast_forcings',
+  labels: [{ column: 'issue_time', timestamp: true }, { column: 'variable' }],
+  axis: { column: 'lead', timestamp: false },
+  key: ['issue_time', 'variable', 'lead'],
+};
 
 /** Each upsert returns how many rows it inserted or changed; re-sending the same batch changes none. */
 export async function upsertObservations(
@@ -62,52 +244,44 @@ export async function upsertObservations(
   values: Float64Array,
   quality: (string | null)[] | null,
 ): Promise<number> {
-  return upsertRows(tx, 'observed_flow', ['gauge_id', 'time'], ['value', 'quality'], times.length, [
-    { column: 'gauge_id', value: gaugeId },
-    { column: 'time', timestamp: true, type: 'float8', rows: (from, to) => seconds(times, from, to) },
-    { column: 'value', type: 'float8', rows: (from, to) => nullable(values, from, to) },
-    { column: 'quality', type: 'text', rows: (from, to) => (quality ? quality.slice(from, to) : new Array(to - from).fill(null)) },
-  ]);
+  return upsertGroups(tx, OBSERVATIONS, gaugeId, [{ labels: [], axisMs: times, values, text: quality }]);
+}
+
+/** Several forcing variables on one time axis. */
+export async function upsertForcings(tx: Queryable, gaugeId: string, times: Float64Array, variables: { name: string; values: Float64Array }[]): Promise<number> {
+  return upsertGroups(tx, FORCINGS, gaugeId, variables.map((v) => ({ labels: [v.name], axisMs: times, values: v.values })));
 }
 
 export async function upsertForcing(tx: Queryable, gaugeId: string, variable: string, times: Float64Array, values: Float64Array): Promise<number> {
-  return upsertRows(tx, 'forcing_values', ['gauge_id', 'variable', 'time'], ['value'], times.length, [
-    { column: 'gauge_id', value: gaugeId },
-    { column: 'variable', value: variable },
-    { column: 'time', timestamp: true, type: 'float8', rows: (from, to) => seconds(times, from, to) },
-    { column: 'value', type: 'float8', rows: (from, to) => nullable(values, from, to) },
-  ]);
+  return upsertForcings(tx, gaugeId, times, [{ name: variable, values }]);
+}
+
+/** Several members' simulations on one time axis. */
+export async function upsertSimulations(tx: Queryable, gaugeId: string, times: Float64Array, members: { id: string; values: Float64Array }[]): Promise<number> {
+  return upsertGroups(tx, SIMULATIONS, gaugeId, members.map((m) => ({ labels: [m.id], axisMs: times, values: m.values })));
 }
 
 export async function upsertSimulation(tx: Queryable, gaugeId: string, memberId: string, times: Float64Array, values: Float64Array): Promise<number> {
-  return upsertRows(tx, 'member_simulations', ['gauge_id', 'member_id', 'time'], ['value'], times.length, [
-    { column: 'gauge_id', value: gaugeId },
-    { column: 'member_id', value: memberId },
-    { column: 'time', timestamp: true, type: 'float8', rows: (from, to) => seconds(times, from, to) },
-    { column: 'value', type: 'float8', rows: (from, to) => nullable(values, from, to) },
-  ]);
+  return upsertSimulations(tx, gaugeId, times, [{ id: memberId, values }]);
+}
+
+/** Past runs, member by member: values[0] is lead 1 (one step after issue time). */
+export async function upsertReforecasts(tx: Queryable, gaugeId: string, members: { issueMs: number; memberId: string; values: Float64Array }[]): Promise<number> {
+  return upsertGroups(tx, REFORECASTS, gaugeId, members.map((m) => ({ labels: [m.issueMs, m.memberId], axisMs: null, values: m.values })));
 }
 
 /** One member of one past run: values[0] is lead 1 (one step after issue time). */
 export async function upsertReforecast(tx: Queryable, gaugeId: string, issueMs: number, memberId: string, values: Float64Array): Promise<number> {
-  return upsertRows(tx, 'reforecasts', ['gauge_id', 'issue_time', 'member_id', 'lead'], ['value'], values.length, [
-    { column: 'gauge_id', value: gaugeId },
-    { column: 'issue_time', timestamp: true, value: issueMs / 1000 },
-    { column: 'member_id', value: memberId },
-    { column: 'lead', type: 'int', rows: (from, to) => Array.from({ length: to - from }, (_, i) => from + i + 1) },
-    { column: 'value', type: 'float8', rows: (from, to) => nullable(values, from, to) },
-  ]);
+  return upsertReforecasts(tx, gaugeId, [{ issueMs, memberId, values }]);
 }
 
-/** The forecast forcing one past run was driven by: values[0] is lead 1. */
+/** The forecast forcings past runs were driven by: values[0] is lead 1. */
+export async function upsertReforecastForcings(tx: Queryable, gaugeId: string, series: { issueMs: number; variable: string; values: Float64Array }[]): Promise<number> {
+  return upsertGroups(tx, REFORECAST_FORCINGS, gaugeId, series.map((f) => ({ labels: [f.issueMs, f.variable], axisMs: null, values: f.values })));
+}
+
 export async function upsertReforecastForcing(tx: Queryable, gaugeId: string, issueMs: number, variable: string, values: Float64Array): Promise<number> {
-  return upsertRows(tx, 'reforecast_forcings', ['gauge_id', 'issue_time', 'variable', 'lead'], ['value'], values.length, [
-    { column: 'gauge_id', value: gaugeId },
-    { column: 'issue_time', timestamp: true, value: issueMs / 1000 },
-    { column: 'variable', value: variable },
-    { column: 'lead', type: 'int', rows: (from, to) => Array.from({ length: to - from }, (_, i) => from + i + 1) },
-    { column: 'value', type: 'float8', rows: (from, to) => nullable(values, from, to) },
-  ]);
+  return upsertReforecastForcings(tx, gaugeId, [{ issueMs, variable, values }]);
 }
 
 export async function ensureMembers(tx: Queryable, gaugeId: string, ids: string[]): Promise<void> {
@@ -206,4 +380,89 @@ export async function readReforecastForcings(db: Queryable, gaugeId: string, w: 
     params,
   );
   return rows;
+}
+
+/** Rows per page of a paged archive read: small enough that no page holds the event loop long. */
+export const archivePaging = { rows: 1_000 };
+
+type KeyPart = { expr: string; type: 'timestamptz' | 'text' | 'int' };
+
+/**
+ * Keyset pagination: runs `sql(after)` (which must order by the key) page by page, each page
+ * starting after the last row of the one before, so every page is an index range scan.
+ */
+async function* keysetPages<R>(q: Queryable, sql: (after: string) => string, params: unknown[], key: KeyPart[], keyOf: (row: R) => unknown[]): AsyncGenerator<R[]> {
+  let last: unknown[] | null = null;
+  const limit = archivePaging.rows;
+  for (;;) {
+    const p = [...params];
+    let after = '';
+    if (last) {
+      const slots = key.map((k, i) => {
+        p.push(k.type === 'timestamptz' ? new Date(last![i] as number).toISOString() : last![i]);
+        return `$${p.length}::${k.type}`;
+      });
+      after = ` and (${key.map((k) => k.expr).join(', ')}) > (${slots.join(', ')})`;
+    }
+    const { rows } = await q.query<R>(`${sql(after)} limit ${limit}`, p);
+    if (rows.length) yield rows;
+    if (rows.length < limit) return;
+    last = keyOf(rows[rows.length - 1]);
+  }
+}
+
+/** Observations in a window, in pages ordered by time. */
+export function pageObservations(q: Queryable, gaugeId: string, w: Window) {
+  const params: unknown[] = [gaugeId];
+  const where = windowSql('time', w, params);
+  return keysetPages<{ t: number; value: number | null; quality: string | null }>(
+    q,
+    (after) => `select ${epochMs('time')} as t, value, quality from observed_flow where gauge_id = $1${where}${after} order by time`,
+    params,
+    [{ expr: 'time', type: 'timestamptz' }],
+    (r) => [r.t],
+  );
+}
+
+/** One forcing variable in a window, in pages ordered by time. */
+export function pageForcing(q: Queryable, gaugeId: string, w: Window, variable: string) {
+  const params: unknown[] = [gaugeId, variable];
+  const where = windowSql('time', w, params);
+  return keysetPages<{ t: number; value: number | null }>(
+    q,
+    (after) => `select ${epochMs('time')} as t, value from forcing_values where gauge_id = $1 and variable = $2${where}${after} order by time`,
+    params,
+    [{ expr: 'time', type: 'timestamptz' }],
+    (r) => [r.t],
+  );
+}
+
+/** Member simulations in a window, in pages ordered by member and time. */
+export function pageSimulations(q: Queryable, gaugeId: string, w: Window, members?: string[]) {
+  const params: unknown[] = [gaugeId];
+  let where = windowSql('time', w, params);
+  if (members) {
+    params.push(members);
+    where += ` and member_id = any($${params.length}::text[])`;
+  }
+  return keysetPages<{ member_id: string; t: number; value: number | null }>(
+    q,
+    (after) => `select member_id, ${epochMs('time')} as t, value from member_simulations where gauge_id = $1${where}${after} order by member_id, time`,
+    params,
+    [{ expr: 'member_id', type: 'text' }, { expr: 'time', type: 'timestamptz' }],
+    (r) => [r.member_id, r.t],
+  );
+}
+
+/** Past runs issued in a window, in pages ordered by issue time, member and lead. */
+export function pageReforecasts(q: Queryable, gaugeId: string, w: Window) {
+  const params: unknown[] = [gaugeId];
+  const where = windowSql('issue_time', w, params);
+  return keysetPages<{ t: number; member_id: string; lead: number; value: number | null }>(
+    q,
+    (after) => `select ${epochMs('issue_time')} as t, member_id, lead, value from reforecasts where gauge_id = $1${where}${after} order by issue_time, member_id, lead`,
+    params,
+    [{ expr: 'issue_time', type: 'timestamptz' }, { expr: 'member_id', type: 'text' }, { expr: 'lead', type: 'int' }],
+    (r) => [r.t, r.member_id, r.lead],
+  );
 }

@@ -39,13 +39,16 @@ export async function openEmbedded(dataDir: string | null): Promise<Db> {
   }
 
   let closed = false;
+  const query: Queryable['query'] = (sql, params) =>
+    serialised(async () => {
+      const result = await pglite.query(sql, params as unknown[]);
+      return { rows: result.rows as never[] };
+    });
   return {
     kind: 'embedded',
-    query(sql, params) {
-      return serialised(async () => {
-        const result = await pglite.query(sql, params as unknown[]);
-        return { rows: result.rows as never[] };
-      });
+    query,
+    async *reading(fn) {
+      yield* fn({ query });
     },
     transaction(fn) {
       return serialised(() =>

@@ -159,3 +159,11 @@ export async function latestSummaries(db: Queryable) {
   );
   return rows.map((r) => ({ ...r, summary: r.summary === null ? null : RunSummary.parse(r.summary) }));
 }
+
+/** A stored run's answer and its stored midpoint-level quantiles per lead time (null when not stored). */
+export async function getRunWithPercentiles(db: Queryable, id: string): Promise<{ output: string; etag: string; percentiles: number[][] | null } | null> {
+  const { rows } = await db.query<{ output: string; etag: string; percentiles: Uint8Array | null }>('select output, etag, percentiles from forecast_runs where id = $1', [id]);
+  const r = rows[0];
+  if (!r) return null;
+  return { output: r.output, etag: r.etag, percentiles: r.percentiles && r.percentiles.byteLength ? decodePercentiles(r.percentiles) : null };
+}

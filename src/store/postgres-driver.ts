@@ -1,4 +1,7 @@
+import { Readable } from 'node:stream';
+import { pipeline } from 'node:stream/promises';
 import pg from 'pg';
+import copyStreams from 'pg-copy-streams';
 import type { Db, Queryable } from './db.ts';
 
 // timestamptz and int8 come back as ISO strings / numbers we control, not driver-specific objects.
@@ -51,6 +54,36 @@ export function openPostgres(connectionString: string, max = 10, onError: (err: 
       const result = await pool.query(sql, params as unknown[]);
       return { rows: result.rows };
     },
+    async *reading(fn) {
+      const client = await pool.connect();
+      // As in transaction(): a connection lost while the read is held is heard, and dropped from the pool.
+      let lost: Error | undefined;
+      const onLost = (err: Error) => {
+        lost ??= err;
+        onError(err);
+      };
+      client.on('error', onLost);
+      let done = false;
+      try {
+        await client.query('begin isolation level repeatable read read only');
+        yield* fn({
+          async query(sql, params) {
+            const result = await client.query(sql, params as unknown[]);
+            return { rows: result.rows };
+          },
+        });
+        done = true;
+      } finally {
+        // Also when the client went away mid-response (the generator is returned early): the snapshot ends here.
+        const ended = await client.query(done ? 'commit' : 'rollback').then(
+          () => undefined,
+          (e: Error) => e,
+        );
+        const broken = ended ?? lost;
+        if (!broken) client.off('error', onLost);
+        client.release(broken);
+      }
+    },
     async transaction(fn) {
       const client = await pool.connect();
       // A checked-out client whose connection drops between two queries (the server stops, the
@@ -74,6 +107,10 @@ export function openPostgres(connectionString: string, max = 10, onError: (err: 
           async query(sql, params) {
             const result = await client.query(sql, params as unknown[]);
             return { rows: result.rows };
+          },
+          async copyFrom(sql, text) {
+            // pipeline waits for the server to accept each chunk (backpressure) and for COPY to end.
+            await pipeline(Readable.from(text, { objectMode: false }), client.query(copyStreams.from(sql)));
           },
         };
         const out = await fn(tx);

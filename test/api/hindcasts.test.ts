@@ -126,6 +126,56 @@ describe('hindcast jobs', () => {
     expect(viaJobs.result.advice).toEqual(r.advice);
   });
 
+  it("gives each issue's output back as JSON and CSV, the same cases the scores came from", async () => {
+    const r = first;
+    const jobId = (await t.as('read', { method: 'GET', url: `/gauges/${gaugeId}/hindcasts` })).json().hindcasts.at(-1).id;
+    const url = `/gauges/${gaugeId}/hindcasts/${jobId}/issues`;
+    const res = await t.as('read', { method: 'GET', url });
+    expect(res.statusCode, res.body).toBe(200);
+    expect(res.headers.caution).toMatch(/local authority/);
+    const body = res.json();
+    expect(r.perIssue).toMatchObject({ issues: r.issues.used, href: url });
+    expect(body.issues).toHaveLength(r.issues.used);
+    expect(body.issues[0].issueTime).toBe(r.issues.first);
+    expect(body.probabilities).toEqual([0.05, 0.1, 0.25, 0.5, 0.75, 0.9, 0.95]);
+    let absError = 0;
+    let cases = 0;
+    for (const issue of body.issues) {
+      expect(issue.leads).toHaveLength(r.horizon);
+      for (const l of issue.leads) {
+        for (let q = 1; q < l.quantiles.length; q++) expect(l.quantiles[q]).toBeGreaterThanOrEqual(l.quantiles[q - 1]);
+        for (const p of l.exceedance) expect(p >= 0 && p <= 1).toBe(true);
+        // The observation is the archive's at the valid time (4 decimals).
+        const i = scenario.times.indexOf(l.validTime);
+        const y = scenario.observedFlow[i];
+        if (y === null || y === undefined) expect(l.observed).toBeNull();
+        else {
+          expect(l.observed).toBeCloseTo(y, 4);
+          absError += Math.abs(l.rawMean - l.observed);
+          cases++;
+        }
+      }
+      issue.anyTime.forEach((p: number, j: number) => expect(p).toBeGreaterThanOrEqual(Math.max(...issue.leads.map((l: { exceedance: number[] }) => l.exceedance[j])) - 1e-12));
+    }
+    // Simulation mode: the raw members are the continuous simulations; their mean at the valid time.
+    const l0 = body.issues[3].leads[2];
+    const at = scenario.times.indexOf(l0.validTime);
+    const simMean = r.members.reduce((sum: number, id: string) => sum + scenario.memberSimulations[id][at], 0) / r.members.length;
+    expect(l0.rawMean).toBeCloseTo(simMean, 4);
+    // The same verified cases as the summary: the raw ensemble mean's MAE from the issues equals the comparison's.
+    expect(cases).toBe(r.cases.verified);
+    expect(absError / cases).toBeCloseTo(r.comparison.raw.mean.mae, 3);
+
+    const some = (await t.as('read', { method: 'GET', url: `${url}?from=${body.issues[2].issueTime}&to=${body.issues[5].issueTime}` })).json();
+    expect(some.issues.map((x: { issueTime: string }) => x.issueTime)).toEqual(body.issues.slice(2, 5).map((x: { issueTime: string }) => x.issueTime));
+    const csv = await t.as('read', { method: 'GET', url: `${url}?format=csv` });
+    expect(csv.headers['content-type']).toContain('text/csv');
+    const lines = csv.body.trim().split('\n');
+    expect(lines).toHaveLength(1 + r.issues.used * r.horizon);
+    expect(lines[0]).toMatch(/^issue_time,lead_time,valid_time,observed \(m3\/s\),raw_mean \(m3\/s\),corrected_mean \(m3\/s\),q5 \(m3\/s\),/);
+    expect(lines[0].endsWith(',caution')).toBe(true);
+  });
+
   it('serves the main scores as CSV and a text table with the size study', async () => {
     const jobs = (await t.as('read', { method: 'GET', url: `/gauges/${gaugeId}/hindcasts` })).json().hindcasts;
     const id = jobs[0].id;
@@ -134,7 +184,9 @@ describe('hindcast jobs', () => {
     expect(csv.statusCode).toBe(200);
     expect(csv.headers['content-type']).toContain('text/csv');
     const lines = csv.body.trim().split('\n').filter((l) => !l.startsWith('#'));
-    expect(lines[0]).toBe('score,unit,raw,corrected,stochastic');
+    expect(lines[0]).toBe('score,unit,raw,corrected,stochastic,note');
+    expect(lines.at(-1)).toMatch(/^caution,,,,,"?Guidance only/);
+    expect(csv.headers.caution).toMatch(/responsible local authority/);
     const crps = lines.find((l) => l.startsWith('CRPS,'))!.split(',');
     expect(Number(crps[4])).toBe(first.comparison.stochastic.crps.crps);
     const text = await get(id, '?format=text');

@@ -111,23 +111,13 @@ describe('correcting a raw run', () => {
     ['negative flow', (b: any) => (b.members[0].values[12] = -1), 'body.members[0].values[12]', /negative/],
     ['missing value at a lead time', (b: any) => (b.members[0].values[12] = null), 'body.members[0].values[12]', /cannot be missing/],
     ['mismatched member lengths', (b: any) => b.members[2].values.pop(), 'body.members[2].values', /has 19 values/],
-    ['mismatched forcing length', (b: any) => b.forcings.precipitation.pop(), 'body.forcings.precipitation', /has 19 values/],
+    // A forcing may hold the lead times only (the archive gives the warm-up), never fewer.
+    ['a forcing shorter than the lead times', (b: any) => b.forcings.precipitation.splice(0, 11), 'body.forcings.precipitation', /has 9 values; give at least one per lead time \(10\)/],
     ['issue time off the step', (b: any) => (b.issueTime = '2008-06-01T06:00:00Z'), 'body.issueTime', /time step/],
-    ['wrong unit', (b: any) => (b.unit = 'l/s'), 'body.unit', /m3\/s/],
+    ['a unit that is not a flow unit', (b: any) => (b.unit = 'm3/h'), 'body.unit', /m3\/s \(or m3 s-1\), l\/s/],
     ['too many trajectories', (b: any) => (b.trajectories = 10_000_000), 'body.trajectories', /at most/],
     ['horizon beyond the archive', (b: any) => b.members.forEach((m: any) => m.values.push(...new Array(40).fill(1))), 'body.members[0].values', /at most 30/],
     ['a forcing the model needs', (b: any) => delete b.forcings.precipitation, 'body.forcings.precipitation', /./],
-    [
-      'too few warm-up steps for the lags',
-      (b: any) => {
-        b.members.forEach((m: any) => m.values.splice(0, 8));
-        b.forcings.precipitation.splice(0, 8);
-        b.forcings.air_temperature.splice(0, 8);
-        b.warmupSteps = 2;
-      },
-      'body.members[0].values',
-      /./,
-    ],
     ['non-finite value', (b: any) => (b.members[0].values[3] = 'NaN'), 'body.members[0].values[3]', /finite/],
     ['decreasing quantiles', (b: any) => (b.quantiles = [0.9, 0.1]), 'body.quantiles', /increasing/],
   ])('refuses %s, naming the field, and stores nothing', async (_name, change, path, message) => {
@@ -185,10 +175,14 @@ describe('reading forecasts', () => {
     const csv = await t.as('read', { method: 'GET', url: `/gauges/${gaugeId}/forecasts/latest?format=csv` });
     expect(csv.headers['content-type']).toContain('text/csv');
     const lines = csv.body.trim().split('\n');
-    expect(lines[0]).toMatch(/^# Guidance only/);
-    expect(lines[2].split(',')[0]).toBe('lead_time');
-    expect(lines).toHaveLength(3 + 10);
-    expect(Number(lines[3].split(',')[5])).toBe(latest.quantiles.values[3][0]);
+    // No comment lines: the header comes first, the caution travels in a column and a header.
+    expect(lines[0].split(',')[0]).toBe('lead_time');
+    expect(lines[0].endsWith(',gauge_id,issue_time,status,seed,caution')).toBe(true);
+    expect(lines).toHaveLength(1 + 10);
+    expect(Number(lines[1].split(',')[5])).toBe(latest.quantiles.values[3][0]);
+    expect(lines[1]).toContain(`,${gaugeId},${latest.issueTime},${latest.status},${latest.seed},`);
+    expect(lines[1]).toMatch(/responsible local authority/);
+    expect(csv.headers.caution).toBe(latest.caution);
 
     const text = await t.as('read', { method: 'GET', url: `/gauges/${gaugeId}/forecasts/latest`, headers: { accept: 'text/plain' } });
     expect(text.headers['content-type']).toContain('text/plain');

@@ -91,7 +91,7 @@ describe('uploading a PyTorch LSTM or GRU taking [N, window, steps]', () => {
     const refused = await t.as('ingest', { method: 'POST', url: `/gauges/${gaugeId}/runs`, payload: early });
     expect(refused.statusCode, refused.body).toBe(422);
     expect(refused.json().errors[0].path).toBe('body.members[0].values');
-    expect(refused.json().errors[0].message).toMatch(/archive has no simulated value of member/);
+    expect(refused.json().errors[0].message).toMatch(/neither the run nor the stored archive has one at \d{4}-/);
   });
 
   it.each([

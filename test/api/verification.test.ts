@@ -167,7 +167,9 @@ describe('verification of stored runs: a hand-checked case', () => {
     const csv = await verify(g, '?format=csv');
     expect(csv.headers['content-type']).toContain('text/csv');
     const lines = csv.body.trim().split('\n').filter((l) => !l.startsWith('#'));
-    expect(lines[0]).toBe('score,unit,raw,corrected,stochastic');
+    expect(lines[0]).toBe('score,unit,raw,corrected,stochastic,note');
+    expect(lines.at(-1)).toMatch(/^caution,,,,,"?Guidance only/);
+    expect(csv.headers.caution).toMatch(/responsible local authority/);
     const crps = lines.find((l) => l.startsWith('CRPS,'))!.split(',');
     expect(Number(crps[2])).toBeCloseTo(0.25, 12);
     expect(Number(crps[3])).toBeCloseTo(0.5, 12);

@@ -130,7 +130,7 @@ describe('windows', () => {
 
 describe('warm-up from the archive', () => {
   it('puts archived values in front of a short run so the windows equal the continuous ones', async () => {
-    const { withArchiveWarmup, warmupShortfall } = await import('../../src/core/features/run-warmup.ts');
+    const { fillWarmup, warmupGap } = await import('../../src/core/features/run-warmup.ts');
     const n = 14;
     const times = Array.from({ length: n }, (_, i) => T0 + i * DAY);
     const sim = Array.from({ length: n }, (_, i) => 5 + i * i * 0.1);
@@ -138,21 +138,29 @@ describe('warm-up from the archive', () => {
     const wide = checkSequenceSpec({ ...spec, window: 6 });
     const cont = continuousWindows(wide, { times, sim, obs: sim, forcings: { precipitation: prec } });
     // Issued at index 8 with one warm-up value (the issue-time one); the window needs 5.
-    const run = { issueTime: times[8], nLeads: 3, members: [sim.slice(8, 12)], forcings: { precipitation: prec.slice(8, 12) } };
     const need = requiredRunInputs(wide);
-    expect(warmupShortfall(run, need)).toBe(4);
+    expect(need.simStepsToIssue).toBe(5);
     // The archive slice: 5 values at issue − 4 … issue.
-    const slice = { steps: 5, members: [sim.slice(4, 9)], forcings: { precipitation: prec.slice(4, 9) } };
-    const longer = withArchiveWarmup(run, need, slice);
-    expect(Array.from(longer.members[0])).toEqual(sim.slice(4, 12));
-    expect(warmupShortfall(longer, need)).toBe(0);
+    const simSeries = { values: sim.slice(8, 12), needed: 5, wanted: 5, archived: sim.slice(4, 9) };
+    expect(warmupGap(simSeries, 3)).toBe(true);
+    const member = fillWarmup(simSeries, 3, 5);
+    expect(Array.from(member.values)).toEqual(sim.slice(4, 12));
+    expect(member.taken).toEqual([1, 2, 3, 4]);
+    expect(member.missing).toEqual([]);
+    const precipitation = fillWarmup({ values: prec.slice(9, 12), needed: 5, wanted: 5, archived: prec.slice(4, 9) }, 3, 5);
+    const longer = { issueTime: times[8], nLeads: 3, members: [member.values], forcings: { precipitation: precipitation.values } };
+    expect(warmupGap({ ...simSeries, values: member.values }, 3)).toBe(false);
     const w = servingWindows(wide, longer);
     for (let k = 1; k <= 3; k++) {
       const r = cont.index.indexOf(8 + k);
       expect(Array.from(w.rows.subarray((k - 1) * 18, k * 18))).toEqual(Array.from(cont.rows.subarray(r * 18, (r + 1) * 18)));
     }
-    // Values the run gives win over the archive's.
-    const given = withArchiveWarmup({ ...run, members: [[99, ...sim.slice(8, 12)]] }, need, slice);
-    expect(Array.from(given.members[0]).slice(0, 5)).toEqual([sim[4], sim[5], sim[6], 99, sim[8]]);
+    // Values the run gives win over the archive's; a gap in the run's warm-up is filled from it;
+    // a needed value neither has is reported by its steps before issue.
+    const given = fillWarmup({ ...simSeries, values: [99, NaN, ...sim.slice(8, 12)] }, 3, 5);
+    expect(Array.from(given.values).slice(0, 5)).toEqual([sim[4], sim[5], 99, sim[7], sim[8]]);
+    expect(given.taken).toEqual([1, 3, 4]);
+    const holes = fillWarmup({ ...simSeries, archived: [NaN, sim[5], NaN, sim[7], sim[8]] }, 3, 5);
+    expect(holes.missing).toEqual([2, 4]);
   });
 });

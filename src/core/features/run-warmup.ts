@@ -1,9 +1,8 @@
-// A model whose inputs reach further back than a run's warm-up (an LSTM window of 30 days, a run
-// posted with 10 warm-up values) reads the missing early steps from the archive: each member's
+// A run posted with the lead times only (or a warm-up shorter than its model reads: an LSTM window
+// of 30 days, trees with 5 lags) takes the missing early steps from the archive: each member's
 // continuous simulation and the archived forcings, which are what a run's warm-up holds anyway
 // (the simulation driven by observed forcings up to issue time). Pure: the caller reads the
 // archive slice.
-import type { RequiredInputs, RunInput } from './features.ts';
 
 export interface WarmupSlice {
   /**
@@ -16,51 +15,55 @@ export interface WarmupSlice {
   forcings: Record<string, ArrayLike<number>>;
 }
 
-/** How many steps at or before issue time the run lacks for the model, at most (0 = none). */
-export function warmupShortfall(run: RunInput, need: RequiredInputs): number {
-  let short = 0;
-  for (const m of run.members) short = Math.max(short, need.simStepsToIssue - (m.length - run.nLeads));
-  for (const f of need.forcings) {
-    const given = run.forcings?.[f.name];
-    if (given === undefined || given === null) continue;
-    const series = isNested(given) ? given : [given];
-    for (const s of series) short = Math.max(short, f.stepsToIssue - (s.length - run.nLeads));
-  }
-  return Math.max(0, short);
+/** One series of a run (a member's simulated flow or a forcing) and what the model reads of it. */
+export interface WarmupSeries {
+  /** The run's values: warm-up, then one per lead time (missing = NaN). */
+  values: ArrayLike<number>;
+  /** Values at or before issue time the model needs. */
+  needed: number;
+  /** Values at or before issue time worth having (needed, plus what issue-time updating reads). */
+  wanted: number;
+  /** The archive's values at issue − (sliceSteps − 1)·step … issue, or null when it has none. */
+  archived: ArrayLike<number> | null;
 }
 
-function isNested(v: ArrayLike<number> | ArrayLike<number>[]): v is ArrayLike<number>[] {
-  return Array.isArray(v) && v.length > 0 && (Array.isArray(v[0]) || ArrayBuffer.isView(v[0]));
+export interface FilledSeries {
+  /** The series with `wanted` values at or before issue time, then the lead times. */
+  values: Float64Array;
+  /** Steps before issue time (0 = the issue time) whose value came from the archive. */
+  taken: number[];
+  /** Steps before issue time the model needs and neither the run nor the archive has. */
+  missing: number[];
 }
 
-/** The series with archive values put in front so that it holds `want` values at or before issue time. */
-function extend(series: ArrayLike<number>, nLeads: number, want: number, archive: ArrayLike<number> | null, steps: number): ArrayLike<number> {
-  const have = series.length - nLeads;
-  if (have >= want) return series;
-  const add = want - have;
-  const out = new Float64Array(series.length + add).fill(NaN);
-  // Archive index of the earliest value to add: time issue − (want − 1)·step.
-  const from = steps - want;
-  if (archive) for (let j = 0; j < add; j++) out[j] = from + j >= 0 ? Number(archive[from + j]) : NaN;
-  for (let i = 0; i < series.length; i++) out[add + i] = Number(series[i]);
-  return out;
+/** Whether a series lacks values the model wants before issue time, or has a needed one missing. */
+export function warmupGap(s: WarmupSeries, nLeads: number): boolean {
+  const have = s.values.length - nLeads;
+  if (have < s.wanted) return true;
+  for (let back = 0; back < s.needed; back++) if (!Number.isFinite(Number(s.values[have - 1 - back]))) return true;
+  return false;
 }
 
 /**
- * The run with each member and forcing lengthened from the archive slice to what the model
- * needs before issue time; values the run gives are kept as given. Series already long enough
- * are returned as they are.
+ * The series lengthened to `wanted` values at or before issue time, its missing values filled
+ * from the archive slice; values the run gives are kept as given.
  */
-export function withArchiveWarmup(run: RunInput, need: RequiredInputs, slice: WarmupSlice): RunInput {
-  const members = run.members.map((m, i) => extend(m, run.nLeads, need.simStepsToIssue, slice.members[i] ?? null, slice.steps));
-  const forcings: Record<string, ArrayLike<number> | ArrayLike<number>[]> = { ...(run.forcings ?? {}) };
-  for (const f of need.forcings) {
-    const given = run.forcings?.[f.name];
-    if (given === undefined || given === null) continue;
-    const archived = slice.forcings[f.name] ?? null;
-    forcings[f.name] = isNested(given)
-      ? given.map((s) => extend(s, run.nLeads, f.stepsToIssue, archived, slice.steps))
-      : extend(given, run.nLeads, f.stepsToIssue, archived, slice.steps);
+export function fillWarmup(s: WarmupSeries, nLeads: number, sliceSteps: number): FilledSeries {
+  const have = s.values.length - nLeads;
+  const warm = Math.max(have, s.wanted);
+  const values = new Float64Array(warm + nLeads).fill(NaN);
+  for (let i = 0; i < s.values.length; i++) values[warm - have + i] = Number(s.values[i]);
+  const taken: number[] = [];
+  const missing: number[] = [];
+  // Index warm − 1 − back is `back` steps before issue; the slice's index sliceSteps − 1 − back too.
+  for (let back = 0; back < s.wanted; back++) {
+    const j = warm - 1 - back;
+    if (Number.isFinite(values[j])) continue;
+    const v = s.archived && back < sliceSteps ? Number(s.archived[sliceSteps - 1 - back]) : NaN;
+    if (Number.isFinite(v)) {
+      values[j] = v;
+      taken.push(back);
+    } else if (back < s.needed) missing.push(back);
   }
-  return { ...run, members, forcings };
+  return { values, taken, missing };
 }

@@ -3,6 +3,7 @@ import {
   createStochasticWorkspace,
   runStochasticStage,
   type StochasticOptions,
+  type StochasticResult,
   type StochasticWorkspace,
 } from '../stochastic/stochastic-stage.ts';
 import type { VerificationCase } from './case.ts';
@@ -46,6 +47,12 @@ export interface HindcastInput {
   archive: ErrorArchive | null;
   /** Stage settings; `seed` is the seed of issue 0. Trajectories are always kept. */
   stochastic?: Omit<StochasticOptions, 'keepTrajectories'>;
+  /**
+   * Called once per issue, every lead time included (observed or not), after the stage: the raw
+   * and corrected members (arrays reused between issues) and the stage's result (null without
+   * archive). For keeping each issue's output.
+   */
+  onIssue?: (issue: number, out: { raw: Float64Array; corrected: Float64Array; stage: StochasticResult | null }) => void;
 }
 
 export interface HindcastSummary {
@@ -92,6 +99,7 @@ export function runHindcast(
     for (let i = 0; i < M * H; i++) rawIssue[i] = raw[base + i];
     input.correct(rawIssue, is, corrIssue);
     let traj: Float64Array | null = null;
+    let stage: StochasticResult | null = null;
     if (archive) {
       if (input.dayOfYear) for (let h = 0; h < H; h++) doyIssue[h] = input.dayOfYear[is * H + h];
       const r = runStochasticStage(
@@ -101,7 +109,9 @@ export function runHindcast(
         workspace,
       );
       traj = r.trajectories!;
+      stage = r;
     }
+    input.onIssue?.(is, { raw: rawIssue, corrected: corrIssue, stage });
     if (input.issueTimes) c.issueTime = input.issueTimes[is];
     for (let h = 0; h < H; h++) {
       const y = observed[is * H + h];
