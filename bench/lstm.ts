@@ -3,6 +3,7 @@
 // Run: npx tsx bench/lstm.ts [--hidden 16] [--window 14] [--repeats 30]
 // Prints figures only; nothing here is asserted.
 import { availableParallelism, cpus, loadavg } from 'node:os';
+import * as ort from 'onnxruntime-node';
 import { rowShape, servingInputs } from '../src/core/features/model-inputs.ts';
 import type { RunInput } from '../src/core/features/features.ts';
 import { fitLstmResidualModel, lstmSpec } from '../src/models/lstm-fit.ts';
@@ -106,6 +107,56 @@ async function timeInference(onnx: Uint8Array, s: typeof spec): Promise<{ window
 const fitted = await timeInference(fit.onnx, spec);
 console.log(`\ninference, ${MEMBERS} members × ${LEADS} leads (${MEMBERS * LEADS} windows of ${spec.window} × ${spec.steps.length}), median of ${repeats}, one intra-op thread:`);
 console.log(`  fitted model (hidden ${fit.model.hidden}, window ${spec.window}): windows ${fitted.windowsMs.toFixed(2)} ms + onnxruntime ${fitted.inferenceMs.toFixed(2)} ms = ${(fitted.windowsMs + fitted.inferenceMs).toFixed(2)} ms wall, ${fitted.cpuMs.toFixed(1)} ms CPU (goal ≤ 10 ms)`);
+
+// Why onnxruntime takes the time it does: the same model (hidden 16, window 10, random weights)
+// under each session setting and batching, CPU time (this process, all threads) minimum and
+// median of the repeats. Input is one float32 [N, window, F] tensor and the session is reused
+// throughout, as the service does.
+{
+  const s = lstmSpec(series, 10, ['air_temperature', 'precipitation'], true, periods.calibration);
+  const F = s.steps.length;
+  const h = 16;
+  const rand = (n: number) => Float32Array.from({ length: n }, (_, i) => Math.fround(0.1 * Math.sin(i * 12.9898)));
+  const model = { kind: 'lstm' as const, nInputs: F, hidden: h, wInput: rand(4 * h * F), wHidden: rand(4 * h * h), biasInput: rand(4 * h), biasHidden: new Float32Array(4 * h), wOut: rand(h), bOut: 0, info: {} };
+  const onnx = lstmModelToOnnx(model, { window: 10 });
+  const rows = servingInputs(s, runFor(10));
+  const N = rows.nRows;
+  const width = 10 * F;
+  // Multiply-adds of the LSTM: per window step, 4h·F (input) + 4h·h (recurrent); activations 5h.
+  const macs = N * 10 * 4 * h * (F + h);
+  console.log(`\nonnxruntime settings, LSTM hidden ${h}, window 10, ${F} step features, ${N} windows (${(macs / 1e6).toFixed(0)} M multiply-adds, ${((N * 10 * 5 * h) / 1e6).toFixed(1)} M sigmoid/tanh); load average ${loadavg()[0].toFixed(1)}:`);
+  const variants: [string, Record<string, unknown>, number][] = [
+    ['as served: 1 intra-op thread, optimisation all, one batch', {}, N],
+    ['graph optimisation disabled', { graphOptimizationLevel: 'disabled' }, N],
+    ['graph optimisation basic', { graphOptimizationLevel: 'basic' }, N],
+    ['no CPU memory arena', { enableCpuMemArena: false }, N],
+    ['batches of 2048 windows', {}, 2048],
+    ['batches of 512 windows', {}, 512],
+    ['2 intra-op threads (needs a second free core)', { intraOpNumThreads: 2 }, N],
+  ];
+  for (const [label, options, batch] of variants) {
+    const session = await ort.InferenceSession.create(onnx, { intraOpNumThreads: 1, interOpNumThreads: 1, executionMode: 'sequential', graphOptimizationLevel: 'all', ...options });
+    const cpu: number[] = [];
+    const wall: number[] = [];
+    for (let i = 0; i < repeats + 3; i++) {
+      const c = cpuMs();
+      const a = performance.now();
+      for (let b = 0; b < N; b += batch) {
+        const n = Math.min(batch, N - b);
+        await session.run({ [session.inputNames[0]]: new ort.Tensor('float32', rows.rows.subarray(b * width, (b + n) * width), [n, 10, F]) });
+      }
+      if (i >= 3) {
+        cpu.push(cpuMs() - c);
+        wall.push(performance.now() - a);
+      }
+    }
+    await session.release();
+    cpu.sort((x, y) => x - y);
+    wall.sort((x, y) => x - y);
+    console.log(`  ${label.padEnd(58)} CPU min ${cpu[0].toFixed(1).padStart(5)} ms, median ${cpu[cpu.length >> 1].toFixed(1).padStart(5)} ms; wall min ${wall[0].toFixed(1).padStart(5)} ms`);
+  }
+  console.log(`  (${(macs / 1e6).toFixed(0)} M multiply-adds in 10 ms would need ${((2 * macs) / 1e7).toFixed(0)} GFLOP/s on one core before any sigmoid or tanh)`);
+}
 
 // How the cost grows with the model: same weights shape, other sizes (random weights; speed only).
 for (const [h, t] of [[8, 5], [8, 10], [16, 5], [16, 10], [32, 10], [16, 30]]) {

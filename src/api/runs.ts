@@ -2,6 +2,7 @@ import type { FastifyInstance, FastifyRequest } from 'fastify';
 import { z } from 'zod';
 import { RunCorrection, type RunDraft, type RunForm } from '../services/correct-run.ts';
 import { badRequest, invalid, Problem, type FieldError } from '../services/problem.ts';
+import { serverTiming } from '../services/stage-clock.ts';
 import { GaugeParams, requireGauge } from './archive-common.ts';
 import { addRoute, type Services } from './context.ts';
 import { sendCaution } from './formats.ts';
@@ -109,6 +110,15 @@ async function decodeOther(form: 'csv' | 'netcdf', body: unknown, query: z.outpu
 export async function runRoutes(app: FastifyInstance, { services }: { services: Services }) {
   const { db, config, pool, metrics } = services;
   const correction = new RunCorrection({ db, config, pool, metrics });
+  // When each request arrived and when its body was read and parsed, for the Server-Timing header.
+  const arrived = new WeakMap<object, number>();
+  const parsed = new WeakMap<object, number>();
+  app.addHook('onRequest', async (req) => {
+    arrived.set(req, performance.now());
+  });
+  app.addHook('preHandler', async (req) => {
+    parsed.set(req, performance.now());
+  });
 
   addRoute(
     app,
@@ -149,6 +159,11 @@ export async function runRoutes(app: FastifyInstance, { services }: { services: 
         reply.code(200).header('etag', stored.etag).header('idempotent-replayed', 'true').header('location', `/forecasts/${stored.id}`).type('application/json');
         return stored.output;
       }
+      const t0 = arrived.get(req) ?? started;
+      const t1 = parsed.get(req) ?? started;
+      // parse: reading and parsing the body (and the auth hooks); validate: the wire schema.
+      const stages = { parse: t1 - t0, ...answer.stageMs, validate: started - t1 + (answer.stageMs.validate ?? 0) };
+      reply.header('server-timing', serverTiming({ ...stages, total: performance.now() - t0 }));
       reply.code(201).header('etag', answer.etag).header('location', `/forecasts/${answer.id}`).type('application/json');
       return answer.output;
     },

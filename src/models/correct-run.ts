@@ -4,7 +4,7 @@ import { dayOfYearUtc } from '../core/day-of-year.ts';
 import type { ErrorArchive } from '../core/stochastic/error-archive.ts';
 import type { FeatureSpec, RunInput } from '../core/features/features.ts';
 import { isSequenceSpec, rowShape, servingInputs, type ResidualSpec } from '../core/features/model-inputs.ts';
-import { runStochasticStage, type StochasticResult, type StochasticWorkspace } from '../core/stochastic/stochastic-stage.ts';
+import { emptyStageTimings, runStochasticStage, type StageTimings, type StochasticResult, type StochasticWorkspace } from '../core/stochastic/stochastic-stage.ts';
 import { predictResiduals } from './onnx-session.ts';
 import { applyUpdating, type UpdatingModel } from '../core/correction/updating.ts';
 import { observationTimeRows } from '../core/correction/updating-rows.ts';
@@ -29,7 +29,15 @@ export interface CorrectionOutput {
    * updater's transform, [model·nMembers + member] (for a stage that conditions on it); else null.
    */
   issueError: Float64Array | null;
-  timings: { featuresMs: number; inferenceMs: number; stochasticMs: number };
+  timings: CorrectionTimings;
+}
+
+/** Milliseconds per part of a correction: feature rows, inference, and the stochastic stage with its parts. */
+export interface CorrectionTimings {
+  featuresMs: number;
+  inferenceMs: number;
+  stochasticMs: number;
+  stage: StageTimings;
 }
 
 /** The run's raw values at the lead times: the last nLeads of each member's series. */
@@ -99,13 +107,14 @@ export async function correctRun(
   t = performance.now();
   const stepMs = options.stepSeconds * 1000;
   const doy = Int32Array.from({ length: H }, (_, k) => dayOfYearUtc(run.issueTime + (k + 1) * stepMs));
+  const stageTimings = emptyStageTimings();
   const stage = runStochasticStage(
     archive,
     // With updating, each member draws from the archive's stratum of its own issue-time error.
     // An observation j steps old makes lead h lead h + j from it, in the updater and in the archive.
     { members: stageInput, nModels: sessions.length || 1, nMembers: nM, nLeads: H, dayOfYear: doy, ...(issueError ? { issueError, leadOffset: options.updating!.ageSteps } : {}) },
-    { seed: options.seed, nDraws: options.nDraws, probs: options.probs, thresholds: options.thresholds, seasonalWindowDays: options.seasonalWindowDays },
+    { seed: options.seed, nDraws: options.nDraws, probs: options.probs, thresholds: options.thresholds, seasonalWindowDays: options.seasonalWindowDays, timings: stageTimings },
     workspace,
   );
-  return { corrected, stage, issueError, timings: { featuresMs, inferenceMs, stochasticMs: performance.now() - t } };
+  return { corrected, stage, issueError, timings: { featuresMs, inferenceMs, stochasticMs: performance.now() - t, stage: stageTimings } };
 }

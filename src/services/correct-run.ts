@@ -25,6 +25,7 @@ import { checkTimes, isoUtc, knownForcingUnits } from './series-input.ts';
 import { FLOAT32_MAX, flowLimit, forcingLimit, valueProblem } from './plausible-values.ts';
 import { rfc3339Ms } from '../core/rfc3339.ts';
 import { flowUnit, type FlowUnit } from '../core/flow-units.ts';
+import { StageClock } from './stage-clock.ts';
 
 /**
  * Stored with every run for verification: the quantiles at the midpoint levels (i − 0.5)/100,
@@ -68,7 +69,7 @@ export interface RunMetrics {
 }
 
 /** What the caller sends back: a new run, or the stored answer to an earlier identical request. */
-export type RunAnswer = { created: true; id: string; etag: string; output: string } | { created: false; stored: StoredRun };
+export type RunAnswer = { created: true; id: string; etag: string; output: string; stageMs: Record<string, number> } | { created: false; stored: StoredRun };
 
 /** What the answer says about the run's warm-up: how much the run gave, how much the model reads, what came from the archive. */
 export interface WarmupUsed {
@@ -285,7 +286,10 @@ export class RunCorrection {
     const errors = new ErrorList();
     for (const e of shapeErrors) errors.add(e.path, e.message);
     if (idempotencyKey !== null && !/^[\x21-\x7e]{1,200}$/.test(idempotencyKey)) errors.add('headers.idempotency-key', 'must be 1–200 visible ASCII characters');
+    // Where the milliseconds go (the Server-Timing header; bench/correction.ts prints them).
+    const clock = new StageClock(started);
     const requestHash = createHash('sha256').update(JSON.stringify(draft)).digest('hex');
+    clock.lap('hash');
     // An earlier identical request answers from the store (only a well-formed body can be one).
     if (!errors.items.length) {
       const body = draft as RunRequest;
@@ -329,7 +333,9 @@ export class RunCorrection {
     if (rawArchive) reaches.push(Math.max(...rawChoice.map(archiveReach)));
     const horizonLimit = Math.min(...reaches);
     const known = new Set(memberIds);
+    clock.lap('reads');
     const checked = checkRun(draft, gauge, known, horizonLimit, config.MAX_TRAJECTORIES, errors);
+    clock.lap('validate');
     const given = checked.run;
     // The model's inputs before issue time that the run does not carry come from the archive
     // (all members and forcings at once, so every missing time is named in one answer).
@@ -358,6 +364,7 @@ export class RunCorrection {
 
     // Thresholds given as water levels become flows through the rating curve in force at issue time.
     const rating = await ratingAtIssue(db, gauge, run.issueTime);
+    clock.lap('reads');
     const probs = body.quantiles ?? [...DEFAULT_QUANTILE_PROBS];
     const seed = body.seed ?? defaultSeed(gauge.id, isoUtc(run.issueTime), body.source);
     const options = {
@@ -378,6 +385,10 @@ export class RunCorrection {
       },
     });
 
+    // The recent observations shown with the answer, read while the worker corrects.
+    const stepMs = gauge.stepSeconds * 1000;
+    const recentRead = readObservations(db, gauge.id, { fromMs: run.issueTime - 9 * stepMs, toMs: run.issueTime + 1 });
+    recentRead.catch(() => {}); // awaited below; a refused run must not leave it unhandled
     let result: CorrectionResult;
     let used: ArchiveInfo;
     let status: 'corrected' | 'degraded' = 'corrected';
@@ -414,6 +425,17 @@ export class RunCorrection {
       throw err;
     }
     if (status === 'degraded') metrics.degraded.inc({ reason: active ? 'model-failed' : 'no-model' });
+    // The pool's time less the worker's own parts: waiting for a worker and passing messages.
+    const rt = result.timings;
+    clock.lap('worker');
+    clock.add('worker', -(rt.featuresMs + rt.inferenceMs + rt.stochasticMs));
+    clock.add('features', rt.featuresMs);
+    clock.add('inference', rt.inferenceMs);
+    clock.add('stage-setup', rt.stage.setupMs);
+    clock.add('knn', rt.stage.knnMs);
+    clock.add('sampling', rt.stage.samplingMs);
+    clock.add('shuffle', rt.stage.shuffleMs);
+    clock.add('summary', rt.stage.summaryMs);
 
     const nQ = probs.length;
     const nAll = options.probs.length;
@@ -430,13 +452,14 @@ export class RunCorrection {
     if (!quantiles.every(storable) || !percentiles.every((row) => row.every(storable)) || !result.exceedance.every(Number.isFinite)) {
       throw invalid([{ path: 'body.members', message: 'the correction of these values gave quantiles that cannot be stored (not finite or beyond float32); nothing was stored' }]);
     }
-    const stepMs = gauge.stepSeconds * 1000;
-    const recentRows = await readObservations(db, gauge.id, { fromMs: run.issueTime - 9 * stepMs, toMs: run.issueTime + 1 });
+    clock.lap('serialise');
+    const recentRows = await recentRead;
+    clock.lap('reads');
     const id = randomUUID();
     const createdAt = new Date().toISOString();
     const raw = new Float64Array(run.members.length * H);
     run.members.forEach((m, i) => raw.set(Float64Array.from({ length: H }, (_, k) => m[m.length - H + k]), i * H));
-    const timings = { ...result.timings, totalMs: 0 };
+    const timings = { featuresMs: rt.featuresMs, inferenceMs: rt.inferenceMs, stochasticMs: rt.stochasticMs, totalMs: 0 };
     const view = buildForecastView({
       id,
       gauge: { ...gauge, thresholds: rating.thresholds },
@@ -475,9 +498,9 @@ export class RunCorrection {
     const output = JSON.stringify(view);
     const etag = `"${createHash('sha256').update(output).digest('base64url').slice(0, 27)}"`;
     const summary = view.thresholds.map((t) => ({ label: t.label, value: t.value, maxExceedance: Math.max(0, ...t.exceedance), anyTime: t.anyTime, attention: t.attention }));
+    clock.lap('serialise');
     try {
-      await db.transaction((tx) =>
-        insertRun(tx, {
+      await insertRun(db, {
           id,
           gaugeId: gauge.id,
           issueTimeMs: run.issueTime,
@@ -498,18 +521,18 @@ export class RunCorrection {
               : run.issueObservation != null
                 ? { timeMs: run.issueTime, value: run.issueObservation, source: 'run' }
                 : null,
-        }),
-      );
+      });
     } catch (err) {
       // A concurrent identical post won the race: answer with what it stored.
       const stored = (idempotencyKey && (await findRunByIdempotencyKey(db, gauge.id, idempotencyKey))) || (await findRunByKey(db, gauge.id, run.issueTime, body.source));
       if (stored) return { created: false, stored: replay(stored, requestHash, 'this run') };
       throw err;
     }
+    clock.lap('writes');
     metrics.runs.inc({ status });
     for (const [stage, ms] of Object.entries({ features: timings.featuresMs, inference: timings.inferenceMs, stochastic: timings.stochasticMs, total: timings.totalMs })) {
       metrics.stage.observe({ stage }, ms / 1000);
     }
-    return { created: true, id, etag, output };
+    return { created: true, id, etag, output, stageMs: clock.ms };
   }
 }

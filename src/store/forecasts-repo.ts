@@ -79,19 +79,23 @@ export function decodePercentiles(bytes: Uint8Array): number[][] {
   return out;
 }
 
-/** Stores a run and announces it (NOTIFY is delivered when the transaction commits). */
-export async function insertRun(tx: Queryable, r: NewRun): Promise<void> {
-  await tx.query(
-    `insert into forecast_runs (id, gauge_id, issue_time, source, request_hash, idempotency_key, status, model_version_id, seed,
-                                input, output, etag, summary, percentiles, issue_observation_time, issue_observation_value, issue_observation_source)
-     values ($1, $2, to_timestamp($3), $4, $5, $6, $7, $8, $9, $10, $11, $12, $13::jsonb, $14, to_timestamp($15), $16, $17)`,
+/**
+ * Stores a run and announces it, in one statement (one round trip; atomic on its own, and the
+ * NOTIFY is delivered when it commits).
+ */
+export async function insertRun(db: Queryable, r: NewRun): Promise<void> {
+  await db.query(
+    `with stored as (
+       insert into forecast_runs (id, gauge_id, issue_time, source, request_hash, idempotency_key, status, model_version_id, seed,
+                                  input, output, etag, summary, percentiles, issue_observation_time, issue_observation_value, issue_observation_source)
+       values ($1, $2, to_timestamp($3), $4, $5, $6, $7, $8, $9, $10, $11, $12, $13::jsonb, $14, to_timestamp($15), $16, $17)
+       returning id)
+     select pg_notify('forecast_runs', $18) from stored`,
     [r.id, r.gaugeId, r.issueTimeMs / 1000, r.source, r.requestHash, r.idempotencyKey, r.status, r.modelVersionId, r.seed,
       JSON.stringify(r.input), r.output, r.etag, JSON.stringify(r.summary), Buffer.from(encodePercentiles(r.percentiles)),
-      r.issueObservation ? r.issueObservation.timeMs / 1000 : null, r.issueObservation?.value ?? null, r.issueObservation?.source ?? null],
+      r.issueObservation ? r.issueObservation.timeMs / 1000 : null, r.issueObservation?.value ?? null, r.issueObservation?.source ?? null,
+      JSON.stringify({ gaugeId: r.gaugeId, runId: r.id, issueTime: new Date(r.issueTimeMs).toISOString().replace('.000Z', 'Z') })],
   );
-  await tx.query(`select pg_notify('forecast_runs', $1)`, [
-    JSON.stringify({ gaugeId: r.gaugeId, runId: r.id, issueTime: new Date(r.issueTimeMs).toISOString().replace('.000Z', 'Z') }),
-  ]);
 }
 
 export async function findRunByKey(db: Queryable, gaugeId: string, issueTimeMs: number, source: string): Promise<StoredRun | null> {

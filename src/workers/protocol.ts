@@ -4,7 +4,7 @@
 // by the `cancelled` flag, which the main thread turns back into core's CancelledError.
 import type { ArchiveSeries, Period, ReforecastSet } from '../core/archive-types.ts';
 import type { RunInput } from '../core/features/features.ts';
-import type { CorrectionOptions } from '../models/correct-run.ts';
+import type { CorrectionOptions, CorrectionTimings } from '../models/correct-run.ts';
 import type { HindcastTaskInput } from '../models/hindcast-compute.ts';
 import type { ArchiveOptions } from '../models/residual-evaluation.ts';
 import type { LstmFitOptions } from '../models/lstm-fit.ts';
@@ -29,7 +29,7 @@ export interface CorrectionResult {
   exceedanceAnyTime: Float64Array;
   firstLikelyLead: (number | null)[];
   nDraws: number;
-  timings: { featuresMs: number; inferenceMs: number; stochasticMs: number };
+  timings: CorrectionTimings;
 }
 
 /** The answer to one request, matched by id; `path` names the run field when inputs did not fit the feature spec. */

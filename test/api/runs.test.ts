@@ -56,6 +56,18 @@ describe('correcting a raw run', () => {
     expect(first.ensemble.raw).toHaveLength(6);
     expect(first.ensemble.corrected).toHaveLength(6);
     expect(Object.keys(first.timings)).toEqual(['featuresMs', 'inferenceMs', 'stochasticMs', 'totalMs']);
+    // Where the milliseconds went (W3C Server Timing): every stage of the run path, none negative,
+    // the parts within the total.
+    const stages = new Map(String(res.headers['server-timing']).split(', ').map((p) => [p.split(';dur=')[0], Number(p.split(';dur=')[1])]));
+    expect([...stages.keys()].sort()).toEqual(['features', 'hash', 'inference', 'knn', 'parse', 'reads', 'sampling', 'serialise', 'shuffle', 'stage-setup', 'summary', 'total', 'validate', 'worker', 'writes']);
+    let parts = 0;
+    for (const [name, ms] of stages) {
+      if (name === 'total') continue;
+      // The worker's share is the pool's time less the worker's own clock: a hair below 0 is rounding.
+      expect(ms, name).toBeGreaterThanOrEqual(name === 'worker' ? -0.5 : 0);
+      parts += ms;
+    }
+    expect(parts).toBeLessThanOrEqual(stages.get('total')! + 0.5);
   });
 
   it('answers a repeated post with the stored run and creates nothing', async () => {

@@ -94,6 +94,26 @@ export interface StochasticOptions {
   shuffle?: boolean;
   /** Return the N × nLeads trajectories (default false). */
   keepTrajectories?: boolean;
+  /** When given, the milliseconds spent in each part of the stage are added to it. */
+  timings?: StageTimings;
+}
+
+/** Where the stage's time goes (milliseconds, added to by each call that is given it). */
+export interface StageTimings {
+  /** Checks, transform of the members, random streams, template choice. */
+  setupMs: number;
+  /** Candidate cases per lead and the k nearest of each member. */
+  knnMs: number;
+  /** Kernel draws of the neighbours' errors. */
+  samplingMs: number;
+  /** The Schaake shuffle within members (and the trajectories' maxima). */
+  shuffleMs: number;
+  /** Sorting each lead's values, quantiles and exceedance probabilities. */
+  summaryMs: number;
+}
+
+export function emptyStageTimings(): StageTimings {
+  return { setupMs: 0, knnMs: 0, samplingMs: 0, shuffleMs: 0, summaryMs: 0 };
 }
 
 export interface StochasticResult {
@@ -174,6 +194,7 @@ function positiveInt(v: number, name: string): number {
 
 /** Tie-breaking keys hold a draw's position in a random permutation in their low 24 bits. */
 const TIE_SPAN = 2 ** 24;
+const INV_TIE_SPAN = 2 ** -24;
 
 export function runStochasticStage(
   archive: ErrorArchive,
@@ -181,6 +202,15 @@ export function runStochasticStage(
   options: StochasticOptions,
   workspace: StochasticWorkspace = new StochasticWorkspace(),
 ): StochasticResult {
+  // Clock reads only when asked for (about five per lead).
+  const timings = options.timings ?? null;
+  let clock = timings ? performance.now() : 0;
+  const lap = (): number => {
+    const now = performance.now();
+    const d = now - clock;
+    clock = now;
+    return d;
+  };
   // ---- validation ---------------------------------------------------------------------------
   const nModels = positiveInt(input.nModels ?? 1, 'nModels');
   const nMembers = positiveInt(input.nMembers, 'nMembers');
@@ -411,6 +441,7 @@ export function runStochasticStage(
   // Largest possible rank: series length (lead-free) or number of issue rows (per-lead ranks).
   const maxRank = leadFree ? archive.templateValues.length : Math.ceil(archive.templateValues.length / archive.nLeads);
   if (maxRank * TIE_SPAN > Number.MAX_SAFE_INTEGER) throw new RangeError('archive template series too long for the shuffle keys');
+  if (timings) timings.setupMs += lap();
   for (let h = 0; h < H; h++) {
     let k = kStride;
     if (S === 1) {
@@ -464,6 +495,7 @@ export function runStochasticStage(
       }
     }
     kPerLead[h] = k;
+    if (timings) timings.knnMs += lap();
     if (leadScale) scaleTerms(kind, lambda, leadScale[Math.min(leadFree ? h : groupOfLead(h), leadScale.length - 1)], nbErr, nMM, kStride, k);
     if (k !== cumK) {
       kernelCumulative(kernel, k, cum);
@@ -478,6 +510,7 @@ export function runStochasticStage(
       cumK = k;
     }
     sampleLead(kind, rngState, N, slot, 16 * k, cum[k - 1], cum, guide, tx, h * nMM, nbErr, kStride, vals, offset, boxCoxFloor);
+    if (timings) timings.samplingMs += lap();
     if (shuffle) {
       shuffleWithinMembers(nMM, memberStart, byMember, vals, rank, tBase, h, tieOf, drawOfTie, maxRank, rngTies, groupVals, rankKeys, trajMax, trajectories, H, invLambdaOut, offset);
     } else {
@@ -487,11 +520,13 @@ export function runStochasticStage(
         if (trajectories) trajectories[j * H + h] = invLambdaOut ? boxCoxFlow(v, invLambdaOut, offset) : v;
       }
     }
+    if (timings) timings.shuffleMs += lap();
     sortNonNegative(vals, N, valsTmp, valsWords, tmpWords, counts);
     for (let q = 0; q < nP; q++) {
       quantiles[h * nP + q] = invLambdaOut ? boxCoxQuantile(vals, probs[q], N, invLambdaOut, offset) : quantileSorted(vals, probs[q], 0, N);
     }
     for (let ti = 0; ti < nT; ti++) exceedance[ti * H + h] = countAboveSorted(vals, workThresholds[ti], 0, N) / N;
+    if (timings) timings.summaryMs += lap();
   }
 
   const exceedanceAnyTime = new Float64Array(nT);
@@ -510,6 +545,7 @@ export function runStochasticStage(
     firstLikelyLead.push(first);
   }
 
+  if (timings) timings.summaryMs += lap();
   return {
     nLeads: H,
     nDraws: N,
@@ -638,14 +674,40 @@ function shuffleWithinMembers(
       const rk = rank[tBase[j] + h];
       rankKeys[p] = (rk === MISSING_RANK ? rng.nextInt(maxRank) : rk) * TIE_SPAN + tieOf[j];
     }
-    const gv = groupVals.subarray(s, e).sort();
-    const keys = rankKeys.subarray(s, e).sort();
-    for (let i = 0; i < e - s; i++) {
-      const j = drawOfTie[keys[i] % TIE_SPAN];
-      const v = gv[i];
+    sortRange(groupVals, s, e);
+    sortRange(rankKeys, s, e);
+    for (let p = s; p < e; p++) {
+      // The key's low 24 bits without `%`: keys pass 2^31, where `%` on doubles is a call to fmod.
+      const key = rankKeys[p];
+      const j = drawOfTie[key - Math.floor(key * INV_TIE_SPAN) * TIE_SPAN];
+      const v = groupVals[p];
       if (v > trajMax[j]) trajMax[j] = v;
       if (trajectories !== null) trajectories[j * H + h] = invLambdaOut ? boxCoxFlow(v, invLambdaOut, offset) : v;
     }
+  }
+}
+
+/** Below this many values an insertion sort beats a call of TypedArray.prototype.sort on a subarray. */
+const INSERTION_SORT_MAX = 48;
+
+/**
+ * Sorts a[s … e−1] ascending in place (values are finite and never −0, so the order equals
+ * TypedArray.prototype.sort's). A member's draws at one lead are a few dozen values: sorting
+ * them in place avoids a subarray object and a call into the runtime per member and lead.
+ */
+function sortRange(a: Float64Array, s: number, e: number): void {
+  if (e - s > INSERTION_SORT_MAX) {
+    a.subarray(s, e).sort();
+    return;
+  }
+  for (let i = s + 1; i < e; i++) {
+    const v = a[i];
+    let j = i - 1;
+    while (j >= s && a[j] > v) {
+      a[j + 1] = a[j];
+      j--;
+    }
+    a[j + 1] = v;
   }
 }
 

@@ -6,6 +6,7 @@
 
 import type { GradientBoostingParams, TrainingData, TreeModel, StopReason, Tree } from './types.ts';
 import { computeCuts, binFeatures } from './quantile-bins.ts';
+import { availableParallelism } from 'node:os';
 import { TreeGrower } from './grow-tree.ts';
 import { createPrng, type Prng } from '../../core/prng.ts';
 import { checkTrainingData, checkParam } from './check-data.ts';
@@ -53,6 +54,14 @@ export function drawFeatures(n: number, k: number, rng: Prng, buf: Int32Array): 
   return buf.slice(0, k).sort();
 }
 
+/** Below this many training values (rows × features) a second thread costs more than it saves. */
+export const TWO_THREADS_MIN_VALUES = 1_000_000;
+
+/** Threads for growing trees on data of this size: 2 on a machine with two cores or more and enough data, else 1. */
+export function defaultTreeThreads(nRows: number, nFeatures: number): number {
+  return nRows * nFeatures >= TWO_THREADS_MIN_VALUES && availableParallelism() >= 2 ? 2 : 1;
+}
+
 function rmse(pred: Float64Array, y: ArrayLike<number>): number {
   let s = 0;
   for (let i = 0; i < y.length; i++) {
@@ -68,6 +77,8 @@ export function trainGradientBoosting(
   seed: number,
   onProgress?: (done: number, total: number) => void,
   shouldStop?: () => boolean,
+  /** 1 or 2; the trees are the same either way (default: defaultTreeThreads). */
+  threads?: number,
 ): TreeModel {
   const p: GradientBoostingParams = { ...defaultGradientBoostingParams, ...params };
   checkParams(p);
@@ -81,7 +92,26 @@ export function trainGradientBoosting(
   const baseScore = Math.fround(p.baseScore === undefined || Number.isNaN(p.baseScore) ? mean : p.baseScore);
 
   const binned = binFeatures(x, nRows, nFeatures, computeCuts(x, nRows, nFeatures, p.maxBins));
-  const grower = new TreeGrower(binned);
+  const grower = new TreeGrower(binned, threads ?? defaultTreeThreads(nRows, nFeatures), p.maxDepth + 2);
+  try {
+    return boost(data, p, seed, rng, baseScore, binned, grower, onProgress, shouldStop);
+  } finally {
+    grower.close();
+  }
+}
+
+function boost(
+  data: TrainingData,
+  p: GradientBoostingParams,
+  seed: number,
+  rng: Prng,
+  baseScore: number,
+  binned: ReturnType<typeof binFeatures>,
+  grower: TreeGrower,
+  onProgress?: (done: number, total: number) => void,
+  shouldStop?: () => boolean,
+): TreeModel {
+  const { nRows, nFeatures, y, valid } = data;
   const { rows, g, h } = grower;
   h.fill(1); // squared error: unit hessian for every row
 

@@ -11,14 +11,35 @@
 // (boosting) only the smaller child's histogram is built from rows; the larger child's is the
 // parent's minus the smaller (the subtraction trick). Nodes are split depth-first so that at most
 // maxDepth + 1 histograms are alive at once.
+//
+// With threads = 2 a helper thread (hist-helper.ts) takes the second half of the tree's features:
+// it builds, subtracts and scans their histograms while this thread does the first half, over
+// shared memory. Each feature's histogram is summed in the same row order on either thread, and
+// the two halves' best splits combine as one scan would (the later half wins only when strictly
+// better), so the trees are identical to those grown on one thread.
 
-import type { BinnedFeatures } from './quantile-bins.ts';
-import { MISSING_CODE } from './quantile-bins.ts';
+import { Worker } from 'node:worker_threads';
+import { MISSING_CODE, type BinnedFeatures } from './quantile-bins.ts';
 import type { Prng } from '../../core/prng.ts';
+import {
+  buildHistRange,
+  findSplitRange,
+  REL_EPS,
+  SLOTS,
+  SPLIT_BIN,
+  SPLIT_FEATURE,
+  SPLIT_FIELDS,
+  SPLIT_GL,
+  SPLIT_HL,
+  SPLIT_MISSING_LEFT,
+  SPLIT_SCORE,
+  subtractHistRange,
+  type HistData,
+} from './hist-kernels.ts';
+import * as P from './hist-protocol.ts';
 
-const SLOTS = 512; // 256 codes × (g, h)
-/** Relative guard against splits whose gain is floating-point noise. */
-const REL_EPS = 1e-10;
+/** Nodes with fewer rows than this are done on one thread: waking the helper would cost more. */
+const PARALLEL_MIN_ROWS = 2048;
 
 export interface GrowOptions {
   maxDepth: number;
@@ -51,164 +72,163 @@ export interface WorkTree {
   end: number[];
 }
 
-/** Reusable buffers sized for the training rows; one per training run. */
+/** Reusable buffers sized for the training rows; one per training run (close() it when threads > 1). */
 export class TreeGrower {
   readonly rows: Int32Array;
   /** Gradient and hessian per row id (filled by the caller before grow). */
   readonly g: Float64Array;
   readonly h: Float64Array;
+  private readonly codes: Uint8Array;
   private readonly tmpRows: Int32Array;
   private readonly pool: Float64Array[] = [];
   private readonly nBins: Int32Array;
   private readonly featBuf: Int32Array;
   private readonly goLeft = new Uint8Array(256);
+  private readonly split = new Float64Array(SPLIT_FIELDS);
   private unitHessian = false;
+  private readonly histData: HistData;
+  private readonly histSize: number;
+  /** The helper thread and the shared memory it works on; null on one thread. */
+  private helper: {
+    worker: Worker;
+    start: P.HelperStart;
+    /** Index in the arena of each shared histogram. */
+    index: Map<Float64Array, number>;
+    seq: number;
+    /** The features of the tree being grown are in start.feats. */
+    treeFeatures: Int32Array | null;
+  } | null = null;
 
-  constructor(readonly data: BinnedFeatures) {
+  /**
+   * threads = 2 starts a helper thread that shares the histogram work (falls back to one thread,
+   * silently, if it does not start within a minute). histograms: how many a tree may hold at once
+   * (maxDepth + 2 suffice); more are made unshared, and their nodes grown on one thread.
+   */
+  constructor(readonly data: BinnedFeatures, threads = 1, histograms = 33) {
     const n = data.nRows;
-    this.rows = new Int32Array(n);
-    this.g = new Float64Array(n);
-    this.h = new Float64Array(n);
+    const shared = threads > 1;
+    const buffer = (bytes: number) => (shared ? new SharedArrayBuffer(bytes) : new ArrayBuffer(bytes));
+    this.rows = new Int32Array(buffer(4 * n));
+    this.g = new Float64Array(buffer(8 * n));
+    this.h = new Float64Array(buffer(8 * n));
+    this.codes = shared ? new Uint8Array(buffer(data.codes.length)) : data.codes;
+    if (shared) this.codes.set(data.codes);
     this.tmpRows = new Int32Array(n);
     this.nBins = new Int32Array(data.nFeatures);
     for (let f = 0; f < data.nFeatures; f++) this.nBins[f] = data.cuts[f].length + 1;
     this.featBuf = new Int32Array(data.nFeatures);
+    this.histSize = data.nFeatures * SLOTS;
+    this.histData = { codes: this.codes, nRows: n, rows: this.rows, g: this.g, h: this.h, nBins: this.nBins };
+    if (shared) this.startHelper(histograms);
+  }
+
+  private startHelper(histograms: number): void {
+    const arena = new Float64Array(new SharedArrayBuffer(8 * histograms * this.histSize));
+    const start: P.HelperStart = {
+      ...this.histData,
+      arena,
+      histSize: this.histSize,
+      feats: new Int32Array(new SharedArrayBuffer(4 * Math.max(1, this.data.nFeatures))),
+      control: new Int32Array(new SharedArrayBuffer(4 * P.CONTROL_SIZE)),
+      numbers: new Float64Array(new SharedArrayBuffer(8 * 8)),
+      split: new Float64Array(new SharedArrayBuffer(8 * SPLIT_FIELDS)),
+    };
+    const worker = new Worker(new URL('./hist-helper-entry.mjs', import.meta.url), { workerData: start });
+    worker.unref();
+    // The trainers are synchronous: wait here for the helper to say it is ready.
+    if (Atomics.wait(start.control, P.READY, 0, 60_000) === 'timed-out' && Atomics.load(start.control, P.READY) === 0) {
+      void worker.terminate();
+      return;
+    }
+    const index = new Map<Float64Array, number>();
+    for (let i = 0; i < histograms; i++) {
+      const hist = arena.subarray(i * this.histSize, (i + 1) * this.histSize);
+      index.set(hist, i);
+      this.pool.push(hist);
+    }
+    this.helper = { worker, start, index, seq: 0, treeFeatures: null };
+  }
+
+  /** Stops the helper thread (a no-op on one thread). */
+  close(): void {
+    const hp = this.helper;
+    if (!hp) return;
+    this.helper = null;
+    hp.start.control[P.OP] = P.OP_EXIT;
+    Atomics.store(hp.start.control, P.COMMAND, ++hp.seq);
+    Atomics.notify(hp.start.control, P.COMMAND);
+    void hp.worker.terminate();
   }
 
   private takeHist(): Float64Array {
-    return this.pool.pop() ?? new Float64Array(this.data.nFeatures * SLOTS);
+    return this.pool.pop() ?? new Float64Array(this.histSize);
   }
 
   private giveHist(hist: Float64Array): void {
     this.pool.push(hist);
   }
 
-  /** Histogram of positions [b, e) over the listed features (only those slots are written). */
-  private buildHist(hist: Float64Array, feats: Int32Array, nFeats: number, b: number, e: number): void {
-    const { codes, nRows } = this.data;
-    const rows = this.rows;
-    const g = this.g;
-    const h = this.h;
-    const unit = this.unitHessian;
-    let j = 0;
-    // Four features per pass over the rows: the row id and its (g, h) are loaded once for four
-    // histogram updates; each feature's 4 KB of histogram stays in L1.
-    for (; j + 8 <= nFeats; j += 8) {
-      const b0 = feats[j + 0] * SLOTS;
-      const o0 = feats[j + 0] * nRows;
-      hist.fill(0, b0, b0 + SLOTS);
-      const b1 = feats[j + 1] * SLOTS;
-      const o1 = feats[j + 1] * nRows;
-      hist.fill(0, b1, b1 + SLOTS);
-      const b2 = feats[j + 2] * SLOTS;
-      const o2 = feats[j + 2] * nRows;
-      hist.fill(0, b2, b2 + SLOTS);
-      const b3 = feats[j + 3] * SLOTS;
-      const o3 = feats[j + 3] * nRows;
-      hist.fill(0, b3, b3 + SLOTS);
-      const b4 = feats[j + 4] * SLOTS;
-      const o4 = feats[j + 4] * nRows;
-      hist.fill(0, b4, b4 + SLOTS);
-      const b5 = feats[j + 5] * SLOTS;
-      const o5 = feats[j + 5] * nRows;
-      hist.fill(0, b5, b5 + SLOTS);
-      const b6 = feats[j + 6] * SLOTS;
-      const o6 = feats[j + 6] * nRows;
-      hist.fill(0, b6, b6 + SLOTS);
-      const b7 = feats[j + 7] * SLOTS;
-      const o7 = feats[j + 7] * nRows;
-      hist.fill(0, b7, b7 + SLOTS);
-      for (let i = b; i < e; i++) {
-        const r = rows[i];
-        const gi = g[r];
-        const hi = unit ? 1 : h[r];
-        let k = 0;
-        k = b0 + (codes[o0 + r] << 1);
-        hist[k] += gi;
-        hist[k + 1] += hi;
-        k = b1 + (codes[o1 + r] << 1);
-        hist[k] += gi;
-        hist[k + 1] += hi;
-        k = b2 + (codes[o2 + r] << 1);
-        hist[k] += gi;
-        hist[k + 1] += hi;
-        k = b3 + (codes[o3 + r] << 1);
-        hist[k] += gi;
-        hist[k + 1] += hi;
-        k = b4 + (codes[o4 + r] << 1);
-        hist[k] += gi;
-        hist[k + 1] += hi;
-        k = b5 + (codes[o5 + r] << 1);
-        hist[k] += gi;
-        hist[k + 1] += hi;
-        k = b6 + (codes[o6 + r] << 1);
-        hist[k] += gi;
-        hist[k + 1] += hi;
-        k = b7 + (codes[o7 + r] << 1);
-        hist[k] += gi;
-        hist[k + 1] += hi;
-      }
-    }
-    for (; j + 4 <= nFeats; j += 4) {
-      const b0 = feats[j] * SLOTS;
-      const b1 = feats[j + 1] * SLOTS;
-      const b2 = feats[j + 2] * SLOTS;
-      const b3 = feats[j + 3] * SLOTS;
-      const o0 = feats[j] * nRows;
-      const o1 = feats[j + 1] * nRows;
-      const o2 = feats[j + 2] * nRows;
-      const o3 = feats[j + 3] * nRows;
-      hist.fill(0, b0, b0 + SLOTS);
-      hist.fill(0, b1, b1 + SLOTS);
-      hist.fill(0, b2, b2 + SLOTS);
-      hist.fill(0, b3, b3 + SLOTS);
-      for (let i = b; i < e; i++) {
-        const r = rows[i];
-        const gi = g[r];
-        const hi = unit ? 1 : h[r];
-        let k = b0 + (codes[o0 + r] << 1);
-        hist[k] += gi;
-        hist[k + 1] += hi;
-        k = b1 + (codes[o1 + r] << 1);
-        hist[k] += gi;
-        hist[k + 1] += hi;
-        k = b2 + (codes[o2 + r] << 1);
-        hist[k] += gi;
-        hist[k + 1] += hi;
-        k = b3 + (codes[o3 + r] << 1);
-        hist[k] += gi;
-        hist[k + 1] += hi;
-      }
-    }
-    for (; j < nFeats; j++) {
-      const base = feats[j] * SLOTS;
-      const o = feats[j] * nRows;
-      hist.fill(0, base, base + SLOTS);
-      for (let i = b; i < e; i++) {
-        const r = rows[i];
-        const k = base + (codes[o + r] << 1);
-        hist[k] += g[r];
-        hist[k + 1] += unit ? 1 : h[r];
-      }
-    }
+  /**
+   * Where the helper's half of the tree's features starts, when it should take it for a node of
+   * `rows` rows whose histograms are `hists`; 0 = this thread does all.
+   */
+  private helperSplitAt(nFeats: number, rows: number, ...hists: Float64Array[]): number {
+    const hp = this.helper;
+    if (!hp || hp.treeFeatures === null || nFeats < 2 || rows < PARALLEL_MIN_ROWS) return 0;
+    for (const h of hists) if (!hp.index.has(h)) return 0;
+    return nFeats >> 1;
   }
 
-  /** hist[feat slots] −= small[feat slots]: turns the parent's histogram into the larger child's. */
-  private subtractHist(hist: Float64Array, small: Float64Array, feats: Int32Array, nFeats: number): void {
-    for (let j = 0; j < nFeats; j++) {
-      const base = feats[j] * SLOTS;
-      const nb = this.nBins[feats[j]];
-      for (let k = base, end = base + 2 * nb; k < end; k++) hist[k] -= small[k];
-      const m = base + 2 * MISSING_CODE;
-      hist[m] -= small[m];
-      hist[m + 1] -= small[m + 1];
+  /** Hands the helper an operation over features [j0, j1) of the tree. */
+  private submit(op: number, hist: Float64Array, small: Float64Array | null, b: number, e: number, j0: number, j1: number): void {
+    const hp = this.helper!;
+    const c = hp.start.control;
+    c[P.OP] = op;
+    c[P.HIST] = hp.index.get(hist)!;
+    c[P.SMALL] = small ? hp.index.get(small)! : -1;
+    c[P.BEGIN] = b;
+    c[P.END] = e;
+    c[P.J0] = j0;
+    c[P.J1] = j1;
+    c[P.UNIT] = this.unitHessian ? 1 : 0;
+    Atomics.store(c, P.COMMAND, ++hp.seq);
+    Atomics.notify(c, P.COMMAND);
+  }
+
+  /** Waits for the helper to finish the last operation. */
+  private awaitHelper(): void {
+    const hp = this.helper!;
+    const c = hp.start.control;
+    for (let spin = 0; spin < 2000 && Atomics.load(c, P.DONE) !== hp.seq; spin++);
+    for (let done = Atomics.load(c, P.DONE); done !== hp.seq; done = Atomics.load(c, P.DONE)) Atomics.wait(c, P.DONE, done);
+  }
+
+  /** Histogram of positions [b, e) over the listed features (only those slots are written). */
+  private buildHist(hist: Float64Array, feats: Int32Array, nFeats: number, b: number, e: number): void {
+    const m = feats === this.helper?.treeFeatures ? this.helperSplitAt(nFeats, e - b, hist) : 0;
+    if (m === 0) {
+      buildHistRange(this.histData, this.unitHessian, hist, feats, 0, nFeats, b, e);
+      return;
     }
+    this.submit(P.OP_BUILD, hist, null, b, e, m, nFeats);
+    buildHistRange(this.histData, this.unitHessian, hist, feats, 0, m, b, e);
+    this.awaitHelper();
+  }
+
+  /** The smaller child's histogram from rows [b, e), then parent −= small (the larger child's). */
+  private buildSmallAndSubtract(parent: Float64Array, small: Float64Array, feats: Int32Array, nFeats: number, b: number, e: number): void {
+    const m = this.helperSplitAt(nFeats, e - b, parent, small);
+    if (m > 0) this.submit(P.OP_BUILD_SUBTRACT, parent, small, b, e, m, nFeats);
+    const mine = m > 0 ? m : nFeats;
+    buildHistRange(this.histData, this.unitHessian, small, feats, 0, mine, b, e);
+    subtractHistRange(this.nBins, parent, small, feats, 0, mine);
+    if (m > 0) this.awaitHelper();
   }
 
   /** Stable in-place partition of positions [b, e); returns the first right position. */
   private partition(b: number, e: number, f: number, bin: number, missingLeft: boolean): number {
-    const { codes, nRows } = this.data;
-    const col = codes.subarray(f * nRows, (f + 1) * nRows);
+    const nRows = this.data.nRows;
+    const col = this.codes.subarray(f * nRows, (f + 1) * nRows);
     const { rows, tmpRows } = this;
     // Branch-free: every row is written to both sides and only the matching cursor advances,
     // because the left/right outcome is close to a coin flip and mispredicts badly.
@@ -261,8 +281,17 @@ export class TreeGrower {
       return tree.feature.length - 1;
     };
 
-    const tf = opt.treeFeatures;
+    let tf = opt.treeFeatures;
     const nTf = tf.length;
+    if (this.helper) {
+      // Boosting: the helper reads the tree's features from shared memory. A forest draws
+      // features per split and stays on this thread.
+      this.helper.treeFeatures = forest ? null : this.helper.start.feats.subarray(0, nTf);
+      if (!forest) {
+        this.helper.treeFeatures!.set(tf);
+        tf = this.helper.treeFeatures!;
+      }
+    }
     // Stack of nodes waiting to be split: id, depth, G, H, histogram (boosting only).
     const stack: { id: number; depth: number; sg: number; sh: number; hist: Float64Array | null }[] = [];
     const root = addNode(0, nUsed, G, H);
@@ -301,7 +330,7 @@ export class TreeGrower {
         hist = scratch;
         this.buildHist(hist, feats, nFeats, b, e);
       }
-      this.findSplit(hist!, feats, nFeats, node.sg, node.sh, lambda, mcw, best);
+      this.findSplit(hist!, feats, nFeats, node.sg, node.sh, lambda, mcw, best, e - b);
       const found = best.f >= 0 && best.gain >= gamma;
       if (!found) {
         if (!forest) this.giveHist(hist!);
@@ -339,9 +368,8 @@ export class TreeGrower {
       // Build the child with fewer rows; the other is parent − small, computed in place.
       const leftSmaller = mid - b <= e - mid;
       const small = this.takeHist();
-      if (leftSmaller) this.buildHist(small, tf, nTf, b, mid);
-      else this.buildHist(small, tf, nTf, mid, e);
-      this.subtractHist(parent, small, tf, nTf);
+      if (leftSmaller) this.buildSmallAndSubtract(parent, small, tf, nTf, b, mid);
+      else this.buildSmallAndSubtract(parent, small, tf, nTf, mid, e);
       const histL = leftSmaller ? small : parent;
       const histR = leftSmaller ? parent : small;
       if (canR) stack.push({ id: ri, depth, sg: gr, sh: hr, hist: histR });
@@ -354,8 +382,8 @@ export class TreeGrower {
   }
 
   /**
-   * Best split over the listed features: scans bins left to right with missing values sent right,
-   * and again with them sent left when the node has any. Writes into `best` (f = −1 if none).
+   * Best split over the listed features (scanned by findSplitRange; with the helper, the second
+   * half of them on its thread). Writes into `best` (f = −1 if none).
    */
   private findSplit(
     hist: Float64Array,
@@ -366,52 +394,35 @@ export class TreeGrower {
     lambda: number,
     mcw: number,
     best: { gain: number; f: number; bin: number; ml: boolean; gl: number; hl: number },
+    rows: number,
   ): void {
     const parentScore = (G * G) / (H + lambda);
-    best.f = -1;
-    best.gain = 0;
-    let bestScore = parentScore; // score of a candidate = GL²/(HL+λ) + GR²/(HR+λ)
-    const nBins = this.nBins;
-    for (let j = 0; j < nFeats; j++) {
-      const f = feats[j];
-      const nb = nBins[f];
-      if (nb < 2) continue;
-      const base = f * SLOTS;
-      const gm = hist[base + 2 * MISSING_CODE];
-      const hm = hist[base + 2 * MISSING_CODE + 1];
-      const hasMissing = hm > 0;
-      let gl = 0;
-      let hl = 0;
-      for (let bin = 0, k = base; bin < nb - 1; bin++, k += 2) {
-        const hb = hist[k + 1];
-        if (hb === 0) continue; // empty bin: same partition as the previous candidate
-        gl += hist[k];
-        hl += hb;
-        // Missing values to the right.
-        let hr = H - hl;
-        if (hl >= mcw && hr >= mcw && hl > 0 && hr > 0) {
-          const gr = G - gl;
-          const s = (gl * gl) / (hl + lambda) + (gr * gr) / (hr + lambda);
-          if (s > bestScore) {
-            bestScore = s;
-            best.f = f; best.bin = bin; best.ml = false; best.gl = gl; best.hl = hl;
-          }
-        }
-        if (hasMissing) {
-          const gl2 = gl + gm;
-          const hl2 = hl + hm;
-          hr = H - hl2;
-          if (hl2 >= mcw && hr >= mcw && hr > 0) {
-            const gr = G - gl2;
-            const s = (gl2 * gl2) / (hl2 + lambda) + (gr * gr) / (hr + lambda);
-            if (s > bestScore) {
-              bestScore = s;
-              best.f = f; best.bin = bin; best.ml = true; best.gl = gl2; best.hl = hl2;
-            }
-          }
-        }
-      }
+    const m = feats === this.helper?.treeFeatures ? this.helperSplitAt(nFeats, rows, hist) : 0;
+    let helperSplit: Float64Array | null = null;
+    if (m > 0) {
+      const num = this.helper!.start.numbers;
+      num[P.NUM_G] = G;
+      num[P.NUM_H] = H;
+      num[P.NUM_LAMBDA] = lambda;
+      num[P.NUM_MCW] = mcw;
+      num[P.NUM_START] = parentScore;
+      this.submit(P.OP_SPLIT, hist, null, 0, 0, m, nFeats);
+      helperSplit = this.helper!.start.split;
     }
+    const out = this.split;
+    findSplitRange(this.nBins, hist, feats, 0, m > 0 ? m : nFeats, G, H, lambda, mcw, parentScore, out);
+    if (helperSplit) {
+      this.awaitHelper();
+      // The later half wins only when strictly better: the first of equal scores, as one scan.
+      if (helperSplit[SPLIT_FEATURE] >= 0 && helperSplit[SPLIT_SCORE] > out[SPLIT_SCORE]) out.set(helperSplit);
+    }
+    const bestScore = out[SPLIT_SCORE];
+    best.f = out[SPLIT_FEATURE];
+    best.bin = out[SPLIT_BIN];
+    best.ml = out[SPLIT_MISSING_LEFT] === 1;
+    best.gl = out[SPLIT_GL];
+    best.hl = out[SPLIT_HL];
+    best.gain = 0;
     const gain = bestScore - parentScore;
     if (best.f < 0 || !(gain > REL_EPS * bestScore)) {
       best.f = -1;
