@@ -25,9 +25,10 @@ import { Problem } from '../services/problem.ts';
 import { isStoreUnavailable } from '../store/unavailable.ts';
 import { BodyBudget, limitBodiesInFlight, storeUnavailable, ThrottledWarnings } from './overload.ts';
 import { reforecastRoutes } from './reforecasts.ts';
+import { checkRequestTarget, clientErrorHandler, frameworkErrors, jsonDepthExceeds, pathOf, requestSerializer, tooDeep } from './request-shape.ts';
 import { simulationRoutes } from './simulations.ts';
 import { streamTicketRoutes } from './stream-tickets.ts';
-import { redactUrl, withRedactedUrls } from './log-redaction.ts';
+import { TokenRevocations } from './token-revocations.ts';
 import { tokenRoutes } from './token-routes.ts';
 import { ratingCurveRoutes } from './rating-curves.ts';
 import { verificationRoutes } from './verification.ts';
@@ -41,18 +42,25 @@ export interface AppOptions {
 
 export async function buildApp(options: AppOptions): Promise<FastifyInstance> {
   const { db, config } = options;
+  // Requests are logged with credential query parameters redacted (this serializer wins over fastify's).
+  const logger = options.logger?.child({}, { serializers: { req: requestSerializer } });
   const app = Fastify({
-    ...(options.logger ? { loggerInstance: withRedactedUrls(options.logger) } : { logger: false }),
+    ...(logger ? { loggerInstance: logger } : { logger: false }),
     bodyLimit: Math.round(config.BODY_LIMIT_MB * 1024 * 1024),
     return503OnClosing: true,
     routerOptions: { ignoreTrailingSlash: true },
+    frameworkErrors,
+    clientErrorHandler,
   });
   const events = new ForecastEvents();
   await events.start(db);
+  const revocations = new TokenRevocations();
+  await revocations.start(db);
   const pool = new CorrectionPool(config.WORKERS, config.CORRECTION_QUEUE);
-  const services: Services = { db, config, docs: new ApiDocs(), pool, metrics: new Metrics(), events };
+  const services: Services = { db, config, docs: new ApiDocs(), pool, metrics: new Metrics(), events, revocations };
   app.addHook('onClose', async () => {
     await events.close();
+    await revocations.close();
     await pool.close();
   });
   app.addHook('onResponse', async (request, reply) => {
@@ -61,6 +69,13 @@ export async function buildApp(options: AppOptions): Promise<FastifyInstance> {
     services.metrics.latency.observe({ route }, reply.elapsedTime / 1000);
   });
 
+  // fastify's JSON parser (with its prototype-poisoning checks), behind a nesting limit.
+  const parseJson = app.getDefaultJsonParser('error', 'error');
+  app.removeContentTypeParser('application/json');
+  app.addContentTypeParser('application/json', { parseAs: 'string' }, (req, body, done) => {
+    if (jsonDepthExceeds(body as string)) done(tooDeep(), undefined);
+    else parseJson(req, body as string, done);
+  });
   for (const type of ['text/csv', 'text/plain']) {
     app.addContentTypeParser(type, { parseAs: 'string' }, (_req, body, done) => done(null, body));
   }
@@ -81,15 +96,16 @@ export async function buildApp(options: AppOptions): Promise<FastifyInstance> {
       .code(problem.status)
       .headers(problem.headers)
       .type('application/problem+json')
-      .send(problem.body(redactUrl(request.url)));
+      .send(problem.body(pathOf(request.url)));
   });
   app.setNotFoundHandler((request, reply) => {
     reply
       .code(404)
       .type('application/problem+json')
-      .send(new Problem(404, 'not-found', 'Not found', `no route ${request.method} ${request.url.split('?')[0]}`).body());
+      .send(new Problem(404, 'not-found', 'Not found', `no route ${request.method} ${pathOf(request.url)}`).body());
   });
 
+  app.addHook('onRequest', checkRequestTarget);
   app.addHook('onRequest', authHook(services));
   limitBodiesInFlight(app, new BodyBudget(Math.round(config.BODY_BUDGET_MB * 1024 * 1024)));
 

@@ -5,6 +5,7 @@ import { getGauge, type Gauge } from '../store/gauges-repo.ts';
 import type { Window } from '../store/archive-repo.ts';
 import { badRequest, notFound } from '../services/problem.ts';
 import { GaugeId } from './schemas.ts';
+import { rfc3339Ms } from '../core/rfc3339.ts';
 
 export const GaugeParams = z.object({ id: GaugeId });
 
@@ -35,8 +36,8 @@ export function wantsCsv(req: FastifyRequest, format?: string): boolean {
 /** The store's window for a parsed time-window query. */
 export function readWindow(q: { from?: string; to?: string; format?: 'json' | 'csv' }): { window: Window; format?: 'json' | 'csv' } {
   const window: Window = {
-    fromMs: q.from ? Date.parse(q.from) : undefined,
-    toMs: q.to ? Date.parse(q.to) : undefined,
+    fromMs: q.from ? rfc3339Ms(q.from) : undefined,
+    toMs: q.to ? rfc3339Ms(q.to) : undefined,
   };
   return { window, format: q.format };
 }

@@ -9,11 +9,16 @@ const CACHE_MS = 30_000;
 
 /**
  * Bearer-token check. Each route declares the least role it needs; GET routes need `read`.
- * Lookups are cached briefly so polling dashboards do not cost a query each (a revoked token
- * stops working within CACHE_MS).
+ * Lookups are cached briefly so polling dashboards do not cost a query each; a revocation is
+ * announced by the store and drops the token from the cache at once (within CACHE_MS should the
+ * announcement be missed).
  */
 export function authHook(services: Services) {
   const cache = new Map<string, { principal: { tokenId: string; role: Role }; until: number }>();
+  // A revoked token (revoked on any instance) stops working here at once, not when its entry expires.
+  services.revocations.subscribe((tokenId) => {
+    for (const [hash, entry] of cache) if (entry.principal.tokenId === tokenId) cache.delete(hash);
+  });
 
   return async function checkToken(request: FastifyRequest): Promise<void> {
     // Unknown paths fall through to the 404 answer; every real route declares its role.

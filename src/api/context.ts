@@ -5,6 +5,7 @@ import type { CorrectionPool } from '../workers/correction-pool.ts';
 import type { Db } from '../store/db.ts';
 import type { ForecastEvents } from './forecast-events.ts';
 import type { Metrics } from './metrics-registry.ts';
+import type { TokenRevocations } from './token-revocations.ts';
 import type { ApiDocs, RouteDoc } from './openapi.ts';
 import { parseWith } from './validate.ts';
 
@@ -16,6 +17,7 @@ export interface Services {
   pool: CorrectionPool;
   metrics: Metrics;
   events: ForecastEvents;
+  revocations: TokenRevocations;
 }
 
 type Parsed<S> = S extends z.ZodType ? z.output<S> : unknown;

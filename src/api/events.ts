@@ -3,6 +3,7 @@ import type { FastifyInstance } from 'fastify';
 import { z } from 'zod';
 import { latestRunEventId, runEventsAfter, type RunEvent } from '../store/forecasts-repo.ts';
 import { invalid } from '../services/problem.ts';
+import { tokenActive } from '../store/tokens-repo.ts';
 import { addRoute, type Services } from './context.ts';
 import type { RunAnnouncement } from './forecast-events.ts';
 
@@ -10,6 +11,8 @@ import type { RunAnnouncement } from './forecast-events.ts';
 export const RETRY_MS = 5_000;
 /** A client that missed more runs than this is told to reload (event `resync`) instead of being sent them all. */
 export const REPLAY_LIMIT = 500;
+/** How long a stream trusts that its token is still active before asking the store again. */
+const RECHECK_MS = 5_000;
 
 const EventId = z.string().regex(/^\d{1,18}$/, 'must be an event id sent by this service (digits)');
 const EventsQuery = z.strictObject({
@@ -21,14 +24,35 @@ const EventsQuery = z.strictObject({
  * Server-sent events: one `forecast` event per new run, from any service instance. Each event's
  * `id:` is the run's event number in the store, so a client that reconnects with Last-Event-ID is
  * first sent every run stored after that event (after a restart too, and on any instance).
+ * A stream lives only as long as its token: it is closed when the token is revoked (announced by
+ * the store) and, should that announcement be missed, when a send finds the token no longer active.
  */
 export async function eventRoutes(app: FastifyInstance, { services }: { services: Services }) {
   const open = new Set<ServerResponse>();
+  /** Open streams by the token that opened them (none when AUTH=off). */
+  const byToken = new Map<string, Set<() => void>>();
+  const checked = new Map<string, { active: Promise<boolean>; until: number }>();
+  const stopRevocations = services.revocations.subscribe((tokenId) => {
+    checked.set(tokenId, { active: Promise.resolve(false), until: Infinity });
+    for (const close of byToken.get(tokenId) ?? []) close();
+  });
   // Streams never go idle, so they are ended before the server waits for connections to close.
   app.addHook('preClose', async () => {
+    stopRevocations();
     for (const res of open) res.end(': the service is shutting down\n\n');
     open.clear();
   });
+
+  /** Whether the token may still receive events; one store look-up per token per RECHECK_MS, shared by its streams. */
+  function stillActive(tokenId: string): Promise<boolean> {
+    const now = Date.now();
+    let entry = checked.get(tokenId);
+    if (!entry || entry.until < now) {
+      entry = { active: tokenActive(services.db, tokenId).catch(() => true), until: now + RECHECK_MS };
+      checked.set(tokenId, entry);
+    }
+    return entry.active;
+  }
 
   addRoute(
     app,
@@ -36,7 +60,7 @@ export async function eventRoutes(app: FastifyInstance, { services }: { services
     {
       method: 'GET',
       url: '/events',
-      summary: 'Server-sent events: `ready` (id: newest run event) on a fresh stream, then `forecast` per new run (id: its event number); Last-Event-ID resumes from the store; browsers open it with ?ticket=',
+      summary: 'Server-sent events: `ready` (id: newest run event) on a fresh stream, then `forecast` per new run (id: its event number); Last-Event-ID resumes from the store; browsers open it with ?ticket=; the stream closes (event `revoked`) when its token is revoked',
       tag: 'forecasts',
       role: 'read',
       acceptsStreamTicket: true,
@@ -53,10 +77,17 @@ export async function eventRoutes(app: FastifyInstance, { services }: { services
 
       reply.hijack();
       const res = reply.raw;
+      const tokenId = req.principal?.tokenId ?? null;
       res.writeHead(200, { 'content-type': 'text/event-stream', 'cache-control': 'no-cache', connection: 'keep-alive', 'x-accel-buffering': 'no' });
       res.write(`retry: ${RETRY_MS}\n: connected\n\n`);
       open.add(res);
       services.events.openStreams++;
+      let closed = false;
+      const revoked = () => {
+        if (closed) return;
+        res.end('event: revoked\ndata: {"detail":"the access token of this stream was revoked"}\n\n');
+        cleanUp();
+      };
 
       // Everything after `sent` has not been written yet; live announcements that arrive while the
       // store is read are held back and written after the replay, each run once.
@@ -71,14 +102,37 @@ export async function eventRoutes(app: FastifyInstance, { services }: { services
         }
         res.write(formatRunEvent(a));
       };
-      const unsubscribe = services.events.subscribe((a) => (held ? held.push(a) : write(a)));
-      const keepAlive = setInterval(() => res.write(': keep-alive\n\n'), 15_000);
-      req.raw.on('close', () => {
+      // With a token, each live event is sent only while the token is still active (checks are
+      // shared and cached, so events keep their order).
+      const live = (a: RunAnnouncement) => {
+        if (held) held.push(a);
+        else if (tokenId === null) write(a);
+        else void stillActive(tokenId).then((active) => (closed ? undefined : active ? write(a) : revoked()));
+      };
+      const unsubscribe = services.events.subscribe(live);
+      const keepAlive = setInterval(() => {
+        if (tokenId === null) res.write(': keep-alive\n\n');
+        else void stillActive(tokenId).then((active) => (closed ? undefined : active ? res.write(': keep-alive\n\n') : revoked()));
+      }, 15_000);
+      if (tokenId !== null) {
+        let set = byToken.get(tokenId);
+        if (!set) byToken.set(tokenId, (set = new Set()));
+        set.add(revoked);
+      }
+      function cleanUp() {
+        if (closed) return;
+        closed = true;
         clearInterval(keepAlive);
         unsubscribe();
         open.delete(res);
         services.events.openStreams--;
-      });
+        if (tokenId !== null) {
+          const set = byToken.get(tokenId);
+          set?.delete(revoked);
+          if (set && !set.size) byToken.delete(tokenId);
+        }
+      }
+      req.raw.on('close', cleanUp);
 
       try {
         if (sent === null) {
@@ -107,7 +161,7 @@ export async function eventRoutes(app: FastifyInstance, { services }: { services
       }
       const pending = held ?? [];
       held = null;
-      for (const a of pending) write(a);
+      for (const a of pending) live(a);
     },
   );
 }

@@ -6,6 +6,7 @@ import { GaugeParams, readWindow, requireGauge, wantsCsv } from './archive-commo
 import { addIngestRoute, timeColumnsFromCsv, timeColumnsFromJson, type TimeColumns } from './archive-ingest.ts';
 import { addRoute, type Services } from './context.ts';
 import { Series, TimeWindowQuery } from './schemas.ts';
+import { forcingLimit } from '../services/plausible-values.ts';
 import { checkTimes, checkValues, knownForcingUnits } from '../services/series-input.ts';
 
 const VariableName = z.string().regex(/^[a-z][a-z0-9_]{0,47}$/, 'must be lowercase letters, digits and underscores, e.g. precipitation');
@@ -50,7 +51,7 @@ export async function forcingRoutes(app: FastifyInstance, { services }: { servic
         } else if (stored.has(v.name) && stored.get(v.name) !== unit) {
           errors.add(batch.unitWhere(k), `${v.name} is stored in ${stored.get(v.name)}, got ${JSON.stringify(unit)}`);
         }
-        const values = checkValues(v.values, { nonNegative: known?.nonNegative ?? false, quantity: v.name }, (i) => batch.valueWhere(k, i), errors);
+        const values = checkValues(v.values, forcingLimit(gauge, v.name, unit), (i) => batch.valueWhere(k, i), errors);
         return { name: v.name, unit, values };
       });
       return { times, columns };

@@ -7,6 +7,7 @@ import { forecastCsv, forecastText, quantileSetCsv, storedQuantileSet, withMembe
 import { chooseFormat, FormatOnly, sendCaution, type Format } from './formats.ts';
 import { invalid, notFound } from '../services/problem.ts';
 import { ForecastAnswer, Rfc3339, RunSummaryAnswer } from './schemas.ts';
+import { rfc3339Ms } from '../core/rfc3339.ts';
 
 const RunListAnswer = z.object({
   gaugeId: z.string(),
@@ -156,7 +157,7 @@ export async function forecastRoutes(app: FastifyInstance, { services }: { servi
     async (req) => {
       const gauge = await requireGauge(db, req.params);
       const q = req.query;
-      const runs = await listRuns(db, gauge.id, q.from ? Date.parse(q.from) : undefined, q.to ? Date.parse(q.to) : undefined, q.limit);
+      const runs = await listRuns(db, gauge.id, q.from ? rfc3339Ms(q.from) : undefined, q.to ? rfc3339Ms(q.to) : undefined, q.limit);
       return { gaugeId: gauge.id, runs };
     },
   );

@@ -1,7 +1,8 @@
 import type { FastifyInstance } from 'fastify';
 import { z } from 'zod';
 import { parseDurationSeconds } from '../core/iso-duration.ts';
-import { archiveCounts, dataCounts, deleteGauge, getGauge, insertGauge, listGaugesAfter, updateGauge, type GaugeInput } from '../store/gauges-repo.ts';
+import { archiveCounts, dataCounts, deleteGauge, getGauge, insertGauge, listGaugesAfter, updateGauge, type Gauge, type GaugeInput } from '../store/gauges-repo.ts';
+import { FLOAT32_MAX, limitsInForce } from '../services/plausible-values.ts';
 import { getGaugeStatus } from '../store/gauge-status-repo.ts';
 import { hasRuns } from '../store/verification-repo.ts';
 import { addRoute, type Services } from './context.ts';
@@ -20,15 +21,40 @@ const GaugeFields = {
   thresholds: Thresholds,
   /** Issue-time updating uses the latest observation at most this many steps before a run's issue time. */
   updatingMaxAgeSteps: z.number().int().min(0).max(1000),
+  /** Plausible values, refused above (flow and precipitation) or outside (temperature); null = derived or default. */
+  maxFlow: z.number().finite().positive().max(FLOAT32_MAX).nullable(),
+  maxPrecipitation: z.number().finite().positive().max(FLOAT32_MAX).nullable(),
+  airTemperatureRange: z
+    .strictObject({ min: z.number().min(-273.15).max(100), max: z.number().min(-273.15).max(100) })
+    .refine((r) => r.min < r.max, { message: 'max must be above min', path: ['max'] })
+    .nullable(),
 };
 
-const GaugeCreate = z.strictObject({ id: GaugeId, ...GaugeFields, thresholds: Thresholds.default([]), timeZone: TimeZone.default('UTC'), updatingMaxAgeSteps: GaugeFields.updatingMaxAgeSteps.default(2) });
+const GaugeCreate = z.strictObject({
+  id: GaugeId,
+  ...GaugeFields,
+  thresholds: Thresholds.default([]),
+  timeZone: TimeZone.default('UTC'),
+  updatingMaxAgeSteps: GaugeFields.updatingMaxAgeSteps.default(2),
+  maxFlow: GaugeFields.maxFlow.default(null),
+  maxPrecipitation: GaugeFields.maxPrecipitation.default(null),
+  airTemperatureRange: GaugeFields.airTemperatureRange.default(null),
+});
 const GaugePatch = z.strictObject(GaugeFields).partial();
 const Params = z.object({ id: GaugeId });
 const ListQuery = z.strictObject(pageQuery(100, 1000));
 /** Where a page of gauges ended (they come in id order). */
 const GaugesCursor = z.strictObject({ after: GaugeId });
 const DeleteQuery = z.strictObject({ force: z.enum(['true', 'false']).optional() });
+
+/**
+ * A gauge as answered: its fields, and the value limits in force (src/services/plausible-values.ts),
+ * so an operator sees what a batch will be held to; the archive's raw maximum stays inside.
+ */
+function gaugeView(g: Gauge) {
+  const { archiveMaxFlow: _inside, ...fields } = g;
+  return { ...fields, limitsInForce: limitsInForce(g) };
+}
 
 export async function gaugeRoutes(app: FastifyInstance, { services }: { services: Services }) {
   const { db } = services;
@@ -45,7 +71,7 @@ export async function gaugeRoutes(app: FastifyInstance, { services }: { services
       await checkThresholds(tx, body.id, body.thresholds);
       const gauge = await insertGauge(tx, input);
       reply.code(201).header('location', `/gauges/${gauge.id}`);
-      return gauge;
+      return gaugeView(gauge);
     });
   });
 
@@ -53,7 +79,7 @@ export async function gaugeRoutes(app: FastifyInstance, { services }: { services
     const { limit, cursor } = req.query;
     const after = cursor === undefined ? null : decodeCursor(cursor, GaugesCursor).after;
     const rows = await listGaugesAfter(db, after, limit + 1);
-    const gauges = rows.slice(0, limit);
+    const gauges = rows.slice(0, limit).map(gaugeView);
     return { gauges, next: rows.length > limit ? encodeCursor({ after: gauges[gauges.length - 1].id }) : null };
   });
 
@@ -64,7 +90,7 @@ export async function gaugeRoutes(app: FastifyInstance, { services }: { services
     // status as in the overview: no-forecast, else the drift watch's ok / drifting / insufficient-data.
     const drift = await getGaugeStatus(db, id);
     const status = (await hasRuns(db, id)) ? (drift?.status ?? 'insufficient-data') : 'no-forecast';
-    return { ...gauge, archive: await archiveCounts(db, id), status, drift };
+    return { ...gaugeView(gauge), archive: await archiveCounts(db, id), status, drift };
   });
 
   addRoute(app, services, { method: 'PATCH', url: '/gauges/:id', summary: 'Change a gauge', tag: 'gauges', role: 'admin', params: Params, body: GaugePatch, response: GaugeAnswer }, async (req) => {
@@ -82,7 +108,7 @@ export async function gaugeRoutes(app: FastifyInstance, { services }: { services
           throw conflict('the time step cannot change while the gauge holds archive data', [{ path: 'body.timeStep', message: `archive holds ${JSON.stringify(counts)}` }]);
         }
       }
-      return updateGauge(tx, next);
+      return gaugeView(await updateGauge(tx, next));
     });
   });
 

@@ -29,6 +29,7 @@ const HindcastSummary = z.object({
 import { CAUTION } from '../services/caution.ts';
 import { scoresCsv, scoresText, sendReport, sizeStudyText, warningsText, type ReportNote } from './report-formats.ts';
 import { warningRows } from './warning-tables.ts';
+import { rfc3339Ms } from '../core/rfc3339.ts';
 
 const SourceEnum = z.enum(['raw', 'corrected', 'stochastic']);
 
@@ -67,14 +68,14 @@ const HindcastBody = z
       })
       .default({ sources: ['corrected', 'stochastic'], sizes: [5, 10, 25, 50, 100], repeats: 20 }),
   })
-  .refine((b) => !(b.from && b.to) || Date.parse(b.from) < Date.parse(b.to), { message: 'from must be before to', path: ['to'] })
+  .refine((b) => !(b.from && b.to) || rfc3339Ms(b.from) < rfc3339Ms(b.to), { message: 'from must be before to', path: ['to'] })
   .refine((b) => b.minLead === undefined || b.maxLead === undefined || b.minLead <= b.maxLead, { message: 'minLead must not exceed maxLead', path: ['maxLead'] });
 
 const HindcastParams = z.object({ id: GaugeParams.shape.id, jobId: z.string().regex(/^\d{1,18}$/, 'must be a job id') });
 const HindcastQuery = z.strictObject({ format: FormatOnly });
 const IssuesQuery = z
   .strictObject({ format: z.enum(['json', 'csv']).optional(), from: Rfc3339.optional(), to: Rfc3339.optional() })
-  .refine((q) => !(q.from && q.to) || Date.parse(q.from) < Date.parse(q.to), { message: 'from must be before to', path: ['to'] });
+  .refine((q) => !(q.from && q.to) || rfc3339Ms(q.from) < rfc3339Ms(q.to), { message: 'from must be before to', path: ['to'] });
 
 /** What a finished hindcast job stores as its result (see src/services/hindcast.ts). */
 interface HindcastResult {
@@ -246,7 +247,7 @@ export async function hindcastRoutes(app: FastifyInstance, { services }: { servi
       const r = job.result as HindcastResult;
       if (!r.perIssue) throw notFound(`hindcast ${jobId} was stored before each issue's output was kept; run it again to read it issue by issue`);
       const q = req.query;
-      const issues = await hindcastIssues(db, jobId, { horizon: r.horizon, perIssue: r.perIssue, thresholds: r.thresholds }, gauge.stepSeconds, q.from ? Date.parse(q.from) : undefined, q.to ? Date.parse(q.to) : undefined);
+      const issues = await hindcastIssues(db, jobId, { horizon: r.horizon, perIssue: r.perIssue, thresholds: r.thresholds }, gauge.stepSeconds, q.from ? rfc3339Ms(q.from) : undefined, q.to ? rfc3339Ms(q.to) : undefined);
       sendCaution(reply);
       reply.header('vary', 'accept');
       if (chooseFormat(req, q.format) === 'csv') {

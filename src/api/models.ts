@@ -9,8 +9,9 @@ import { GaugeParams, requireGauge } from './archive-common.ts';
 import { addRoute, type Services } from './context.ts';
 import { notFound } from '../services/problem.ts';
 import { JobAnswer, ModelVersionAnswer, Rfc3339 } from './schemas.ts';
+import { rfc3339Ms } from '../core/rfc3339.ts';
 
-const PeriodBody = z.strictObject({ from: Rfc3339, to: Rfc3339 }).refine((p) => Date.parse(p.from) < Date.parse(p.to), { message: 'from must be before to', path: ['to'] });
+const PeriodBody = z.strictObject({ from: Rfc3339, to: Rfc3339 }).refine((p) => rfc3339Ms(p.from) < rfc3339Ms(p.to), { message: 'from must be before to', path: ['to'] });
 
 const Transform = z.discriminatedUnion('kind', [
   z.strictObject({ kind: z.literal('none') }),

@@ -7,7 +7,9 @@ import { GaugeParams, readWindow, requireGauge, wantsCsv } from './archive-commo
 import { addIngestRoute, timeColumnsFromCsv, timeColumnsFromJson, type TimeColumns } from './archive-ingest.ts';
 import { addRoute, type Services } from './context.ts';
 import { TimeWindowQuery } from './schemas.ts';
+import { flowLimit } from '../services/plausible-values.ts';
 import { checkFlowUnit, checkTimes, checkValues } from '../services/series-input.ts';
+import { raiseArchiveMaxFlow } from '../store/gauges-repo.ts';
 
 const ObservationsBody = z.strictObject({
   unit: z.string(),
@@ -42,10 +44,14 @@ export async function observationRoutes(app: FastifyInstance, { services }: { se
     },
     check: (_tx, gauge, batch, errors) => ({
       times: checkTimes(batch.times, gauge.stepSeconds, batch.timeWhere, errors),
-      values: checkValues(batch.columns[0].values, { nonNegative: true, quantity: 'flow' }, (i) => batch.valueWhere(0, i), errors),
+      values: checkValues(batch.columns[0].values, flowLimit(gauge), (i) => batch.valueWhere(0, i), errors),
       quality: (batch.columns[1]?.values as (string | null)[] | undefined) ?? null,
     }),
-    store: async (tx, gauge, c) => ({ received: c.times.length, written: await upsertObservations(tx, gauge.id, c.times, c.values, c.quality) }),
+    store: async (tx, gauge, c) => {
+      const written = await upsertObservations(tx, gauge.id, c.times, c.values, c.quality);
+      await raiseArchiveMaxFlow(tx, gauge.id, c.values);
+      return { received: c.times.length, written };
+    },
     // New observations verify stored runs: refresh the drift status after the commit, off this request.
     after: (r, log) => {
       if (r.written > 0) scheduleGaugeStatusRefresh(db, r.gaugeId, log);

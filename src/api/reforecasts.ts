@@ -9,6 +9,7 @@ import { addRoute, type Services } from './context.ts';
 import { parseCsv, splitHeader } from './csv.ts';
 import { ErrorList } from '../services/problem.ts';
 import { MemberId, TimeWindowQuery } from './schemas.ts';
+import { flowLimit, forcingLimit } from '../services/plausible-values.ts';
 import { checkFlowUnit, checkTimes, checkValues, csvNumber } from '../services/series-input.ts';
 
 const ReforecastsBody = z.strictObject({
@@ -117,14 +118,14 @@ export async function reforecastRoutes(app: FastifyInstance, { services }: { ser
       const forcings = runs.map((run) =>
         run.forcings.map((f) => {
           if (!variables.has(f.name)) errors.add(f.where, `unknown forcing ${f.name}; forcings are declared by posting their archive first`);
-          return { name: f.name, values: checkValues(f.values, { nonNegative: f.name === 'precipitation', quantity: f.name }, (l) => `${f.where}[${l}]`, errors) };
+          return { name: f.name, values: checkValues(f.values, forcingLimit(gauge, f.name, variables.get(f.name) ?? ''), (l) => `${f.where}[${l}]`, errors) };
         }),
       );
       const issueMs = checkTimes(runs.map((r) => r.issueTime), gauge.stepSeconds, (i) => runs[i].issueWhere, errors);
       const members = runs.map((run) =>
         run.members.map((m) => {
           if (!known.has(m.id)) errors.add(m.idWhere, `unknown member ${m.id}; members are declared by posting their simulations first`);
-          return { id: m.id, values: checkValues(m.values, { nonNegative: true, quantity: 'flow' }, m.valueWhere, errors) };
+          return { id: m.id, values: checkValues(m.values, flowLimit(gauge), m.valueWhere, errors) };
         }),
       );
       return { issueMs, members, forcings };

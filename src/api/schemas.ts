@@ -1,5 +1,7 @@
 import { z } from 'zod';
 import { parseDurationSeconds } from '../core/iso-duration.ts';
+import { parseRfc3339 } from '../core/rfc3339.ts';
+import { FLOAT32_MAX } from '../services/plausible-values.ts';
 
 /** Shared pieces of the wire format. */
 
@@ -29,14 +31,14 @@ export const FlowUnit = z
 
 export const Rfc3339 = z
   .string()
-  .regex(/^\d{4}-\d{2}-\d{2}T\d{2}:\d{2}(:\d{2}(\.\d+)?)?(Z|[+-]\d{2}:\d{2})$/, 'must be an RFC 3339 time with offset, e.g. 2024-05-01T00:00:00Z')
-  .refine((s) => Number.isFinite(Date.parse(s)), 'not a valid date');
+  .refine((s) => parseRfc3339(s) !== null, 'must be a real RFC 3339 time with offset, e.g. 2024-05-01T00:00:00Z (impossible days such as 02-30 and hours such as 24:00 are refused)');
 
 /** A flood threshold: a flow `value` (m3/s) or a water `level` (m, needs the gauge's rating curve). */
 export const Threshold = z
   .strictObject({
     label: z.string().trim().min(1).max(60),
-    value: z.number().finite().positive().optional().describe('flow, m3/s'),
+    // At most what a float32 holds: flows are compared with the stored float32 quantiles.
+    value: z.number().finite().positive().max(FLOAT32_MAX).optional().describe('flow, m3/s'),
     level: z.number().finite().optional().describe('water level (stage), m; turned into flow through the rating curve'),
   })
   .superRefine((t, ctx) => {

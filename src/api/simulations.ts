@@ -6,7 +6,9 @@ import { GaugeParams, readWindow, requireGauge, wantsCsv } from './archive-commo
 import { addIngestRoute, timeColumnsFromCsv, timeColumnsFromJson, type TimeColumns } from './archive-ingest.ts';
 import { addRoute, type Services } from './context.ts';
 import { MemberId, TimeWindowQuery } from './schemas.ts';
+import { flowLimit } from '../services/plausible-values.ts';
 import { checkFlowUnit, checkTimes, checkValues } from '../services/series-input.ts';
+import { raiseArchiveMaxFlow } from '../store/gauges-repo.ts';
 
 const SimulationsBody = z.strictObject({
   unit: z.string(),
@@ -38,11 +40,12 @@ export async function simulationRoutes(app: FastifyInstance, { services }: { ser
     },
     check: (_tx, gauge, batch, errors) => ({
       times: checkTimes(batch.times, gauge.stepSeconds, batch.timeWhere, errors),
-      columns: batch.columns.map((c, k) => ({ id: c.name, values: checkValues(c.values, { nonNegative: true, quantity: 'flow' }, (i) => batch.valueWhere(k, i), errors) })),
+      columns: batch.columns.map((c, k) => ({ id: c.name, values: checkValues(c.values, flowLimit(gauge), (i) => batch.valueWhere(k, i), errors) })),
     }),
     store: async (tx, gauge, { times, columns }) => {
       await ensureMembers(tx, gauge.id, columns.map((c) => c.id));
       const written = await upsertSimulations(tx, gauge.id, times, columns);
+      for (const c of columns) await raiseArchiveMaxFlow(tx, gauge.id, c.values);
       return { received: times.length * columns.length, written };
     },
   });

@@ -9,6 +9,7 @@ import { chooseFormat, FormatOnly } from './formats.ts';
 import { byUpdatingRows, byUpdatingText, scoresCsv, scoresText, sendReport, warningsText, type ReportNote } from './report-formats.ts';
 import { warningRows } from './warning-tables.ts';
 import { GaugeStatusAnswer, Rfc3339 } from './schemas.ts';
+import { rfc3339Ms } from '../core/rfc3339.ts';
 
 const VerificationQuery = z
   .strictObject({
@@ -22,7 +23,7 @@ const VerificationQuery = z
     source: z.string().min(1).max(64).optional(),
     format: FormatOnly,
   })
-  .refine((q) => !(q.from && q.to) || Date.parse(q.from) < Date.parse(q.to), { message: 'from must be before to', path: ['to'] })
+  .refine((q) => !(q.from && q.to) || rfc3339Ms(q.from) < rfc3339Ms(q.to), { message: 'from must be before to', path: ['to'] })
   .refine((q) => q.minLead === undefined || q.maxLead === undefined || q.minLead <= q.maxLead, { message: 'minLead must not exceed maxLead', path: ['maxLead'] });
 
 export async function verificationRoutes(app: FastifyInstance, { services }: { services: Services }) {
@@ -61,8 +62,8 @@ export async function verificationRoutes(app: FastifyInstance, { services }: { s
       const gauge = await requireGauge(db, req.params);
       const q = req.query;
       const v = await verifyStoredRuns(db, gauge, {
-        fromMs: q.from ? Date.parse(q.from) : undefined,
-        toMs: q.to ? Date.parse(q.to) : undefined,
+        fromMs: q.from ? rfc3339Ms(q.from) : undefined,
+        toMs: q.to ? rfc3339Ms(q.to) : undefined,
         minLead: q.minLead,
         maxLead: q.maxLead,
         source: q.source,

@@ -21,7 +21,9 @@ import { buildForecastView } from './forecast-view.ts';
 import { decideUpdating, type UpdatingDecision } from './issue-updating.ts';
 import { ratingAtIssue } from './rating.ts';
 import { conflict, ErrorList, invalid, Problem, type FieldError } from './problem.ts';
-import { checkTimes, isoUtc } from './series-input.ts';
+import { checkTimes, isoUtc, knownForcingUnits } from './series-input.ts';
+import { FLOAT32_MAX, flowLimit, forcingLimit, valueProblem } from './plausible-values.ts';
+import { rfc3339Ms } from '../core/rfc3339.ts';
 import { flowUnit, type FlowUnit } from '../core/flow-units.ts';
 import { StageClock } from './stage-clock.ts';
 
@@ -195,6 +197,7 @@ function checkRun(body: RunDraft, gauge: Gauge, known: Set<string>, horizonLimit
   }
   if (body.trajectories !== undefined && body.trajectories > maxTrajectories) errors.add('body.trajectories', `at most ${maxTrajectories}`);
   const seen = new Set<string>();
+  const flow = flowLimit(gauge);
   const members = given.map((m, i) => {
     if (m.id !== undefined) {
       if (!known.has(m.id)) errors.add(`body.members[${i}].id`, `unknown member ${m.id}; the gauge's members are those in its simulation archive`);
@@ -208,8 +211,12 @@ function checkRun(body: RunDraft, gauge: Gauge, known: Set<string>, horizonLimit
       const atLead = k >= warmupSteps;
       if (v === null && !atLead) out[k] = NaN;
       else if (typeof v !== 'number' || !Number.isFinite(v)) errors.add(`body.members[${i}].values[${k}]`, atLead ? `must be a finite flow (lead times cannot be missing), got ${JSON.stringify(v)}` : `must be a finite number or null, got ${JSON.stringify(v)}`);
-      else if (v < 0) errors.add(`body.members[${i}].values[${k}]`, `flow cannot be negative (${v})`);
-      else out[k] = v * factor;
+      else {
+        // Plausible for the gauge (src/services/plausible-values.ts), in m³/s after the unit.
+        const problem = valueProblem(v * factor, flow);
+        if (problem) errors.add(`body.members[${i}].values[${k}]`, problem);
+        else out[k] = v * factor;
+      }
     });
     return out;
   });
@@ -223,11 +230,16 @@ function checkRun(body: RunDraft, gauge: Gauge, known: Set<string>, horizonLimit
         errors.add(`body.forcings.${name}[${k}]`, `must be a finite number or null, got ${JSON.stringify(v)}`);
         return NaN;
       }
-      if (v < 0 && (name === 'precipitation' || name === 'potential_evaporation')) errors.add(`body.forcings.${name}[${k}]`, `${name} cannot be negative (${v})`);
+      const problem = valueProblem(v, forcingLimit(gauge, name, knownForcingUnits[name]?.unit ?? ''));
+      if (problem) errors.add(`body.forcings.${name}[${k}]`, problem);
       return v;
     });
   }
   const observation = body.issueObservation === undefined || body.issueObservation === null ? null : body.issueObservation * factor;
+  if (observation !== null) {
+    const problem = valueProblem(observation, flow);
+    if (problem) errors.add('body.issueObservation', problem);
+  }
   return { run: { issueTime: issueMs, nLeads, members, forcings, issueObservation: observation }, unit };
 }
 
@@ -239,9 +251,10 @@ function updatingAnswer(status: 'corrected' | 'degraded', u: UpdatingDecision | 
 }
 
 /** The stored answer of an earlier identical request, or a conflict when the request differs. */
-function replay(stored: StoredRun, requestHash: string, what: string): StoredRun {
+function replay(stored: StoredRun, requestHash: string, what: string, path?: string): StoredRun {
   if (stored.requestHash !== requestHash) {
-    throw conflict(`${what} was already used for a run with different content (run ${stored.id}); nothing was changed`);
+    const detail = `${what} was already used for a run with different content (run ${stored.id}); nothing was changed`;
+    throw conflict(detail, path ? [{ path, message: 'already used with a different body; send a new key for a new request' }] : []);
   }
   return stored;
 }
@@ -281,10 +294,10 @@ export class RunCorrection {
     if (!errors.items.length) {
       const body = draft as RunRequest;
       if (idempotencyKey) {
-        const stored = await findRunByIdempotencyKey(db, idempotencyKey);
-        if (stored) return { created: false, stored: replay(stored, requestHash, 'this Idempotency-Key') };
+        const stored = await findRunByIdempotencyKey(db, gauge.id, idempotencyKey);
+        if (stored) return { created: false, stored: replay(stored, requestHash, `this Idempotency-Key on gauge ${gauge.id}`, 'headers.idempotency-key') };
       }
-      const byKey = await findRunByKey(db, gauge.id, Date.parse(body.issueTime), body.source);
+      const byKey = await findRunByKey(db, gauge.id, rfc3339Ms(body.issueTime), body.source);
       if (byKey) return { created: false, stored: replay(byKey, requestHash, `issue time ${body.issueTime} from source ${body.source}`) };
     }
 
@@ -306,6 +319,10 @@ export class RunCorrection {
     const correctedArchive = correctedChoice ? chooseArchive(correctedChoice[0], correctedChoice[1], asked, config.PER_LEAD_MIN_RUNS) : null;
     const rawArchive = chooseArchive(rawChoice[0], rawChoice[1], asked, config.PER_LEAD_MIN_RUNS);
     if (!correctedArchive && !rawArchive) {
+      // A bad run is refused as such even where no correction is possible.
+      // (Membership and horizon need an archive: only the run's own values are checked here.)
+      const given = new Set((draft.members ?? []).map((m) => m.id).filter((id): id is string => id !== undefined));
+      checkRun(draft, gauge, given, Infinity, config.MAX_TRAJECTORIES, errors);
       errors.throwIfAny();
       throw new Problem(409, 'no-correction-available', 'No correction available', `gauge ${gauge.id} has no active residual model and no raw error archive; fit a model (POST /gauges/${gauge.id}/models/fit) or build the raw archive (POST /gauges/${gauge.id}/raw-archive)`);
     }
@@ -429,6 +446,12 @@ export class RunCorrection {
       for (let q = 0; q < nQ; q++) quantiles[k * nQ + q] = result.quantiles[k * nAll + q];
       percentiles.push(Array.from({ length: PERCENTILES.length }, (_, j) => Math.round(result.quantiles[k * nAll + nQ + j] * 1e4) / 1e4));
     }
+    // Last guard of "no non-finite value is ever stored": the quantiles go to float32 bytes and the
+    // answer; values within the plausible limits cannot get here, so this is a refusal, not a repair.
+    const storable = (v: number) => Number.isFinite(v) && Math.abs(v) <= FLOAT32_MAX;
+    if (!quantiles.every(storable) || !percentiles.every((row) => row.every(storable)) || !result.exceedance.every(Number.isFinite)) {
+      throw invalid([{ path: 'body.members', message: 'the correction of these values gave quantiles that cannot be stored (not finite or beyond float32); nothing was stored' }]);
+    }
     clock.lap('serialise');
     const recentRows = await recentRead;
     clock.lap('reads');
@@ -501,7 +524,7 @@ export class RunCorrection {
       });
     } catch (err) {
       // A concurrent identical post won the race: answer with what it stored.
-      const stored = (idempotencyKey && (await findRunByIdempotencyKey(db, idempotencyKey))) || (await findRunByKey(db, gauge.id, run.issueTime, body.source));
+      const stored = (idempotencyKey && (await findRunByIdempotencyKey(db, gauge.id, idempotencyKey))) || (await findRunByKey(db, gauge.id, run.issueTime, body.source));
       if (stored) return { created: false, stored: replay(stored, requestHash, 'this run') };
       throw err;
     }

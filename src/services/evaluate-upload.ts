@@ -14,6 +14,7 @@ import { activateModelVersion, insertModelVersion } from '../store/models-repo.t
 import { runCompute } from '../workers/run-compute.ts';
 import { defaultPeriods, perLeadParts, type PerLeadOutput } from './fit.ts';
 import { conflict, invalid, type FieldError } from './problem.ts';
+import { rfc3339Ms } from '../core/rfc3339.ts';
 
 export const MAX_UPLOAD_BYTES = 20 * 1024 * 1024;
 
@@ -57,7 +58,7 @@ export async function evaluateUpload(db: Db, gauge: Gauge, body: UploadRequest, 
   });
   const absent = specForcings(spec).filter((name) => !(name in series.forcings));
   if (absent.length) throw conflict(`the model reads forcing ${absent.join(', ')}, which the gauge's archive does not hold; load it first (POST /gauges/${gauge.id}/forcings)`);
-  const validation = body.validation ? { fromMs: Date.parse(body.validation.from), toMs: Date.parse(body.validation.to) } : defaultPeriods(series).validation;
+  const validation = body.validation ? { fromMs: rfc3339Ms(body.validation.from), toMs: rfc3339Ms(body.validation.to) } : defaultPeriods(series).validation;
   // Past runs issued in the validation period give the per-lead archives, as for a fitted model.
   const reforecasts = await loadReforecastSet(db, gauge.id, validation);
   let out: {

@@ -16,6 +16,7 @@ import { getGauge } from '../store/gauges-repo.ts';
 import { activateModelVersion, insertArchive, insertModelVersion } from '../store/models-repo.ts';
 import { runCompute } from '../workers/run-compute.ts';
 import type { JobProgress } from './job-progress.ts';
+import { rfc3339Ms } from '../core/rfc3339.ts';
 
 const TransformSpec = z.discriminatedUnion('kind', [
   z.object({ kind: z.literal('none') }),
@@ -79,7 +80,7 @@ export function defaultPeriods(series: ArchiveSeries): { calibration: Period; va
   return { calibration: { fromMs: observedTimes[0], toMs: split }, validation: { fromMs: split, toMs: end } };
 }
 
-const period = (p: { from: string; to: string }): Period => ({ fromMs: Date.parse(p.from), toMs: Date.parse(p.to) });
+const period = (p: { from: string; to: string }): Period => ({ fromMs: rfc3339Ms(p.from), toMs: rfc3339Ms(p.to) });
 const iso = (ms: number) => new Date(ms).toISOString().replace('.000Z', 'Z');
 
 interface FitOutput {

@@ -24,6 +24,7 @@ import type { HindcastJobParams } from './hindcast-params.ts';
 import type { JobProgress } from './job-progress.ts';
 import { conflict, invalid, type FieldError } from './problem.ts';
 import { isoUtc } from './series-input.ts';
+import { rfc3339Ms } from '../core/rfc3339.ts';
 
 export const REFERENCE_MIN_REFORECASTS = 20;
 
@@ -32,8 +33,8 @@ const iso = (ms: number) => new Date(ms).toISOString().replace('.000Z', 'Z');
 /** A version's stored period ({from, to} RFC 3339) in epoch ms, or null. */
 export function storedPeriod(p: { from: string; to: string } | undefined): Period | null {
   if (!p) return null;
-  const fromMs = Date.parse(p.from);
-  const toMs = Date.parse(p.to);
+  const fromMs = rfc3339Ms(p.from);
+  const toMs = rfc3339Ms(p.to);
   return Number.isFinite(fromMs) && Number.isFinite(toMs) ? { fromMs, toMs } : null;
 }
 
@@ -85,8 +86,8 @@ export async function requestHindcast(db: Db, gauge: Gauge, body: HindcastReques
   if (body.trajectories > limits.maxTrajectories) errors.push({ path: 'body.trajectories', message: `at most ${limits.maxTrajectories}` });
   const validation = storedPeriod(version.periods.validation);
   if ((!body.from || !body.to) && !validation) errors.push({ path: body.from ? 'body.to' : 'body.from', message: `model version ${version.id} records no validation period; give from and to` });
-  const fromMs = body.from ? Date.parse(body.from) : validation?.fromMs;
-  const toMs = body.to ? Date.parse(body.to) : validation?.toMs;
+  const fromMs = body.from ? rfc3339Ms(body.from) : validation?.fromMs;
+  const toMs = body.to ? rfc3339Ms(body.to) : validation?.toMs;
   if (fromMs !== undefined && toMs !== undefined && !(fromMs < toMs)) errors.push({ path: 'body.to', message: 'the period is empty (from must be before to)' });
   if (!errors.length && body.mode === 'reforecast' && (await reforecastIssueTimes(db, gauge.id, fromMs!, toMs!)).length === 0) {
     errors.push({ path: 'body.mode', message: `gauge ${gauge.id} has no reforecasts issued between ${isoUtc(fromMs!)} and ${isoUtc(toMs!)}` });
@@ -123,8 +124,8 @@ export async function runHindcast(db: Db, job: { id: string; gaugeId: string }, 
   const stepMs = gauge.stepSeconds * 1000;
   const calibration = storedPeriod(version.periods.calibration);
   const validation = storedPeriod(version.periods.validation);
-  const fromMs = p.from ? Date.parse(p.from) : validation?.fromMs;
-  const toMs = p.to ? Date.parse(p.to) : validation?.toMs;
+  const fromMs = p.from ? rfc3339Ms(p.from) : validation?.fromMs;
+  const toMs = p.to ? rfc3339Ms(p.to) : validation?.toMs;
   if (fromMs === undefined || toMs === undefined) throw new Error(`no period given and model version ${version.id} records no validation period`);
   await progress('loading the archive', 1);
 

@@ -1,5 +1,6 @@
 // Use cases around a gauge's rating curves: add and remove a version, check the gauge's thresholds
 // against every version, and the conversion a run uses (the version in force at its issue time).
+import { parseRfc3339, rfc3339Ms } from '../core/rfc3339.ts';
 import { curveAt } from '../core/rating/curve-at.ts';
 import { stageRange, type RatingSegment } from '../core/rating/rating-curve.ts';
 import { ratingProblems, type RatingJoin } from '../core/rating/rating-problems.ts';
@@ -80,7 +81,7 @@ export interface RatingCurveInput {
 export async function addRatingCurve(db: Queryable, gaugeId: string, body: RatingCurveInput): Promise<{ created: boolean; curve: RatingCurveView }> {
   const gauge = await getGauge(db, gaugeId, true);
   if (!gauge) throw notFound(`no gauge ${gaugeId}`);
-  const validFromMs = Date.parse(body.validFrom);
+  const validFromMs = rfc3339Ms(body.validFrom);
   const errors: FieldError[] = ratingProblems(body.segments, body.joinTolerance).problems.map((p) => ({
     path: ['body.segments', ...p.path].map((x, i) => (i === 0 ? x : typeof x === 'number' ? `[${x}]` : `.${x}`)).join(''),
     message: p.message,
@@ -109,7 +110,7 @@ export async function addRatingCurve(db: Queryable, gaugeId: string, body: Ratin
 export async function removeRatingCurve(db: Queryable, gaugeId: string, validFrom: string): Promise<void> {
   const gauge = await getGauge(db, gaugeId, true);
   if (!gauge) throw notFound(`no gauge ${gaugeId}`);
-  const validFromMs = Date.parse(validFrom);
+  const validFromMs = parseRfc3339(validFrom) ?? NaN;
   const versions = await listRatingCurves(db, gaugeId);
   if (!versions.some((v) => v.validFromMs === validFromMs)) throw notFound(`gauge ${gaugeId} has no rating curve valid from ${validFrom}`);
   const levels = gauge.thresholds.filter((t) => t.given === 'level');

@@ -1,12 +1,14 @@
+import { parseRfc3339 } from '../core/rfc3339.ts';
+import { valueProblem, type ValueLimit } from './plausible-values.ts';
 import type { ErrorList } from './problem.ts';
 
-const RFC3339 = /^\d{4}-\d{2}-\d{2}T\d{2}:\d{2}(:\d{2}(\.\d+)?)?(Z|[+-]\d{2}:\d{2})$/;
-
-/** Parses one RFC 3339 time; NaN when it is not one. */
+/** Parses one RFC 3339 time strictly (src/core/rfc3339.ts); NaN when it is not a real one. */
 export function parseTime(text: unknown): number {
-  if (typeof text !== 'string' || !RFC3339.test(text)) return NaN;
-  return Date.parse(text);
+  return parseRfc3339(text) ?? NaN;
 }
+
+/** What a refused time is told. */
+export const TIME_MESSAGE = 'not a real RFC 3339 time with offset, e.g. 2024-05-01T00:00:00Z (impossible days such as 02-30 and hours such as 24:00 are refused, not rolled over)';
 
 /**
  * Checks a batch's times: RFC 3339 with offset, on the gauge's step (multiples of the step from
@@ -20,7 +22,7 @@ export function checkTimes(times: readonly unknown[], stepSeconds: number, where
     const t = parseTime(times[i]);
     out[i] = t;
     if (Number.isNaN(t)) {
-      errors.add(where(i), `not an RFC 3339 time with offset: ${JSON.stringify(times[i])}`);
+      errors.add(where(i), `${TIME_MESSAGE}: ${JSON.stringify(times[i])}`);
     } else if (t % stepMs !== 0) {
       errors.add(where(i), `${times[i]} is not on the gauge's time step of ${stepSeconds} s (times are multiples of the step from 1970-01-01T00:00:00Z)`);
     } else if (i > 0 && !Number.isNaN(out[i - 1])) {
@@ -33,37 +35,34 @@ export function checkTimes(times: readonly unknown[], stepSeconds: number, where
 }
 
 /**
- * Checks values: finite numbers or null (missing); negative values are refused where the quantity
- * cannot be negative. Returns a Float64Array with NaN for missing.
+ * Checks values: finite numbers or null (missing), within the quantity's plausible range for the
+ * gauge (src/services/plausible-values.ts). Returns a Float64Array with NaN for missing.
  */
-export function checkValues(
-  values: readonly unknown[],
-  opts: { nonNegative: boolean; quantity: string },
-  where: (i: number) => string,
-  errors: ErrorList,
-): Float64Array {
+export function checkValues(values: readonly unknown[], limit: ValueLimit, where: (i: number) => string, errors: ErrorList): Float64Array {
   const out = new Float64Array(values.length);
   for (let i = 0; i < values.length; i++) {
     const v = values[i];
     if (v === null) {
       out[i] = NaN;
-    } else if (typeof v !== 'number' || !Number.isFinite(v)) {
-      errors.add(where(i), `${opts.quantity} must be a finite number or null, got ${JSON.stringify(v) ?? String(v)}`);
-      if (errors.full) break;
-    } else if (opts.nonNegative && v < 0) {
-      errors.add(where(i), `${opts.quantity} cannot be negative (${v})`);
-      if (errors.full) break;
-    } else {
-      out[i] = v;
+      continue;
     }
+    const problem = typeof v !== 'number' || !Number.isFinite(v) ? `${limit.quantity} must be a finite number or null, got ${JSON.stringify(v) ?? String(v)}` : valueProblem(v, limit);
+    if (problem) {
+      errors.add(where(i), problem);
+      if (errors.full) break;
+    } else out[i] = v as number;
   }
   return out;
 }
 
-/** A CSV cell as a number: empty = missing (null); anything else must be a finite number. */
+/** A plain decimal, optionally with an exponent: no hex, binary, Infinity, NaN, separators or junk. */
+const DECIMAL = /^[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?$/;
+
+/** A CSV cell as a number: empty = missing (null); anything else must be a plain decimal (else the text is returned, for the error). */
 export function csvNumber(cell: string): number | null | string {
   const s = cell.trim();
   if (s === '' || (s.length === 4 && s.toLowerCase() === 'null')) return null;
+  if (!DECIMAL.test(s)) return s;
   const n = Number(s);
   return Number.isFinite(n) ? n : s;
 }

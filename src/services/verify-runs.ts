@@ -11,6 +11,7 @@ import { readRunsForVerification } from '../store/verification-repo.ts';
 import { CAUTION } from './caution.ts';
 import { isoUtc } from './series-input.ts';
 import { startStoredWarnings } from './verify-warnings.ts';
+import { rfc3339Ms } from '../core/rfc3339.ts';
 
 /** byLead entries also name their lead time as an ISO 8601 duration (lead index 0 = one step). */
 export function withLeadTimes(report: ComparisonReport, stepSeconds: number): ComparisonReport {
@@ -90,8 +91,8 @@ export async function verifyStoredRuns(
     let hi = -Infinity;
     for (const r of page) {
       if (!r.validTimes.length) continue;
-      lo = Math.min(lo, Date.parse(r.validTimes[0]));
-      hi = Math.max(hi, Date.parse(r.validTimes[r.validTimes.length - 1]));
+      lo = Math.min(lo, rfc3339Ms(r.validTimes[0]));
+      hi = Math.max(hi, rfc3339Ms(r.validTimes[r.validTimes.length - 1]));
     }
     const obs = new Map<number, number>();
     if (lo <= hi) for (const o of await readObservations(db, gauge.id, { fromMs: lo, toMs: hi + 1 })) if (o.value !== null) obs.set(o.t, o.value);
@@ -111,7 +112,7 @@ export async function verifyStoredRuns(
         anyUpdated ||= r.updated;
       }
       r.validTimes.forEach((vt, k) => {
-        const y = obs.get(Date.parse(vt));
+        const y = obs.get(rfc3339Ms(vt));
         if (y === undefined) return;
         verified = true;
         if (r.status === 'degraded' || !r.corrected) {

@@ -16,6 +16,7 @@ import { readObservations } from '../store/archive-repo.ts';
 import type { Queryable } from '../store/db.ts';
 import type { Gauge } from '../store/gauges-repo.ts';
 import { getActiveModelVersion } from '../store/models-repo.ts';
+import { rfc3339Ms } from '../core/rfc3339.ts';
 
 /** What the warning verification reads of one stored run. */
 export interface StoredRunWarnings {
@@ -49,8 +50,8 @@ const WINDOW_DAYS = 15;
 function period(p: unknown): { fromMs: number; toMs: number } | null {
   const v = p as { from?: unknown; to?: unknown } | null | undefined;
   if (!v || typeof v.from !== 'string' || typeof v.to !== 'string') return null;
-  const fromMs = Date.parse(v.from);
-  const toMs = Date.parse(v.to);
+  const fromMs = rfc3339Ms(v.from);
+  const toMs = rfc3339Ms(v.to);
   return Number.isFinite(fromMs) && Number.isFinite(toMs) ? { fromMs, toMs } : null;
 }
 
@@ -116,7 +117,7 @@ export async function startStoredWarnings(db: Queryable, gauge: Gauge, s: Warnin
     const run = warningRunFromStored(
       {
         issueMs: r.issueMs,
-        validMs: r.validTimes.map((v) => Date.parse(v)),
+        validMs: r.validTimes.map((v) => rfc3339Ms(v)),
         raw: r.raw,
         corrected: r.corrected!,
         percentiles: r.percentiles,

@@ -140,8 +140,9 @@ export async function findRunByKey(db: Queryable, gaugeId: string, issueTimeMs: 
   return rows[0] ? fromRow(rows[0]) : null;
 }
 
-export async function findRunByIdempotencyKey(db: Queryable, key: string): Promise<StoredRun | null> {
-  const { rows } = await db.query<Row>(`select ${COLUMNS} from forecast_runs where idempotency_key = $1`, [key]);
+/** Keys are scoped by gauge: the same key on another gauge is another request. */
+export async function findRunByIdempotencyKey(db: Queryable, gaugeId: string, key: string): Promise<StoredRun | null> {
+  const { rows } = await db.query<Row>(`select ${COLUMNS} from forecast_runs where gauge_id = $1 and idempotency_key = $2`, [gaugeId, key]);
   return rows[0] ? fromRow(rows[0]) : null;
 }
 

@@ -23,6 +23,14 @@ export interface Gauge {
   ratingCurve: { validFrom: string; stageRange: { from: number; to: number }; versions: number } | null;
   /** Issue-time updating uses the latest observation at most this many steps before issue time. */
   updatingMaxAgeSteps: number;
+  /** Flow cap in m³/s set on the gauge; null = derived from the archive (src/services/plausible-values.ts). */
+  maxFlow: number | null;
+  /** Precipitation cap in mm per step; null = the default. */
+  maxPrecipitation: number | null;
+  /** Plausible air temperature in °C; null = the default range. */
+  airTemperatureRange: { min: number; max: number } | null;
+  /** The largest flow the archive holds (observed or simulated); kept by ingest, never sent out as is. */
+  archiveMaxFlow: number | null;
   createdAt: string;
   updatedAt: string;
 }
@@ -40,6 +48,11 @@ interface GaugeRow {
   elevation_m: number | null;
   thresholds: unknown;
   updating_max_age_steps: number;
+  max_flow: number | null;
+  max_precipitation: number | null;
+  min_air_temperature: number | null;
+  max_air_temperature: number | null;
+  archive_max_flow: number | null;
   created_at: Date;
   updated_at: Date;
 }
@@ -63,14 +76,21 @@ function fromRow(r: GaugeRow, curves: RatingCurveVersion[]): Gauge {
       ? { validFrom: new Date(inForce.version.validFromMs).toISOString().replace('.000Z', 'Z'), stageRange: stageRange(inForce.version.segments), versions: curves.length }
       : null,
     updatingMaxAgeSteps: r.updating_max_age_steps ?? 2,
+    maxFlow: r.max_flow ?? null,
+    maxPrecipitation: r.max_precipitation ?? null,
+    airTemperatureRange: r.min_air_temperature === null || r.min_air_temperature === undefined || r.max_air_temperature === null ? null : { min: r.min_air_temperature, max: r.max_air_temperature },
+    archiveMaxFlow: r.archive_max_flow ?? null,
     createdAt: r.created_at.toISOString(),
     updatedAt: r.updated_at.toISOString(),
   };
 }
 
-export type GaugeInput = Omit<Gauge, 'createdAt' | 'updatedAt' | 'updatingMaxAgeSteps' | 'thresholds' | 'ratingCurve'> & {
+export type GaugeInput = Omit<Gauge, 'createdAt' | 'updatedAt' | 'updatingMaxAgeSteps' | 'thresholds' | 'ratingCurve' | 'maxFlow' | 'maxPrecipitation' | 'airTemperatureRange' | 'archiveMaxFlow'> & {
   updatingMaxAgeSteps?: number;
   thresholds: (GivenThreshold | ThresholdInBothUnits)[];
+  maxFlow?: number | null;
+  maxPrecipitation?: number | null;
+  airTemperatureRange?: { min: number; max: number } | null;
 };
 
 /** What is stored of a threshold: the unit it was given in, never the converted number. */
@@ -82,8 +102,9 @@ function asGiven(t: GivenThreshold | ThresholdInBothUnits): GivenThreshold {
 export async function insertGauge(db: Queryable, g: GaugeInput): Promise<Gauge> {
   const { rows } = await db.query<GaugeRow>(
     `insert into gauges (id, name, catchment_area_km2, time_step, step_seconds, time_zone, flow_unit,
-                         latitude, longitude, elevation_m, thresholds, updating_max_age_steps)
-     values ($1,$2,$3,$4,$5,$6,$7,$8,$9,$10,$11::jsonb,$12) returning *`,
+                         latitude, longitude, elevation_m, thresholds, updating_max_age_steps,
+                         max_flow, max_precipitation, min_air_temperature, max_air_temperature)
+     values ($1,$2,$3,$4,$5,$6,$7,$8,$9,$10,$11::jsonb,$12,$13,$14,$15,$16) returning *`,
     params(g),
   );
   return fromRow(rows[0], await listRatingCurves(db, g.id));
@@ -92,7 +113,8 @@ export async function insertGauge(db: Queryable, g: GaugeInput): Promise<Gauge> 
 export async function updateGauge(db: Queryable, g: GaugeInput): Promise<Gauge> {
   const { rows } = await db.query<GaugeRow>(
     `update gauges set name=$2, catchment_area_km2=$3, time_step=$4, step_seconds=$5, time_zone=$6, flow_unit=$7,
-            latitude=$8, longitude=$9, elevation_m=$10, thresholds=$11::jsonb, updating_max_age_steps=$12, updated_at=now()
+            latitude=$8, longitude=$9, elevation_m=$10, thresholds=$11::jsonb, updating_max_age_steps=$12,
+            max_flow=$13, max_precipitation=$14, min_air_temperature=$15, max_air_temperature=$16, updated_at=now()
      where id=$1 returning *`,
     params(g),
   );
@@ -113,6 +135,10 @@ function params(g: GaugeInput): unknown[] {
     g.location?.elevationM ?? null,
     JSON.stringify(g.thresholds.map(asGiven)),
     g.updatingMaxAgeSteps ?? 2,
+    g.maxFlow ?? null,
+    g.maxPrecipitation ?? null,
+    g.airTemperatureRange?.min ?? null,
+    g.airTemperatureRange?.max ?? null,
   ];
 }
 
@@ -157,4 +183,12 @@ export async function dataCounts(db: Queryable, id: string): Promise<Record<stri
 
 export async function deleteGauge(db: Queryable, id: string): Promise<void> {
   await db.query('delete from gauges where id = $1', [id]);
+}
+
+/** Raises the gauge's archived flow maximum to a batch's largest value (never lowers it: a cap stays generous). */
+export async function raiseArchiveMaxFlow(db: Queryable, id: string, values: Float64Array): Promise<void> {
+  let max = -Infinity;
+  for (const v of values) if (v > max) max = v;
+  if (!Number.isFinite(max)) return;
+  await db.query('update gauges set archive_max_flow = greatest(coalesce(archive_max_flow, 0), $2) where id = $1', [id, max]);
 }

@@ -36,8 +36,22 @@ export async function listTokens(db: Queryable): Promise<TokenRow[]> {
   ).rows;
 }
 
+/** Channel on which a revoked token's id is announced to every service instance. */
+export const REVOCATION_CHANNEL = 'api_token_revoked';
+
+/** Revokes a token and announces it in the same statement (delivered when it commits). */
 export async function revokeToken(db: Queryable, id: string): Promise<boolean> {
-  const { rows } = await db.query('update api_tokens set revoked_at = now() where id = $1 and revoked_at is null returning id', [id]);
+  const { rows } = await db.query(
+    `with revoked as (update api_tokens set revoked_at = now() where id = $1 and revoked_at is null returning id)
+     select id, pg_notify('${REVOCATION_CHANNEL}', id) from revoked`,
+    [id],
+  );
+  return rows.length > 0;
+}
+
+/** Whether a token is still usable (not revoked). */
+export async function tokenActive(db: Queryable, id: string): Promise<boolean> {
+  const { rows } = await db.query('select 1 from api_tokens where id = $1 and revoked_at is null', [id]);
   return rows.length > 0;
 }
 

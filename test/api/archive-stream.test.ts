@@ -80,7 +80,8 @@ const value = (i: number, k: number) => (i % 11 === 3 ? null : [0, 1e-7, 123456.
 
 beforeAll(async () => {
   t = await makeTestApp();
-  expect((await t.as('admin', { method: 'POST', url: '/gauges', payload: riverGauge })).statusCode).toBe(201);
+  // The values test number round-trips (123456.789 among them), so the gauge's flow and precipitation caps are set above them.
+  expect((await t.as('admin', { method: 'POST', url: '/gauges', payload: { ...riverGauge, maxFlow: 1e6, maxPrecipitation: 1e6 } })).statusCode).toBe(201);
   await post('observations', { unit: 'm3/s', times, values: times.map((_, i) => value(i, 0)), quality: times.map((_, i) => [null, 'good', 'estimated, "by eye"', ''][i % 4]) });
   await post('forcings', { times: times.slice(0, 30), variables: [{ name: 'precipitation', unit: 'mm', values: times.slice(0, 30).map((_, i) => value(i, 1)) }] });
   await post('forcings', { times: times.slice(10), variables: [{ name: 'air_temperature', unit: 'degC', values: times.slice(10).map((_, i) => value(i, -50)) }, { name: 'snow_depth', unit: 'cm', values: times.slice(10).map((_, i) => value(i, 2)) }] });

@@ -6,6 +6,7 @@ import { pitFromSorted } from './randomised-pit.ts';
 import { twoSidedDriftChecks, type TwoSidedChecks } from './two-sided-drift.ts';
 import { ValueSorter } from './value-sorter.ts';
 import type { ComparisonReport } from './compare-forecasts.ts';
+import { parseRfc3339, rfc3339Ms } from '../rfc3339.ts';
 
 /** Validation-period level a gauge is held to. */
 export interface DriftReference {
@@ -96,7 +97,7 @@ export function watchDrift(cases: Iterable<VerificationCase>, reference: DriftRe
   if (!(reference.coverage90 >= 0 && reference.coverage90 <= 1) || !(reference.crps > 0)) {
     throw new RangeError('reference needs coverage90 in [0, 1] and crps > 0');
   }
-  const since = options.since !== undefined ? Date.parse(options.since) : null;
+  const since = options.since !== undefined ? (parseRfc3339(options.since) ?? NaN) : null;
   if (since !== null && Number.isNaN(since)) throw new RangeError(`since is not an RFC 3339 time: ${options.since}`);
   const minLead = options.leadRange?.min ?? -Infinity;
   const maxLead = options.leadRange?.max ?? Infinity;
@@ -104,7 +105,7 @@ export function watchDrift(cases: Iterable<VerificationCase>, reference: DriftRe
   const kept: VerificationCase[] = [];
   for (const c of cases) {
     if (c.observation === null || !Number.isFinite(c.observation) || !(c.lead >= minLead && c.lead <= maxLead)) continue;
-    if (since !== null && !(c.validTime !== undefined && Date.parse(c.validTime) >= since)) continue;
+    if (since !== null && !(c.validTime !== undefined && rfc3339Ms(c.validTime) >= since)) continue;
     if (!sourceValues(c, source)) continue;
     kept.push(c);
   }
