@@ -116,6 +116,16 @@ export const GaugeAnswer = z.object({
   thresholds: z.array(StoredThreshold),
   ratingCurve: z.object({ validFrom: Time, stageRange: z.object({ from: z.number(), to: z.number() }), versions: z.number().int() }).nullable(),
   updatingMaxAgeSteps: z.number().int(),
+  maxFlow: z.number().nullable().describe('flow cap set on the gauge (m3/s); null = derived (see limitsInForce)'),
+  maxPrecipitation: z.number().nullable().describe('precipitation cap per step set on the gauge (mm); null = default'),
+  airTemperatureRange: z.object({ min: z.number(), max: z.number() }).nullable().describe('air temperature range set on the gauge (degC); null = default'),
+  limitsInForce: z
+    .object({
+      maxFlow: z.object({ value: z.number(), source: z.enum(['gauge', 'archive', 'storage']) }),
+      maxPrecipitation: z.object({ value: z.number(), source: z.enum(['gauge', 'default']) }),
+      airTemperatureRange: z.object({ min: z.number(), max: z.number(), source: z.enum(['gauge', 'default']) }),
+    })
+    .describe('the value limits ingest and runs are checked against, and where each comes from'),
   createdAt: Time,
   updatedAt: Time,
 });
