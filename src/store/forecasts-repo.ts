@@ -1,5 +1,6 @@
 import type { Queryable } from './db.ts';
 import { RunSummary } from './json-columns.ts';
+import { issueTimeWindow } from './issue-time-window.ts';
 
 export interface StoredRun {
   id: string;
@@ -162,15 +163,7 @@ export async function latestRunTag(db: Queryable, gaugeId: string): Promise<{ id
 
 export async function listRuns(db: Queryable, gaugeId: string, fromMs?: number, toMs?: number, limit = 500) {
   const params: unknown[] = [gaugeId];
-  let where = '';
-  if (fromMs !== undefined) {
-    params.push(fromMs / 1000);
-    where += ` and issue_time >= to_timestamp($${params.length})`;
-  }
-  if (toMs !== undefined) {
-    params.push(toMs / 1000);
-    where += ` and issue_time < to_timestamp($${params.length})`;
-  }
+  const where = issueTimeWindow(params, fromMs, toMs);
   params.push(limit);
   const { rows } = await db.query<{ id: string; issue_time: Date; source: string; status: string; model_version_id: string | null; summary: unknown; created_at: Date }>(
     `select id, issue_time, source, status, model_version_id::text as model_version_id, summary, created_at from forecast_runs

@@ -1,4 +1,5 @@
 import type { Queryable } from './db.ts';
+import { issueTimeWindow } from './issue-time-window.ts';
 
 /** One issue's stored output: the numbers laid out as the hindcast result's perIssue describes. */
 export interface HindcastIssueRow {
@@ -24,15 +25,7 @@ export async function insertHindcastIssues(tx: Queryable, jobId: string, rows: H
 /** A hindcast's stored issues in time order, optionally within [fromMs, toMs). */
 export async function readHindcastIssues(db: Queryable, jobId: string, fromMs?: number, toMs?: number): Promise<HindcastIssueRow[]> {
   const params: unknown[] = [jobId];
-  let where = '';
-  if (fromMs !== undefined) {
-    params.push(fromMs / 1000);
-    where += ` and issue_time >= to_timestamp($${params.length})`;
-  }
-  if (toMs !== undefined) {
-    params.push(toMs / 1000);
-    where += ` and issue_time < to_timestamp($${params.length})`;
-  }
+  const where = issueTimeWindow(params, fromMs, toMs);
   const { rows } = await db.query<{ issue_time: Date; output: Uint8Array }>(`select issue_time, output from hindcast_issues where job_id = $1${where} order by issue_time`, params);
   return rows.map((r) => {
     const copy = new Uint8Array(r.output); // aligned for the float view
