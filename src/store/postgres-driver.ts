@@ -48,6 +48,29 @@ export function openPostgres(connectionString: string, max = 10, onError: (err: 
     }
   }
 
+  /**
+   * A client checked out of the pool for a transaction or a read snapshot. A checked-out client whose
+   * connection drops between two queries (the server stops, the network fails) emits 'error';
+   * unheard, that event would end the process. It is kept here, and release drops a client that
+   * failed (or whose connection was lost) from the pool instead of reusing it.
+   */
+  async function checkOut(): Promise<{ client: pg.PoolClient; release: (err?: Error) => void }> {
+    const client = await pool.connect();
+    let lost: Error | undefined;
+    const onLost = (err: Error) => {
+      lost ??= err;
+      onError(err);
+    };
+    client.on('error', onLost);
+    const release = (err?: Error) => {
+      const broken = err ?? lost;
+      // A broken client keeps the listener: it may still report its end while being discarded.
+      if (!broken) client.off('error', onLost);
+      client.release(broken);
+    };
+    return { client, release };
+  }
+
   return {
     kind: 'postgres',
     async query(sql, params) {
@@ -55,14 +78,7 @@ export function openPostgres(connectionString: string, max = 10, onError: (err: 
       return { rows: result.rows };
     },
     async *reading(fn) {
-      const client = await pool.connect();
-      // As in transaction(): a connection lost while the read is held is heard, and dropped from the pool.
-      let lost: Error | undefined;
-      const onLost = (err: Error) => {
-        lost ??= err;
-        onError(err);
-      };
-      client.on('error', onLost);
+      const { client, release } = await checkOut();
       let done = false;
       try {
         await client.query('begin isolation level repeatable read read only');
@@ -79,28 +95,11 @@ export function openPostgres(connectionString: string, max = 10, onError: (err: 
           () => undefined,
           (e: Error) => e,
         );
-        const broken = ended ?? lost;
-        if (!broken) client.off('error', onLost);
-        client.release(broken);
+        release(ended);
       }
     },
     async transaction(fn) {
-      const client = await pool.connect();
-      // A checked-out client whose connection drops between two queries (the server stops, the
-      // network fails) emits 'error'; unheard, that event would end the process. It is kept here
-      // and the connection is dropped from the pool on release.
-      let lost: Error | undefined;
-      const onLost = (err: Error) => {
-        lost ??= err;
-        onError(err);
-      };
-      client.on('error', onLost);
-      const release = (err?: Error) => {
-        const broken = err ?? lost;
-        // A broken client keeps the listener: it may still report its end while being discarded.
-        if (!broken) client.off('error', onLost);
-        client.release(broken);
-      };
+      const { client, release } = await checkOut();
       try {
         await client.query('begin');
         const tx: Queryable = {
