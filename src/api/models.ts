@@ -99,6 +99,15 @@ const UploadBody = z.strictObject({
   transform: Transform.default({ kind: 'log' }),
   templateLength: z.number().int().min(1).max(2000).default(240),
   activate: z.boolean().default(false),
+  updating: z
+    .strictObject({
+      mode: z.enum(['auto', 'on', 'off']).default('auto'),
+      leads: z.number().int().min(1).max(2000).optional(),
+    })
+    .default({ mode: 'auto' })
+    .describe(
+      "Issue-time updating fitted on the uploaded model's pseudo-forecasts, as for a fitted model (closed-form candidates only). mode auto (default): kept at the lead times where the held-out block shows a gain beyond twice its standard error; on: every lead time; off: none. leads: horizon of the updater in steps (default: templateLength, at most ten days of steps).",
+    ),
 });
 
 const VersionParams = z.object({ id: GaugeParams.shape.id, version: z.string().regex(/^\d{1,18}$/, 'must be a version number') });

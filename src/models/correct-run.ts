@@ -2,12 +2,12 @@ import type { InferenceSession } from 'onnxruntime-node';
 import { correctedMember } from '../core/correction/corrected-member.ts';
 import { dayOfYearUtc } from '../core/day-of-year.ts';
 import type { ErrorArchive } from '../core/stochastic/error-archive.ts';
-import type { FeatureSpec, RunInput } from '../core/features/features.ts';
-import { isSequenceSpec, rowShape, servingInputs, type ResidualSpec } from '../core/features/model-inputs.ts';
+import type { RunInput } from '../core/features/features.ts';
+import { rowShape, servingInputs, type ResidualSpec } from '../core/features/model-inputs.ts';
 import { emptyStageTimings, runStochasticStage, type StageTimings, type StochasticResult, type StochasticWorkspace } from '../core/stochastic/stochastic-stage.ts';
 import { predictResiduals } from './onnx-session.ts';
 import { applyUpdating, type UpdatingModel } from '../core/correction/updating.ts';
-import { observationTimeRows } from '../core/correction/updating-rows.ts';
+import { observationTimeInputs } from '../core/correction/updating-rows.ts';
 
 export interface CorrectionOptions {
   stepSeconds: number;
@@ -87,15 +87,14 @@ export async function correctRun(
         corrected[i] += v / sessions.length;
       }
     }
-    // Updating is fitted with flat-row models only (a sequence model's version carries none).
-    if (options.updating && !isSequenceSpec(spec!)) {
+    if (options.updating) {
       // Each (model, member)'s corrected value at the observation's time gives its issue-time error.
       const u = options.updating;
-      const at = observationTimeRows(spec as FeatureSpec, run, u.ageSteps);
+      const at = observationTimeInputs(spec!, run, u.ageSteps);
       corrected.fill(0);
       issueError = new Float64Array(sessions.length * nM);
       for (let s = 0; s < sessions.length; s++) {
-        const residual = await predictResiduals(sessions[s], at.rows, at.nRows, at.nFeatures);
+        const residual = await predictResiduals(sessions[s], at.rows, at.nRows, at.nFeatures, rowShape(spec!));
         const atObs = Float64Array.from({ length: nM }, (_, m) => correctedMember(at.simAt[m], residual[m]));
         const block = stageInput.subarray(s * nM * H, (s + 1) * nM * H);
         issueError.set(applyUpdating(u.model, block, atObs, u.observation, u.ageSteps, H), s * nM);

@@ -18,7 +18,9 @@ import { predictorFor } from './model-shape.ts';
 import { createResidualSession, predictResiduals } from './onnx-session.ts';
 import type { ArchiveSeries, Period, ReforecastSet } from '../core/archive-types.ts';
 import { CancelledError } from '../core/cancelled.ts';
-import { evaluateReforecasts, type ReforecastEvaluation } from './reforecast-evaluation.ts';
+import type { ReforecastEvaluation } from './reforecast-evaluation.ts';
+import { pastRunsAndUpdating } from './past-runs-and-updating.ts';
+import type { UpdatingFit, UpdatingOptions } from './updating-fit.ts';
 import { evaluateResidualModel, type Evaluation } from './residual-evaluation.ts';
 import { splitValidation } from './residual-fit.ts';
 import { tune, type SearchParam } from './tuning/index.ts';
@@ -52,6 +54,8 @@ export interface LstmFitOptions {
   /** Stopping windows likewise. */
   maxStopRows: number;
   reforecasts?: ReforecastSet | null;
+  /** Issue-time updating, fitted on pseudo-forecasts as for the trees; absent or off = none. */
+  updating?: UpdatingOptions | null;
 }
 
 export interface LstmFitResult {
@@ -63,6 +67,8 @@ export interface LstmFitResult {
   trials: { params: Record<string, number>; validationRmse: number; epochs: number }[];
   evaluation: Evaluation;
   perLead: ReforecastEvaluation | null;
+  updating: UpdatingFit | null;
+  updatingError: string | null;
   periods: { calibration: Period; stopping: Period; archive: Period };
   rows: { calibration: number; stopping: number };
   onnxCheck: { rows: number; maxRelativeError: number; tolerance: number };
@@ -217,11 +223,18 @@ export async function fitLstmResidualModel(
   onProgress({ stage: 'scoring the rest of the validation period and building error archives', percent: 90 });
   const predictors = [predictorFor(session, spec)];
   const evaluation = await evaluateResidualModel(series, spec, archive, predictors, { transform: options.transform, templateLength: options.templateLength });
-  let perLead: ReforecastEvaluation | null = null;
-  if (options.reforecasts) {
-    onProgress({ stage: 'building the per-lead error archives from the past runs', percent: 95 });
-    perLead = await evaluateReforecasts(series, options.reforecasts, spec, predictors, { transform: evaluation.correctedArchive.transform });
-  }
+  const { perLead, updating, updatingError } = await pastRunsAndUpdating({
+    series,
+    spec,
+    predictors,
+    evaluation,
+    reforecasts: options.reforecasts,
+    updating: options.updating,
+    validation: options.validation,
+    archiveBlock: archive,
+    onProgress,
+    shouldStop,
+  });
   await session.release();
   onProgress({ stage: 'done', percent: 100 });
   return {
@@ -233,6 +246,8 @@ export async function fitLstmResidualModel(
     trials,
     evaluation,
     perLead,
+    updating,
+    updatingError,
     periods: { calibration: options.calibration, stopping, archive },
     rows: best.rows,
     onnxCheck: { rows: stop.nRows, maxRelativeError, tolerance: ONNX_TOLERANCE },

@@ -1,16 +1,16 @@
 import type { ErrorTransformSpec } from '../core/stochastic/error-transform.ts';
 import { continuousRows, makeFeatureSpec, type FeatureSpec } from '../core/features/features.ts';
 import { CancelledError } from '../core/cancelled.ts';
-import { leadGrowthScale } from '../core/stochastic/lead-growth.ts';
 import { createPrng } from '../core/prng.ts';
 import { treeModelToOnnx } from './onnx-export.ts';
 import { createResidualSession, predictResiduals } from './onnx-session.ts';
 import type { ArchiveSeries, Period, ReforecastSet } from '../core/archive-types.ts';
-import { evaluateReforecasts, type ReforecastEvaluation } from './reforecast-evaluation.ts';
-import { evaluateResidualModel, forcingPathsSummary, type Evaluation } from './residual-evaluation.ts';
+import type { ReforecastEvaluation } from './reforecast-evaluation.ts';
+import { evaluateResidualModel, type Evaluation } from './residual-evaluation.ts';
+import { pastRunsAndUpdating } from './past-runs-and-updating.ts';
 import { predictTrees, trainGradientBoosting, trainRandomForest, type TreeModel } from './trees/index.ts';
 import { tune, type SearchParam } from './tuning/index.ts';
-import { fitUpdating, type UpdatingFit, type UpdatingOptions } from './updating-fit.ts';
+import type { UpdatingFit, UpdatingOptions } from './updating-fit.ts';
 
 export interface FitOptions {
   calibration: Period;
@@ -192,48 +192,18 @@ export async function fitResidualModel(
   onProgress({ stage: 'scoring the validation period and building error archives', percent: 90 });
   const predictors = sessions.map((s) => (rows: Float32Array, n: number, nF: number) => predictResiduals(s, rows, n, nF));
   const evaluation = await evaluateResidualModel(series, spec, blocks.archive, predictors, { transform: options.transform, templateLength: options.templateLength });
-  let perLead: ReforecastEvaluation | null = null;
-  if (options.reforecasts) {
-    onProgress({ stage: 'building the per-lead error archives from the past runs', percent: 95 });
-    // The lead-free archive's resolved transform, so both archives' errors share one scale.
-    perLead = await evaluateReforecasts(series, options.reforecasts, spec, predictors, { transform: evaluation.correctedArchive.transform });
-    // The past runs also say how the errors grow with lead: the lead-free archive learns it too,
-    // for runs it serves while the per-lead archive has too few past runs to serve them itself.
-    if (perLead.archives) {
-      const v = evaluation.scores.errorVariances;
-      if (v.memberErrorVariance > 0 && Number.isFinite(v.meanErrorVariance)) {
-        evaluation.correctedArchive.leadScale = leadGrowthScale({ ...v, forecastMeanErrorVariance: perLead.archives.correctedSummary.dressing.byLead.map((l) => l.errorVariance) });
-        evaluation.scores.leadGrowth = Array.from(evaluation.correctedArchive.leadScale);
-      }
-    }
-    // Better than a scale where they reach: the past runs' own forecast-forcing deviation paths.
-    if (perLead.forcingPaths) evaluation.correctedArchive.forcingPaths = perLead.forcingPaths;
-  }
-  let updating: UpdatingFit | null = null;
-  let updatingError: string | null = null;
-  // The forecast-forcing error variance per lead the past runs show (τ² of leadGrowthScale), for the
-  // updated archive: its pseudo-forecast errors lack it as the lead-free archive's do.
-  let forcingErrorVariance: Float64Array | null = null;
-  if (perLead?.archives) {
-    const v = evaluation.scores.errorVariances;
-    if (Number.isFinite(v.meanErrorVariance)) forcingErrorVariance = Float64Array.from(perLead.archives.correctedSummary.dressing.byLead, (l) => Math.max(0, l.errorVariance - v.meanErrorVariance));
-  }
-  if (options.updating && options.updating.mode !== 'off') {
-    onProgress({ stage: 'fitting issue-time updating on pseudo-forecasts', percent: 96 });
-    try {
-      updating = await fitUpdating(series, spec, options.validation, predictors, evaluation.correctedArchive.transform, options.updating, shouldStop, perLead?.values ?? null, blocks.archive, forcingErrorVariance);
-      // The stage's kernel and k as chosen on the lead-free archive's held-out errors.
-      if (updating.archive && evaluation.correctedArchive.neighbours) updating.archive.archive.neighbours = evaluation.correctedArchive.neighbours;
-      // Pseudo-forecasts lack the forecast-forcing error as the simulations do: the same paths.
-      if (updating.archive && perLead?.forcingPaths) {
-        updating.archive.archive.forcingPaths = perLead.forcingPaths;
-        updating.archive.summary.forcingPaths = forcingPathsSummary(updating.archive.archive);
-      }
-    } catch (err) {
-      if (options.updating.mode === 'on') throw err;
-      updatingError = (err as Error).message;
-    }
-  }
+  const { perLead, updating, updatingError } = await pastRunsAndUpdating({
+    series,
+    spec,
+    predictors,
+    evaluation,
+    reforecasts: options.reforecasts,
+    updating: options.updating,
+    validation: options.validation,
+    archiveBlock: blocks.archive,
+    onProgress,
+    shouldStop,
+  });
   if (shouldStop()) throw new CancelledError();
   await Promise.all(sessions.map((s) => s.release()));
   onProgress({ stage: 'done', percent: 100 });

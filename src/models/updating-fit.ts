@@ -6,7 +6,7 @@ import { correctedMember } from '../core/correction/corrected-member.ts';
 import { dayOfYearUtc } from '../core/day-of-year.ts';
 import { archiveFromErrorMatrix, archiveStrata, stratumOf, type ErrorArchive } from '../core/stochastic/error-archive.ts';
 import type { ErrorTransform } from '../core/stochastic/error-transform.ts';
-import { continuousRows, type FeatureSpec } from '../core/features/features.ts';
+import { continuousInputs, type ResidualSpec } from '../core/features/model-inputs.ts';
 import { createPrng } from '../core/prng.ts';
 import {
   ar1Multipliers,
@@ -102,11 +102,11 @@ export function defaultLeadBands(leads: number): [number, number][] {
 const iso = (ms: number) => new Date(ms).toISOString().replace('.000Z', 'Z');
 
 /** Residual-corrected continuous simulation of each member over the period (NaN outside it). */
-export async function correctedSeries(series: ArchiveSeries, spec: FeatureSpec, period: Period, predictors: ResidualPredictor[]): Promise<Float64Array[]> {
+export async function correctedSeries(series: ArchiveSeries, spec: ResidualSpec, period: Period, predictors: ResidualPredictor[]): Promise<Float64Array[]> {
   const out: Float64Array[] = [];
   for (const member of series.members) {
     const sim = member.values;
-    const all = continuousRows(spec, { times: series.times, sim, forcings: series.forcings, obs: sim });
+    const all = continuousInputs(spec, { times: series.times, sim, forcings: series.forcings, obs: sim });
     const pick: number[] = [];
     for (let r = 0; r < all.nRows; r++) {
       const t = series.times[all.index[r]];
@@ -228,7 +228,7 @@ const meanOf = (s: LeadScore[]) => {
  */
 export async function fitUpdating(
   series: ArchiveSeries,
-  spec: FeatureSpec,
+  spec: ResidualSpec,
   validation: Period,
   predictors: ResidualPredictor[],
   transform: ErrorTransform,

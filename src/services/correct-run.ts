@@ -6,7 +6,7 @@
 import { createHash, randomUUID } from 'node:crypto';
 import { archiveReach, chooseArchive, leadGrowthOf } from '../core/stochastic/archive-choice.ts';
 import type { RequiredInputs, RunInput } from '../core/features/features.ts';
-import { checkResidualSpec, isSequenceSpec, requiredRunInputs, specForcings, type ResidualSpec } from '../core/features/model-inputs.ts';
+import { checkResidualSpec, requiredRunInputs, specForcings, type ResidualSpec } from '../core/features/model-inputs.ts';
 import { DEFAULT_QUANTILE_PROBS } from '../core/stochastic/stochastic-stage.ts';
 import type { Config } from '../config.ts';
 import { listMembers, readObservations } from '../store/archive-repo.ts';
@@ -351,7 +351,7 @@ export class RunCorrection {
       const readable = Number.isFinite(given.issueTime) && given.nLeads >= 1 && ids.every((id) => id !== undefined && known.has(id));
       if (readable) {
         // Issue-time updating corrects the member at the observation's time: read that far back too.
-        const extra = active!.updating && !isSequenceSpec(spec) ? gauge.updatingMaxAgeSteps + 1 : 0;
+        const extra = active!.updating ? gauge.updatingMaxAgeSteps + 1 : 0;
         const paths = ids.map((_, i) => `body.members[${i}].values`);
         ({ run, used: warmup } = await withArchiveWarmupFrom(db, gauge, spec, given, ids as string[], paths, extra, errors));
       } else warmup.stepsNeeded = need.simStepsToIssue;

@@ -12,7 +12,8 @@ import type { Db } from '../store/db.ts';
 import type { Gauge } from '../store/gauges-repo.ts';
 import { activateModelVersion, insertModelVersion } from '../store/models-repo.ts';
 import { runCompute } from '../workers/run-compute.ts';
-import { defaultPeriods, perLeadParts, type PerLeadOutput } from './fit.ts';
+import { defaultPeriods, perLeadParts, type FitOutput } from './fit.ts';
+import { defaultUpdatingLeads } from '../models/updating-fit.ts';
 import { conflict, invalid, type FieldError } from './problem.ts';
 import { rfc3339Ms } from '../core/rfc3339.ts';
 
@@ -28,6 +29,7 @@ export interface UploadRequest {
   transform: ErrorTransformSpec;
   templateLength: number;
   activate: boolean;
+  updating: { mode: 'auto' | 'on' | 'off'; leads?: number };
 }
 
 /** Checks, evaluates and stores an uploaded model; answers with the new version's id. */
@@ -61,19 +63,19 @@ export async function evaluateUpload(db: Db, gauge: Gauge, body: UploadRequest, 
   const validation = body.validation ? { fromMs: rfc3339Ms(body.validation.from), toMs: rfc3339Ms(body.validation.to) } : defaultPeriods(series).validation;
   // Past runs issued in the validation period give the per-lead archives, as for a fitted model.
   const reforecasts = await loadReforecastSet(db, gauge.id, validation);
-  let out: {
-    scores: Record<string, unknown>;
-    correctedArchive: { bytes: Uint8Array; summary: Record<string, unknown> };
-    rawArchive: { bytes: Uint8Array; summary: Record<string, unknown> };
-    perLead: PerLeadOutput | null;
-  };
+  let out: Pick<FitOutput, 'scores' | 'correctedArchive' | 'rawArchive' | 'perLead' | 'updating'>;
+  const u = body.updating;
+  // Closed-form candidates only: tree candidates are measured, not served, and would slow the request.
+  const updating = u.mode === 'off' ? null : { mode: u.mode, leads: u.leads ?? defaultUpdatingLeads(series.stepSeconds, body.templateLength), leadBands: null, history: 2, trees: false, seed: 1, maxTrainRows: 50_000 };
   try {
-    out = await runCompute<typeof out>({ kind: 'evaluate-upload', series, onnx, spec, validation, archive: { transform: body.transform, templateLength: body.templateLength }, reforecasts }).result;
+    out = await runCompute<typeof out>({ kind: 'evaluate-upload', series, onnx, spec, validation, archive: { transform: body.transform, templateLength: body.templateLength }, reforecasts, updating }).result;
   } catch (e) {
     throw invalid([{ path: 'body.onnxBase64', message: `the model failed on archive rows: ${(e as Error).message}` }], 'the uploaded model was refused; nothing was stored');
   }
   const perLead = perLeadParts(out.perLead);
-  const scores = perLead.scores ? { ...out.scores, reforecasts: perLead.scores } : out.scores;
+  const withPerLead = perLead.scores ? { ...out.scores, reforecasts: perLead.scores } : out.scores;
+  const scores = { ...withPerLead, updating: out.updating?.scores ?? { status: 'off', reason: u.mode === 'off' ? 'updating: off was asked for' : 'not fitted' } };
+  const fitted = out.updating?.model && out.updating.archive ? { model: out.updating.model, archive: out.updating.archive } : null;
   const id = await db.transaction(async (tx) => {
     const versionId = await insertModelVersion(tx, {
       gaugeId: gauge.id,
@@ -89,6 +91,7 @@ export async function evaluateUpload(db: Db, gauge: Gauge, body: UploadRequest, 
       correctedArchive: out.correctedArchive,
       rawArchive: out.rawArchive,
       perLeadArchives: perLead.archives,
+      updating: fitted,
     });
     if (body.activate) await activateModelVersion(tx, gauge.id, versionId);
     return versionId;

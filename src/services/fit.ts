@@ -9,7 +9,7 @@ import type { ErrorTransform } from '../core/stochastic/error-transform.ts';
 import { defaultLstmSpace, type LstmFitOptions } from '../models/lstm-fit.ts';
 import { rawArchiveFromReforecasts, type ReforecastScores } from '../models/reforecast-evaluation.ts';
 import { defaultBoostingSpace, defaultForestSpace, splitValidation, type FitOptions } from '../models/residual-fit.ts';
-import { defaultUpdatingLeads } from '../models/updating-fit.ts';
+import { defaultUpdatingLeads, type UpdatingOptions } from '../models/updating-fit.ts';
 import { loadArchiveSeries, loadReforecastSet } from '../store/archive-series.ts';
 import type { Db } from '../store/db.ts';
 import { getGauge } from '../store/gauges-repo.ts';
@@ -83,7 +83,7 @@ export function defaultPeriods(series: ArchiveSeries): { calibration: Period; va
 const period = (p: { from: string; to: string }): Period => ({ fromMs: rfc3339Ms(p.from), toMs: rfc3339Ms(p.to) });
 const iso = (ms: number) => new Date(ms).toISOString().replace('.000Z', 'Z');
 
-interface FitOutput {
+export interface FitOutput {
   spec: unknown;
   /** trees is the tree count (absent for the LSTM). */
   parts: { onnx: Uint8Array; params: Record<string, number>; validationRmse: number; trees?: number; info: unknown }[];
@@ -141,7 +141,7 @@ export async function fitModel(db: Db, job: { gaugeId: string; createdBy: string
   const perLead = perLeadParts(out.perLead);
   const withPerLead = perLead.scores ? { ...out.scores, reforecasts: perLead.scores } : out.scores;
   const updatingMode = p.updating?.mode ?? 'off';
-  const notFitted = updatingMode === 'off' ? 'updating: off was asked for' : p.trainer === 'lstm' ? 'issue-time updating is fitted with the trees only, not with the lstm trainer' : 'not fitted';
+  const notFitted = updatingMode === 'off' ? 'updating: off was asked for' : 'not fitted';
   const scores = { ...withPerLead, updating: out.updating?.scores ?? { status: 'off', reason: notFitted } };
   const updating = out.updating?.model && out.updating.archive ? { model: out.updating.model, archive: out.updating.archive } : null;
   await progress('storing the model version', 98);
@@ -183,6 +183,21 @@ export async function fitModel(db: Db, job: { gaugeId: string; createdBy: string
     archives: { leadFree: out.correctedArchive.summary, perLead: perLead.archives?.corrected.summary ?? null, perLeadNote: out.perLead ? out.perLead.reason : 'no past runs (reforecasts) issued in the held-out archive block of the validation period' },
   };
 
+  // Issue-time updating as asked, the same for every trainer.
+  function updatingOptions(): UpdatingOptions | null {
+    if (!p.updating || p.updating.mode === 'off') return null;
+    return {
+      mode: p.updating.mode,
+      leads: p.updating.leads ?? defaultUpdatingLeads(series.stepSeconds, p.templateLength),
+      leadBands: p.updating.leadBands ?? null,
+      history: p.updating.history,
+      trees: p.updating.trees,
+      seed: p.seed,
+      // The tree candidates are measured, not served: a smaller sample keeps the fit's time in bounds.
+      maxTrainRows: Math.min(p.maxTrainRows, 50_000),
+    };
+  }
+
   // Trees (boosting or forest), bundled, tuned and with issue-time updating as asked.
   async function fitTrees(trainer: FitOptions['trainer']): Promise<FitOutput> {
     const options: FitOptions = {
@@ -200,18 +215,7 @@ export async function fitModel(db: Db, job: { gaugeId: string; createdBy: string
       templateLength: p.templateLength,
       maxTrainRows: p.maxTrainRows,
       reforecasts,
-      updating: p.updating && p.updating.mode !== 'off'
-        ? {
-            mode: p.updating.mode,
-            leads: p.updating.leads ?? defaultUpdatingLeads(series.stepSeconds, p.templateLength),
-            leadBands: p.updating.leadBands ?? null,
-            history: p.updating.history,
-            trees: p.updating.trees,
-            seed: p.seed,
-            // The tree candidates are measured, not served: a smaller sample keeps the fit's time in bounds.
-            maxTrainRows: Math.min(p.maxTrainRows, 50_000),
-          }
-        : null,
+      updating: updatingOptions(),
     };
     const handle = runCompute<FitOutput>({ kind: 'fit', series, options }, onProgress);
     signal.addEventListener('abort', () => handle.cancel());
@@ -233,6 +237,7 @@ export async function fitModel(db: Db, job: { gaugeId: string; createdBy: string
       maxTrainRows: p.maxTrainRows,
       maxStopRows: LSTM_STOP_ROWS,
       reforecasts,
+      updating: updatingOptions(),
     };
     const handle = runCompute<FitOutput>({ kind: 'fit-lstm', series, options }, onProgress);
     signal.addEventListener('abort', () => handle.cancel());

@@ -1,10 +1,11 @@
 // Serving side of issue-time updating: whether a run is updated, on which observation, with which
 // error archive, and what the answer says about it. Reads only observations at or before the run's
 // issue time.
-import { FeatureInputError, checkFeatureSpec, type RunInput } from '../core/features/features.ts';
+import { FeatureInputError, type RunInput } from '../core/features/features.ts';
+import { checkResidualSpec } from '../core/features/model-inputs.ts';
 import { chooseIssueObservation, type IssueObservation } from '../core/correction/issue-observation.ts';
 import { checkUpdatingModel, updatingWarmupProblem, type UpdatingModel } from '../core/correction/updating.ts';
-import { observationTimeRows } from '../core/correction/updating-rows.ts';
+import { observationTimeInputs } from '../core/correction/updating-rows.ts';
 import type { Queryable } from '../store/db.ts';
 import { readObservations } from '../store/archive-repo.ts';
 import { versionArchiveInfo, type ArchiveInfo } from '../store/models-repo.ts';
@@ -53,11 +54,11 @@ export async function decideUpdating(
   const model = checkUpdatingModel(version.updating);
   if (!choice.observation) return off(choice.reason, model.method);
   const o = choice.observation;
-  const spec = checkFeatureSpec(version.featureSpec);
+  const spec = checkResidualSpec(version.featureSpec);
   const warm = updatingWarmupProblem(spec, warmupSteps, o.ageSteps);
   if (warm) return off(`${warm}; the run was corrected without updating`, model.method);
   try {
-    observationTimeRows(spec, run, o.ageSteps);
+    observationTimeInputs(spec, run, o.ageSteps);
   } catch (err) {
     if (!(err instanceof FeatureInputError)) throw err;
     return off(`${err.message}; the run was corrected without updating`, model.method);

@@ -8,7 +8,8 @@ import { computeHindcast } from '../models/hindcast-compute.ts';
 import { fitLstmResidualModel } from '../models/lstm-fit.ts';
 import { predictorFor } from '../models/model-shape.ts';
 import { createResidualSession } from '../models/onnx-session.ts';
-import { evaluateReforecasts, type ReforecastEvaluation } from '../models/reforecast-evaluation.ts';
+import type { ReforecastEvaluation } from '../models/reforecast-evaluation.ts';
+import { pastRunsAndUpdating } from '../models/past-runs-and-updating.ts';
 import { archiveSummary, evaluateResidualModel, rawArchiveFromSeries } from '../models/residual-evaluation.ts';
 import { fitResidualModel } from '../models/residual-fit.ts';
 import type { ComputeMessage, ComputeStart } from './protocol.ts';
@@ -75,6 +76,7 @@ async function run(): Promise<unknown> {
         correctedArchive: { bytes: archiveToBytes(r.evaluation.correctedArchive), summary: archiveSummary(r.evaluation.correctedArchive) },
         rawArchive: { bytes: archiveToBytes(r.evaluation.rawArchive), summary: archiveSummary(r.evaluation.rawArchive) },
         perLead: perLeadResult(r.perLead),
+        updating: updatingResult(r.updating, r.updatingError),
       };
     }
     case 'evaluate-upload': {
@@ -86,18 +88,27 @@ async function run(): Promise<unknown> {
       const evaluation = await evaluateResidualModel(task.series, spec, task.validation, predictors, task.archive);
       const check = evaluation.correctedArchive.error.every(Number.isFinite);
       if (!check) throw new Error('the model produced non-finite residuals on archive rows');
-      let perLead: ReforecastEvaluation | null = null;
-      if (task.reforecasts) {
-        progress({ stage: 'running it on the past runs', percent: 70 });
-        perLead = await evaluateReforecasts(task.series, task.reforecasts, spec, predictors, { transform: evaluation.correctedArchive.transform });
-      }
+      // Trained elsewhere: the whole validation period is its archive block.
+      const after = await pastRunsAndUpdating({
+        series: task.series,
+        spec,
+        predictors,
+        evaluation,
+        reforecasts: task.reforecasts,
+        updating: task.updating,
+        validation: task.validation,
+        archiveBlock: task.validation,
+        onProgress: progress,
+        shouldStop,
+      });
       await session.release();
       return {
         spec,
         scores: evaluation.scores,
         correctedArchive: { bytes: archiveToBytes(evaluation.correctedArchive), summary: archiveSummary(evaluation.correctedArchive) },
         rawArchive: { bytes: archiveToBytes(evaluation.rawArchive), summary: archiveSummary(evaluation.rawArchive) },
-        perLead: perLeadResult(perLead),
+        perLead: perLeadResult(after.perLead),
+        updating: updatingResult(after.updating, after.updatingError),
       };
     }
     case 'raw-archive': {

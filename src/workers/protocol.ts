@@ -3,6 +3,7 @@
 // and compute workers (one per task, compute-worker.ts). Both tell a stop on request from a failure
 // by the `cancelled` flag, which the main thread turns back into core's CancelledError.
 import type { ArchiveSeries, Period, ReforecastSet } from '../core/archive-types.ts';
+import type { UpdatingOptions } from '../models/updating-fit.ts';
 import type { RunInput } from '../core/features/features.ts';
 import type { CorrectionOptions, CorrectionTimings } from '../models/correct-run.ts';
 import type { HindcastTaskInput } from '../models/hindcast-compute.ts';
@@ -40,7 +41,7 @@ export type CorrectionReply = { id: number; ok: true; result?: CorrectionResult 
 export type ComputeTask =
   | { kind: 'fit'; series: ArchiveSeries; options: FitOptions }
   | { kind: 'fit-lstm'; series: ArchiveSeries; options: LstmFitOptions }
-  | { kind: 'evaluate-upload'; series: ArchiveSeries; onnx: Uint8Array; spec: unknown; validation: Period; archive: ArchiveOptions; reforecasts?: ReforecastSet | null }
+  | { kind: 'evaluate-upload'; series: ArchiveSeries; onnx: Uint8Array; spec: unknown; validation: Period; archive: ArchiveOptions; reforecasts?: ReforecastSet | null; updating?: UpdatingOptions | null }
   | { kind: 'raw-archive'; series: ArchiveSeries; period: Period; archive: ArchiveOptions }
   | { kind: 'hindcast'; input: HindcastTaskInput };
 

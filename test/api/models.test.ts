@@ -142,6 +142,20 @@ describe('models trained elsewhere', () => {
     expect(v).toMatchObject({ origin: 'uploaded', active: false, parts: 1, featureSpec: spec });
     expect(v.scores.cases).toBeGreaterThan(1000);
     expect(await versionArchive(t.db, v.id, 'corrected')).not.toBeNull();
+    // Issue-time updating is fitted for an upload too (auto by default), closed-form candidates only.
+    expect(v.scores.updating.candidates.map((c: { name: string }) => c.name)).toEqual(['none', 'ar1', 'phi-per-lead']);
+    expect((await versionArchive(t.db, v.id, 'corrected', 'updating')) !== null).toBe(v.scores.updating.status === 'on');
+  });
+
+  it('fits no updater for an upload that asks for none, and says so', async () => {
+    const res = await t.as('admin', {
+      method: 'POST',
+      url: `/gauges/${gaugeId}/models/upload`,
+      payload: { label: 'partner MLP, no updating', featureSpec: spec, onnxBase64: mlp.toString('base64'), templateLength: 30, updating: { mode: 'off' } },
+    });
+    expect(res.statusCode, res.body).toBe(201);
+    expect(res.json().scores.updating).toEqual({ status: 'off', reason: 'updating: off was asked for' });
+    expect(await versionArchive(t.db, res.json().id, 'corrected', 'updating')).toBeNull();
   });
 
   it.each([

@@ -119,7 +119,8 @@ describe('uploading a PyTorch LSTM or GRU taking [N, window, steps]', () => {
 
 describe('the in-house LSTM as a fit job', () => {
   it('trains with early stopping, exports to the ONNX LSTM operator, checks it, stores and serves it', async () => {
-    const started = await t.as('admin', { method: 'POST', url: `/gauges/${gaugeId}/models/fit`, payload: smallLstm });
+    // Updating on at every lead, so the run below is updated through the sequence model's window at the observation.
+    const started = await t.as('admin', { method: 'POST', url: `/gauges/${gaugeId}/models/fit`, payload: { ...smallLstm, updating: { mode: 'on' } } });
     expect(started.statusCode, started.body).toBe(202);
     await runner.drain();
     const job = (await t.as('read', { method: 'GET', url: `/jobs/${started.json().id}` })).json();
@@ -132,15 +133,19 @@ describe('the in-house LSTM as a fit job', () => {
     expect(v.featureSpec.steps.map((s: { name: string }) => s.name)).toEqual(['sim', 'air_temperature', 'precipitation', 'day_of_year_sin', 'day_of_year_cos']);
     expect(v.trainer).toMatchObject({ kind: 'lstm' });
     expect(v.trainer.model.epochs).toBeGreaterThan(0);
-    // Issue-time updating is fitted with flat-row models only; the version says so rather than staying silent.
-    expect(v.scores.updating).toMatchObject({ status: 'off' });
-    expect(v.scores.updating.reason).toMatch(/trees only/);
+    // Issue-time updating is fitted for the LSTM as for the trees: its candidates scored on pseudo-forecasts.
+    expect(v.scores.updating.candidates.map((c: { name: string }) => c.name)).toEqual(expect.arrayContaining(['none', 'ar1', 'phi-per-lead']));
+    expect(v.scores.updating.leads.length).toBeGreaterThan(0);
     // The scenario's raw members are biased, so the residual stage must improve them on the held-out period.
     expect(v.scores.residualRmse.after).toBeLessThan(v.scores.residualRmse.before);
 
     const run = await t.as('ingest', { method: 'POST', url: `/gauges/${gaugeId}/runs`, payload: { ...scenarioRunBody(scenario.forecastRun(lastIndex - 50)), source: 'lstm' } });
     expect(run.statusCode, run.body).toBe(201);
     expect(run.json()).toMatchObject({ status: 'corrected', modelVersion: { id: v.id } });
+    // Updated on the observation at issue time, from the archive of updated members.
+    expect(v.scores.updating.status).toBe('on');
+    expect(run.json().updating).toMatchObject({ status: 'on', observation: { ageSteps: 0 } });
+    expect(run.json().errorArchive).toMatchObject({ leadMode: 'updating' });
 
     // A hindcast of the LSTM version over its validation period, like any other version's.
     const h = await t.as('admin', { method: 'POST', url: `/gauges/${gaugeId}/hindcasts`, payload: { version: v.id, trajectories: 100 } });

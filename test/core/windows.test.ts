@@ -4,6 +4,8 @@ import { FeatureInputError } from '../../src/core/features/feature-spec.ts';
 import { checkResidualSpec, inputWidth, requiredRunInputs, rowShape } from '../../src/core/features/model-inputs.ts';
 import { checkSequenceSpec, type SequenceSpec } from '../../src/core/features/sequence-spec.ts';
 import { continuousWindows, reforecastWindows, servingWindows } from '../../src/core/features/windows.ts';
+import { observationTimeWindows } from '../../src/core/correction/updating-rows.ts';
+import { updatingWarmupProblem } from '../../src/core/correction/updating.ts';
 
 const DAY = 86_400_000;
 const T0 = Date.UTC(2021, 2, 1);
@@ -162,5 +164,32 @@ describe('warm-up from the archive', () => {
     expect(given.taken).toEqual([1, 3, 4]);
     const holes = fillWarmup({ ...simSeries, archived: [NaN, sim[5], NaN, sim[7], sim[8]] }, 3, 5);
     expect(holes.missing).toEqual([2, 4]);
+  });
+});
+
+describe('windows at the observation time (issue-time updating of sequence models)', () => {
+  const n = 14;
+  const times = Array.from({ length: n }, (_, i) => T0 + i * DAY);
+  const sim = Array.from({ length: n }, (_, i) => 10 + i);
+  const prec = Array.from({ length: n }, (_, i) => (i * 7) % 5);
+  // A run issued at index 9 with 4 lead times; its series hold indices 0 … 13.
+  const run = { issueTime: times[9], nLeads: 4, members: [sim, sim.map((v) => v + 1)], forcings: { precipitation: prec } };
+
+  it('for each member: the window ending ageSteps before issue, as defined (worked by hand)', () => {
+    for (const age of [0, 2]) {
+      const w = observationTimeWindows(spec, run, age);
+      expect(w.nRows).toBe(2);
+      expect(Array.from(w.rows.subarray(0, 9))).toEqual(byHand(sim, prec, times, 9 - age));
+      expect(Array.from(w.rows.subarray(9, 18))).toEqual(byHand(run.members[1], prec, times, 9 - age));
+      expect(Array.from(w.simAt)).toEqual([sim[9 - age], sim[9 - age] + 1]);
+    }
+  });
+
+  it('the warm-up a sequence model needs for it, and a missing value named in the run', () => {
+    expect(updatingWarmupProblem(spec, 3, 0)).toBeNull();
+    expect(updatingWarmupProblem(spec, 4, 2)).toMatch(/needs 5/);
+    const gap = sim.slice();
+    gap[7] = NaN;
+    expect(catchFeatureError(() => observationTimeWindows(spec, { ...run, members: [gap] }, 1)).path).toBe('members[0].values[7]');
   });
 });

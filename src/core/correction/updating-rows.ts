@@ -3,9 +3,45 @@
 // corrected value there, and so its issue-time error, can be computed at serving.
 import { writeFeatureRow } from '../features/feature-row.ts';
 import { FeatureInputError, featureCount, type FeatureSpec } from '../features/feature-spec.ts';
-import type { RunInput } from '../features/features.ts';
+import type { RunForcing, RunInput } from '../features/features.ts';
+import { isSequenceSpec, type SequenceSpec } from '../features/sequence-spec.ts';
+import { servingWindows } from '../features/windows.ts';
 
-export function observationTimeRows(spec: FeatureSpec, run: RunInput, ageSteps: number): { rows: Float32Array; nRows: number; nFeatures: number; simAt: Float64Array } {
+export interface ObservationTimeInputs {
+  rows: Float32Array;
+  nRows: number;
+  nFeatures: number;
+  /** Each member's simulated value at the observation's time. */
+  simAt: Float64Array;
+}
+
+/** The model's inputs at the observation's time, for flat-row and sequence models alike. */
+export function observationTimeInputs(spec: FeatureSpec | SequenceSpec, run: RunInput, ageSteps: number): ObservationTimeInputs {
+  return isSequenceSpec(spec) ? observationTimeWindows(spec, run, ageSteps) : observationTimeRows(spec, run, ageSteps);
+}
+
+/**
+ * The run as seen from the observation's time: issued one step before it, with the observation's
+ * step as its only lead time (every series cut there; indices into them are unchanged).
+ */
+export function runAtObservation(run: RunInput, ageSteps: number, stepSeconds: number): RunInput {
+  const cut = (s: ArrayLike<number>): number[] => Array.prototype.slice.call(s, 0, s.length - run.nLeads - ageSteps) as number[];
+  const forcings: Record<string, RunForcing> = {};
+  for (const [name, f] of Object.entries(run.forcings ?? {})) {
+    const perMember = f.length > 0 && typeof f[0] !== 'number' && f[0] !== null;
+    forcings[name] = perMember ? Array.from(f as ArrayLike<number>[], cut) : cut(f as ArrayLike<number>);
+  }
+  return { issueTime: run.issueTime - (ageSteps + 1) * stepSeconds * 1000, nLeads: 1, members: run.members.map(cut), forcings, issueObservation: null };
+}
+
+/** Windows ending at the observation's time, one per member, laid out as the serving windows. */
+export function observationTimeWindows(spec: SequenceSpec, run: RunInput, ageSteps: number): ObservationTimeInputs {
+  const w = servingWindows(spec, runAtObservation(run, ageSteps, spec.stepSeconds));
+  const simAt = Float64Array.from(run.members, (sim) => Number(sim[sim.length - run.nLeads - 1 - ageSteps]));
+  return { rows: w.rows, nRows: w.nRows, nFeatures: w.nFeatures, simAt };
+}
+
+export function observationTimeRows(spec: FeatureSpec, run: RunInput, ageSteps: number): ObservationTimeInputs {
   const nF = featureCount(spec);
   const M = run.members.length;
   const rows = new Float32Array(M * nF);

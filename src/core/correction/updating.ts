@@ -5,6 +5,7 @@
 import { crpsSorted } from '../scores/crps.ts';
 import { forwardTransform, inverseTransform, type ErrorTransform } from '../stochastic/error-transform.ts';
 import type { FeatureSpec } from '../features/feature-spec.ts';
+import { isSequenceSpec, type SequenceSpec } from '../features/sequence-spec.ts';
 
 /**
  * The updater stored with a model version. In the error transform T of the version's archive,
@@ -339,7 +340,12 @@ export function pairedLeadDifference(a: Float64Array, b: Float64Array, nIssues: 
  * issue) needs that many more warm-up values than the lead-time rows. `warmupSteps` counts the
  * values at or before issue time. Returns null when it can, else why not.
  */
-export function updatingWarmupProblem(spec: FeatureSpec, warmupSteps: number, ageSteps: number): string | null {
+export function updatingWarmupProblem(spec: FeatureSpec | SequenceSpec, warmupSteps: number, ageSteps: number): string | null {
+  if (isSequenceSpec(spec)) {
+    // A window of `window` steps ending at the observation's time.
+    const need = spec.window + ageSteps;
+    return warmupSteps < need ? `the run carries ${warmupSteps} values up to issue time; the sequence model needs ${need} for its window at the observation's time` : null;
+  }
   if (spec.issueError || spec.leadTime) return "the version's residual model reads the lead time or the issue error itself";
   const sim = spec.simLags + ageSteps + 1;
   let need = sim;
