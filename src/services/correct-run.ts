@@ -143,6 +143,18 @@ async function withArchiveWarmupFrom(
 }
 
 /**
+ * JSON.stringify({ ...body, ...extra }) from bodyJson = JSON.stringify(body), without serialising
+ * the body (a run's ~100 KB of numbers) a second time: the same text, as the extra keys are new
+ * and come last. Falls back to serialising when a key of extra is already in the body.
+ */
+export function jsonWithFields(bodyJson: string, body: object, extra: Record<string, unknown>): string {
+  const tail = JSON.stringify(extra);
+  if (tail === '{}') return bodyJson;
+  if (bodyJson === '{}' || Object.keys(extra).some((k) => Object.hasOwn(body, k))) return JSON.stringify({ ...body, ...extra });
+  return `${bodyJson.slice(0, -1)},${tail.slice(1)}`;
+}
+
+/**
  * The values the archive added in front of the run's series, stored with the run so it can be
  * reproduced even if the archive changes later (null when nothing was added).
  */
@@ -288,7 +300,8 @@ export class RunCorrection {
     if (idempotencyKey !== null && !/^[\x21-\x7e]{1,200}$/.test(idempotencyKey)) errors.add('headers.idempotency-key', 'must be 1–200 visible ASCII characters');
     // Where the milliseconds go (the Server-Timing header; bench/correction.ts prints them).
     const clock = new StageClock(started);
-    const requestHash = createHash('sha256').update(JSON.stringify(draft)).digest('hex');
+    const draftJson = JSON.stringify(draft);
+    const requestHash = createHash('sha256').update(draftJson).digest('hex');
     clock.lap('hash');
     // An earlier identical request answers from the store (only a well-formed body can be one).
     if (!errors.items.length) {
@@ -510,7 +523,8 @@ export class RunCorrection {
           status,
           modelVersionId: status === 'corrected' ? (active?.id ?? null) : null,
           seed,
-          input: { ...body, form, archiveWarmup: archiveWarmupValues(given, run, body.members.map((m) => m.id)) },
+          input: null,
+          inputJson: jsonWithFields(draftJson, body, { form, archiveWarmup: archiveWarmupValues(given, run, body.members.map((m) => m.id)) }),
           output,
           etag,
           summary,

@@ -334,10 +334,15 @@ export async function readObservations(db: Queryable, gaugeId: string, w: Window
 
 export async function readForcings(db: Queryable, gaugeId: string, w: Window, variables?: string[]) {
   const params: unknown[] = [gaugeId];
-  let where = windowSql('time', w, params);
+  const where = windowSql('time', w, params);
   if (variables) {
     params.push(variables);
-    where += ` and variable = any($${params.length}::text[])`;
+    const { rows } = await db.query<{ variable: string; t: number; value: number | null }>(
+      `select s.variable, ${epochMs('s.time')} as t, s.value from ${eachOf(params.length)}
+       cross join lateral (select variable, time, value from forcing_values where gauge_id = $1 and variable = one.name${where} offset 0) s order by s.variable, s.time`,
+      params,
+    );
+    return rows;
   }
   const { rows } = await db.query<{ variable: string; t: number; value: number | null }>(
     `select variable, ${epochMs('time')} as t, value from forcing_values where gauge_id = $1${where} order by variable, time`,
@@ -346,12 +351,26 @@ export async function readForcings(db: Queryable, gaugeId: string, w: Window, va
   return rows;
 }
 
+/**
+ * The distinct names of the text array parameter $n as rows one(name). Joined laterally to a
+ * subquery kept apart by `offset 0`, each name gets its own index range scan on (gauge, name, time):
+ * written as `name = any($n)` the planner, without fresh statistics (after a bulk load, with
+ * autovacuum off or not yet run), filtered the whole gauge's index range instead — 20–40 ms for a
+ * run's 51 members × 12 steps, against under a millisecond.
+ */
+const eachOf = (n: number) => `(select distinct unnest($${n}::text[]) as name) one`;
+
 export async function readSimulations(db: Queryable, gaugeId: string, w: Window, members?: string[]) {
   const params: unknown[] = [gaugeId];
-  let where = windowSql('time', w, params);
+  const where = windowSql('time', w, params);
   if (members) {
     params.push(members);
-    where += ` and member_id = any($${params.length}::text[])`;
+    const { rows } = await db.query<{ member_id: string; t: number; value: number | null }>(
+      `select s.member_id, ${epochMs('s.time')} as t, s.value from ${eachOf(params.length)}
+       cross join lateral (select member_id, time, value from member_simulations where gauge_id = $1 and member_id = one.name${where} offset 0) s order by s.member_id, s.time`,
+      params,
+    );
+    return rows;
   }
   const { rows } = await db.query<{ member_id: string; t: number; value: number | null }>(
     `select member_id, ${epochMs('time')} as t, value from member_simulations where gauge_id = $1${where} order by member_id, time`,

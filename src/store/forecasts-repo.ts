@@ -54,6 +54,8 @@ export interface NewRun {
   modelVersionId: string | null;
   seed: number;
   input: unknown;
+  /** The input already as JSON text (then `input` is not read). */
+  inputJson?: string;
   output: string;
   etag: string;
   summary: unknown;
@@ -100,7 +102,7 @@ export async function insertRun(db: Queryable, r: NewRun): Promise<void> {
        returning id, gauge_id, event_seq)
      select pg_notify('forecast_runs', json_build_object('eventId', event_seq::text, 'gaugeId', gauge_id, 'runId', id, 'issueTime', $18::text)::text) from stored`,
     [r.id, r.gaugeId, r.issueTimeMs / 1000, r.source, r.requestHash, r.idempotencyKey, r.status, r.modelVersionId, r.seed,
-      JSON.stringify(r.input), r.output, r.etag, JSON.stringify(r.summary), Buffer.from(encodePercentiles(r.percentiles)),
+      r.inputJson ?? JSON.stringify(r.input), r.output, r.etag, JSON.stringify(r.summary), Buffer.from(encodePercentiles(r.percentiles)),
       r.issueObservation ? r.issueObservation.timeMs / 1000 : null, r.issueObservation?.value ?? null, r.issueObservation?.source ?? null,
       new Date(r.issueTimeMs).toISOString().replace('.000Z', 'Z'), RUN_EVENT_LOCK],
   );

@@ -5,6 +5,7 @@ import { loadScenarioArchive } from '../../src/scenario/load-archive.ts';
 import { buildScenario, type Scenario } from '../../src/scenario/scenario.ts';
 import { makeTestApp, type TestApp } from '../helpers/test-app.ts';
 import { injectSend } from '../helpers/scenario-send.ts';
+import { jsonWithFields } from '../../src/services/correct-run.ts';
 
 // Two gauges with raw error archives (no model: runs are served degraded, which is enough here).
 let t: TestApp;
@@ -83,5 +84,31 @@ describe('absurd flows in a run', () => {
     const res = await post(first, runBody(last - 31, { source: 'absurd-obs', issueObservation: 1e300 }));
     expect(res.statusCode).toBe(422);
     expect(res.json().errors.map((e: { path: string }) => e.path)).toContain('body.issueObservation');
+  });
+});
+
+describe('stored run input', () => {
+  it('jsonWithFields gives the text JSON.stringify gives for the body with the extra fields', () => {
+    const cases: [object, Record<string, unknown>][] = [
+      [{ a: 1, b: [1.5, null, 'x'], c: { d: true } }, { form: 'json', archiveWarmup: null }],
+      [{ a: 1 }, { form: 'csv', archiveWarmup: { members: { m1: [1, null] }, forcings: {} } }],
+      [{}, { form: 'json' }], // empty body
+      [{ a: 1, form: 'old' }, { form: 'json', archiveWarmup: null }], // a key already in the body keeps its place
+      [{ a: 1, skip: undefined }, { form: 'json', gone: undefined }], // undefined values are left out
+      [{ a: 1 }, { gone: undefined }], // nothing to add
+    ];
+    for (const [body, extra] of cases) expect(jsonWithFields(JSON.stringify(body), body, extra)).toBe(JSON.stringify({ ...body, ...extra }));
+  });
+
+  it('a stored run keeps the body it was posted with, its form and what the archive added', async () => {
+    const body = runBody(last - 30, { source: 'stored-input' });
+    const res = await post(first, body);
+    expect(res.statusCode, res.body).toBe(201);
+    const { input } = (await t.db.query<{ input: string }>('select input from forecast_runs where id = $1', [res.json().id])).rows[0];
+    const stored = JSON.parse(input);
+    expect(JSON.stringify(stored)).toBe(input); // one object, no repeated key
+    for (const [k, v] of Object.entries(body)) expect(stored[k]).toEqual(v);
+    expect(stored.form).toBe('json');
+    expect(stored.archiveWarmup).toBeNull();
   });
 });

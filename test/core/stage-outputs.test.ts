@@ -5,7 +5,9 @@ import { stageCases, stageDigest } from '../fixtures/stage-outputs/cases.ts';
 
 // Regression check, not an outside source: the outputs were written by
 // test/fixtures/stage-outputs/make-stage-outputs.ts with the stage as it stood before the speed
-// work (commit b0e3982; remade with the stage of commit 6c3bb1a on main, whose lead scale changed). Everything is seeded, so a faster implementation must give the same
+// work (commit b0e3982; remade with the stage of commit 6c3bb1a on main, whose lead scale changed; the
+// uniform-kernel case remade for its window path, which draws the same neighbours with the same
+// probabilities in another order — test/core/knn-window.test.ts — while its "walked" twin keeps the old numbers). Everything is seeded, so a faster implementation must give the same
 // numbers bit for bit.
 const fixture = JSON.parse(readFileSync(new URL('../fixtures/stage-outputs/stage-outputs.json', import.meta.url), 'utf8')) as { cases: ({ name: string } & ReturnType<typeof stageDigest>)[] };
 

@@ -3,9 +3,11 @@ import {
   COPY_MIN_ROWS,
   ensureForcingVariable,
   ensureMembers,
+  readForcings,
   readObservations,
   readReforecasts,
   readSimulations,
+  upsertForcings,
   upsertObservations,
   upsertReforecasts,
   upsertSimulations,
@@ -92,6 +94,27 @@ describe('bulk archive writes', () => {
     const rows = await readObservations(t.db, gauge, {});
     expect(rows.map((r) => r.quality)).toEqual(quality);
     expect(rows.map((r) => r.value)).toEqual(Array.from(values, (v) => (Number.isNaN(v) ? null : v)));
+  });
+
+  it('a read for named members (or forcings) returns exactly their rows in the window, by name then time, each name once', async () => {
+    const from = t0 + 40 * day;
+    const to = t0 + 52 * day;
+    const all = await readSimulations(t.db, gauge, { fromMs: from, toMs: to });
+    // Names in any order, repeated, and one the gauge does not have.
+    const named = await readSimulations(t.db, gauge, { fromMs: from, toMs: to }, ['b', 'a', 'b', 'nobody']);
+    expect(named.length).toBe(24);
+    expect(named).toEqual(all);
+    expect(await readSimulations(t.db, gauge, { fromMs: from, toMs: to }, ['b'])).toEqual(all.filter((r) => r.member_id === 'b'));
+    expect(await readSimulations(t.db, gauge, { fromMs: from, toMs: to }, [])).toEqual([]);
+    await t.db.transaction(async (tx) => {
+      await ensureForcingVariable(tx, gauge, 'precipitation', 'mm');
+      await ensureForcingVariable(tx, gauge, 'snow', 'mm');
+      await upsertForcings(tx, gauge, times.subarray(0, 100), [{ name: 'snow', values: series(5).subarray(0, 100) }, { name: 'precipitation', values: series(6).subarray(0, 100) }]);
+    });
+    const forcings = await readForcings(t.db, gauge, { fromMs: from, toMs: to });
+    expect(forcings.length).toBe(24);
+    expect(await readForcings(t.db, gauge, { fromMs: from, toMs: to }, ['snow', 'precipitation', 'snow'])).toEqual(forcings);
+    expect(await readForcings(t.db, gauge, { fromMs: from, toMs: to }, ['snow'])).toEqual(forcings.filter((r) => r.variable === 'snow'));
   });
 
   it('past runs longer than one insert chunk keep their lead numbers', async () => {

@@ -1,3 +1,5 @@
+import type { Prng } from '../prng.ts';
+
 /**
  * k-nearest-neighbour resampling (Lall & Sharma 1996): among the k cases nearest to a value,
  * the j-th nearest is drawn with probability (1/j) / Σ_{i=1..k} (1/i); default k = round(√n).
@@ -74,6 +76,104 @@ export function nearestSorted(
     out[outOffset + j] = values[take];
   }
   return want;
+}
+
+/**
+ * The errors of the k cases nearest to x among cP[1 … nCand] (ascending, with sentinels
+ * cP[0] = −∞ and cP[nCand + 1] = +∞), nearest first, into out[outBase …]. Cases at equal
+ * distance are ordered at random: the nearest-first walk takes an interval of the sorted
+ * candidates; when the k-th distance is shared by cases outside it, or distances repeat inside
+ * it, the cases at each repeated distance are chosen and ordered by a seeded random shuffle.
+ */
+export function nearestWithRandomTies(
+  x: number,
+  cP: Float64Array,
+  cE: Float64Array,
+  nCand: number,
+  k: number,
+  out: Float64Array,
+  outBase: number,
+  scratch: Int32Array,
+  rng: Prng,
+): void {
+  // Branch-free binary search: b ends on the last candidate below x.
+  let b = 0;
+  let len = nCand + 2;
+  while (len > 1) {
+    const half = len >>> 1;
+    b += +(cP[b + half] < x) * half;
+    len -= half;
+  }
+  let l = b;
+  let r = b + 1;
+  let prev = -1;
+  let repeated = false;
+  for (let j = 0; j < k; j++) {
+    const dl = x - cP[l];
+    const dr = cP[r] - x;
+    const takeLeft = dl <= dr;
+    const d = takeLeft ? dl : dr;
+    if (d === prev) repeated = true;
+    prev = d;
+    out[outBase + j] = cE[takeLeft ? l-- : r++];
+  }
+  // prev is now the k-th distance; a tie beyond the interval or within it needs the slow path.
+  if (!repeated && x - cP[l] !== prev && cP[r] - x !== prev) return;
+  // Widen the interval to every case at the k-th distance, then write the cases in order of
+  // distance, each run of equal distance shuffled and cut to what is left of k.
+  while (x - cP[l] === prev) l--;
+  while (cP[r] - x === prev) r++;
+  // Cases l+1 … r−1 sorted by distance: a two-way merge from b outwards.
+  let n = 0;
+  let a = b;
+  let c = b + 1;
+  while (a > l || c < r) {
+    const da = a > l ? x - cP[a] : Infinity;
+    const dc = c < r ? cP[c] - x : Infinity;
+    scratch[n++] = da <= dc ? a-- : c++;
+  }
+  let written = 0;
+  let s = 0;
+  while (written < k) {
+    const d = Math.abs(cP[scratch[s]] - x);
+    let e = s + 1;
+    while (e < n && Math.abs(cP[scratch[e]] - x) === d) e++;
+    // Fisher–Yates on the run s … e−1, only as far as needed.
+    const take = Math.min(e - s, k - written);
+    for (let i = 0; i < take; i++) {
+      const p = s + i + rng.nextInt(e - s - i);
+      const tmp = scratch[s + i];
+      scratch[s + i] = scratch[p];
+      scratch[p] = tmp;
+      out[outBase + written++] = cE[scratch[s + i]];
+    }
+    s = e;
+  }
+}
+
+/**
+ * The k cases nearest to x among cP[1 … nCand] (ascending, sentinels cP[0] = −∞ and
+ * cP[nCand + 1] = +∞, 1 ≤ k ≤ nCand) as a window of the sorted candidates: returns a, the window
+ * being cP[a … a + k − 1], found by binary search in O(log nCand) without walking it. Returns 0
+ * when a case outside the window is exactly as near as the window's farthest one: the k nearest
+ * are then not one set, and nearestWithRandomTies settles the tie at random.
+ * The set is the one nearestWithRandomTies takes whenever it has no choice to make (distances are
+ * the same floating-point differences, and they are monotone in the position on each side).
+ */
+export function nearestWindow(x: number, cP: Float64Array, nCand: number, k: number): number {
+  // Smallest a whose window is at least as near as the next one: x − cP[a] ≤ cP[a + k] − x.
+  // The condition is false → true as a grows (left distances shrink, right ones grow).
+  let lo = 1;
+  let hi = nCand - k + 1;
+  while (lo < hi) {
+    const mid = (lo + hi) >>> 1;
+    if (x - cP[mid] > cP[mid + k] - x) lo = mid + 1;
+    else hi = mid;
+  }
+  const dl = x - cP[lo];
+  const dr = cP[lo + k - 1] - x;
+  const far = dl > dr ? dl : dr;
+  return x - cP[lo - 1] === far || cP[lo + k] - x === far ? 0 : lo;
 }
 
 /** Distance in days between two days of year on a circular year of 365.25 days. */

@@ -1,6 +1,6 @@
 import { archiveStrata, MISSING_RANK, stratumOf, type ErrorArchive } from './error-archive.ts';
 import { countAboveSorted } from '../scores/exceedance.ts';
-import { circularDayDistance, defaultK, kernelCumulative, type NeighbourKernel } from './knn.ts';
+import { circularDayDistance, defaultK, kernelCumulative, nearestWindow, nearestWithRandomTies, type NeighbourKernel } from './knn.ts';
 import { createPrng, type Prng } from '../prng.ts';
 import { quantileSorted } from '../scores/quantile.ts';
 import { sortNonNegative } from './radix-sort.ts';
@@ -101,6 +101,11 @@ export interface StochasticOptions {
   forcingPaths?: boolean;
   /** Return the N × nLeads trajectories (default false). */
   keepTrajectories?: boolean;
+  /**
+   * Walk every member's k nearest cases even for the uniform kernel (default false: the uniform
+   * kernel reads them as a window of the sorted candidates). For checking one against the other.
+   */
+  walkNeighbours?: boolean;
   /** When given, the milliseconds spent in each part of the stage are added to it. */
   timings?: StageTimings;
 }
@@ -328,11 +333,22 @@ export function runStochasticStage(
   // Candidates of the current (group, day) are copied between sentinels (−∞ first, +∞ last) so
   // the nearest-first walk needs no bounds checks.
   // With strata, each used stratum's candidates live in their own slice of cP/cE (stride maxGroup + 2).
-  const nbErr = workspace.f64('nbErr', nMM * kStride); // [mm·kStride + rank], current lead
+  // Uniform kernel (without a lead scale, which needs each member's neighbours in hand): the k
+  // nearest of a sorted 1-D predictor are a window of the candidates, found by binary search, and
+  // the draws read the window in place (O(log n) per member and lead instead of a walk over k).
+  // Which case each draw index lands on differs from the walk's nearest-first order, but every
+  // one of the k is equally likely either way. A tie at the k-th distance takes the walk, whose
+  // random choice among the tied cases is written to a spill slice after the candidates.
+  const direct = kernel === 'uniform' && !leadScale && !options.walkNeighbours;
   const kPerLead = new Int32Array(H);
   const cStride = maxGroup + 2;
   const cPAll = workspace.f64('candPred', S * cStride);
-  const cEAll = workspace.f64('candErr', S * cStride);
+  const spill = S * cStride;
+  const cEAll = workspace.f64('candErr', spill + (direct ? nMM * kStride : 0));
+  // Where each member's k neighbour errors start in `source`, nearest first unless direct.
+  const source = direct ? cEAll : workspace.f64('nbErr', nMM * kStride);
+  const nbBase = workspace.i32('nbBase', nMM);
+  for (let mm = 0; mm < nMM; mm++) nbBase[mm] = direct ? spill + mm * kStride : mm * kStride;
   const nCandOf = new Int32Array(S);
   const cP = cPAll.subarray(0, cStride);
   const cE = cEAll.subarray(0, cStride);
@@ -487,7 +503,13 @@ export function runStochasticStage(
       }
       k = Math.min(kFor(nCand), kStride);
       for (let mm = 0; mm < nMM; mm++) {
-        nearestWithRandomTies(members[mm * H + h], cP, cE, nCand, k, nbErr, mm * kStride, tieIdx, rngTies);
+        const x = members[mm * H + h];
+        const a = direct ? nearestWindow(x, cP, nCand, k) : 0;
+        if (a > 0) nbBase[mm] = a;
+        else {
+          nbBase[mm] = direct ? spill + mm * kStride : mm * kStride;
+          nearestWithRandomTies(x, cP, cE, nCand, k, source, nbBase[mm], tieIdx, rngTies);
+        }
       }
     } else {
       // Per stratum: the window's cases of this lead and stratum (all of them when the window holds none).
@@ -505,13 +527,18 @@ export function runStochasticStage(
       for (let mm = 0; mm < nMM; mm++) {
         const st = memberStratum[mm];
         const p = cPAll.subarray(st * cStride, (st + 1) * cStride);
-        const e = cEAll.subarray(st * cStride, (st + 1) * cStride);
-        nearestWithRandomTies(members[mm * H + h], p, e, nCandOf[st], k, nbErr, mm * kStride, tieIdx, rngTies);
+        const x = members[mm * H + h];
+        const a = direct ? nearestWindow(x, p, nCandOf[st], k) : 0;
+        if (a > 0) nbBase[mm] = st * cStride + a;
+        else {
+          nbBase[mm] = direct ? spill + mm * kStride : mm * kStride;
+          nearestWithRandomTies(x, p, cEAll.subarray(st * cStride, (st + 1) * cStride), nCandOf[st], k, source, nbBase[mm], tieIdx, rngTies);
+        }
       }
     }
     kPerLead[h] = k;
     if (timings) timings.knnMs += lap();
-    if (leadScale) scaleTerms(kind, lambda, leadScale[Math.min(leadFree ? h : groupOfLead(h), leadScale.length - 1)], nbErr, nMM, kStride, k);
+    if (leadScale) scaleTerms(kind, lambda, leadScale[Math.min(leadFree ? h : groupOfLead(h), leadScale.length - 1)], source, nMM, kStride, k);
     if (k !== cumK) {
       kernelCumulative(kernel, k, cum);
       const cTop = cum[k - 1];
@@ -524,7 +551,7 @@ export function runStochasticStage(
       }
       cumK = k;
     }
-    sampleLead(kind, rngState, N, slot, 16 * k, cum[k - 1], cum, guide, tx, h * nMM, nbErr, kStride, vals, offset, boxCoxFloor);
+    sampleLead(kind, rngState, N, slot, 16 * k, cum[k - 1], cum, guide, tx, h * nMM, source, nbBase, vals, offset, boxCoxFloor);
     if (timings) timings.samplingMs += lap();
     // This lead's path terms per draw, in the form sampleLead adds errors: exp(δ), λ·δ or δ.
     const term = paths ? pathTerm : null;
@@ -603,79 +630,6 @@ function withPath(v: number, term: number, kind: number, offset: number, floor: 
   }
   const b = v + term;
   return b > floor ? b : floor;
-}
-
-/**
- * The errors of the k cases nearest to x among cP[1 … nCand] (ascending, with sentinels
- * cP[0] = −∞ and cP[nCand + 1] = +∞), nearest first, into out[outBase …]. Cases at equal
- * distance are ordered at random: the nearest-first walk takes an interval of the sorted
- * candidates; when the k-th distance is shared by cases outside it, or distances repeat inside
- * it, the cases at each repeated distance are chosen and ordered by a seeded random shuffle.
- */
-function nearestWithRandomTies(
-  x: number,
-  cP: Float64Array,
-  cE: Float64Array,
-  nCand: number,
-  k: number,
-  out: Float64Array,
-  outBase: number,
-  scratch: Int32Array,
-  rng: Prng,
-): void {
-  // Branch-free binary search: b ends on the last candidate below x.
-  let b = 0;
-  let len = nCand + 2;
-  while (len > 1) {
-    const half = len >>> 1;
-    b += +(cP[b + half] < x) * half;
-    len -= half;
-  }
-  let l = b;
-  let r = b + 1;
-  let prev = -1;
-  let repeated = false;
-  for (let j = 0; j < k; j++) {
-    const dl = x - cP[l];
-    const dr = cP[r] - x;
-    const takeLeft = dl <= dr;
-    const d = takeLeft ? dl : dr;
-    if (d === prev) repeated = true;
-    prev = d;
-    out[outBase + j] = cE[takeLeft ? l-- : r++];
-  }
-  // prev is now the k-th distance; a tie beyond the interval or within it needs the slow path.
-  if (!repeated && x - cP[l] !== prev && cP[r] - x !== prev) return;
-  // Widen the interval to every case at the k-th distance, then write the cases in order of
-  // distance, each run of equal distance shuffled and cut to what is left of k.
-  while (x - cP[l] === prev) l--;
-  while (cP[r] - x === prev) r++;
-  // Cases l+1 … r−1 sorted by distance: a two-way merge from b outwards.
-  let n = 0;
-  let a = b;
-  let c = b + 1;
-  while (a > l || c < r) {
-    const da = a > l ? x - cP[a] : Infinity;
-    const dc = c < r ? cP[c] - x : Infinity;
-    scratch[n++] = da <= dc ? a-- : c++;
-  }
-  let written = 0;
-  let s = 0;
-  while (written < k) {
-    const d = Math.abs(cP[scratch[s]] - x);
-    let e = s + 1;
-    while (e < n && Math.abs(cP[scratch[e]] - x) === d) e++;
-    // Fisher–Yates on the run s … e−1, only as far as needed.
-    const take = Math.min(e - s, k - written);
-    for (let i = 0; i < take; i++) {
-      const p = s + i + rng.nextInt(e - s - i);
-      const tmp = scratch[s + i];
-      scratch[s + i] = scratch[p];
-      scratch[p] = tmp;
-      out[outBase + written++] = cE[scratch[s + i]];
-    }
-    s = e;
-  }
 }
 
 /**
@@ -851,8 +805,9 @@ function gatherSuperset(
  * One lead's draws: per draw j, its member's kernel-chosen neighbour (Lall & Sharma: first index
  * whose cumulative 1/j sum exceeds u·H_k, started from the guide table) combined with the member:
  *   kind 0 (additive): vals[j] = max(0, tx + e)
- *   kind 1 (log):      vals[j] = max(0, tx·exp(e) − offset), tx = x + offset, nbErr holds exp(e)
- *   kind 2 (Box–Cox):  vals[j] = max(floor, tx + λe), tx = (x + offset)^λ, nbErr holds λe (see boxCoxFlow)
+ *   kind 1 (log):      vals[j] = max(0, tx·exp(e) − offset), tx = x + offset, source holds exp(e)
+ *   kind 2 (Box–Cox):  vals[j] = max(floor, tx + λe), tx = (x + offset)^λ, source holds λe (see boxCoxFlow)
+ * Member mm's neighbour of rank idx is source[nbBase[mm] + idx].
  * The uniform u is xoshiro128**'s next output / 2^32, exactly Prng.nextUniform32, stepped here on
  * local copies of the state (read from and written back to `state`): a method call per draw keeps
  * the four state words in memory and this loop waiting on them.
@@ -868,8 +823,8 @@ function sampleLead(
   guide: Int32Array,
   tx: Float64Array,
   txBase: number,
-  nbErr: Float64Array,
-  kStride: number,
+  source: Float64Array,
+  nbBase: Int32Array,
   vals: Float64Array,
   offset: number,
   floor: number,
@@ -895,7 +850,7 @@ function sampleLead(
     while (cum[idx] <= target) idx++;
     const mm = slot[j];
     const x = tx[txBase + mm];
-    const e = nbErr[mm * kStride + idx];
+    const e = source[nbBase[mm] + idx];
     if (kind === 1) {
       const v = x * e - offset;
       vals[j] = v > 0 ? v : 0;
