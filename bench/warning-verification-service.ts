@@ -13,6 +13,7 @@ import pg from 'pg';
 import { createPrng } from '../src/core/prng.ts';
 import { midpointProbs } from '../src/core/verification/index.ts';
 import { buildForecastView } from '../src/services/forecast-view.ts';
+import { StageClock } from '../src/services/stage-clock.ts';
 import { verifyStoredRuns } from '../src/services/verify-runs.ts';
 import { upsertObservations } from '../src/store/archive-repo.ts';
 import { insertRun } from '../src/store/forecasts-repo.ts';
@@ -125,12 +126,14 @@ try {
   for (let r = 0; r < 3; r++) {
     const cpu0 = process.cpuUsage();
     const a = performance.now();
-    const v = await verifyStoredRuns(db, gauge, {});
+    const clock = new StageClock();
+    const v = await verifyStoredRuns(db, gauge, {}, clock);
     const wall = performance.now() - a;
     const cpu = process.cpuUsage(cpu0);
     console.log(
       `verification ${r + 1}: wall ${wall.toFixed(0)} ms, CPU time of this process ${((cpu.user + cpu.system) / 1000).toFixed(0)} ms; ${v.comparison.cases.used} cases, ${v.warningScores?.runs ?? 0} runs in the warnings (goal under 1000 ms); load average ${os.loadavg().map((x) => x.toFixed(1)).join(' ')}`,
     );
+    console.log(`  phases (ms): ${Object.entries(clock.ms).map(([k, ms]) => `${k} ${ms.toFixed(0)}`).join(', ')}`);
   }
 } finally {
   await db.close();

@@ -11,6 +11,7 @@ import { readRunsForVerification } from '../store/verification-repo.ts';
 import { CAUTION } from './caution.ts';
 import { isoUtc } from './series-input.ts';
 import { startStoredWarnings } from './verify-warnings.ts';
+import { StageClock } from './stage-clock.ts';
 import { rfc3339Ms } from '../core/rfc3339.ts';
 
 /** byLead entries also name their lead time as an ISO 8601 duration (lead index 0 = one step). */
@@ -64,10 +65,12 @@ export async function verifyStoredRuns(
   db: Queryable,
   gauge: Gauge,
   q: { fromMs?: number; toMs?: number; minLead?: number; maxLead?: number; source?: string; attentionLevel?: number },
+  clock: StageClock = new StageClock(),
 ): Promise<StoredVerification> {
   const leadRange = q.minLead !== undefined || q.maxLead !== undefined ? { min: q.minLead !== undefined ? q.minLead - 1 : undefined, max: q.maxLead !== undefined ? q.maxLead - 1 : undefined } : null;
   // The attention level of the forecasts (config ATTENTION_LEVEL, whose default is 0.3).
   const warnings = await startStoredWarnings(db, gauge, { attentionLevel: q.attentionLevel ?? 0.3, fromMs: q.fromMs, leadRange });
+  clock.lap('warnings-setup');
   const comparison = createComparison({
     seed: 1,
     thresholds: gauge.thresholds.map((t) => t.value),
@@ -85,7 +88,9 @@ export async function verifyStoredRuns(
   let corBuf = new Float64Array(64);
   let after: { issueMs: number; id: string } | undefined;
   for (;;) {
+    clock.lap('scores');
     const page = await readRunsForVerification(db, { gaugeId: gauge.id, fromMs: q.fromMs, toMs: q.toMs, source: q.source, after, limit: PAGE });
+    clock.lap('read-runs');
     if (!page.length) break;
     let lo = Infinity;
     let hi = -Infinity;
@@ -96,6 +101,7 @@ export async function verifyStoredRuns(
     }
     const obs = new Map<number, number>();
     if (lo <= hi) for (const o of await readObservations(db, gauge.id, { fromMs: lo, toMs: hi + 1 })) if (o.value !== null) obs.set(o.t, o.value);
+    clock.lap('read-observations');
     for (const r of page) {
       runs.total++;
       runs[r.status]++;
@@ -136,9 +142,12 @@ export async function verifyStoredRuns(
     after = { issueMs: last.issueMs, id: last.id };
     if (page.length < PAGE) break;
   }
+  clock.lap('scores');
   const report = withLeadTimes(comparison.result(), gauge.stepSeconds);
   const advice = adviseStochasticStage(report);
+  clock.lap('comparison-result');
   const w = warnings.result();
+  clock.lap('warnings-result');
   const notes: string[] = [];
   if (w.skipped.thresholdsChanged) notes.push(`${w.skipped.thresholdsChanged} runs issued with other thresholds than the gauge's present ones are left out of the warnings.`);
   if (runs.degraded) notes.push(`${runs.degraded} degraded runs (${degradedCases} observed lead times) are left out of the comparison; see degraded.handling.`);
