@@ -554,7 +554,7 @@ function shareAbove(sorted: Float64Array, thr: number): number {
 }
 
 /** Share of paths with a value above thr at some lead (paths with a missing value left out). */
-function anyTimeShare(f: WarningSourceRun, H: number, thr: number): number {
+export function anyTimeShare(f: WarningSourceRun, H: number, thr: number): number {
   let n = 0;
   let above = 0;
   for (let i = 0; i < f.count; i++) {
