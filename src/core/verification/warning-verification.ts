@@ -285,11 +285,23 @@ export function createWarningVerification(options: WarningOptions): WarningVerif
     const columns: Float64Array[] = [];
     const totals: number[] = [];
     /** A column of per-run sums; returns its index. */
+    // Columns equal in every value (case counts, reference scores: the same for every source) are
+    // kept once, so the bootstrap sums fewer columns; a statistic reads the same sums either way.
+    const seen = new Map<number, number[]>();
+    const sameColumn = (a: Float64Array, b: Float64Array) => {
+      for (let i = 0; i < a.length; i++) if (a[i] !== b[i] && !(Number.isNaN(a[i]) && Number.isNaN(b[i]))) return false;
+      return true;
+    };
     const addColumn = (a: Float64Array): number => {
       let t = 0;
       for (let i = 0; i < a.length; i++) if (!Number.isNaN(a[i])) t += a[i];
+      const same = seen.get(t);
+      if (same) for (const c of same) if (sameColumn(columns[c], a)) return c;
       totals.push(t);
-      return columns.push(a) - 1;
+      const c = columns.push(a) - 1;
+      if (same) same.push(c);
+      else seen.set(t, [c]);
+      return c;
     };
     /** Per-run sums of per-case values (finite ones only). */
     const perRun = (v: (c: number) => number): number => {
