@@ -141,7 +141,7 @@ try {
     const worst = stop();
     const cpu = process.cpuUsage(cpu0);
     console.log(
-      `${label}: wall ${wall.toFixed(0)} ms (goal under 1000 ms), CPU time of the main thread ${((cpu.user + cpu.system) / 1000).toFixed(0)} ms, event loop held at most ${worst.toFixed(0)} ms; ${v.comparison.cases.used} cases, ${v.warningScores?.runs ?? 0} runs in the warnings; load average ${load()}`,
+      `${label}: wall ${wall.toFixed(0)} ms (goal under 1000 ms), CPU time of the process (all threads) ${((cpu.user + cpu.system) / 1000).toFixed(0)} ms, event loop held at most ${worst.toFixed(0)} ms; ${v.comparison.cases.used} cases, ${v.warningScores?.runs ?? 0} runs in the warnings; load average ${load()}`,
     );
     console.log(`  phases (ms): ${phases(clock)}`);
     return v;
