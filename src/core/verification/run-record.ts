@@ -30,7 +30,7 @@ export interface RunRecordInput {
 
 /** Values per lead: lead k is values[start[k] … start[k + 1] − 1]. */
 export interface LeadColumns {
-  values: Float64Array | Float32Array;
+  values: Float64Array;
   start: Int32Array;
 }
 
@@ -47,6 +47,8 @@ export interface RunRecord {
   corrected: LeadColumns | null;
   /** As stored (the quantiles' order), non-finite values kept. */
   stochastic: LeadColumns;
+  /** Every stage quantile is finite. */
+  stochasticFinite: boolean;
   /** Per threshold: share of raw / corrected trajectories above it at some lead (NaN without any complete one). */
   anyTimeRaw: Float64Array;
   anyTimeCorrected: Float64Array;
@@ -152,7 +154,10 @@ export function decodeRunRecord(bytes: Uint8Array): RunRecord {
   const exceedanceIssued = take(T * H);
   const rawValues = take(nRaw);
   const corValues = take(nCor);
-  const q = new Float32Array(b.buffer, b.byteOffset + n64 * 8, stStart[H]);
+  // Widened to float64 once here (exact), so every score reads one array type.
+  const q = Float64Array.from(new Float32Array(b.buffer, b.byteOffset + n64 * 8, stStart[H]));
+  let stochasticFinite = true;
+  for (let i = 0; i < q.length && stochasticFinite; i++) stochasticFinite = Number.isFinite(q[i]);
   return {
     nLeads: H,
     validMs,
@@ -162,6 +167,7 @@ export function decodeRunRecord(bytes: Uint8Array): RunRecord {
     raw: { values: rawValues, start: rawStart },
     corrected: head[4] === 1 ? { values: corValues, start: corStart } : null,
     stochastic: { values: q, start: stStart },
+    stochasticFinite,
     anyTimeRaw,
     anyTimeCorrected,
     anyTimeIssued,
@@ -170,7 +176,7 @@ export function decodeRunRecord(bytes: Uint8Array): RunRecord {
 }
 
 /** Lead k's values of one source. */
-export function leadValues(c: LeadColumns, k: number): Float64Array | Float32Array {
+export function leadValues(c: LeadColumns, k: number): Float64Array {
   return c.values.subarray(c.start[k], c.start[k + 1]);
 }
 

@@ -53,6 +53,7 @@ export interface StoredVerificationResult {
 }
 
 const WINDOW_DAYS = 15;
+const NONE = new Float64Array(0);
 
 export function verifyStoredRecords(input: StoredVerificationInput): StoredVerificationResult {
   const ms: Record<string, number> = {};
@@ -174,9 +175,12 @@ function storedWarnings(input: StoredVerificationInput, byTime: Map<number, numb
       // Persistence: the observation at issue time, or one at most two steps older.
       persistence: persistenceValue(times, values, meta.issueMs, 2 * stepMs),
       sources: [
-        sortedSource(r.raw, H, r.anyTimeRaw),
-        sortedSource(r.corrected!, H, r.anyTimeCorrected),
-        { ...sortedSource(r.stochastic, H, r.anyTimeIssued), exceedance: r.exceedanceIssued },
+        { values: NONE, count: 0, trajectories: false, anyTime: r.anyTimeRaw, columns: r.raw },
+        { values: NONE, count: 0, trajectories: false, anyTime: r.anyTimeCorrected, columns: r.corrected },
+        // The quantiles in their stored order, as issued; with a missing value, laid out as the warning verification filters it.
+        r.stochasticFinite
+          ? { values: NONE, count: 0, trajectories: false, anyTime: r.anyTimeIssued, columns: r.stochastic, exceedance: r.exceedanceIssued }
+          : { ...sortedSource(r.stochastic, H, r.anyTimeIssued), exceedance: r.exceedanceIssued },
       ],
     };
     core!.addRun(run);
@@ -214,8 +218,7 @@ function storedWarnings(input: StoredVerificationInput, byTime: Map<number, numb
 
 /**
  * One source laid out as the warning verification reads it ([j·nLeads + k], NaN-padded), with
- * its any-time probabilities given: the columns are taken in their stored order (raw and
- * corrected are already ascending; the stage's quantiles ascend by construction).
+ * its any-time probabilities given, in stored order (the stage's quantiles ascend by construction).
  */
 function sortedSource(c: LeadColumns, H: number, anyTime: Float64Array): WarningSourceRun {
   let K = 0;

@@ -39,6 +39,12 @@ export interface WarningSourceRun {
   exceedance?: ArrayLike<number> | null;
   /** Any-time probabilities as issued, per threshold; else from the trajectories (NaN without). */
   anyTime?: ArrayLike<number> | null;
+  /**
+   * The values per lead instead, already finite and ascending (a run's verification record): lead
+   * k is columns.values[columns.start[k] … columns.start[k + 1] − 1]; values and count are then
+   * not read, so anyTime must be given.
+   */
+  columns?: { values: Float64Array; start: Int32Array } | null;
 }
 
 export interface WarningRun {
@@ -251,6 +257,7 @@ export function createWarningVerification(options: WarningOptions): WarningVerif
 
   /** Finite values of one source at lead k, sorted (in that source's own reusable buffer). */
   function column(f: WarningSourceRun, H: number, k: number, s: number): Float64Array {
+    if (f.columns) return f.columns.values.subarray(f.columns.start[k], f.columns.start[k + 1]);
     if (rows[s].length < f.count) rows[s] = new Float64Array(f.count);
     const row = rows[s];
     let m = 0;
