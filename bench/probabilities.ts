@@ -143,7 +143,7 @@ try {
   console.log(`Scenario seed ${seed}. Held-out period: the last ${HELD_OUT_DAYS} days of ${years} years, ${runs} runs (every ${every} days), ${members} members, 1000 trajectories`);
   console.log(`setup and fit ${((tFit - t0) / 1000).toFixed(1)} s, runs ${((tRuns - tFit) / 1000).toFixed(1)} s; ${past.length} past runs loaded`);
   const version = (await send('GET', `/gauges/${gaugeId}/models/${job.result.versionId}`)).body as { archives: Record<string, unknown>[] };
-  for (const a of version.archives) console.log(`archive ${a.kind}/${a.leadMode}: ${JSON.stringify({ cases: a.cases, templates: a.templates, neighbours: a.neighbours, leadScale: a.leadScale })}`);
+  for (const a of version.archives) console.log(`archive ${a.kind}/${a.leadMode}: ${JSON.stringify({ cases: a.cases, templates: a.templates, neighbours: a.neighbours, leadScale: a.leadScale, forcingPaths: a.forcingPaths })}`);
   console.log('');
   console.log('| lead | cases | alpha (goal ≥ 0.95) | 95 % coverage (goal 0.94–0.96) | CRPS (m3/s) | mean PIT | PIT histogram (10 bins, %) |');
   console.log('|---|---|---|---|---|---|---|');

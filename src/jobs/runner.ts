@@ -2,7 +2,8 @@ import { randomBytes } from 'node:crypto';
 import type { FastifyBaseLogger } from 'fastify';
 import type { z } from 'zod';
 import type { Db } from '../store/db.ts';
-import { claimJob, failStaleJobs, finishJob, reportProgress, type Job } from '../store/jobs-repo.ts';
+import type { Queryable } from '../store/db.ts';
+import { claimJob, failStaleJobs, finishJob, holdJob, JobLostError, reportProgress, type Job } from '../store/jobs-repo.ts';
 import { CancelledError } from '../core/cancelled.ts';
 import { isStoreUnavailable } from '../store/unavailable.ts';
 
@@ -11,6 +12,11 @@ export interface JobContext {
   /** Records stage and percent; answers whether the job was asked to stop. */
   progress: (stage: string, percent: number) => Promise<boolean>;
   signal: AbortSignal;
+  /**
+   * Call first inside the transaction that stores the job's results: it throws (and so rolls the
+   * transaction back) when this instance no longer holds the job, and keeps others off it meanwhile.
+   */
+  hold: (tx: Queryable) => Promise<void>;
 }
 
 /** What a job kind does. */
@@ -157,26 +163,35 @@ export class JobRunner {
       latest = { stage, percent };
       if (Date.now() - lastBeat < 500 && percent < 100) return cancelAsked;
       lastBeat = Date.now();
-      cancelAsked = (await reportProgress(this.db, job.id, stage, percent)) || cancelAsked;
+      const state = await reportProgress(this.db, job.id, stage, percent, this.instance);
+      cancelAsked = state !== 'go' || cancelAsked;
       if (cancelAsked) abort.abort();
       return cancelAsked;
     };
     const beat = setInterval(() => {
-      reportProgress(this.db, job.id, latest.stage, latest.percent)
-        .then((c) => {
-          if (c) abort.abort();
+      reportProgress(this.db, job.id, latest.stage, latest.percent, this.instance)
+        .then((state) => {
+          if (state !== 'go') abort.abort();
         })
         .catch(() => undefined);
     }, HEARTBEAT_MS);
+    const hold = (tx: Queryable) => holdJob(tx, job.id, this.instance);
+    // A job another instance has marked ended keeps that end: nothing is written over it.
+    const finish = async (status: 'succeeded' | 'failed' | 'cancelled', result: unknown, error: string | null) => {
+      const held = await finishJob(this.db, job.id, status, result, error, this.instance);
+      if (!held) this.log.warn({ job: job.id, kind: job.kind, wouldBe: status }, 'job was marked ended by another instance meanwhile; its end is kept');
+      return held;
+    };
     try {
       if (!handler) throw new Error(`unknown job kind ${job.kind}`);
-      const result = await handler(job, { db: this.db, progress, signal: abort.signal });
-      await finishJob(this.db, job.id, 'succeeded', result ?? null, null);
-      this.log.info({ job: job.id, kind: job.kind }, 'job succeeded');
+      const result = await handler(job, { db: this.db, progress, signal: abort.signal, hold });
+      if (await finish('succeeded', result ?? null, null)) this.log.info({ job: job.id, kind: job.kind }, 'job succeeded');
     } catch (err) {
-      const cancelled = err instanceof CancelledError || abort.signal.aborted;
-      await finishJob(this.db, job.id, cancelled ? 'cancelled' : 'failed', null, cancelled ? 'cancelled on request' : (err as Error).message);
-      this.log[cancelled ? 'info' : 'warn']({ job: job.id, kind: job.kind, err: (err as Error).message }, cancelled ? 'job cancelled' : 'job failed');
+      const lost = err instanceof JobLostError;
+      const cancelled = !lost && (err instanceof CancelledError || abort.signal.aborted);
+      if ((await finish(cancelled ? 'cancelled' : 'failed', null, cancelled ? 'cancelled on request' : (err as Error).message)) || !lost) {
+        this.log[cancelled ? 'info' : 'warn']({ job: job.id, kind: job.kind, err: (err as Error).message }, cancelled ? 'job cancelled' : 'job failed');
+      }
     } finally {
       clearInterval(beat);
       this.current = null;

@@ -1,3 +1,4 @@
+import { forcingDeviationPaths, type ForcingPaths } from '../core/stochastic/forcing-paths.ts';
 import { correctedMember } from '../core/correction/corrected-member.ts';
 import { dayOfYearUtc } from '../core/day-of-year.ts';
 import { dressedArchiveFromRuns, type DressingSummary } from '../core/stochastic/ensemble-dressing.ts';
@@ -45,6 +46,8 @@ export interface ReforecastEvaluation {
    * rows = used issue × kept member, [(u·members.length + j)·nLeads + lead]. Absent when none.
    */
   values?: PastRunValues;
+  /** Forecast-forcing deviation paths, one per past run complete at every lead; absent when none. */
+  forcingPaths?: ForcingPaths;
 }
 
 export interface PastRunValues {
@@ -223,6 +226,16 @@ export async function evaluateReforecasts(
   if (typeof L === 'string') return { archives: null, reason: L, scores: null };
   const { nRows, observed, dayOfYear, raw } = observedMatrix(series, set, L);
   const corrected = new Float64Array(nRows * L.H).fill(NaN);
+  // The same issues re-run on the members' continuous simulations with the observed forcings: the
+  // forecast-forcing deviation paths (src/core/stochastic/forcing-paths.ts) compare the two.
+  const simulated = new Float64Array(nRows * L.H).fill(NaN);
+  const simulatedRaw = new Float64Array(nRows * L.H).fill(NaN);
+  const nT = series.times.length;
+  L.at.forEach((i, u) =>
+    L.seriesMember.forEach((k, j) => {
+      for (let h = 0; h < L.H; h++) if (i + h + 1 < nT) simulatedRaw[(u * L.seriesMember.length + j) * L.H + h] = series.members[k].values[i + h + 1];
+    }),
+  );
   const need = requiredRunInputs(spec);
   const W = Math.max(need.simStepsToIssue, ...need.forcings.map((f) => f.stepsToIssue));
   const nK = L.setMember.length;
@@ -236,16 +249,35 @@ export async function evaluateReforecasts(
     return out;
   };
   let observedForcingsUsed = false;
+  // Corrects a batch's members (bundle mean of clipped corrections) into `into`, cell by cell.
+  const correctBatch = async (batch: ReforecastIssue[], u0: number, values: Float64Array, into: Float64Array) => {
+    const rows = reforecastInputs(spec, batch);
+    if (!rows.nRows) return;
+    const cells = Int32Array.from({ length: rows.nRows }, (_, r) => ((u0 + rows.issue[r]) * nK + rows.member[r]) * L.H + rows.lead[r] - 1);
+    // A bundle's member: the mean of each model's clipped corrected value (src/core/correction/corrected-member.ts).
+    const sum = new Float64Array(rows.nRows);
+    for (const predict of predictors) {
+      const out = await predict(rows.rows, rows.nRows, rows.nFeatures);
+      for (let r = 0; r < rows.nRows; r++) {
+        if (!Number.isFinite(out[r])) throw new Error(`the residual model returned a non-finite value on a past run (issued ${new Date(batch[rows.issue[r]].issueTime).toISOString()}, lead ${rows.lead[r]})`);
+        sum[r] += correctedMember(values[cells[r]], out[r]);
+      }
+    }
+    for (let r = 0; r < rows.nRows; r++) into[cells[r]] = sum[r] / predictors.length;
+  };
   // Issues in batches, so the feature rows stay a few MB whatever the archive's size.
   const perBatch = Math.max(1, Math.floor(50_000 / (nK * L.H)));
   for (let u0 = 0; u0 < L.issue.length; u0 += perBatch) {
     const batch: ReforecastIssue[] = [];
+    const batchSim: ReforecastIssue[] = [];
     for (let u = u0; u < Math.min(L.issue.length, u0 + perBatch); u++) {
       const i = L.at[u];
       const forcings: Record<string, Float64Array> = {};
+      const observedForcings: Record<string, Float64Array> = {};
       for (const name of specForcings(spec)) {
         if (!series.forcings[name]) continue;
         forcings[name] = window(series.forcings[name], i, W + L.H);
+        observedForcings[name] = forcings[name].slice();
         // At the lead times, the forcing the run was driven by when stored (never one observed later).
         const forecast = set.forcings?.[name];
         if (forecast) {
@@ -268,20 +300,11 @@ export async function evaluateReforecasts(
         issueObservation: series.observed[i],
         obs: observed.subarray(u * nK * L.H, u * nK * L.H + L.H),
       });
+      batchSim.push({ ...batch[batch.length - 1], members: L.seriesMember.map((k) => window(series.members[k].values, i, W + L.H)), forcings: observedForcings });
     }
-    const rows = reforecastInputs(spec, batch);
-    if (!rows.nRows) continue;
-    const cells = Int32Array.from({ length: rows.nRows }, (_, r) => ((u0 + rows.issue[r]) * nK + rows.member[r]) * L.H + rows.lead[r] - 1);
-    // A bundle's member: the mean of each model's clipped corrected value (src/core/correction/corrected-member.ts).
-    const sum = new Float64Array(rows.nRows);
-    for (const predict of predictors) {
-      const out = await predict(rows.rows, rows.nRows, rows.nFeatures);
-      for (let r = 0; r < rows.nRows; r++) {
-        if (!Number.isFinite(out[r])) throw new Error(`the residual model returned a non-finite value on a past run (issued ${new Date(batch[rows.issue[r]].issueTime).toISOString()}, lead ${rows.lead[r]})`);
-        sum[r] += correctedMember(raw[cells[r]], out[r]);
-      }
-    }
-    for (let r = 0; r < rows.nRows; r++) corrected[cells[r]] = sum[r] / predictors.length;
+    await correctBatch(batch, u0, raw, corrected);
+    // The simulations' own values stand where the past run's stored values stood.
+    await correctBatch(batchSim, u0, simulatedRaw, simulated);
   }
   // Raw errors on the same cases as the corrected ones, as in the lead-free archives.
   const rawMasked = raw.map((v, i) => (Number.isFinite(corrected[i]) ? v : NaN));
@@ -290,8 +313,10 @@ export async function evaluateReforecasts(
   if (scores.cases === 0) return { archives: null, reason: 'no past run has a corrected value with an observation', scores: null };
   const values: PastRunValues = { nLeads: L.H, issueIndex: L.at, members: L.seriesMember, raw: rawMasked, corrected };
   const cor = dressedArchive(corrected, observed, dayOfYear, L, options.transform);
+  const paths = forcingDeviationPaths({ forecast: corrected, simulated, nIssues: L.issue.length, nMembers: nK, nLeads: L.H, transform: cor.archive.transform });
+  const forcingPaths = paths.key.length ? { forcingPaths: paths } : {};
   const reason = unusable(cor.archive, issues);
-  if (reason) return { archives: null, reason, scores, values };
+  if (reason) return { archives: null, reason, scores, values, ...forcingPaths };
   const rawArchive = dressedArchive(rawMasked, observed, dayOfYear, L, options.transform);
   const given = set.issueTimes.length;
   return {
@@ -304,6 +329,7 @@ export async function evaluateReforecasts(
     reason: null,
     scores,
     values,
+    ...forcingPaths,
   };
 }
 

@@ -219,7 +219,15 @@ export function rawArchiveFromSeries(series: ArchiveSeries, period: Period, opti
   return archive;
 }
 
-export function archiveSummary(a: ErrorArchive): { cases: number; templates: number; templateLength: number; transform: unknown; neighbours: NeighbourSettings | null; leadScale: number[] | null } {
+export function archiveSummary(a: ErrorArchive): {
+  cases: number;
+  templates: number;
+  templateLength: number;
+  transform: unknown;
+  neighbours: NeighbourSettings | null;
+  leadScale: number[] | null;
+  forcingPaths: ForcingPathsSummary | null;
+} {
   return {
     cases: a.predictor.length,
     templates: a.templateStart.length,
@@ -227,7 +235,38 @@ export function archiveSummary(a: ErrorArchive): { cases: number; templates: num
     transform: a.transform,
     neighbours: a.neighbours ?? null,
     leadScale: a.leadScale ? Array.from(a.leadScale) : null,
+    forcingPaths: forcingPathsSummary(a),
   };
+}
+
+export interface ForcingPathsSummary {
+  paths: number;
+  leadTimes: number;
+  /** Per lead, the mean and standard deviation of the paths (transform space). */
+  mean: number[];
+  sd: number[];
+}
+
+/** What an archive's forecast-forcing paths hold, for the version's summary; null without paths. */
+export function forcingPathsSummary(a: ErrorArchive): ForcingPathsSummary | null {
+  const p = a.forcingPaths;
+  if (!p) return null;
+  const P = p.key.length;
+  const mean: number[] = [];
+  const sd: number[] = [];
+  for (let h = 0; h < p.nLeads; h++) {
+    let s = 0;
+    let s2 = 0;
+    for (let i = 0; i < P; i++) {
+      const v = p.values[i * p.nLeads + h];
+      s += v;
+      s2 += v * v;
+    }
+    const m = s / P;
+    mean.push(m);
+    sd.push(P > 1 ? Math.sqrt(Math.max(0, (s2 - P * m * m) / (P - 1))) : 0);
+  }
+  return { paths: P, leadTimes: p.nLeads, mean, sd };
 }
 
 export { archiveToBytes };

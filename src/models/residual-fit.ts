@@ -7,7 +7,7 @@ import { treeModelToOnnx } from './onnx-export.ts';
 import { createResidualSession, predictResiduals } from './onnx-session.ts';
 import type { ArchiveSeries, Period, ReforecastSet } from '../core/archive-types.ts';
 import { evaluateReforecasts, type ReforecastEvaluation } from './reforecast-evaluation.ts';
-import { evaluateResidualModel, type Evaluation } from './residual-evaluation.ts';
+import { evaluateResidualModel, forcingPathsSummary, type Evaluation } from './residual-evaluation.ts';
 import { predictTrees, trainGradientBoosting, trainRandomForest, type TreeModel } from './trees/index.ts';
 import { tune, type SearchParam } from './tuning/index.ts';
 import { fitUpdating, type UpdatingFit, type UpdatingOptions } from './updating-fit.ts';
@@ -206,6 +206,8 @@ export async function fitResidualModel(
         evaluation.scores.leadGrowth = Array.from(evaluation.correctedArchive.leadScale);
       }
     }
+    // Better than a scale where they reach: the past runs' own forecast-forcing deviation paths.
+    if (perLead.forcingPaths) evaluation.correctedArchive.forcingPaths = perLead.forcingPaths;
   }
   let updating: UpdatingFit | null = null;
   let updatingError: string | null = null;
@@ -222,6 +224,11 @@ export async function fitResidualModel(
       updating = await fitUpdating(series, spec, options.validation, predictors, evaluation.correctedArchive.transform, options.updating, shouldStop, perLead?.values ?? null, blocks.archive, forcingErrorVariance);
       // The stage's kernel and k as chosen on the lead-free archive's held-out errors.
       if (updating.archive && evaluation.correctedArchive.neighbours) updating.archive.archive.neighbours = evaluation.correctedArchive.neighbours;
+      // Pseudo-forecasts lack the forecast-forcing error as the simulations do: the same paths.
+      if (updating.archive && perLead?.forcingPaths) {
+        updating.archive.archive.forcingPaths = perLead.forcingPaths;
+        updating.archive.summary.forcingPaths = forcingPathsSummary(updating.archive.archive);
+      }
     } catch (err) {
       if (options.updating.mode === 'on') throw err;
       updatingError = (err as Error).message;

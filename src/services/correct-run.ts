@@ -472,7 +472,7 @@ export class RunCorrection {
       degradedReason,
       modelVersion: status === 'corrected' && active ? { id: active.id, label: active.label } : null,
       updating: updatingAnswer(status, updating, degradedReason),
-      errorArchive: { id: used!.id, kind: used!.kind, leadMode: used!.leadMode, leadTimes: archiveReach(used!), cases: Number(used!.summary.cases ?? 0), templates: Number(used!.summary.templates ?? 0), leadGrowth: leadGrowthOf(used!) },
+      errorArchive: { id: used!.id, kind: used!.kind, leadMode: used!.leadMode, leadTimes: archiveReach(used!), cases: Number(used!.summary.cases ?? 0), templates: Number(used!.summary.templates ?? 0), leadGrowth: leadGrowthOf(used!, asked) },
       seed,
       nDraws: result.nDraws,
       attentionLevel: config.ATTENTION_LEVEL,

@@ -15,7 +15,7 @@ import type { Db } from '../store/db.ts';
 import { getGauge } from '../store/gauges-repo.ts';
 import { activateModelVersion, insertArchive, insertModelVersion } from '../store/models-repo.ts';
 import { runCompute } from '../workers/run-compute.ts';
-import type { JobProgress } from './job-progress.ts';
+import type { JobHold, JobProgress } from './job-progress.ts';
 import { rfc3339Ms } from '../core/rfc3339.ts';
 
 const TransformSpec = z.discriminatedUnion('kind', [
@@ -121,7 +121,7 @@ export function perLeadParts(p: PerLeadOutput | null): {
 const pick = (o: Record<string, unknown>, keys: string[]) => Object.fromEntries(keys.map((k) => [k, o[k]]));
 
 /** A fit job's work: fit, store the version and its archives, activate when asked. */
-export async function fitModel(db: Db, job: { gaugeId: string; createdBy: string | null }, p: FitJobParams, progress: JobProgress, signal: AbortSignal) {
+export async function fitModel(db: Db, job: { gaugeId: string; createdBy: string | null; hold?: JobHold }, p: FitJobParams, progress: JobProgress, signal: AbortSignal) {
   const gauge = await getGauge(db, job.gaugeId);
   if (!gauge) throw new Error(`gauge ${job.gaugeId} no longer exists`);
   await progress('loading the archive', 0);
@@ -146,6 +146,7 @@ export async function fitModel(db: Db, job: { gaugeId: string; createdBy: string
   const updating = out.updating?.model && out.updating.archive ? { model: out.updating.model, archive: out.updating.archive } : null;
   await progress('storing the model version', 98);
   const versionId = await db.transaction(async (tx) => {
+    await job.hold?.(tx);
     const id = await insertModelVersion(tx, {
       gaugeId: gauge.id,
       origin: 'fitted',
@@ -242,7 +243,7 @@ export async function fitModel(db: Db, job: { gaugeId: string; createdBy: string
 
 
 /** Builds the raw members' error archive alone, so degraded mode works before any model is fitted. */
-export async function buildRawArchive(db: Db, job: { gaugeId: string }, p: RawArchiveJobParams, progress: JobProgress) {
+export async function buildRawArchive(db: Db, job: { gaugeId: string; hold?: JobHold }, p: RawArchiveJobParams, progress: JobProgress) {
   const gauge = await getGauge(db, job.gaugeId);
   if (!gauge) throw new Error(`gauge ${job.gaugeId} no longer exists`);
   await progress('loading the archive', 5);
@@ -256,6 +257,7 @@ export async function buildRawArchive(db: Db, job: { gaugeId: string }, p: RawAr
   const reforecasts = await loadReforecastSet(db, gauge.id, {});
   const perLead = reforecasts ? rawArchiveFromReforecasts(series, reforecasts, { transform: out.summary.transform as ErrorTransform }) : null;
   await db.transaction(async (tx) => {
+    await job.hold?.(tx);
     await insertArchive(tx, gauge.id, null, 'raw', out);
     if (perLead?.archive) await insertArchive(tx, gauge.id, null, 'raw', { bytes: archiveToBytes(perLead.archive), summary: { ...perLead.summary } }, 'per-lead');
   });

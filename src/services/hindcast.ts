@@ -21,7 +21,7 @@ import { CAUTION } from './caution.ts';
 import { refreshGaugeStatus } from './drift.ts';
 import { withLeadTimes } from './verify-runs.ts';
 import type { HindcastJobParams } from './hindcast-params.ts';
-import type { JobProgress } from './job-progress.ts';
+import type { JobHold, JobProgress } from './job-progress.ts';
 import { conflict, invalid, type FieldError } from './problem.ts';
 import { isoUtc } from './series-input.ts';
 import { rfc3339Ms } from '../core/rfc3339.ts';
@@ -114,7 +114,7 @@ export async function requestHindcast(db: Db, gauge: Gauge, body: HindcastReques
 }
 
 /** A hindcast job's work, from the stored archive to the result the job keeps. */
-export async function runHindcast(db: Db, job: { id: string; gaugeId: string }, p: HindcastJobParams, progress: JobProgress, signal: AbortSignal) {
+export async function runHindcast(db: Db, job: { id: string; gaugeId: string; hold?: JobHold }, p: HindcastJobParams, progress: JobProgress, signal: AbortSignal) {
   const gauge = await getGauge(db, job.gaugeId);
   if (!gauge) throw new Error(`gauge ${job.gaugeId} no longer exists`);
   const version = await getModelVersion(db, gauge.id, p.versionId);
@@ -226,9 +226,10 @@ export async function runHindcast(db: Db, job: { id: string; gaugeId: string }, 
   const usedTimes = Array.from(out.issues.usedIndex, (i) => t0 + i * stepMs);
   // Each issue's output, kept so the hindcast can be read back issue by issue (all or nothing).
   const perIssueWidth = H * out.perIssue.fieldsPerLead + gauge.thresholds.length;
-  await db.transaction((tx) =>
-    insertHindcastIssues(tx, job.id, usedTimes.map((t, s) => ({ issueTimeMs: t, values: out.perIssue.values.subarray(s * perIssueWidth, (s + 1) * perIssueWidth) }))),
-  );
+  await db.transaction(async (tx) => {
+    await job.hold?.(tx);
+    await insertHindcastIssues(tx, job.id, usedTimes.map((t, s) => ({ issueTimeMs: t, values: out.perIssue.values.subarray(s * perIssueWidth, (s + 1) * perIssueWidth) })));
+  });
   const inCalibration = overlapping(usedTimes, stepMs, H, calibration);
   const inValidation = overlapping(usedTimes, stepMs, H, validation);
   const warnings: string[] = [];

@@ -78,22 +78,47 @@ export async function claimJob(db: Queryable, instance: string): Promise<Job | n
   return rows[0] ? fromRow(rows[0]) : null;
 }
 
-/** Records progress and the heartbeat; returns whether cancellation was asked for. */
-export async function reportProgress(db: Queryable, id: string, stage: string, percent: number): Promise<boolean> {
+/**
+ * Records progress and the heartbeat of a job this instance holds. Answers 'cancel' when
+ * cancellation was asked for, 'lost' when the job is no longer running under this instance (another
+ * instance marked it failed after its heartbeat went stale), else 'go'.
+ */
+export async function reportProgress(db: Queryable, id: string, stage: string, percent: number, instance: string): Promise<'go' | 'cancel' | 'lost'> {
   const { rows } = await db.query<{ cancel_requested: boolean }>(
-    `update jobs set stage = $2, percent = $3, heartbeat_at = now() where id = $1 returning cancel_requested`,
-    [id, stage, Math.max(0, Math.min(100, percent))],
+    `update jobs set stage = $2, percent = $3, heartbeat_at = now() where id = $1 and status = 'running' and claimed_by = $4 returning cancel_requested`,
+    [id, stage, Math.max(0, Math.min(100, percent)), instance],
   );
-  return rows[0]?.cancel_requested ?? false;
+  if (!rows[0]) return 'lost';
+  return rows[0].cancel_requested ? 'cancel' : 'go';
 }
 
-export async function finishJob(db: Queryable, id: string, status: 'succeeded' | 'failed' | 'cancelled', result: unknown, error: string | null): Promise<void> {
-  await db.query(
+/** Thrown where a job's results would be stored by an instance that no longer holds the job. */
+export class JobLostError extends Error {
+  constructor(id: string) {
+    super(`job ${id} is no longer held by this instance (another instance marked it ended); its results were not stored`);
+    this.name = 'JobLostError';
+  }
+}
+
+/**
+ * Inside the transaction that stores a job's results: locks the job's row and checks this instance
+ * still runs it, beating its heartbeat, so no other instance can mark it failed until the results
+ * and the job's end are written. Throws JobLostError otherwise, and the transaction rolls back.
+ */
+export async function holdJob(tx: Queryable, id: string, instance: string): Promise<void> {
+  const { rows } = await tx.query(`update jobs set heartbeat_at = now() where id = $1 and status = 'running' and claimed_by = $2 returning id`, [id, instance]);
+  if (!rows[0]) throw new JobLostError(id);
+}
+
+/** Ends a job this instance holds; answers false (and writes nothing) when it no longer holds it. */
+export async function finishJob(db: Queryable, id: string, status: 'succeeded' | 'failed' | 'cancelled', result: unknown, error: string | null, instance: string): Promise<boolean> {
+  const { rows } = await db.query(
     `update jobs set status = $2, result = $3::jsonb, error = $4, finished_at = now(), heartbeat_at = now(),
        percent = case when $2 = 'succeeded' then 100 else percent end, stage = $2
-     where id = $1`,
-    [id, status, result === null ? null : JSON.stringify(result), error],
+     where id = $1 and status = 'running' and claimed_by = $5 returning id`,
+    [id, status, result === null ? null : JSON.stringify(result), error, instance],
   );
+  return rows.length > 0;
 }
 
 /** Asks a queued or running job to stop; a job that already ended is left as it is (answers null). */

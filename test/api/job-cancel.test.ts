@@ -12,7 +12,8 @@ afterAll(async () => t?.close());
 describe('cancelling a job', () => {
   it('refuses a job that already ended with 409 and leaves it as it was', async () => {
     const job = await enqueueJob(t.db, 'raw-archive', null, {}, null);
-    await finishJob(t.db, job.id, 'succeeded', { done: true }, null);
+    await t.db.query("update jobs set status = 'running', claimed_by = 'test' where id = $1", [job.id]);
+    await finishJob(t.db, job.id, 'succeeded', { done: true }, null, 'test');
     const before = await getJob(t.db, job.id);
     const res = await t.as('admin', { method: 'POST', url: `/jobs/${job.id}/cancel` });
     expect(res.statusCode).toBe(409);

@@ -194,6 +194,11 @@ describe('per-lead error archives after fitting', () => {
     for (const g of growth) expect(g).toBeGreaterThanOrEqual(1);
     const leadFree = version.archives.find((a: { kind: string; leadMode: string }) => a.kind === 'corrected' && a.leadMode === 'lead-free');
     expect(leadFree.leadScale).toEqual(growth);
+    // And their forecast-forcing deviation paths: one per past run with every lead, reaching LEADS.
+    expect(leadFree.forcingPaths).toMatchObject({ leadTimes: LEADS });
+    expect(leadFree.forcingPaths.paths).toBeGreaterThan(0);
+    expect(leadFree.forcingPaths.paths).toBeLessThanOrEqual(inValidation.length);
+    expect(leadFree.forcingPaths.mean).toHaveLength(LEADS);
   });
 });
 
@@ -215,6 +220,8 @@ describe('serving chooses the archive by the run\'s lead count', () => {
     const res = await post(runBody(issue, sim, LEADS + 5, { source: 'longer' }));
     expect(res.statusCode, res.body).toBe(201);
     expect(res.json().errorArchive).toMatchObject({ kind: 'corrected', leadMode: 'lead-free', leadTimes: 30 });
+    // Beyond the forcing paths' reach the lead scale widens the errors instead, and the answer says so.
+    expect(res.json().errorArchive.leadGrowth.note).toMatch(/widened at each lead time/);
     expect(res.json().leadTimes).toHaveLength(LEADS + 5);
 
     const tooLong = await post(runBody(issue, sim, 31, { source: 'too-long' }));

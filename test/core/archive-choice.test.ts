@@ -35,4 +35,11 @@ describe('where the errors growth with lead time comes from', () => {
     expect(leadGrowthOf({ leadMode: 'updating', summary: { leadGrowth: [1, 1.5] } }).note).toMatch(/pseudo-forecasts after updating, widened/);
     expect(leadGrowthOf({ leadMode: 'updating', summary: { leadGrowth: null } }).source).toBe('none');
   });
+
+  it('names the forcing paths for runs within their reach, and the lead scale beyond it', () => {
+    const a: ArchiveOption = { leadMode: 'updating', summary: { leadGrowth: [1, 1.5], forcingPaths: { paths: 212, leadTimes: 10 } } };
+    expect(leadGrowthOf(a, 10)).toEqual({ source: 'past-runs', note: expect.stringMatching(/forecast-forcing deviation of one of 212 stored past runs/) });
+    expect(leadGrowthOf(a, 11).note).toMatch(/widened at each lead time/);
+    expect(leadGrowthOf({ leadMode: 'lead-free', summary: { leadScale: null, forcingPaths: { paths: 5, leadTimes: 3 } } }, 4).source).toBe('none');
+  });
 });

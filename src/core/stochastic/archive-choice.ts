@@ -39,10 +39,18 @@ export interface LeadGrowthUsed {
 /**
  * Where a served archive's growth with lead time comes from. Errors of continuous simulations
  * (lead-free) and pseudo-forecasts (updating) lack the forecast-forcing error; past runs measure it
- * (lead-growth.ts). Without past runs nothing measures it, and the answer says so.
+ * (lead-growth.ts, forcing-paths.ts). Without past runs nothing measures it, and the answer says so.
+ * nLeads: the run's lead times (forcing paths serve only runs within their reach).
  */
-export function leadGrowthOf(a: ArchiveOption): LeadGrowthUsed {
+export function leadGrowthOf(a: ArchiveOption, nLeads = 0): LeadGrowthUsed {
   if (a.leadMode === 'per-lead') return { source: 'past-runs', note: 'errors of stored past runs at each lead time, forecast-forcing error included' };
+  const paths = a.summary.forcingPaths as { paths?: number; leadTimes?: number } | null | undefined;
+  if (paths && Number(paths.paths) > 0 && nLeads <= Number(paths.leadTimes)) {
+    return {
+      source: 'past-runs',
+      note: `errors of ${a.leadMode === 'lead-free' ? 'the continuous simulations' : 'pseudo-forecasts after updating'}, each trajectory carrying the forecast-forcing deviation of one of ${paths.paths} stored past runs (those nearest this run's flow)`,
+    };
+  }
   const scale = a.leadMode === 'lead-free' ? a.summary.leadScale : a.summary.leadGrowth;
   if (Array.isArray(scale) && scale.length) {
     return {

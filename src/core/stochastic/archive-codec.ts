@@ -1,5 +1,6 @@
 import { archiveStrata, rankTemplateValues, validateArchive, type ErrorArchive, type NeighbourSettings } from './error-archive.ts';
 import type { ErrorTransform } from './error-transform.ts';
+import type { ForcingPaths } from './forcing-paths.ts';
 
 /**
  * Storage forms of an ErrorArchive. templateRank is derived and never stored; it is recomputed
@@ -10,11 +11,12 @@ import type { ErrorTransform } from './error-transform.ts';
  *   4   uint32   layout version (1)
  *   8   uint32   byte length J of the JSON header
  *   12  J bytes  UTF-8 JSON {format, transform, nLeads, templateLength, nCases, nTemplates, seriesLength,
- *                neighbours?, issueErrorEdges?, leadScale?}
+ *                neighbours?, issueErrorEdges?, leadScale?, forcingPaths?: {nPaths, nLeads}}
  *   then, each starting at a multiple of 8 bytes (zero padding):
  *       groupStart Int32[max(nLeads,1)·strata+1], predictor Float64[nCases], error Float64[nCases],
  *       dayOfYear Uint16[nCases], templateValues Float64[seriesLength] (NaN = missing),
  *       templateStart Int32[nTemplates], templateDayOfYear Uint16[nTemplates]
+ *       and with forcingPaths: key Float64[nPaths], values Float64[nPaths·nLeads]
  * Size ≈ 18 bytes per case + 8 per template series value + 6 per template.
  *
  * JSON: the same fields as plain arrays, NaN written as null.
@@ -34,6 +36,7 @@ interface Header {
   neighbours?: NeighbourSettings;
   issueErrorEdges?: number[];
   leadScale?: number[];
+  forcingPaths?: { nPaths: number; nLeads: number };
 }
 
 function assertLittleEndian(): void {
@@ -57,6 +60,7 @@ export function archiveToBytes(a: ErrorArchive): Uint8Array {
     ...(a.neighbours ? { neighbours: a.neighbours } : {}),
     ...(a.issueErrorEdges ? { issueErrorEdges: Array.from(a.issueErrorEdges) } : {}),
     ...(a.leadScale ? { leadScale: Array.from(a.leadScale) } : {}),
+    ...(a.forcingPaths ? { forcingPaths: { nPaths: a.forcingPaths.key.length, nLeads: a.forcingPaths.nLeads } } : {}),
   };
   const json = new TextEncoder().encode(JSON.stringify(header));
   const sections: ArrayBufferView[] = [
@@ -67,6 +71,7 @@ export function archiveToBytes(a: ErrorArchive): Uint8Array {
     a.templateValues,
     a.templateStart,
     a.templateDayOfYear,
+    ...(a.forcingPaths ? [a.forcingPaths.key, a.forcingPaths.values] : []),
   ];
   let size = pad8(12 + json.length);
   for (const s of sections) size += pad8(s.byteLength);
@@ -111,6 +116,10 @@ export function archiveFromBytes(bytes: Uint8Array): ErrorArchive {
   const templateValues = take(h.seriesLength, 8, (b) => new Float64Array(b));
   const templateStart = take(h.nTemplates, 4, (b) => new Int32Array(b));
   const templateDayOfYear = take(h.nTemplates, 2, (b) => new Uint16Array(b));
+  const fp = h.forcingPaths;
+  const forcingPaths: ForcingPaths | undefined = fp
+    ? { nLeads: fp.nLeads, key: take(fp.nPaths, 8, (b) => new Float64Array(b)), values: take(fp.nPaths * fp.nLeads, 8, (b) => new Float64Array(b)) }
+    : undefined;
   const a: ErrorArchive = {
     format: h.format,
     transform: h.transform,
@@ -127,6 +136,7 @@ export function archiveFromBytes(bytes: Uint8Array): ErrorArchive {
     ...(h.neighbours ? { neighbours: h.neighbours } : {}),
     ...(issueErrorEdges ? { issueErrorEdges } : {}),
     ...(h.leadScale ? { leadScale: Float64Array.from(h.leadScale) } : {}),
+    ...(forcingPaths ? { forcingPaths } : {}),
   };
   validateArchive(a);
   return a;
@@ -148,6 +158,7 @@ export interface ErrorArchiveJson {
   neighbours?: NeighbourSettings;
   issueErrorEdges?: number[];
   leadScale?: number[];
+  forcingPaths?: { nLeads: number; key: number[]; values: number[] };
 }
 
 export function archiveToJSON(a: ErrorArchive): ErrorArchiveJson {
@@ -166,6 +177,7 @@ export function archiveToJSON(a: ErrorArchive): ErrorArchiveJson {
     ...(a.neighbours ? { neighbours: a.neighbours } : {}),
     ...(a.issueErrorEdges ? { issueErrorEdges: Array.from(a.issueErrorEdges) } : {}),
     ...(a.leadScale ? { leadScale: Array.from(a.leadScale) } : {}),
+    ...(a.forcingPaths ? { forcingPaths: { nLeads: a.forcingPaths.nLeads, key: Array.from(a.forcingPaths.key), values: Array.from(a.forcingPaths.values) } } : {}),
   };
 }
 
@@ -187,6 +199,7 @@ export function archiveFromJSON(j: ErrorArchiveJson): ErrorArchive {
     ...(j.neighbours ? { neighbours: j.neighbours } : {}),
     ...(j.issueErrorEdges ? { issueErrorEdges: Float64Array.from(j.issueErrorEdges) } : {}),
     ...(j.leadScale ? { leadScale: Float64Array.from(j.leadScale) } : {}),
+    ...(j.forcingPaths ? { forcingPaths: { nLeads: j.forcingPaths.nLeads, key: Float64Array.from(j.forcingPaths.key), values: Float64Array.from(j.forcingPaths.values) } } : {}),
   };
   validateArchive(a);
   return a;

@@ -6,6 +6,7 @@ import {
   type ErrorTransformSpec,
 } from './error-transform.ts';
 import { NEIGHBOUR_KERNELS, type NeighbourKernel } from './knn.ts';
+import { validateForcingPaths, type ForcingPaths } from './forcing-paths.ts';
 
 /**
  * Error archive for the stochastic error stage: past cases of (predictor = corrected flow,
@@ -64,6 +65,11 @@ export interface ErrorArchive {
    * without forecast-forcing error (continuous simulations, pseudo-forecasts). Absent = no growth.
    */
   leadScale?: Float64Array;
+  /**
+   * Forecast-forcing deviation paths measured on stored past runs (forcing-paths.ts): a run within
+   * their reach adds one to each trajectory instead of widening by leadScale. Absent = none.
+   */
+  forcingPaths?: ForcingPaths;
 }
 
 /** Number of issue-error strata of an archive. */
@@ -421,6 +427,7 @@ export function validateArchive(a: ErrorArchive): void {
     if (a.leadScale.length === 0) throw new RangeError('leadScale must not be empty');
     for (const g of a.leadScale) if (!(Number.isFinite(g) && g > 0)) throw new RangeError('leadScale factors must be positive and finite');
   }
+  if (a.forcingPaths !== undefined) validateForcingPaths(a.forcingPaths);
   if (a.issueErrorEdges !== undefined) {
     if (a.nLeads === 0) throw new RangeError('issue-error strata need a per-lead archive');
     for (let j = 0; j < a.issueErrorEdges.length; j++) {
@@ -476,5 +483,6 @@ export function archiveBuffers(a: ErrorArchive): ArrayBuffer[] {
     a.templateStart,
     a.templateDayOfYear,
     a.templateRank,
+    ...(a.forcingPaths ? [a.forcingPaths.key, a.forcingPaths.values] : []),
   ].map((x) => x.buffer as ArrayBuffer);
 }

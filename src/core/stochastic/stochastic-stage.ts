@@ -5,6 +5,7 @@ import { createPrng, type Prng } from '../prng.ts';
 import { quantileSorted } from '../scores/quantile.ts';
 import { sortNonNegative } from './radix-sort.ts';
 import { forwardTransform } from './error-transform.ts';
+import { drawForcingPaths, runPathKey } from './forcing-paths.ts';
 
 /**
  * Stochastic error stage: turns corrected members into N member-coherent trajectories carrying
@@ -35,7 +36,11 @@ import { forwardTransform } from './error-transform.ts';
  *     turn. Ties between template values (reused templates) and template gaps are broken at
  *     random. Template choice uses its own random stream, so switching the shuffle off leaves
  *     the marginals unchanged.
- *  Quantiles and per-lead exceedance come from the marginals; "exceeded at any time in the
+ *  5. Forecast-forcing paths (archives that carry them, runs within their reach; forcing-paths.ts):
+ *     each trajectory is given one past run's deviation path, drawn among the past runs nearest the
+ *     run's key, and adds it at every lead after the shuffle: T⁻¹(T(value) + δ_h), clipped at 0.
+ *     The archive's leadScale is then not applied: the paths carry the growth with lead.
+ *  Quantiles and per-lead exceedance come from the values after step 5; "exceeded at any time in the
  *  horizon" from the maxima of the trajectories. Each probability p carries its Monte-Carlo
  *  standard error √(p(1 − p)/N) (binomial).
  *
@@ -92,6 +97,8 @@ export interface StochasticOptions {
   thresholds?: ArrayLike<number>;
   /** Apply the Schaake shuffle (default true). false = errors independent across leads. */
   shuffle?: boolean;
+  /** Add the archive's forecast-forcing paths when it has them and they reach the run (default true). */
+  forcingPaths?: boolean;
   /** Return the N × nLeads trajectories (default false). */
   keepTrajectories?: boolean;
   /** When given, the milliseconds spent in each part of the stage are added to it. */
@@ -143,6 +150,8 @@ export interface StochasticResult {
   trajectories: Float64Array | null;
   /** Archive template index each trajectory followed (null without shuffle). */
   templateIndex: Int32Array | null;
+  /** Forcing path each trajectory carried (null when none was added). */
+  pathIndex: Int32Array | null;
 }
 
 /** Binomial Monte-Carlo standard error of a probability estimated from n draws. */
@@ -301,10 +310,12 @@ export function runStochasticStage(
       tx[h * nMM + mm] = kind === 1 ? (x > 0 ? x : 0) + offset : kind === 2 ? lambda * forwardTransform(t, x) + 1 : forwardTransform(t, x);
     }
   }
+  // Forecast-forcing paths: used when the archive has them and they reach the run's horizon.
+  const paths = options.forcingPaths !== false && archive.forcingPaths && archive.forcingPaths.nLeads >= H ? archive.forcingPaths : null;
   let error = archive.error;
   // With a lead scale the drawn errors are scaled per lead, so their terms are made per lead from
   // the neighbours' raw errors (scaleTerms) instead of once per case here.
-  const leadScale = archive.leadScale;
+  const leadScale = paths ? undefined : archive.leadScale;
   if (kind !== 0 && !leadScale) {
     // Per-case terms prepared once per call: exp(e) in log space, λ·e in Box–Cox space.
     const terms = workspace.f64('errorTerm', error.length);
@@ -411,6 +422,10 @@ export function runStochasticStage(
     for (let p = 0; p < N; p++) tieOf[drawOfTie[p]] = p;
   }
 
+  let pathIndex: Int32Array | null = null;
+  const pathTerm = workspace.f64('pathTerm', N);
+  if (paths) pathIndex = drawForcingPaths(paths, runPathKey(members, H, t), N, createPrng(options.seed, 3));
+
   // ---- draws, marginals, shuffle --------------------------------------------------------------------
   const nP = probs.length;
   const nT = thresholds.length;
@@ -511,11 +526,21 @@ export function runStochasticStage(
     }
     sampleLead(kind, rngState, N, slot, 16 * k, cum[k - 1], cum, guide, tx, h * nMM, nbErr, kStride, vals, offset, boxCoxFloor);
     if (timings) timings.samplingMs += lap();
+    // This lead's path terms per draw, in the form sampleLead adds errors: exp(δ), λ·δ or δ.
+    const term = paths ? pathTerm : null;
+    if (paths && pathIndex) {
+      const Hp = paths.nLeads;
+      for (let j = 0; j < N; j++) {
+        const d = paths.values[pathIndex[j] * Hp + h];
+        pathTerm[j] = kind === 1 ? Math.exp(d) : kind === 2 ? lambda * d : d;
+      }
+    }
     if (shuffle) {
-      shuffleWithinMembers(nMM, memberStart, byMember, vals, rank, tBase, h, tieOf, drawOfTie, maxRank, rngTies, groupVals, rankKeys, trajMax, trajectories, H, invLambdaOut, offset);
+      shuffleWithinMembers(nMM, memberStart, byMember, vals, rank, tBase, h, tieOf, drawOfTie, maxRank, rngTies, groupVals, rankKeys, trajMax, trajectories, H, invLambdaOut, offset, term, kind, boxCoxFloor);
     } else {
       for (let j = 0; j < N; j++) {
-        const v = vals[j];
+        const v = term ? withPath(vals[j], term[j], kind, offset, boxCoxFloor) : vals[j];
+        vals[j] = v;
         if (v > trajMax[j]) trajMax[j] = v;
         if (trajectories) trajectories[j * H + h] = invLambdaOut ? boxCoxFlow(v, invLambdaOut, offset) : v;
       }
@@ -562,7 +587,22 @@ export function runStochasticStage(
     memberIndex: Int32Array.from(slot.subarray(0, N)),
     trajectories,
     templateIndex,
+    pathIndex,
   };
+}
+
+/** A working value with a forcing path's term added (clipped at flow 0): see sampleLead's forms. */
+function withPath(v: number, term: number, kind: number, offset: number, floor: number): number {
+  if (kind === 1) {
+    const w = (v + offset) * term - offset;
+    return w > 0 ? w : 0;
+  }
+  if (kind === 0) {
+    const w = v + term;
+    return w > 0 ? w : 0;
+  }
+  const b = v + term;
+  return b > floor ? b : floor;
 }
 
 /**
@@ -643,6 +683,8 @@ function nearestWithRandomTies(
  * memberStart[m] … memberStart[m+1]−1) take that member's values in the rank order of their
  * templates' values at lead h. Keys are rank·2^24 + the draw's place in a random permutation, so
  * equal ranks (reused templates) fall in random order; a missing template value gets a random rank.
+ * With forcing-path terms, each draw's shuffled value gets its own path's term and is written back
+ * to vals, which then hold the final values for the marginals.
  */
 function shuffleWithinMembers(
   nMM: number,
@@ -663,6 +705,9 @@ function shuffleWithinMembers(
   H: number,
   invLambdaOut: number,
   offset: number,
+  term: Float64Array | null,
+  kind: number,
+  floor: number,
 ): void {
   for (let m = 0; m < nMM; m++) {
     const s = memberStart[m];
@@ -680,7 +725,8 @@ function shuffleWithinMembers(
       // The key's low 24 bits without `%`: keys pass 2^31, where `%` on doubles is a call to fmod.
       const key = rankKeys[p];
       const j = drawOfTie[key - Math.floor(key * INV_TIE_SPAN) * TIE_SPAN];
-      const v = groupVals[p];
+      // With forcing paths, the shuffled value plus draw j's path term, kept for the marginals.
+      const v = term ? (vals[j] = withPath(groupVals[p], term[j], kind, offset, floor)) : groupVals[p];
       if (v > trajMax[j]) trajMax[j] = v;
       if (trajectories !== null) trajectories[j * H + h] = invLambdaOut ? boxCoxFlow(v, invLambdaOut, offset) : v;
     }
