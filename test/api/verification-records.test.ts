@@ -163,4 +163,20 @@ describe('verification from run records', () => {
     const anyTime = (x: Record<string, any>) => x.warningScores.events.find((e: { event: string }) => e.event === 'any-time').sources.stochastic.brier.value;
     expect(anyTime(v)).not.toBe(anyTime(before));
   });
+
+  it('rebuilds the records when the gauge\'s thresholds change, and answers as computed from scratch', async () => {
+    const key = async () => (await t.db.query<{ k: string }>('select distinct thresholds_key as k from run_verification_records')).rows.map((r) => r.k);
+    expect(await key()).toHaveLength(1);
+    const patched = await t.as('admin', { method: 'PATCH', url: `/gauges/${g}`, payload: { thresholds: [{ label: 'bankfull', value: 14 }, { label: 'flood', value: 19 }] } });
+    expect(patched.statusCode, patched.body).toBe(200);
+    const { v, ref } = await both('', {});
+    // Every run was issued with the old thresholds now: none is left in the warnings.
+    expect(v.warningScores).toBeNull();
+    expect(ref.warnings).toBeNull();
+    expect(v.comparison).toEqual(ref.comparison);
+    expect(v.comparison.settings.thresholds).toEqual([14, 19]);
+    const keys = await key();
+    expect(keys).toHaveLength(1);
+    expect(keys[0]).toContain('19');
+  });
 });
