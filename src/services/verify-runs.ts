@@ -2,6 +2,7 @@
 // their valid times; raw, corrected and stochastic are compared side by side, with the
 // stochastic-stage advice, and the warnings are verified (core verifyStoredRecords, from the runs'
 // verification records, src/core/verification/run-record.ts).
+import { createHash } from 'node:crypto';
 import type { UpdatingSplit } from '../core/correction/updating-split.ts';
 import { formatDurationSeconds } from '../core/iso-duration.ts';
 import { adviseStochasticStage, type ComparisonReport, type StochasticAdvice, type WarningReport } from '../core/verification/index.ts';
@@ -80,22 +81,48 @@ export async function verifyStoredRuns(
   clock: StageClock = new StageClock(),
   runner: VerificationRunner | null = null,
 ): Promise<StoredVerification> {
-  const metas: StoredRunMeta[] = [];
-  const bytes: Uint8Array[] = [];
   const key = thresholdsKey(gauge.thresholds);
-  const stale: number[] = [];
-  let after: { issueMs: number; id: string } | undefined;
-  for (;;) {
-    const page = await readRunRecords(db, { gaugeId: gauge.id, fromMs: q.fromMs, toMs: q.toMs, source: q.source, after, limit: PAGE });
-    for (const r of page) {
-      if (!r.record || r.record.format !== RUN_RECORD_FORMAT || r.record.thresholdsKey !== key) stale.push(metas.length);
-      metas.push({ id: r.id, issueMs: r.issueMs, source: r.source, status: r.status, modelVersionId: r.modelVersionId });
-      bytes.push(r.record?.bytes ?? EMPTY);
+  const window = { gaugeId: gauge.id, fromMs: q.fromMs, toMs: q.toMs, source: q.source };
+  /** The runs in the window, in issue order, with or without their records' bytes; stale: those without a usable record. */
+  const readRuns = async (withBytes: boolean) => {
+    const metas: StoredRunMeta[] = [];
+    const bytes: Uint8Array[] = [];
+    const stale: number[] = [];
+    let after: { issueMs: number; id: string } | undefined;
+    for (;;) {
+      const page = await readRunRecords(db, { ...window, after, limit: PAGE }, withBytes);
+      for (const r of page) {
+        if (!r.record || r.record.format !== RUN_RECORD_FORMAT || r.record.thresholdsKey !== key) stale.push(metas.length);
+        metas.push({ id: r.id, issueMs: r.issueMs, source: r.source, status: r.status, modelVersionId: r.modelVersionId });
+        bytes.push(r.record?.bytes ?? EMPTY);
+      }
+      if (page.length < PAGE) break;
+      const last = page[page.length - 1];
+      after = { issueMs: last.issueMs, id: last.id };
     }
-    if (page.length < PAGE) break;
-    const last = page[page.length - 1];
-    after = { issueMs: last.issueMs, id: last.id };
+    return { metas, bytes, stale };
+  };
+  const obs = await readObservations(db, gauge.id, {});
+  const times = new Float64Array(obs.length);
+  const values = new Float64Array(obs.length);
+  obs.forEach((o, i) => {
+    times[i] = o.t;
+    values[i] = o.value === null ? NaN : o.value;
+  });
+  const active = await getActiveModelVersion(db, gauge.id);
+  const fitting = period(active?.periods?.calibration);
+  clock.lap('read-observations');
+  // An answer already computed from exactly these runs, observations and settings is given again.
+  const listed = await readRuns(false);
+  const askedKey = listed.stale.length ? null : answerKey(gauge, q, fitting, listed.metas, times, values);
+  clock.lap('read-runs');
+  const known = askedKey ? answers.get(askedKey) : undefined;
+  if (known) {
+    answers.delete(askedKey!);
+    answers.set(askedKey!, known);
+    return known;
   }
+  const { metas, bytes, stale } = await readRuns(true);
   clock.lap('read-records');
   // Runs without a usable record (stored before records existed, or built for other thresholds): built now and kept.
   for (let i = 0; i < stale.length; i += BUILD_CHUNK) {
@@ -112,15 +139,6 @@ export async function verifyStoredRuns(
     await upsertRunRecords(db, built);
   }
   if (stale.length) clock.lap('build-records');
-  const obs = await readObservations(db, gauge.id, {});
-  const times = new Float64Array(obs.length);
-  const values = new Float64Array(obs.length);
-  obs.forEach((o, i) => {
-    times[i] = o.t;
-    values[i] = o.value === null ? NaN : o.value;
-  });
-  const active = await getActiveModelVersion(db, gauge.id);
-  clock.lap('read-observations');
   const input: StoredVerificationInput = {
     thresholds: gauge.thresholds.map((t) => ({ label: t.label, value: t.value })),
     stepMs: gauge.stepSeconds * 1000,
@@ -129,7 +147,7 @@ export async function verifyStoredRuns(
     fromMs: q.fromMs,
     minLead: q.minLead,
     maxLead: q.maxLead,
-    fitting: period(active?.periods?.calibration),
+    fitting,
     observations: { times, values },
     runs: metas,
     records: packRecords(bytes),
@@ -150,7 +168,7 @@ export async function verifyStoredRuns(
   if (versions.length > 1) notes.push(`Runs of ${versions.length} model versions are pooled (${versions.join(', ')}); narrow the window to judge one version.`);
   if (runs.total === 0) notes.push('No stored run in the window.');
   else if (report.cases.used === 0) notes.push('No lead time of these runs has an observation yet.');
-  return {
+  const answer: StoredVerification = {
     gaugeId: gauge.id,
     unit: 'm3/s',
     window: { from: q.fromMs !== undefined ? isoUtc(q.fromMs) : null, to: q.toMs !== undefined ? isoUtc(q.toMs) : null },
@@ -167,6 +185,41 @@ export async function verifyStoredRuns(
     caution: CAUTION,
     notes,
   };
+  // Kept under the key of the runs actually read (a run stored meanwhile gives another key).
+  answers.set(answerKey(gauge, q, fitting, metas, times, values), answer);
+  while (answers.size > ANSWERS_KEPT) answers.delete(answers.keys().next().value!);
+  return answer;
+}
+
+/**
+ * Recent answers by the content they were computed from. The key covers every input of the
+ * answer — the gauge's id, step and thresholds, the query, the fitting period, each run's id,
+ * status, source and model version (runs are never changed once stored, and a record is a
+ * function of its run and the thresholds) and every observation's time and value — so any new
+ * run, revised observation or changed setting gives a new key: a kept answer is never stale.
+ */
+const answers = new Map<string, StoredVerification>();
+const ANSWERS_KEPT = 8;
+
+/** Drops the kept answers (tests that must see the aggregation run). */
+export function forgetVerificationAnswers(): void {
+  answers.clear();
+}
+
+function answerKey(
+  gauge: Gauge,
+  q: Record<string, unknown>,
+  fitting: { fromMs: number; toMs: number } | null,
+  metas: StoredRunMeta[],
+  times: Float64Array,
+  values: Float64Array,
+): string {
+  const h = createHash('sha256');
+  h.update(JSON.stringify({ format: RUN_RECORD_FORMAT, gauge: gauge.id, stepSeconds: gauge.stepSeconds, thresholds: gauge.thresholds, q, fitting }));
+  for (const m of metas) h.update(`\n${m.id}\t${m.issueMs}\t${m.status}\t${m.source}\t${m.modelVersionId}`);
+  h.update(new Uint8Array(times.buffer, times.byteOffset, times.byteLength));
+  h.update(new Uint8Array(values.buffer, values.byteOffset, values.byteLength));
+  return h.digest('base64url');
 }
 
 const EMPTY = new Uint8Array(0);

@@ -165,6 +165,8 @@ export async function correctedArchiveFor(db: Queryable, versionId: string, nLea
   return { archive, maxReach: Math.max(0, ...all.map((a) => a.reach)) };
 }
 
+const NO_BYTES = new Uint8Array(0);
+
 /** A stored run's verification record (src/core/verification/run-record.ts) with what the verification counts of the run. */
 export interface StoredRunRecord {
   id: string;
@@ -176,8 +178,11 @@ export interface StoredRunRecord {
   record: { format: number; thresholdsKey: string; bytes: Uint8Array } | null;
 }
 
-/** Stored runs in issue-time order (then id) with their records, one page at a time. */
-export async function readRunRecords(db: Queryable, p: RunPage): Promise<StoredRunRecord[]> {
+/**
+ * Stored runs in issue-time order (then id) with their records, one page at a time; withBytes
+ * false reads only whether each has a record (its bytes are then empty).
+ */
+export async function readRunRecords(db: Queryable, p: RunPage, withBytes = true): Promise<StoredRunRecord[]> {
   const params: unknown[] = [p.gaugeId];
   let where = '';
   const add = (sql: string, v: unknown) => {
@@ -203,7 +208,7 @@ export async function readRunRecords(db: Queryable, p: RunPage): Promise<StoredR
     bytes: Uint8Array | null;
   }>(
     `select r.id, (extract(epoch from r.issue_time) * 1000)::float8 as t, r.source, r.status, r.model_version_id::text as model_version_id,
-            v.format, v.thresholds_key, v.bytes
+            v.format, v.thresholds_key, ${withBytes ? 'v.bytes' : 'null::bytea as bytes'}
        from forecast_runs r left join run_verification_records v on v.run_id = r.id
       where r.gauge_id = $1${where}
       order by r.issue_time, r.id limit $${params.length}`,
@@ -215,7 +220,7 @@ export async function readRunRecords(db: Queryable, p: RunPage): Promise<StoredR
     source: r.source,
     status: r.status,
     modelVersionId: r.model_version_id,
-    record: r.bytes === null ? null : { format: Number(r.format), thresholdsKey: r.thresholds_key ?? '', bytes: r.bytes },
+    record: r.format === null ? null : { format: Number(r.format), thresholdsKey: r.thresholds_key ?? '', bytes: r.bytes ?? NO_BYTES },
   }));
 }
 

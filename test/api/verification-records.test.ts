@@ -5,6 +5,7 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { createPrng } from '../../src/core/prng.ts';
 import { buildForecastView } from '../../src/services/forecast-view.ts';
+import { forgetVerificationAnswers } from '../../src/services/verify-runs.ts';
 import { insertRun } from '../../src/store/forecasts-repo.ts';
 import { getGauge } from '../../src/store/gauges-repo.ts';
 import { makeTestApp, type TestApp } from '../helpers/test-app.ts';
@@ -139,6 +140,8 @@ describe('verification from run records', () => {
   });
 
   it('answers the same from the stored records, for a window, a source and a lead range too', async () => {
+    // The aggregation runs again from the records (not the answer kept from the first read).
+    forgetVerificationAnswers();
     const again = await both('', {});
     expectSame(again.v, again.ref);
     expect(again.v.comparison).toEqual(before.comparison);
@@ -147,6 +150,16 @@ describe('verification from run records', () => {
     const narrow = await both(`?from=${from}&to=${to}&minLead=2&maxLead=3&source=default`, { fromMs: Date.parse(from), toMs: Date.parse(to), minLead: 2, maxLead: 3, source: 'default' });
     expect(narrow.v.runs.total).toBe(40);
     expectSame(narrow.v, narrow.ref);
+  });
+
+  it('gives a kept answer again only while its runs and observations are unchanged', async () => {
+    const first = (await t.as('read', { method: 'GET', url: `/gauges/${g}/verification` })).json();
+    const kept = (await t.as('read', { method: 'GET', url: `/gauges/${g}/verification` })).json();
+    expect(kept).toEqual(first);
+    // The same value posted again changes nothing; the answer is the same.
+    const same = await t.as('ingest', { method: 'POST', url: `/gauges/${g}/observations`, payload: { unit: 'm3/s', times: [iso(t0 + 5 * DAY)], values: [Math.round(truth(t0 + 5 * DAY) * 1000) / 1000] } });
+    expect(same.statusCode, same.body).toBe(200);
+    expect((await t.as('read', { method: 'GET', url: `/gauges/${g}/verification` })).json()).toEqual(first);
   });
 
   it('follows a revised observation at once: the answer changes and equals the one from scratch', async () => {
