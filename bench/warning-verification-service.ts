@@ -6,7 +6,8 @@
  * daily observations before them (climatology). The runs are stored without their verification
  * records (as runs stored before records existed), so the first verification builds them; the
  * next ones read the records, with the aggregation in the worker pool and then on the main
- * thread. Goal: under 1 s. Prints figures (with phases and the event loop's longest hold); asserts nothing.
+ * thread; then the kept answer (nothing changed), and the answer after one observation is
+ * revised. Goal: under 1 s. Prints figures (with phases and the event loop's longest hold); asserts nothing.
  * Usage: DATABASE_URL=postgres://postgres@127.0.0.1:5432/test npx tsx bench/warning-verification-service.ts [runs]
  * Data are invented.
  */
@@ -19,7 +20,7 @@ import { packRecords } from '../src/core/verification/run-record.ts';
 import { CorrectionPool } from '../src/workers/correction-pool.ts';
 import { buildForecastView } from '../src/services/forecast-view.ts';
 import { StageClock } from '../src/services/stage-clock.ts';
-import { verifyStoredRuns } from '../src/services/verify-runs.ts';
+import { forgetVerificationAnswers, verifyStoredRuns } from '../src/services/verify-runs.ts';
 import { upsertObservations } from '../src/store/archive-repo.ts';
 import { insertRun } from '../src/store/forecasts-repo.ts';
 import { insertGauge } from '../src/store/gauges-repo.ts';
@@ -149,8 +150,19 @@ try {
   };
   // Runs stored before records existed (as insertRun alone leaves them): the first verification builds every record.
   await once('first verification (builds the records of runs stored without one)', pool);
-  for (let r = 0; r < 3; r++) await once(`verification ${r + 1}, aggregation in the worker pool`, pool);
-  for (let r = 0; r < 2; r++) await once(`verification ${r + 1}, aggregation on the main thread`, null);
+  // Each from the records again: the answer kept from the previous one is dropped first.
+  for (let r = 0; r < 3; r++) {
+    forgetVerificationAnswers();
+    await once(`verification ${r + 1} from the records, aggregation in the worker pool`, pool);
+  }
+  forgetVerificationAnswers();
+  await once('verification from the records, aggregation on the main thread', null);
+  // Nothing changed since: the kept answer.
+  for (let r = 0; r < 2; r++) await once(`verification ${r + 1} with nothing changed (kept answer)`, pool);
+  // One observation revised (a valid time of 10 runs): a new key, aggregated again.
+  const last = nHist + nRuns - 5;
+  await upsertObservations(db, gauge.id, Float64Array.of(times[last]), Float64Array.of(flow[last] * 1.5), null);
+  await once('verification after one observation was revised', pool);
   await pool.close();
 } finally {
   await db.close();
