@@ -314,7 +314,7 @@ export async function evaluateReforecasts(
   const values: PastRunValues = { nLeads: L.H, issueIndex: L.at, members: L.seriesMember, raw: rawMasked, corrected };
   const cor = dressedArchive(corrected, observed, dayOfYear, L, options.transform);
   const paths = forcingDeviationPaths({ forecast: corrected, simulated, nIssues: L.issue.length, nMembers: nK, nLeads: L.H, transform: cor.archive.transform });
-  const forcingPaths = paths.key.length ? { forcingPaths: paths } : {};
+  const forcingPaths = paths.values.length ? { forcingPaths: paths } : {};
   const reason = unusable(cor.archive, issues);
   if (reason) return { archives: null, reason, scores, values, ...forcingPaths };
   const rawArchive = dressedArchive(rawMasked, observed, dayOfYear, L, options.transform);

@@ -3,6 +3,7 @@ import { correctedMember } from '../core/correction/corrected-member.ts';
 import { dayOfYearUtc } from '../core/day-of-year.ts';
 import { deterministicScores } from '../core/scores/deterministic-scores.ts';
 import { buildArchiveFromSeries, templateShortfall, type ErrorArchive, type NeighbourSettings } from '../core/stochastic/error-archive.ts';
+import { pathCount } from '../core/stochastic/forcing-paths.ts';
 import { simulationErrorVariances } from '../core/stochastic/lead-growth.ts';
 import { chooseNeighboursByHalves, type NeighbourScore } from '../core/stochastic/neighbour-choice.ts';
 import type { ErrorTransformSpec } from '../core/stochastic/error-transform.ts';
@@ -251,7 +252,7 @@ export interface ForcingPathsSummary {
 export function forcingPathsSummary(a: ErrorArchive): ForcingPathsSummary | null {
   const p = a.forcingPaths;
   if (!p) return null;
-  const P = p.key.length;
+  const P = pathCount(p);
   const mean: number[] = [];
   const sd: number[] = [];
   for (let h = 0; h < p.nLeads; h++) {

@@ -15,58 +15,68 @@ afterAll(async () => t?.close());
 
 const quiet = { info() {}, warn() {}, error() {} } as never;
 
-/** A job kind that waits for `release`, then stores a row as its result inside a held transaction. */
-function waitingHandler(): { handler: JobHandler; started: Promise<void>; release: () => void; aborted: () => boolean } {
+/**
+ * A runner with one job of a kind that waits for `release`, then stores a row as its result inside a
+ * held transaction. `finished` settles once the handler has returned or thrown.
+ */
+async function startWaitingJob() {
   let release!: () => void;
   let started!: () => void;
+  let finished!: () => void;
   const gate = new Promise<void>((r) => (release = r));
   const startedP = new Promise<void>((r) => (started = r));
-  let signal: AbortSignal | null = null;
+  const finishedP = new Promise<void>((r) => (finished = r));
   const handler: JobHandler = async (job, ctx) => {
-    signal = ctx.signal;
     started();
-    await gate;
-    await ctx.db.transaction(async (tx) => {
-      await ctx.hold(tx);
-      await tx.query('insert into handover_results (job_id) values ($1)', [job.id]);
-    });
-    return { stored: true };
+    try {
+      await gate;
+      await ctx.db.transaction(async (tx) => {
+        await ctx.hold(tx);
+        await tx.query('insert into handover_results (job_id) values ($1)', [job.id]);
+      });
+      return { stored: true };
+    } finally {
+      finished();
+    }
   };
-  return { handler, started: startedP, release, aborted: () => signal?.aborted ?? false };
+  const runner = new JobRunner(t.db, { handover: handler }, quiet, 20);
+  const job = await enqueueJob(t.db, 'handover', null, {}, null);
+  await runner.start();
+  await startedP;
+  return { runner, job, release, finished: finishedP };
+}
+
+/** The job once its end is written (the runner writes it just after the handler returns). */
+async function endOf(id: string) {
+  for (let i = 0; i < 100; i++) {
+    const j = (await getJob(t.db, id))!;
+    if (j.status !== 'running') return j;
+    await new Promise((r) => setTimeout(r, 20));
+  }
+  return (await getJob(t.db, id))!;
 }
 
 describe('a job taken over by another instance', () => {
   it('stores nothing and keeps the failure when the stalled instance wakes', async () => {
-    const w = waitingHandler();
-    const runner = new JobRunner(t.db, { handover: w.handler }, quiet, 20);
-    const job = await enqueueJob(t.db, 'handover', null, {}, null);
-    await runner.start();
+    const { runner, job, release, finished } = await startWaitingJob();
     try {
-      await w.started;
       // Another instance's stale-job sweep: as failStaleJobs writes it.
       await t.db.query(`update jobs set status = 'failed', stage = 'failed', finished_at = now(), error = 'interrupted: no heartbeat' where id = $1`, [job.id]);
-      w.release();
+      release();
+      await finished;
       await runner.drain();
-      for (let i = 0; i < 50 && (await getJob(t.db, job.id))!.status === 'running'; i++) await new Promise((r) => setTimeout(r, 20));
-      const after = await getJob(t.db, job.id);
-      expect(after).toMatchObject({ status: 'failed', error: 'interrupted: no heartbeat' });
-      const stored = await t.db.query('select job_id from handover_results where job_id = $1', [job.id]);
-      expect(stored.rows).toHaveLength(0);
+      expect(await getJob(t.db, job.id)).toMatchObject({ status: 'failed', error: 'interrupted: no heartbeat' });
+      expect((await t.db.query('select job_id from handover_results where job_id = $1', [job.id])).rows).toHaveLength(0);
     } finally {
       await runner.stop();
     }
   });
 
   it('a job it still holds stores its result and succeeds', async () => {
-    const w = waitingHandler();
-    const runner = new JobRunner(t.db, { handover: w.handler }, quiet, 20);
-    const job = await enqueueJob(t.db, 'handover', null, {}, null);
-    await runner.start();
+    const { runner, job, release } = await startWaitingJob();
     try {
-      await w.started;
-      w.release();
-      for (let i = 0; i < 100 && (await getJob(t.db, job.id))!.status !== 'succeeded'; i++) await new Promise((r) => setTimeout(r, 20));
-      expect(await getJob(t.db, job.id)).toMatchObject({ status: 'succeeded', result: { stored: true } });
+      release();
+      expect(await endOf(job.id)).toMatchObject({ status: 'succeeded', result: { stored: true } });
       expect((await t.db.query('select job_id from handover_results where job_id = $1', [job.id])).rows).toHaveLength(1);
     } finally {
       await runner.stop();

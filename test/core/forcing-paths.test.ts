@@ -1,7 +1,7 @@
 import { describe, expect, it } from 'vitest';
 import { archiveFromBytes, archiveFromJSON, archiveToBytes, archiveToJSON } from '../../src/core/stochastic/archive-codec.ts';
 import { buildArchiveFromSeries, type ErrorArchive } from '../../src/core/stochastic/error-archive.ts';
-import { drawForcingPaths, forcingDeviationPaths, pathNeighbourCount, type ForcingPaths } from '../../src/core/stochastic/forcing-paths.ts';
+import { drawForcingPaths, forcingDeviationPaths, pathCount, type ForcingPaths } from '../../src/core/stochastic/forcing-paths.ts';
 import { createPrng } from '../../src/core/prng.ts';
 import { runStochasticStage } from '../../src/core/stochastic/stochastic-stage.ts';
 
@@ -21,44 +21,37 @@ describe('forecast-forcing deviation paths from past runs', () => {
     ].flat();
     const p = forcingDeviationPaths({ forecast, simulated, nIssues: 3, nMembers: 2, nLeads: 2, transform: { kind: 'log', offset: 1 } });
     expect(p.nLeads).toBe(2);
-    expect(p.key.length).toBe(2);
-    // Issue 0: lead 0 δ = mean(2 − 1, 2 − 2) = 0.5; lead 1 δ = mean(1 − 1, 3 − 1) = 1; key = mean(1, 2, 1, 1) = 1.25.
+    expect(pathCount(p)).toBe(2);
+    // Issue 0: lead 0 δ = mean(2 − 1, 2 − 2) = 0.5; lead 1 δ = mean(1 − 1, 3 − 1) = 1.
     expect(p.values[0]).toBeCloseTo(0.5, 12);
     expect(p.values[1]).toBeCloseTo(1, 12);
-    expect(p.key[0]).toBeCloseTo(1.25, 12);
-    // Issue 1: member 0 only, δ = 0 at both leads; key = mean(ln 2, ln 3).
+    // Issue 1: member 0 only, δ = 0 at both leads.
     expect(p.values[2]).toBe(0);
     expect(p.values[3]).toBe(0);
-    expect(p.key[1]).toBeCloseTo((Math.log(2) + Math.log(3)) / 2, 12);
   });
 
-  it('each trajectory gets one of the round(√P) paths nearest the run, uniformly, ties at random', () => {
-    const P = 25;
-    const paths: ForcingPaths = { nLeads: 1, key: Float64Array.from({ length: P }, (_, i) => i), values: new Float64Array(P) };
-    expect(pathNeighbourCount(P)).toBe(5);
-    const got = drawForcingPaths(paths, 10.2, 50_000, createPrng(1));
-    const counts = new Map<number, number>();
-    for (const p of got) counts.set(p, (counts.get(p) ?? 0) + 1);
-    expect([...counts.keys()].sort((a, b) => a - b)).toEqual([8, 9, 10, 11, 12]);
-    // Uniform: each of 5 has 10,000 expected; binomial sd ≈ 89, so ±400 is > 4 sd (common practice).
-    for (const c of counts.values()) expect(Math.abs(c - 10_000)).toBeLessThan(400);
-    // 25 paths with one key: the 5 taken differ between seeds, never simply the first stored.
-    const tied: ForcingPaths = { nLeads: 1, key: new Float64Array(P), values: new Float64Array(P) };
-    const seen = new Set<number>();
-    for (let s = 0; s < 20; s++) for (const p of drawForcingPaths(tied, 0, 100, createPrng(s))) seen.add(p);
-    expect(seen.size).toBeGreaterThan(15);
+  it('each trajectory gets one path, uniformly over all of them (seeded)', () => {
+    const P = 5;
+    const paths: ForcingPaths = { nLeads: 1, values: new Float64Array(P) };
+    const got = drawForcingPaths(paths, 50_000, createPrng(1));
+    const counts = new Array(P).fill(0);
+    for (const p of got) counts[p]++;
+    // Each of 5 has 10,000 expected; binomial sd ≈ 89, so ±400 is > 4 sd (common practice).
+    for (const c of counts) expect(Math.abs(c - 10_000)).toBeLessThan(400);
+    expect(Array.from(drawForcingPaths(paths, 20, createPrng(7)))).toEqual(Array.from(drawForcingPaths(paths, 20, createPrng(7))));
   });
 
   it('archives keep their paths through bytes and JSON, and refuse broken ones', () => {
     const a = smallArchive();
-    a.forcingPaths = { nLeads: 2, key: Float64Array.from([1, 2]), values: Float64Array.from([0.1, 0.2, -0.3, 0.4]) };
+    a.forcingPaths = { nLeads: 2, values: Float64Array.from([0.1, 0.2, -0.3, 0.4]) };
     for (const back of [archiveFromBytes(archiveToBytes(a)), archiveFromJSON(archiveToJSON(a))]) {
       expect(back.forcingPaths!.nLeads).toBe(2);
-      expect(Array.from(back.forcingPaths!.key)).toEqual([1, 2]);
       expect(Array.from(back.forcingPaths!.values)).toEqual([0.1, 0.2, -0.3, 0.4]);
     }
-    a.forcingPaths = { nLeads: 2, key: Float64Array.from([1, 2]), values: Float64Array.from([0.1, NaN, 0, 0]) };
+    a.forcingPaths = { nLeads: 2, values: Float64Array.from([0.1, NaN, 0, 0]) };
     expect(() => archiveFromJSON(archiveToJSON(a))).toThrow(/forcing paths/);
+    a.forcingPaths = { nLeads: 2, values: Float64Array.from([0.1, 0.2, 0.3]) };
+    expect(() => archiveFromJSON(archiveToJSON(a))).toThrow(/whole number/);
   });
 });
 
@@ -71,8 +64,8 @@ function smallArchive(): ErrorArchive {
 describe('the stage with forcing paths', () => {
   it('adds one whole path to each trajectory: with zero archived errors, trajectory = member + its path at every lead', () => {
     const a = smallArchive(); // every archived error is 0
-    // Four paths; the two nearest the run's key (50) are +2 at every lead, and −1, −2, −3.
-    a.forcingPaths = { nLeads: 3, key: Float64Array.from([50, 50, 900, 1000]), values: Float64Array.from([2, 2, 2, -1, -2, -3, 30, 30, 30, 40, 40, 40]) };
+    // Two paths: +2 at every lead, and −1, −2, −3.
+    a.forcingPaths = { nLeads: 3, values: Float64Array.from([2, 2, 2, -1, -2, -3]) };
     a.leadScale = Float64Array.from([1, 5, 9]); // ignored where paths serve
     const r = runStochasticStage(a, { members: [50, 50, 50], nMembers: 1, nLeads: 3 }, { seed: 4, nDraws: 4000, thresholds: [51], keepTrajectories: true, probs: [0.5] });
     const up = [52, 52, 52];
@@ -83,7 +76,7 @@ describe('the stage with forcing paths', () => {
       if (r.pathIndex![j] === 0) nUp++;
       for (let h = 0; h < 3; h++) expect(r.trajectories![j * 3 + h]).toBeCloseTo(want[h], 9);
     }
-    // round(√4) = 2 nearest paths, half the trajectories each (binomial sd ≈ 32).
+    // Half the trajectories each (binomial sd ≈ 32).
     expect(Math.abs(nUp - 2000)).toBeLessThan(150);
     // Coherent: a trajectory above 51 is above it at every lead, so any-time = per-lead = share of +2.
     expect(r.exceedanceAnyTime[0]).toBe(nUp / 4000);
@@ -95,7 +88,7 @@ describe('the stage with forcing paths', () => {
 
   it('a run longer than the paths reach uses the lead scale instead', () => {
     const a = smallArchive();
-    a.forcingPaths = { nLeads: 2, key: Float64Array.from([0]), values: Float64Array.from([2, 2]) };
+    a.forcingPaths = { nLeads: 2, values: Float64Array.from([2, 2]) };
     const r = runStochasticStage(a, { members: [50, 50, 50], nMembers: 1, nLeads: 3 }, { seed: 4, nDraws: 100, probs: [0.5] });
     expect(r.pathIndex).toBeNull();
     expect(Array.from(r.quantiles)).toEqual([50, 50, 50]);
@@ -124,7 +117,7 @@ describe('the stage with forcing paths', () => {
     const P = 900;
     const values = new Float64Array(P * H);
     for (let p = 0; p < P; p++) values.set(walk(g), p * H);
-    a.forcingPaths = { nLeads: H, key: new Float64Array(P), values };
+    a.forcingPaths = { nLeads: H, values };
 
     // Coverage of the 5–95 % band over 300 new issues, each with a fresh e and d from the process.
     const members = new Array(H).fill(50);
@@ -141,21 +134,18 @@ describe('the stage with forcing paths', () => {
         if (y >= r.quantiles[2 * h] && y <= r.quantiles[2 * h + 1]) inside[h]++;
       }
     }
-    // Nominal 0.90; binomial sd over 300 issues ≈ 0.017 (each stage run draws only 30 of the 900 paths, so
-    // a little more): 0.85–0.95 is about 3 sd (common practice).
+    // Nominal 0.90; binomial sd over 300 issues ≈ 0.017: 0.85–0.95 is about 3 sd (common practice).
     for (let h = 0; h < H; h++) expect(inside[h] / issues).toBeGreaterThan(0.85);
     for (let h = 0; h < H; h++) expect(inside[h] / issues).toBeLessThan(0.95);
 
     // Any time above 52 in the horizon: the stage against a brute-force Monte Carlo of the same process
-    // using the same 30 paths the stage drew from.
+    // over the same 900 stored paths.
     const r = runStochasticStage(a, { members, nMembers: 1, nLeads: H }, { seed: 5, nDraws: 20_000, thresholds: [52], kernel: 'uniform', k: 5000 });
-    const used = [...new Set(r.pathIndex!)];
-    expect(used.length).toBe(30);
     const mc = createPrng(99);
     const M = 200_000;
     let hits = 0;
     for (let i = 0; i < M; i++) {
-      const p = used[mc.nextInt(used.length)];
+      const p = mc.nextInt(P);
       let x = mc.normal();
       let hit = false;
       for (let h = 0; h < H; h++) {

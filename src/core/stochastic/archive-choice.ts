@@ -48,7 +48,7 @@ export function leadGrowthOf(a: ArchiveOption, nLeads = 0): LeadGrowthUsed {
   if (paths && Number(paths.paths) > 0 && nLeads <= Number(paths.leadTimes)) {
     return {
       source: 'past-runs',
-      note: `errors of ${a.leadMode === 'lead-free' ? 'the continuous simulations' : 'pseudo-forecasts after updating'}, each trajectory carrying the forecast-forcing deviation of one of ${paths.paths} stored past runs (those nearest this run's flow)`,
+      note: `errors of ${a.leadMode === 'lead-free' ? 'the continuous simulations' : 'pseudo-forecasts after updating'}, each trajectory carrying the forecast-forcing deviation of one of ${paths.paths} stored past runs`,
     };
   }
   const scale = a.leadMode === 'lead-free' ? a.summary.leadScale : a.summary.leadGrowth;

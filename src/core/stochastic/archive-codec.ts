@@ -1,6 +1,6 @@
 import { archiveStrata, rankTemplateValues, validateArchive, type ErrorArchive, type NeighbourSettings } from './error-archive.ts';
 import type { ErrorTransform } from './error-transform.ts';
-import type { ForcingPaths } from './forcing-paths.ts';
+import { pathCount, type ForcingPaths } from './forcing-paths.ts';
 
 /**
  * Storage forms of an ErrorArchive. templateRank is derived and never stored; it is recomputed
@@ -16,7 +16,7 @@ import type { ForcingPaths } from './forcing-paths.ts';
  *       groupStart Int32[max(nLeads,1)·strata+1], predictor Float64[nCases], error Float64[nCases],
  *       dayOfYear Uint16[nCases], templateValues Float64[seriesLength] (NaN = missing),
  *       templateStart Int32[nTemplates], templateDayOfYear Uint16[nTemplates]
- *       and with forcingPaths: key Float64[nPaths], values Float64[nPaths·nLeads]
+ *       and with forcingPaths: values Float64[nPaths·nLeads]
  * Size ≈ 18 bytes per case + 8 per template series value + 6 per template.
  *
  * JSON: the same fields as plain arrays, NaN written as null.
@@ -60,7 +60,7 @@ export function archiveToBytes(a: ErrorArchive): Uint8Array {
     ...(a.neighbours ? { neighbours: a.neighbours } : {}),
     ...(a.issueErrorEdges ? { issueErrorEdges: Array.from(a.issueErrorEdges) } : {}),
     ...(a.leadScale ? { leadScale: Array.from(a.leadScale) } : {}),
-    ...(a.forcingPaths ? { forcingPaths: { nPaths: a.forcingPaths.key.length, nLeads: a.forcingPaths.nLeads } } : {}),
+    ...(a.forcingPaths ? { forcingPaths: { nPaths: pathCount(a.forcingPaths), nLeads: a.forcingPaths.nLeads } } : {}),
   };
   const json = new TextEncoder().encode(JSON.stringify(header));
   const sections: ArrayBufferView[] = [
@@ -71,7 +71,7 @@ export function archiveToBytes(a: ErrorArchive): Uint8Array {
     a.templateValues,
     a.templateStart,
     a.templateDayOfYear,
-    ...(a.forcingPaths ? [a.forcingPaths.key, a.forcingPaths.values] : []),
+    ...(a.forcingPaths ? [a.forcingPaths.values] : []),
   ];
   let size = pad8(12 + json.length);
   for (const s of sections) size += pad8(s.byteLength);
@@ -118,7 +118,7 @@ export function archiveFromBytes(bytes: Uint8Array): ErrorArchive {
   const templateDayOfYear = take(h.nTemplates, 2, (b) => new Uint16Array(b));
   const fp = h.forcingPaths;
   const forcingPaths: ForcingPaths | undefined = fp
-    ? { nLeads: fp.nLeads, key: take(fp.nPaths, 8, (b) => new Float64Array(b)), values: take(fp.nPaths * fp.nLeads, 8, (b) => new Float64Array(b)) }
+    ? { nLeads: fp.nLeads, values: take(fp.nPaths * fp.nLeads, 8, (b) => new Float64Array(b)) }
     : undefined;
   const a: ErrorArchive = {
     format: h.format,
@@ -158,7 +158,7 @@ export interface ErrorArchiveJson {
   neighbours?: NeighbourSettings;
   issueErrorEdges?: number[];
   leadScale?: number[];
-  forcingPaths?: { nLeads: number; key: number[]; values: number[] };
+  forcingPaths?: { nLeads: number; values: number[] };
 }
 
 export function archiveToJSON(a: ErrorArchive): ErrorArchiveJson {
@@ -177,7 +177,7 @@ export function archiveToJSON(a: ErrorArchive): ErrorArchiveJson {
     ...(a.neighbours ? { neighbours: a.neighbours } : {}),
     ...(a.issueErrorEdges ? { issueErrorEdges: Array.from(a.issueErrorEdges) } : {}),
     ...(a.leadScale ? { leadScale: Array.from(a.leadScale) } : {}),
-    ...(a.forcingPaths ? { forcingPaths: { nLeads: a.forcingPaths.nLeads, key: Array.from(a.forcingPaths.key), values: Array.from(a.forcingPaths.values) } } : {}),
+    ...(a.forcingPaths ? { forcingPaths: { nLeads: a.forcingPaths.nLeads, values: Array.from(a.forcingPaths.values) } } : {}),
   };
 }
 
@@ -199,7 +199,7 @@ export function archiveFromJSON(j: ErrorArchiveJson): ErrorArchive {
     ...(j.neighbours ? { neighbours: j.neighbours } : {}),
     ...(j.issueErrorEdges ? { issueErrorEdges: Float64Array.from(j.issueErrorEdges) } : {}),
     ...(j.leadScale ? { leadScale: Float64Array.from(j.leadScale) } : {}),
-    ...(j.forcingPaths ? { forcingPaths: { nLeads: j.forcingPaths.nLeads, key: Float64Array.from(j.forcingPaths.key), values: Float64Array.from(j.forcingPaths.values) } } : {}),
+    ...(j.forcingPaths ? { forcingPaths: { nLeads: j.forcingPaths.nLeads, values: Float64Array.from(j.forcingPaths.values) } } : {}),
   };
   validateArchive(a);
   return a;

@@ -483,6 +483,6 @@ export function archiveBuffers(a: ErrorArchive): ArrayBuffer[] {
     a.templateStart,
     a.templateDayOfYear,
     a.templateRank,
-    ...(a.forcingPaths ? [a.forcingPaths.key, a.forcingPaths.values] : []),
+    ...(a.forcingPaths ? [a.forcingPaths.values] : []),
   ].map((x) => x.buffer as ArrayBuffer);
 }

@@ -5,7 +5,7 @@ import { createPrng, type Prng } from '../prng.ts';
 import { quantileSorted } from '../scores/quantile.ts';
 import { sortNonNegative } from './radix-sort.ts';
 import { forwardTransform } from './error-transform.ts';
-import { drawForcingPaths, runPathKey } from './forcing-paths.ts';
+import { drawForcingPaths } from './forcing-paths.ts';
 
 /**
  * Stochastic error stage: turns corrected members into N member-coherent trajectories carrying
@@ -37,8 +37,8 @@ import { drawForcingPaths, runPathKey } from './forcing-paths.ts';
  *     random. Template choice uses its own random stream, so switching the shuffle off leaves
  *     the marginals unchanged.
  *  5. Forecast-forcing paths (archives that carry them, runs within their reach; forcing-paths.ts):
- *     each trajectory is given one past run's deviation path, drawn among the past runs nearest the
- *     run's key, and adds it at every lead after the shuffle: T⁻¹(T(value) + δ_h), clipped at 0.
+ *     each trajectory is given one past run's deviation path, drawn at random from all of them, and
+ *     adds it at every lead after the shuffle: T⁻¹(T(value) + δ_h), clipped at 0.
  *     The archive's leadScale is then not applied: the paths carry the growth with lead.
  *  Quantiles and per-lead exceedance come from the values after step 5; "exceeded at any time in the
  *  horizon" from the maxima of the trajectories. Each probability p carries its Monte-Carlo
@@ -424,7 +424,7 @@ export function runStochasticStage(
 
   let pathIndex: Int32Array | null = null;
   const pathTerm = workspace.f64('pathTerm', N);
-  if (paths) pathIndex = drawForcingPaths(paths, runPathKey(members, H, t), N, createPrng(options.seed, 3));
+  if (paths) pathIndex = drawForcingPaths(paths, N, createPrng(options.seed, 3));
 
   // ---- draws, marginals, shuffle --------------------------------------------------------------------
   const nP = probs.length;
