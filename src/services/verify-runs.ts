@@ -13,7 +13,9 @@ import type { Queryable } from '../store/db.ts';
 import type { Gauge } from '../store/gauges-repo.ts';
 import { getActiveModelVersion } from '../store/models-repo.ts';
 import { readRunRecords, readRunsForVerification, upsertRunRecords, type RunForVerification } from '../store/verification-repo.ts';
+import { PoolFullError } from '../workers/correction-pool.ts';
 import { CAUTION } from './caution.ts';
+import { Problem } from './problem.ts';
 import { isoUtc } from './series-input.ts';
 import { StageClock } from './stage-clock.ts';
 import { rfc3339Ms } from '../core/rfc3339.ts';
@@ -153,7 +155,14 @@ export async function verifyStoredRuns(
     records: packRecords(bytes),
   };
   clock.lap('pack');
-  const out = runner ? await runner.verify(input) : verifyStoredRecords(input);
+  let out: StoredVerificationResult;
+  try {
+    out = runner ? await runner.verify(input) : verifyStoredRecords(input);
+  } catch (err) {
+    // The workers' queue is full: the client is told to retry, as a posted run would be.
+    if (err instanceof PoolFullError) throw new Problem(503, 'busy', 'Busy', 'the worker queue is full; retry shortly', [], { 'retry-after': '2' });
+    throw err;
+  }
   // The whole aggregation as this thread waited for it, then its parts as measured where they ran.
   clock.lap('aggregate');
   for (const [stage, ms] of Object.entries(out.ms)) clock.add(`aggregate.${stage}`, ms);
