@@ -15,6 +15,7 @@ import { getActiveModelVersion } from '../store/models-repo.ts';
 import { readRunRecords, readRunsForVerification, upsertRunRecords, type RunForVerification } from '../store/verification-repo.ts';
 import { PoolFullError } from '../workers/correction-pool.ts';
 import { CAUTION } from './caution.ts';
+import type { ForecastView } from './forecast-view.ts';
 import { Problem } from './problem.ts';
 import { isoUtc } from './series-input.ts';
 import { StageClock } from './stage-clock.ts';
@@ -237,6 +238,18 @@ const BUILD_CHUNK = 200;
 /** What a run's record is built from, as the store reads the run. */
 export function recordInput(r: RunForVerification): RunRecordInput {
   return { validMs: r.validTimes.map((v) => rfc3339Ms(v)), raw: r.raw, corrected: r.corrected, percentiles: r.percentiles, updated: r.updated, issued: r.issued };
+}
+
+/** What a run's record is built from, from the answer just built for it (before it is stored) and its stage quantiles. */
+export function recordInputFromView(view: ForecastView, percentiles: number[][]): RunRecordInput {
+  return {
+    validMs: view.validTimes.map((v) => rfc3339Ms(v)),
+    raw: view.ensemble.raw,
+    corrected: view.ensemble.corrected,
+    percentiles,
+    updated: view.updating?.status === 'on',
+    issued: view.thresholds,
+  };
 }
 
 /**

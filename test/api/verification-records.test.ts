@@ -5,7 +5,9 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { createPrng } from '../../src/core/prng.ts';
 import { buildForecastView } from '../../src/services/forecast-view.ts';
-import { forgetVerificationAnswers } from '../../src/services/verify-runs.ts';
+import { buildRunRecord } from '../../src/core/verification/run-record.ts';
+import type { ForecastView } from '../../src/services/forecast-view.ts';
+import { forgetVerificationAnswers, recordInputFromView } from '../../src/services/verify-runs.ts';
 import { insertRun } from '../../src/store/forecasts-repo.ts';
 import { getGauge } from '../../src/store/gauges-repo.ts';
 import { makeTestApp, type TestApp } from '../helpers/test-app.ts';
@@ -22,6 +24,8 @@ const THRESHOLDS = [
   { label: 'flood', value: 18 },
 ];
 const rng = createPrng(11);
+/** Runs as the service built them before storing (id, answer, stage quantiles). */
+const built: { id: string; view: ForecastView; percentiles: number[][] }[] = [];
 /** The invented river: a seasonal wave with noise. */
 const truth = (ms: number) => 12 + 4 * Math.sin(ms / (40 * DAY)) + 2 * Math.sin(ms / (3 * DAY));
 
@@ -77,6 +81,7 @@ beforeAll(async () => {
       recent: { times: [], observed: [] },
       timings: { featuresMs: 0, inferenceMs: 0, stochasticMs: 0, totalMs: 0 },
     } as unknown as Parameters<typeof buildForecastView>[0]);
+    built.push({ id, view: view as ForecastView, percentiles });
     // Stored without a verification record, as runs stored before records existed.
     await insertRun(t.db, {
       id,
@@ -137,6 +142,14 @@ describe('verification from run records', () => {
     expect(v.warningScores.skipped).toEqual({ degraded: 1, thresholdsChanged: 1 });
     expectSame(v, ref);
     before = v;
+  });
+
+  it('builds the same record from the answer as it is stored (on posting) as from the stored answer (on first read)', async () => {
+    for (const i of [0, 20, 30, 41]) {
+      const { id, view, percentiles } = built[i];
+      const { rows } = await t.db.query<{ bytes: Uint8Array }>('select bytes from run_verification_records where run_id = $1', [id]);
+      expect(Buffer.from(rows[0].bytes).equals(Buffer.from(buildRunRecord(recordInputFromView(view, percentiles), THRESHOLDS)))).toBe(true);
+    }
   });
 
   it('answers the same from the stored records, for a window, a source and a lead range too', async () => {
