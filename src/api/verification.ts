@@ -68,7 +68,7 @@ export async function verificationRoutes(app: FastifyInstance, { services }: { s
         maxLead: q.maxLead,
         source: q.source,
         attentionLevel: services.config.ATTENTION_LEVEL,
-      });
+      }, undefined, services.pool);
       const drift = await getGaugeStatus(db, gauge.id);
       const header = [
         `${gauge.name} (${gauge.id}) — verification of stored runs, issued ${v.window.from ?? 'any time'} to ${v.window.to ?? 'now'}, lead times ${v.leadRange.min ?? 1}–${v.leadRange.max ?? 'all'} steps; flows in m3/s`,

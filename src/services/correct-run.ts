@@ -26,6 +26,7 @@ import { FLOAT32_MAX, flowLimit, forcingLimit, valueProblem } from './plausible-
 import { rfc3339Ms } from '../core/rfc3339.ts';
 import { flowUnit, type FlowUnit } from '../core/flow-units.ts';
 import { StageClock } from './stage-clock.ts';
+import { recordInputFromView, storeRunRecord } from './verify-runs.ts';
 
 /**
  * Stored with every run for verification: the quantiles at the midpoint levels (i − 0.5)/100,
@@ -542,6 +543,9 @@ export class RunCorrection {
       if (stored) return { created: false, stored: replay(stored, requestHash, 'this run') };
       throw err;
     }
+    // The run's verification record, so verifying stored runs never re-reads this answer. Not
+    // part of the run's statement: if it fails, the first verification that reads the run builds it.
+    await storeRunRecord(db, gauge, id, recordInputFromView(view, percentiles)).catch(() => {});
     clock.lap('writes');
     metrics.runs.inc({ status });
     for (const [stage, ms] of Object.entries({ features: timings.featuresMs, inference: timings.inferenceMs, stochastic: timings.stochasticMs, total: timings.totalMs })) {

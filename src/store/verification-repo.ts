@@ -29,6 +29,8 @@ export interface RunPage {
   fromMs?: number;
   toMs?: number;
   source?: string;
+  /** Only these runs. */
+  ids?: string[];
   /** Keyset: runs after this (issue time, id). */
   after?: { issueMs: number; id: string };
   limit: number;
@@ -45,6 +47,7 @@ export async function readRunsForVerification(db: Queryable, p: RunPage): Promis
   if (p.fromMs !== undefined) add('issue_time >= to_timestamp(?)', p.fromMs / 1000);
   if (p.toMs !== undefined) add('issue_time < to_timestamp(?)', p.toMs / 1000);
   if (p.source !== undefined) add('source = ?', p.source);
+  if (p.ids !== undefined) add('id = any(?::text[])', p.ids);
   if (p.after) {
     params.push(p.after.issueMs / 1000, p.after.id);
     where += ` and (issue_time, id) > (to_timestamp($${params.length - 1}), $${params.length})`;
@@ -160,4 +163,83 @@ export async function correctedArchiveFor(db: Queryable, versionId: string, nLea
   const leadFree = all.find((a) => a.leadMode === 'lead-free') ?? null;
   const archive = chooseArchive(perLead, leadFree, nLeads, minPerLeadRuns);
   return { archive, maxReach: Math.max(0, ...all.map((a) => a.reach)) };
+}
+
+const NO_BYTES = new Uint8Array(0);
+
+/** A stored run's verification record (src/core/verification/run-record.ts) with what the verification counts of the run. */
+export interface StoredRunRecord {
+  id: string;
+  issueMs: number;
+  source: string;
+  status: 'corrected' | 'degraded';
+  modelVersionId: string | null;
+  /** null when the run has no record yet. */
+  record: { format: number; thresholdsKey: string; bytes: Uint8Array } | null;
+}
+
+/**
+ * Stored runs in issue-time order (then id) with their records, one page at a time; withBytes
+ * false reads only whether each has a record (its bytes are then empty).
+ */
+export async function readRunRecords(db: Queryable, p: RunPage, withBytes = true): Promise<StoredRunRecord[]> {
+  const params: unknown[] = [p.gaugeId];
+  let where = '';
+  const add = (sql: string, v: unknown) => {
+    params.push(v);
+    where += ` and ${sql.replace('?', `$${params.length}`)}`;
+  };
+  if (p.fromMs !== undefined) add('r.issue_time >= to_timestamp(?)', p.fromMs / 1000);
+  if (p.toMs !== undefined) add('r.issue_time < to_timestamp(?)', p.toMs / 1000);
+  if (p.source !== undefined) add('r.source = ?', p.source);
+  if (p.after) {
+    params.push(p.after.issueMs / 1000, p.after.id);
+    where += ` and (r.issue_time, r.id) > (to_timestamp($${params.length - 1}), $${params.length})`;
+  }
+  params.push(p.limit);
+  const { rows } = await db.query<{
+    id: string;
+    t: number;
+    source: string;
+    status: 'corrected' | 'degraded';
+    model_version_id: string | null;
+    format: number | null;
+    thresholds_key: string | null;
+    bytes: Uint8Array | null;
+  }>(
+    `select r.id, (extract(epoch from r.issue_time) * 1000)::float8 as t, r.source, r.status, r.model_version_id::text as model_version_id,
+            v.format, v.thresholds_key, ${withBytes ? 'v.bytes' : 'null::bytea as bytes'}
+       from forecast_runs r left join run_verification_records v on v.run_id = r.id
+      where r.gauge_id = $1${where}
+      order by r.issue_time, r.id limit $${params.length}`,
+    params,
+  );
+  return rows.map((r) => ({
+    id: r.id,
+    issueMs: Number(r.t),
+    source: r.source,
+    status: r.status,
+    modelVersionId: r.model_version_id,
+    record: r.format === null ? null : { format: Number(r.format), thresholdsKey: r.thresholds_key ?? '', bytes: r.bytes ?? NO_BYTES },
+  }));
+}
+
+/** Stores (or replaces) runs' verification records. A run deleted meanwhile is skipped. */
+export async function upsertRunRecords(db: Queryable, records: { runId: string; format: number; thresholdsKey: string; bytes: Uint8Array }[]): Promise<void> {
+  for (let i = 0; i < records.length; i += 100) {
+    const chunk = records.slice(i, i + 100);
+    const params: unknown[] = [];
+    const values = chunk.map((r) => {
+      params.push(r.runId, r.format, r.thresholdsKey, Buffer.from(r.bytes.buffer, r.bytes.byteOffset, r.bytes.byteLength));
+      const n = params.length;
+      return `($${n - 3}, $${n - 2}::integer, $${n - 1}, $${n}::bytea)`;
+    });
+    await db.query(
+      `insert into run_verification_records (run_id, format, thresholds_key, bytes)
+       select v.run_id, v.format, v.thresholds_key, v.bytes from (values ${values.join(', ')}) as v(run_id, format, thresholds_key, bytes)
+        where exists (select 1 from forecast_runs r where r.id = v.run_id)
+       on conflict (run_id) do update set format = excluded.format, thresholds_key = excluded.thresholds_key, bytes = excluded.bytes`,
+      params,
+    );
+  }
 }

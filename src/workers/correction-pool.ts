@@ -1,6 +1,7 @@
 import { Worker } from 'node:worker_threads';
 import type { RunInput } from '../core/features/features.ts';
 import type { CorrectionOptions } from '../models/correct-run.ts';
+import type { StoredVerificationInput, StoredVerificationResult } from '../core/verification/stored-verification.ts';
 import type { CorrectionReply, CorrectionRequest, CorrectionResult, WorkerStart } from './protocol.ts';
 
 export type { CorrectionResult };
@@ -76,12 +77,35 @@ export class CorrectionPool {
     return slot;
   }
 
-  private call(slot: Slot, msg: WithoutId<CorrectionRequest>): Promise<unknown> {
+  private call(slot: Slot, msg: WithoutId<CorrectionRequest>, transfer: ArrayBuffer[] = []): Promise<unknown> {
     const id = this.nextId++;
     return new Promise((resolve, reject) => {
       slot.pending.set(id, { resolve, reject });
-      slot.worker.postMessage({ ...msg, id });
+      slot.worker.postMessage({ ...msg, id }, transfer);
     });
+  }
+
+  /**
+   * Verifies stored runs from their records in a worker, so other requests are served meanwhile.
+   * The records' buffer is handed over, not copied (unusable here afterwards). Waits for a free
+   * worker like a correction, within the same queue limit.
+   */
+  async verify(input: StoredVerificationInput): Promise<StoredVerificationResult> {
+    if (this.queued >= this.maxQueued) throw new PoolFullError(`${this.queued} tasks are waiting`);
+    this.queued++;
+    try {
+      const slot = await this.acquire();
+      try {
+        const bytes = input.records.bytes;
+        const whole = bytes.byteOffset === 0 && bytes.byteLength === bytes.buffer.byteLength;
+        return (await this.call(slot, { type: 'verify', input }, whole ? [bytes.buffer as ArrayBuffer] : [])) as StoredVerificationResult;
+      } finally {
+        slot.busy--;
+        this.waiters.shift()?.();
+      }
+    } finally {
+      this.queued--;
+    }
   }
 
   /** Loads a model into every worker (on activation), so the next run finds it warm. */

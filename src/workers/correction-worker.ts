@@ -8,6 +8,7 @@ import { FeatureInputError } from '../core/features/features.ts';
 import { checkResidualSpec, type ResidualSpec } from '../core/features/model-inputs.ts';
 import { createStochasticWorkspace } from '../core/stochastic/stochastic-stage.ts';
 import { correctRun } from '../models/correct-run.ts';
+import { verifyStoredRecords } from '../core/verification/stored-verification.ts';
 import { warmSession } from '../models/model-shape.ts';
 import { createResidualSession } from '../models/onnx-session.ts';
 import type { CorrectionReply, CorrectionRequest } from './protocol.ts';
@@ -45,6 +46,8 @@ parentPort!.on('message', async (msg: CorrectionRequest) => {
       if (!archives.has(msg.archiveId)) archives.set(msg.archiveId, archiveFromBytes(msg.bytes));
       while (archives.size > MAX_ARCHIVES) archives.delete(archives.keys().next().value!);
       reply({ id: msg.id, ok: true });
+    } else if (msg.type === 'verify') {
+      reply({ id: msg.id, ok: true, result: verifyStoredRecords(msg.input) });
     } else {
       const model = msg.versionId ? models.get(msg.versionId) : null;
       if (msg.versionId && !model) throw new Error(`model ${msg.versionId} is not loaded in this worker`);

@@ -10,6 +10,7 @@ import type { HindcastTaskInput } from '../models/hindcast-compute.ts';
 import type { ArchiveOptions } from '../models/residual-evaluation.ts';
 import type { LstmFitOptions } from '../models/lstm-fit.ts';
 import type { FitOptions } from '../models/residual-fit.ts';
+import type { StoredVerificationInput, StoredVerificationResult } from '../core/verification/stored-verification.ts';
 
 /** What a worker thread is started with: the TypeScript module to load (relative to worker-entry.mjs). */
 export interface WorkerStart {
@@ -21,7 +22,9 @@ export interface WorkerStart {
 export type CorrectionRequest =
   | { type: 'load-model'; id: number; versionId: string; parts: Uint8Array[]; spec: unknown }
   | { type: 'load-archive'; id: number; archiveId: string; bytes: Uint8Array }
-  | { type: 'correct'; id: number; versionId: string | null; archiveId: string; run: RunInput; options: CorrectionOptions };
+  | { type: 'correct'; id: number; versionId: string | null; archiveId: string; run: RunInput; options: CorrectionOptions }
+  // The verification of stored runs (core verifyStoredRecords): its records arrive in one transferred buffer.
+  | { type: 'verify'; id: number; input: StoredVerificationInput };
 
 export interface CorrectionResult {
   corrected: Float64Array | null;
@@ -34,7 +37,7 @@ export interface CorrectionResult {
 }
 
 /** The answer to one request, matched by id; `path` names the run field when inputs did not fit the feature spec. */
-export type CorrectionReply = { id: number; ok: true; result?: CorrectionResult } | { id: number; ok: false; message: string; path: string | null };
+export type CorrectionReply = { id: number; ok: true; result?: CorrectionResult | StoredVerificationResult } | { id: number; ok: false; message: string; path: string | null };
 
 // ---- compute workers ----
 

@@ -52,7 +52,10 @@ export function updatingSplit(): UpdatingSplitCollector {
     if (buf.length < v.length) buf = new Float64Array(v.length);
     let n = 0;
     for (let i = 0; i < v.length; i++) if (Number.isFinite(v[i])) buf[n++] = v[i];
-    return buf.subarray(0, n).sort();
+    // Values from run records come ascending already: one pass tells, and the sort is skipped.
+    let i = 1;
+    while (i < n && buf[i - 1] <= buf[i]) i++;
+    return i >= n ? buf.subarray(0, n) : buf.subarray(0, n).sort();
   };
   const rows = (g: Sums, n: number): UpdatingSplitRow[] =>
     Array.from({ length: n }, (_, k) => {

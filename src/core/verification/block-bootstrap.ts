@@ -141,6 +141,16 @@ export function blockBootstrapColumns(
     }
   }
   const sums = new Float64Array(A);
+  // Every full block's sums, once: D[s·A + a] = P[(s + L)·A + a] − P[s·A + a] for each start s, the
+  // same differences the replicates would take, so a replicate reads one row per block.
+  const L = Math.max(1, Math.min(options.blockLength, nIssues));
+  const starts = nIssues >= 2 ? nIssues - L + 1 : 0;
+  const D = new Float64Array(starts * A);
+  for (let s = 0; s < starts; s++) {
+    const lo = s * A;
+    const hi = (s + L) * A;
+    for (let a = 0; a < A; a++) D[lo + a] = P[hi + a] - P[lo + a];
+  }
   return blockBootstrap(
     nIssues,
     statistics.map((f, s) => (rep: Replicate) => {
@@ -149,8 +159,20 @@ export function blockBootstrapColumns(
         sums.fill(0);
         for (let b = 0; b < rep.starts.length; b++) {
           const lo = rep.starts[b] * A;
-          const hi = (rep.starts[b] + rep.lengths[b]) * A;
-          for (let a = 0; a < A; a++) sums[a] += P[hi + a] - P[lo + a];
+          if (rep.lengths[b] === L) {
+            // Four columns a step (each column's sum still adds its blocks in the same order).
+            let a = 0;
+            for (; a + 3 < A; a += 4) {
+              sums[a] += D[lo + a];
+              sums[a + 1] += D[lo + a + 1];
+              sums[a + 2] += D[lo + a + 2];
+              sums[a + 3] += D[lo + a + 3];
+            }
+            for (; a < A; a++) sums[a] += D[lo + a];
+          } else {
+            const hi = (rep.starts[b] + rep.lengths[b]) * A;
+            for (let a = 0; a < A; a++) sums[a] += P[hi + a] - P[lo + a];
+          }
         }
       }
       return f(sums);

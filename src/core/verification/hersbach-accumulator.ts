@@ -52,13 +52,13 @@ export class HersbachAccumulator {
     this.b = new Float64Array(nMembers + 1);
   }
 
-  /** Adds one case: members x[0 … N−1] ascending, finite observation y. */
-  add(sorted: ArrayLike<number>, y: number): void {
+  /** Adds one case: members x[0 … N−1] ascending, finite observation y; crps = crpsSorted(sorted, y) when the caller has it. */
+  add(sorted: ArrayLike<number>, y: number, crps = crpsSorted(sorted, y, false, 0, this.nMembers)): void {
     const N = this.nMembers;
     const a = this.a;
     const b = this.b;
     this.ys.push(y);
-    this.crpsSum += crpsSorted(sorted, y, false, 0, N);
+    this.crpsSum += crps;
     const first = sorted[0];
     const last = sorted[N - 1];
     if (y < first) b[0] += first - y;

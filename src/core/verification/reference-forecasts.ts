@@ -47,10 +47,14 @@ export function seasonalClimatology(
   // The window in slots of 1/366 year (a day, within a fraction of a day).
   const w = Math.round(windowDays);
   // Per slot (and cut level r): sorted values v, prefix sums P, and the spread term S/m².
-  const sums = new Map<string, { v: Float64Array; P: Float64Array; spread: number }>();
+  // Keyed by cut level (NaN = uncut), then slot: a lookup per call without building a key string.
+  type Sums = { v: Float64Array; P: Float64Array; spread: number };
+  const sums = new Map<number, (Sums | undefined)[]>();
   const sumsAt = (s: number, r: number | undefined) => {
-    const key = `${s}:${r ?? ''}`;
-    let e = sums.get(key);
+    const level = r === undefined ? NaN : r;
+    let bySlotSums = sums.get(level);
+    if (!bySlotSums) sums.set(level, (bySlotSums = new Array<Sums | undefined>(DAYS)));
+    let e = bySlotSums[s];
     if (!e) {
       const base = valuesAtSlot(s);
       const v = r === undefined ? base : Float64Array.from(base, (x) => (x > r ? x : r));
@@ -62,7 +66,7 @@ export function seasonalClimatology(
         spread += (2 * (j + 1) - m - 1) * v[j];
       }
       e = { v, P, spread: m ? spread / (m * m) : NaN };
-      sums.set(key, e);
+      bySlotSums[s] = e;
     }
     return e;
   };

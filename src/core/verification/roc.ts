@@ -43,35 +43,33 @@ export interface RocTable {
  * the unit a bootstrap resamples. A counting sort on the rank of each level: no comparator sort.
  */
 export function rocTable(prob: ArrayLike<number>, outcome: ArrayLike<number>, group?: ArrayLike<number>): RocTable {
-  const ok: number[] = [];
-  for (let i = 0; i < prob.length; i++) if (!Number.isNaN(prob[i]) && !Number.isNaN(outcome[i])) ok.push(i);
-  const sorted = Float64Array.from(ok, (i) => prob[i]).sort();
-  const distinct: number[] = [];
-  for (let i = 0; i < sorted.length; i++) if (i === 0 || sorted[i] !== sorted[i - 1]) distinct.push(sorted[i]);
-  distinct.reverse();
-  const L = distinct.length;
-  const levels = Float64Array.from(distinct);
-  const rank = (p: number) => {
-    let lo = 0;
-    let hi = L - 1;
-    while (lo < hi) {
-      const mid = (lo + hi) >> 1;
-      if (levels[mid] > p) lo = mid + 1;
-      else hi = mid;
-    }
-    return lo;
-  };
+  const okAll = new Int32Array(prob.length);
+  let nOk = 0;
+  // Forecast probabilities take few distinct values (shares of m members, issued percentages):
+  // the levels come from the distinct values, not from sorting every case.
+  const seen = new Set<number>();
+  for (let i = 0; i < prob.length; i++) {
+    if (Number.isNaN(prob[i]) || Number.isNaN(outcome[i])) continue;
+    okAll[nOk++] = i;
+    seen.add(prob[i]);
+  }
+  const ok = okAll.subarray(0, nOk);
+  const levels = Float64Array.from(seen).sort().reverse();
+  const L = levels.length;
+  const rankOf = new Map<number, number>();
+  levels.forEach((p, r) => rankOf.set(p, r));
   const events = new Float64Array(L);
   const nonEvents = new Float64Array(L);
   const caseRank = new Int32Array(ok.length);
   const start = new Int32Array(L + 1);
-  ok.forEach((i, j) => {
-    const r = rank(prob[i]);
+  for (let j = 0; j < ok.length; j++) {
+    const i = ok[j];
+    const r = rankOf.get(prob[i])!;
     caseRank[j] = r;
     start[r + 1]++;
     if (outcome[i] > 0) events[r]++;
     else nonEvents[r]++;
-  });
+  }
   for (let r = 0; r < L; r++) start[r + 1] += start[r];
   const order = new Int32Array(ok.length);
   const fill = start.slice(0, L);

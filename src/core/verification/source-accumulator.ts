@@ -91,7 +91,8 @@ export class SourceAccumulator {
       this.widthSum[l] += hi - lo;
     }
     if (this.hersbach === null) this.hersbach = new HersbachAccumulator(m);
-    if (m === this.hersbach.nMembers) this.hersbach.add(sorted, y);
+    // The row holds exactly m values, so its CRPS is the one the decomposition sums.
+    if (m === this.hersbach.nMembers) this.hersbach.add(sorted, y, crps);
     else this.hersbachSkipped++;
     return sorted;
   }

@@ -16,6 +16,10 @@ export class ValueSorter {
   /** Sorts row[0 … n−1] ascending; nonNegative = every value ≥ 0. Returns the sorted view. */
   sort(row: Float64Array, n: number, nonNegative: boolean): Float64Array {
     const view = row.subarray(0, n);
+    // Rows read from run records come ascending already: one pass tells, and the sort is skipped.
+    let i = 1;
+    while (i < n && view[i - 1] <= view[i]) i++;
+    if (i >= n) return view;
     // Below a few hundred values the radix passes' fixed cost outweighs their gain.
     if (!nonNegative || n < 256) return view.sort();
     if (this.tmp.length < n) {

@@ -39,6 +39,12 @@ export interface WarningSourceRun {
   exceedance?: ArrayLike<number> | null;
   /** Any-time probabilities as issued, per threshold; else from the trajectories (NaN without). */
   anyTime?: ArrayLike<number> | null;
+  /**
+   * The values per lead instead, already finite and ascending (a run's verification record): lead
+   * k is columns.values[columns.start[k] … columns.start[k + 1] − 1]; values and count are then
+   * not read, so anyTime must be given.
+   */
+  columns?: { values: Float64Array; start: Int32Array } | null;
 }
 
 export interface WarningRun {
@@ -251,6 +257,7 @@ export function createWarningVerification(options: WarningOptions): WarningVerif
 
   /** Finite values of one source at lead k, sorted (in that source's own reusable buffer). */
   function column(f: WarningSourceRun, H: number, k: number, s: number): Float64Array {
+    if (f.columns) return f.columns.values.subarray(f.columns.start[k], f.columns.start[k + 1]);
     if (rows[s].length < f.count) rows[s] = new Float64Array(f.count);
     const row = rows[s];
     let m = 0;
@@ -285,11 +292,23 @@ export function createWarningVerification(options: WarningOptions): WarningVerif
     const columns: Float64Array[] = [];
     const totals: number[] = [];
     /** A column of per-run sums; returns its index. */
+    // Columns equal in every value (case counts, reference scores: the same for every source) are
+    // kept once, so the bootstrap sums fewer columns; a statistic reads the same sums either way.
+    const seen = new Map<number, number[]>();
+    const sameColumn = (a: Float64Array, b: Float64Array) => {
+      for (let i = 0; i < a.length; i++) if (a[i] !== b[i] && !(Number.isNaN(a[i]) && Number.isNaN(b[i]))) return false;
+      return true;
+    };
     const addColumn = (a: Float64Array): number => {
       let t = 0;
       for (let i = 0; i < a.length; i++) if (!Number.isNaN(a[i])) t += a[i];
+      const same = seen.get(t);
+      if (same) for (const c of same) if (sameColumn(columns[c], a)) return c;
       totals.push(t);
-      return columns.push(a) - 1;
+      const c = columns.push(a) - 1;
+      if (same) same.push(c);
+      else seen.set(t, [c]);
+      return c;
     };
     /** Per-run sums of per-case values (finite ones only). */
     const perRun = (v: (c: number) => number): number => {
@@ -554,7 +573,7 @@ function shareAbove(sorted: Float64Array, thr: number): number {
 }
 
 /** Share of paths with a value above thr at some lead (paths with a missing value left out). */
-function anyTimeShare(f: WarningSourceRun, H: number, thr: number): number {
+export function anyTimeShare(f: WarningSourceRun, H: number, thr: number): number {
   let n = 0;
   let above = 0;
   for (let i = 0; i < f.count; i++) {
