@@ -36,13 +36,16 @@ export interface RunPage {
   limit: number;
 }
 
-/** Stored runs in issue-time order (then id), one page at a time so long windows stream. */
-export async function readRunsForVerification(db: Queryable, p: RunPage): Promise<RunForVerification[]> {
+/**
+ * The conditions of one page of a gauge's stored runs after `where gauge_id = $1`, and their
+ * parameters; the page's limit is the last parameter. `t` prefixes the run table's columns ('r.').
+ */
+function runPageWhere(p: RunPage, t: string): { params: unknown[]; where: string } {
   const params: unknown[] = [p.gaugeId];
   let where = '';
   const add = (sql: string, v: unknown) => {
     params.push(v);
-    where += ` and ${sql.replace('?', `$${params.length}`)}`;
+    where += ` and ${t}${sql.replace('?', `$${params.length}`)}`;
   };
   if (p.fromMs !== undefined) add('issue_time >= to_timestamp(?)', p.fromMs / 1000);
   if (p.toMs !== undefined) add('issue_time < to_timestamp(?)', p.toMs / 1000);
@@ -50,9 +53,15 @@ export async function readRunsForVerification(db: Queryable, p: RunPage): Promis
   if (p.ids !== undefined) add('id = any(?::text[])', p.ids);
   if (p.after) {
     params.push(p.after.issueMs / 1000, p.after.id);
-    where += ` and (issue_time, id) > (to_timestamp($${params.length - 1}), $${params.length})`;
+    where += ` and (${t}issue_time, ${t}id) > (to_timestamp($${params.length - 1}), $${params.length})`;
   }
   params.push(p.limit);
+  return { params, where };
+}
+
+/** Stored runs in issue-time order (then id), one page at a time so long windows stream. */
+export async function readRunsForVerification(db: Queryable, p: RunPage): Promise<RunForVerification[]> {
+  const { params, where } = runPageWhere(p, '');
   const { rows } = await db.query<{
     id: string;
     t: number;
@@ -183,20 +192,7 @@ export interface StoredRunRecord {
  * false reads only whether each has a record (its bytes are then empty).
  */
 export async function readRunRecords(db: Queryable, p: RunPage, withBytes = true): Promise<StoredRunRecord[]> {
-  const params: unknown[] = [p.gaugeId];
-  let where = '';
-  const add = (sql: string, v: unknown) => {
-    params.push(v);
-    where += ` and ${sql.replace('?', `$${params.length}`)}`;
-  };
-  if (p.fromMs !== undefined) add('r.issue_time >= to_timestamp(?)', p.fromMs / 1000);
-  if (p.toMs !== undefined) add('r.issue_time < to_timestamp(?)', p.toMs / 1000);
-  if (p.source !== undefined) add('r.source = ?', p.source);
-  if (p.after) {
-    params.push(p.after.issueMs / 1000, p.after.id);
-    where += ` and (r.issue_time, r.id) > (to_timestamp($${params.length - 1}), $${params.length})`;
-  }
-  params.push(p.limit);
+  const { params, where } = runPageWhere(p, 'r.');
   const { rows } = await db.query<{
     id: string;
     t: number;
