@@ -438,9 +438,9 @@ export function runStochasticStage(
     for (let p = 0; p < N; p++) tieOf[drawOfTie[p]] = p;
   }
 
-  let pathIndex: Int32Array | null = null;
-  const pathTerm = workspace.f64('pathTerm', N);
-  if (paths) pathIndex = drawForcingPaths(paths, N, createPrng(options.seed, 3));
+  // The path each trajectory carries, and this lead's term of it per draw.
+  const pathIndex = paths ? drawForcingPaths(paths, N, createPrng(options.seed, 3)) : null;
+  const term = paths ? workspace.f64('pathTerm', N) : null;
 
   // ---- draws, marginals, shuffle --------------------------------------------------------------------
   const nP = probs.length;
@@ -554,12 +554,11 @@ export function runStochasticStage(
     sampleLead(kind, rngState, N, slot, 16 * k, cum[k - 1], cum, guide, tx, h * nMM, source, nbBase, vals, offset, boxCoxFloor);
     if (timings) timings.samplingMs += lap();
     // This lead's path terms per draw, in the form sampleLead adds errors: exp(δ), λ·δ or δ.
-    const term = paths ? pathTerm : null;
-    if (paths && pathIndex) {
+    if (paths && pathIndex && term) {
       const Hp = paths.nLeads;
       for (let j = 0; j < N; j++) {
         const d = paths.values[pathIndex[j] * Hp + h];
-        pathTerm[j] = kind === 1 ? Math.exp(d) : kind === 2 ? lambda * d : d;
+        term[j] = kind === 1 ? Math.exp(d) : kind === 2 ? lambda * d : d;
       }
     }
     if (shuffle) {
