@@ -545,7 +545,9 @@ export class RunCorrection {
     }
     // The run's verification record, so verifying stored runs never re-reads this answer. Not
     // part of the run's statement: if it fails, the first verification that reads the run builds it.
-    await storeRunRecord(db, gauge, id, recordInputFromView(view, percentiles)).catch(() => {});
+    await storeRunRecord(db, gauge, id, recordInputFromView(view, percentiles)).catch((err: Error) => {
+      log.warn({ gauge: gauge.id, run: id, err: err.message }, 'run verification record not stored; the next verification builds it');
+    });
     clock.lap('writes');
     metrics.runs.inc({ status });
     for (const [stage, ms] of Object.entries({ features: timings.featuresMs, inference: timings.inferenceMs, stochastic: timings.stochasticMs, total: timings.totalMs })) {
