@@ -6,6 +6,15 @@ import { evaluateReforecasts, type ReforecastEvaluation } from './reforecast-eva
 import { forcingPathsSummary, type Evaluation, type ResidualPredictor } from './residual-evaluation.ts';
 import { fitUpdating, type UpdatingFit, type UpdatingOptions } from './updating-fit.ts';
 
+/** Updating was asked for with mode 'on' and could not be fitted (the request's updating.mode is why it fails). */
+export class UpdatingFitError extends Error {
+  readonly field = 'updating.mode';
+  constructor(message: string) {
+    super(`updating: on was asked for, but ${message}`);
+    this.name = 'UpdatingFitError';
+  }
+}
+
 export interface AfterEvaluation {
   perLead: ReforecastEvaluation | null;
   /** The issue-time updater, its candidates' scores and archive; null when not asked for. */
@@ -72,7 +81,8 @@ export async function pastRunsAndUpdating(input: {
         updating.archive.summary.forcingPaths = forcingPathsSummary(updating.archive.archive);
       }
     } catch (err) {
-      if (err instanceof CancelledError || o.mode === 'on') throw err;
+      if (err instanceof CancelledError) throw err;
+      if (o.mode === 'on') throw new UpdatingFitError((err as Error).message);
       updatingError = (err as Error).message;
     }
   }

@@ -11,7 +11,7 @@ import { loadArchiveSeries, loadReforecastSet } from '../store/archive-series.ts
 import type { Db } from '../store/db.ts';
 import type { Gauge } from '../store/gauges-repo.ts';
 import { activateModelVersion, insertModelVersion } from '../store/models-repo.ts';
-import { runCompute } from '../workers/run-compute.ts';
+import { ComputeError, runCompute } from '../workers/run-compute.ts';
 import { defaultPeriods, perLeadParts, type FitOutput } from './fit.ts';
 import { defaultUpdatingLeads } from '../models/updating-fit.ts';
 import { conflict, invalid, type FieldError } from './problem.ts';
@@ -70,6 +70,7 @@ export async function evaluateUpload(db: Db, gauge: Gauge, body: UploadRequest, 
   try {
     out = await runCompute<typeof out>({ kind: 'evaluate-upload', series, onnx, spec, validation, archive: { transform: body.transform, templateLength: body.templateLength }, reforecasts, updating }).result;
   } catch (e) {
+    if (e instanceof ComputeError && e.field) throw invalid([{ path: `body.${e.field}`, message: e.message }], 'the uploaded model was refused; nothing was stored');
     throw invalid([{ path: 'body.onnxBase64', message: `the model failed on archive rows: ${(e as Error).message}` }], 'the uploaded model was refused; nothing was stored');
   }
   const perLead = perLeadParts(out.perLead);

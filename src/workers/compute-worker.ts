@@ -9,7 +9,7 @@ import { fitLstmResidualModel } from '../models/lstm-fit.ts';
 import { predictorFor } from '../models/model-shape.ts';
 import { createResidualSession } from '../models/onnx-session.ts';
 import type { ReforecastEvaluation } from '../models/reforecast-evaluation.ts';
-import { pastRunsAndUpdating } from '../models/past-runs-and-updating.ts';
+import { pastRunsAndUpdating, UpdatingFitError } from '../models/past-runs-and-updating.ts';
 import { archiveSummary, evaluateResidualModel, rawArchiveFromSeries } from '../models/residual-evaluation.ts';
 import { fitResidualModel } from '../models/residual-fit.ts';
 import type { ComputeMessage, ComputeStart } from './protocol.ts';
@@ -122,5 +122,5 @@ async function run(): Promise<unknown> {
 
 run().then(
   (result) => post({ type: 'done', result }),
-  (err: Error) => post({ type: 'error', message: err.message, cancelled: err instanceof CancelledError }),
+  (err: Error) => post({ type: 'error', message: err.message, cancelled: err instanceof CancelledError, ...(err instanceof UpdatingFitError ? { field: err.field } : {}) }),
 );

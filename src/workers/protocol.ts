@@ -57,4 +57,5 @@ export interface ComputeStart extends WorkerStart {
 export type ComputeMessage =
   | { type: 'progress'; stage: string; percent: number }
   | { type: 'done'; result: unknown }
-  | { type: 'error'; message: string; cancelled: boolean };
+  /** field: the request option the failure is about (an UpdatingFitError's), when it is one. */
+  | { type: 'error'; message: string; cancelled: boolean; field?: string };

@@ -2,6 +2,17 @@ import { Worker } from 'node:worker_threads';
 import { CancelledError } from '../core/cancelled.ts';
 import type { ComputeMessage, ComputeStart, ComputeTask } from './protocol.ts';
 
+/** A compute task's failure; `field` names the request option it is about, when the worker said so. */
+export class ComputeError extends Error {
+  constructor(
+    message: string,
+    readonly field: string | null,
+  ) {
+    super(message);
+    this.name = 'ComputeError';
+  }
+}
+
 export interface ComputeHandle<T> {
   result: Promise<T>;
   /** Asks the worker to stop at its next check; the result then rejects with CancelledError. */
@@ -23,7 +34,7 @@ export function runCompute<T>(task: ComputeTask, onProgress: (p: { stage: string
         void worker.terminate();
       } else if (m.type === 'error') {
         settled = true;
-        reject(m.cancelled ? new CancelledError() : new Error(m.message));
+        reject(m.cancelled ? new CancelledError() : new ComputeError(m.message, m.field ?? null));
         void worker.terminate();
       }
     });

@@ -147,6 +147,23 @@ describe('models trained elsewhere', () => {
     expect((await versionArchive(t.db, v.id, 'corrected', 'updating')) !== null).toBe(v.scores.updating.status === 'on');
   });
 
+  it('refuses an upload whose updating: on cannot be fitted, naming body.updating.mode, and stores nothing; auto stores it without', async () => {
+    // A 60-day validation period: enough for the 30-step archive, too short for the updater (10 per lead time).
+    const n = scenario.times.length;
+    const validation = { from: scenario.times[n - 61], to: scenario.times[n - 1] };
+    const versions = async () => (await t.as('read', { method: 'GET', url: `/gauges/${gaugeId}/models` })).json().versions.length;
+    const before = await versions();
+    const payload = { label: 'short', featureSpec: spec, onnxBase64: mlp.toString('base64'), templateLength: 30, validation };
+    const on = await t.as('admin', { method: 'POST', url: `/gauges/${gaugeId}/models/upload`, payload: { ...payload, updating: { mode: 'on' } } });
+    expect(on.statusCode, on.body).toBe(422);
+    expect(on.headers['content-type']).toContain('application/problem+json');
+    expect(on.json().errors[0]).toMatchObject({ path: 'body.updating.mode', message: expect.stringMatching(/updating: on was asked for, but .*observed steps/) });
+    expect(await versions()).toBe(before);
+    const auto = await t.as('admin', { method: 'POST', url: `/gauges/${gaugeId}/models/upload`, payload });
+    expect(auto.statusCode, auto.body).toBe(201);
+    expect(auto.json().scores.updating).toMatchObject({ status: 'off', reason: expect.stringMatching(/observed steps/) });
+  });
+
   it('fits no updater for an upload that asks for none, and says so', async () => {
     const res = await t.as('admin', {
       method: 'POST',
