@@ -8,30 +8,14 @@
  * Data are invented (a seasonal log-AR(1) river; members scattered around the truth).
  */
 import os from 'node:os';
-import { createPrng } from '../src/core/prng.ts';
+import { benchRiver, DAY, H, K, M, THRESHOLDS } from './verification-bench-river.ts';
 import { midpointProbs } from '../src/core/verification/index.ts';
 import { buildRunRecord, packRecords } from '../src/core/verification/run-record.ts';
 import { verifyStoredRecords, type StoredRunMeta } from '../src/core/verification/stored-verification.ts';
 
 const nRuns = Number(process.argv[2] ?? 5000);
 const repeats = Number(process.argv[3] ?? 4);
-const H = 10;
-const M = 20;
-const K = 100;
-const DAY = 86_400_000;
-const THRESHOLDS = [
-  { label: '2-year flow', value: 90 },
-  { label: '10-year flow', value: 140 },
-  { label: '50-year flow', value: 190 },
-];
-const g = createPrng(7);
-const nHist = 20 * 365;
-const n = nHist + nRuns + H + 1;
-const t0 = Date.UTC(2000, 0, 1);
-const times = Float64Array.from({ length: n }, (_, i) => t0 + i * DAY);
-const z = new Float64Array(n);
-for (let i = 1; i < n; i++) z[i] = 0.85 * z[i - 1] + 0.35 * g.normal();
-const flow = Float64Array.from(z, (x, i) => 50 * Math.exp(x + 0.5 * Math.sin((2 * Math.PI * i) / 365.25)));
+const { g, nHist, times, z, flow } = benchRiver(nRuns);
 const probs = midpointProbs(K);
 const metas: StoredRunMeta[] = [];
 const records: Uint8Array[] = [];

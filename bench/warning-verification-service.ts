@@ -14,7 +14,7 @@
 import { randomBytes } from 'node:crypto';
 import os from 'node:os';
 import pg from 'pg';
-import { createPrng } from '../src/core/prng.ts';
+import { benchRiver, DAY, H, K, M, THRESHOLDS } from './verification-bench-river.ts';
 import { midpointProbs } from '../src/core/verification/index.ts';
 import { packRecords } from '../src/core/verification/run-record.ts';
 import { CorrectionPool } from '../src/workers/correction-pool.ts';
@@ -33,15 +33,6 @@ if (!DATABASE_URL) {
   process.exit(2);
 }
 const nRuns = Number(process.argv[2] ?? 5000);
-const H = 10;
-const M = 20;
-const K = 100;
-const DAY = 86_400_000;
-const THRESHOLDS = [
-  { label: '2-year flow', value: 90 },
-  { label: '10-year flow', value: 140 },
-  { label: '50-year flow', value: 190 },
-];
 
 const name = `bench_wv_${randomBytes(4).toString('hex')}`;
 const admin = new pg.Client({ connectionString: DATABASE_URL });
@@ -53,14 +44,7 @@ const db = openPostgres(u.toString(), 4);
 try {
   await migrate(db, readMigrations());
   const gauge = await insertGauge(db, { id: 'bench-river', name: 'Bench River at Nowhere', catchmentAreaKm2: 300, timeStep: 'P1D', stepSeconds: 86400, timeZone: 'UTC', flowUnit: 'm3/s', location: null, thresholds: THRESHOLDS });
-  const g = createPrng(7);
-  const nHist = 20 * 365;
-  const n = nHist + nRuns + H + 1;
-  const t0 = Date.UTC(2000, 0, 1);
-  const times = Float64Array.from({ length: n }, (_, i) => t0 + i * DAY);
-  const z = new Float64Array(n);
-  for (let i = 1; i < n; i++) z[i] = 0.85 * z[i - 1] + 0.35 * g.normal();
-  const flow = Float64Array.from(z, (x, i) => 50 * Math.exp(x + 0.5 * Math.sin((2 * Math.PI * i) / 365.25)));
+  const { g, nHist, times, z, flow } = benchRiver(nRuns);
   await upsertObservations(db, gauge.id, times, flow, null);
   const probs = Array.from(midpointProbs(K));
   const t1 = performance.now();
